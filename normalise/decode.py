@@ -1,0 +1,451 @@
+"""Decode pass: find each column's format and decode whole columns at once.
+
+Formats of a column's text cells:
+
+* ``json``           JSON text (RFC 8259)
+* ``python-literal`` the repr of lists, dicts, tuples, strings, numbers, None/True/False
+* ``delimited``      values joined by a separator (``poetry|essays``)
+* ``scalar``         plain text or numbers
+
+Empty markers (blank, ``[]``, ``{}``, ``None``, ``null``, ``nan``) are empty,
+never values. A cell that fails goes to quarantine with its place and a
+message, and its row stays.
+
+Speed: Python-literal columns are rewritten to JSON in bulk with C-level
+string operations (regex split, join, replace) and parsed by ``json.loads``;
+only cells outside the shared subset of the two grammars (escapes, tuples,
+sets, non-string keys, trailing commas...) take the exact per-cell path in
+``literal.py``. Both routes give what ``ast.literal_eval`` gives: the bulk
+route accepts a cell only when every token is one whose meaning is the same in
+both grammars.
+"""
+
+from __future__ import annotations
+
+import csv
+import json
+import re
+from collections import Counter
+from dataclasses import dataclass, field
+
+from .literal import CellError, Limits, check_limits, decode_json, decode_python_literal
+from .read import Export
+
+FORMATS = ("json", "python-literal", "delimited", "text")
+EMPTY_MARKERS = frozenset(["", "[]", "{}", "()", "None", "null", "nan", "NaN"])
+SEPARATOR_CANDIDATES = ("|", ";", ",")
+# Name suffixes and company forms: a piece like this after a comma suggests the
+# comma belongs inside a value ("Dole, Jr."), not between values.
+_SUFFIX_PIECE = re.compile(r"(?i)^(jr|sr|ii|iii|iv|v|phd|ph\.d|md|esq|inc|ltd|llc|plc|co|gmbh)\.?$")
+_NESTED_START = frozenset("[{(")
+
+
+@dataclass
+class QuarantinedCell:
+    """A cell that could not be decoded, with everything needed to find and fix it."""
+
+    file: str
+    line: int
+    column: str
+    position: int | None
+    excerpt: str
+    message: str
+
+    def __str__(self) -> str:
+        where = f"{self.file}, line {self.line}, column {self.column}"
+        if self.position is not None:
+            where += f", char {self.position}"
+        return f"{where}: {self.message} (got {self.excerpt!r})"
+
+
+@dataclass
+class DecodedColumn:
+    """One column after decoding: a value per row (None when empty or quarantined)."""
+
+    name: str
+    encoding: str  # json | python-literal | delimited | scalar | mixed | empty
+    values: list
+    quarantined: list[QuarantinedCell] = field(default_factory=list)
+    format_counts: dict[str, int] = field(default_factory=dict)
+    separator: str | None = None
+    ambiguity: list[str] = field(default_factory=list)
+    forced: bool = False
+
+
+def excerpt(text: str, position: int | None, width: int = 24) -> str:
+    """A short piece of the cell around the position, for messages."""
+    start = 0 if position is None else max(0, position - 1 - width // 2)
+    piece = text[start:start + width]
+    return ("..." if start else "") + piece + ("..." if start + width < len(text) else "")
+
+
+# --- Python literals, whole column -------------------------------------------
+
+# A string token of the shared subset: no backslash, no NUL (NUL separates cells).
+_SIMPLE_STRING = re.compile(r"""('[^'\x00]*'|"[^"\x00]*")""")
+# What may stand between string tokens in a cell the bulk route accepts.
+_SIMPLE_SKELETON = re.compile(r"(?:[ \t\r\n\[\]{},:0-9.eE+\-]+|None|True|False)*")
+_WORDS = (("None", "null"), ("True", "true"), ("False", "false"))
+_UNSET = object()
+
+
+def _separator_absent_from(text: str) -> str:
+    for candidate in ("\x01", "\x02", "\x03", "\x04", "\ue000", "\ufdd0"):
+        if candidate not in text:
+            return candidate
+    raise RuntimeError("no free separator")  # pragma: no cover - needs all six in the data
+
+
+def python_literals_as_json(texts: list[str]) -> list[str | None]:
+    """Rewrite Python-literal cells as JSON text where the two grammars agree.
+
+    Returns, per cell, JSON text that ``json.loads`` turns into exactly what
+    ``ast.literal_eval`` gives for the cell, or None when the cell needs the
+    exact path. Works on the whole column with C-level string operations.
+
+    Example:
+        >>> python_literals_as_json(["[{'a': None, 'b': \\"O'H\\"}]", "(1, 2)", "['x\\\\n']"])
+        ['[{"a": null, "b": "O\\'H"}]', None, None]
+    """
+    out: list[str | None] = [None] * len(texts)
+    index = [i for i, t in enumerate(texts) if "\\" not in t and "\x00" not in t]
+    if not index:
+        return out
+    big = "\x00".join([texts[i] for i in index])
+    pieces = _SIMPLE_STRING.split(big)
+    strings = pieces[1::2]
+    skeletons = pieces[0::2]
+    # Skeleton per cell (strings removed) decides whether the bulk route applies.
+    cell_skeletons = "".join(skeletons).split("\x00")
+    # Strings: '...' -> "..." with inner double quotes escaped; "..." kept.
+    if strings:
+        sep = _separator_absent_from(big)
+        converted = sep.join(strings).replace('"', '\\"').replace("'", '"').split(sep)
+        if '"' in big:
+            for k, s in enumerate(strings):
+                if s[0] == '"':
+                    converted[k] = s
+        pieces[1::2] = converted
+    sep = _separator_absent_from(big)
+    skeleton_text = sep.join(skeletons)
+    for word, json_word in _WORDS:
+        if word in skeleton_text:
+            skeleton_text = skeleton_text.replace(word, json_word)
+    pieces[0::2] = skeleton_text.split(sep)
+    cells = "".join(pieces).split("\x00")
+    fullmatch = _SIMPLE_SKELETON.fullmatch
+    for i, skeleton, cell in zip(index, cell_skeletons, cells):
+        if fullmatch(skeleton):
+            out[i] = cell
+    return out
+
+
+def _decode_python_column(texts: list[str], limits: Limits) -> list:
+    """Decode Python-literal cells; a CellError instance marks a failed cell."""
+    values = []
+    as_json = python_literals_as_json(texts)
+    loads = json.loads
+    for text, js in zip(texts, as_json):
+        value = _UNSET
+        if js is not None:
+            try:
+                check_limits(text, limits)
+                value = loads(js, parse_constant=_no_constant)
+            except CellError as exc:
+                value = exc
+            except (ValueError, RecursionError):
+                value = _UNSET
+        if value is _UNSET:
+            try:
+                value = decode_python_literal(text, limits)
+            except CellError as exc:
+                value = exc
+        values.append(value)
+    return values
+
+
+def _no_constant(name):
+    raise ValueError(name)
+
+
+def _decode_json_column(texts: list[str], limits: Limits) -> list:
+    values = []
+    loads = json.loads
+    for text in texts:
+        try:
+            check_limits(text, limits)
+            values.append(loads(text, parse_constant=_no_constant))
+        except CellError as exc:
+            values.append(exc)
+        except (ValueError, RecursionError):
+            try:
+                values.append(decode_json(text, limits))
+            except CellError as exc:
+                values.append(exc)
+    return values
+
+
+# --- delimited lists ----------------------------------------------------------
+
+def split_delimited(text: str, sep: str) -> list[str]:
+    """Split a delimited cell; a value quoted with double quotes keeps its separators.
+
+    Example:
+        >>> split_delimited('poetry|"essays|letters"| drama', "|")
+        ['poetry', 'essays|letters', 'drama']
+    """
+    if '"' in text:
+        pieces = next(csv.reader([text], delimiter=sep, skipinitialspace=True), [])
+    else:
+        pieces = text.split(sep)
+    return [p.strip() for p in pieces if p.strip()]
+
+
+def detect_separator(texts: list[str]) -> str | None:
+    """The separator of a delimited column, or None when the cells look like plain text.
+
+    A separator must occur in a fair share of the cells, and the pieces it
+    yields must repeat across rows (labels do; words of prose do not).
+
+    Example:
+        >>> detect_separator(["poetry|essays", "essays", "drama|poetry|essays"])
+        '|'
+        >>> detect_separator(["Hello, world", "A sentence, with commas", "Plain"]) is None
+        True
+    """
+    if not texts:
+        return None
+    best = None
+    for sep in SEPARATOR_CANDIDATES:
+        with_sep = [t for t in texts if sep in t]
+        if len(with_sep) < max(2, 0.1 * len(texts)) and not (len(texts) < 10 and with_sep):
+            continue
+        pieces = [p for t in texts for p in split_delimited(t, sep)]
+        if not pieces:
+            continue
+        distinct = len(set(pieces))
+        repeat = 1 - distinct / len(pieces)
+        long_prose = sum(len(p) > 60 for p in pieces) / len(pieces)
+        if long_prose > 0.2:
+            continue
+        if sep == "," and repeat < 0.3:
+            continue
+        if sep != "," and repeat < 0.1 and len(pieces) > 20:
+            continue
+        score = (len(with_sep), repeat)
+        if best is None or score > best[0]:
+            best = (score, sep)
+    return None if best is None else best[1]
+
+
+def delimited_ambiguity(texts: list[str], lines: list[int], sep: str, limit: int = 5) -> list[str]:
+    """Evidence that the separator also occurs inside values (a name suffix after a comma)."""
+    evidence = []
+    for text, line in zip(texts, lines):
+        if '"' in text:
+            continue  # quoted values are unambiguous
+        for piece in text.split(sep)[1:]:
+            if _SUFFIX_PIECE.match(piece.strip()):
+                evidence.append(f"line {line}: {piece.strip()!r} in {text!r} looks like part of "
+                                f"the value before it, not a value of its own")
+                break
+        if len(evidence) >= limit:
+            break
+    return evidence
+
+
+# --- per column ---------------------------------------------------------------
+
+def _classify(text: str) -> str:
+    if text in EMPTY_MARKERS:
+        return "empty"
+    return "nested" if text[0] in _NESTED_START else "text"
+
+
+def parse_decode_option(spec: str) -> tuple[str, str, str | None]:
+    """Parse ``COLUMN=FORMAT`` (FORMAT: json, python-literal, text, delimited or delimited:SEP).
+
+    Example:
+        >>> parse_decode_option("formats=delimited:|")
+        ('formats', 'delimited', '|')
+    """
+    from .errors import UsageError
+
+    column, eq, fmt = spec.partition("=")
+    if not eq or not column:
+        raise UsageError(f"--decode {spec!r}: expected COLUMN=FORMAT, e.g. --decode tags=delimited:|")
+    fmt, _, sep = fmt.partition(":")
+    if fmt not in FORMATS:
+        raise UsageError(f"--decode {spec!r}: unknown format {fmt!r}; use one of {', '.join(FORMATS)}"
+                         " (delimited may name its separator: delimited:;)")
+    if sep and fmt != "delimited":
+        raise UsageError(f"--decode {spec!r}: only delimited takes a separator")
+    return column, fmt, (sep or None)
+
+
+def decode_column(name: str, cells: list, lines: list[int], file: str,
+                  limits: Limits = Limits(), forced: tuple[str, str | None] | None = None) -> DecodedColumn:
+    """Decode one column of raw cells, detecting its format unless ``forced``.
+
+    Example:
+        >>> c = decode_column("people", ["[{'id': 1}]", "", "[{'id': 2}, {'id': 3}]"], [2, 3, 4], "x.csv")
+        >>> c.encoding, c.values
+        ('python-literal', [[{'id': 1}], None, [{'id': 2}, {'id': 3}]])
+    """
+    n = len(cells)
+    values: list = [None] * n
+    counts: Counter = Counter()
+    quarantined: list[QuarantinedCell] = []
+    text_rows: list[int] = []
+    texts: list[str] = []
+    kinds: list[str] = []
+    for i, cell in enumerate(cells):
+        if cell is None:
+            counts["empty"] += 1
+        elif isinstance(cell, str):
+            text = cell.strip()
+            kind = _classify(text)
+            if kind == "empty":
+                counts["empty"] += 1
+            else:
+                text_rows.append(i)
+                texts.append(text)
+                kinds.append(kind)
+        elif isinstance(cell, (list, dict)):  # JSON Lines: already decoded
+            counts["json"] += 1
+            values[i] = cell if cell else None
+            if not cell:
+                counts["json"] -= 1
+                counts["empty"] += 1
+        else:  # JSON Lines scalar
+            if isinstance(cell, float) and cell != cell:
+                counts["empty"] += 1
+            else:
+                counts["scalar"] += 1
+                values[i] = cell
+
+    def quarantine(i: int, text: str, error: CellError) -> None:
+        quarantined.append(QuarantinedCell(file, lines[i], name, error.position,
+                                           excerpt(text, error.position), error.message))
+        counts["invalid"] += 1
+
+    fmt, sep = forced if forced else _detect_format(texts, kinds)
+    if fmt in ("json", "python-literal", "mixed"):
+        nested = [k for k, kind in enumerate(kinds) if kind == "nested" or forced]
+        primary = fmt if fmt != "mixed" else _dominant_nested(texts, nested)
+        decoded = _decode_many(primary, [texts[k] for k in nested], limits)
+        other = "python-literal" if primary == "json" else "json"
+        failed = [j for j, v in enumerate(decoded) if isinstance(v, CellError)]
+        retry = {}
+        if failed and not forced:
+            second = _decode_many(other, [texts[nested[j]] for j in failed], limits)
+            retry = {j: v for j, v in zip(failed, second) if not isinstance(v, CellError)}
+            share = len(retry) / max(1, len(nested))
+            if len(retry) < 2 or share < 0.05:
+                retry = {}  # a stray cell of the other grammar is a malformed cell, not a format
+            else:
+                fmt = "mixed"
+        for j, value in enumerate(decoded):
+            k = nested[j]
+            row = text_rows[k]
+            if j in retry:
+                counts[other] += 1
+                values[row] = retry[j] if _is_present(retry[j]) else None
+            elif isinstance(value, CellError):
+                if not forced and _decodes_as(other, texts[k], limits):
+                    value.message += f" (the cell would read as {other}; --decode {name}={other} reads the column so)"
+                quarantine(row, texts[k], value)
+            else:
+                counts[primary] += 1
+                values[row] = value if _is_present(value) else None
+        plain = [k for k, kind in enumerate(kinds) if kind == "text"] if not forced else []
+        for k in plain:
+            counts["text"] += 1
+            if not forced:
+                quarantine(text_rows[k], texts[k],
+                           CellError(f"plain text in a {primary} column", 1))
+                counts["text"] -= 1
+        encoding = fmt
+    elif fmt == "delimited":
+        encoding = "delimited"
+        sep = sep or detect_separator(texts) or "|"
+        for k, text in enumerate(texts):
+            try:
+                check_limits(text, limits)
+            except CellError as exc:
+                quarantine(text_rows[k], text, exc)
+                continue
+            parts = split_delimited(text, sep)
+            values[text_rows[k]] = parts or None
+            counts["delimited" if parts else "empty"] += 1
+    else:
+        encoding = "scalar"
+        for k, text in enumerate(texts):
+            try:
+                check_limits(text, limits)
+            except CellError as exc:
+                quarantine(text_rows[k], text, exc)
+                continue
+            values[text_rows[k]] = text
+            counts["scalar"] += 1
+    if counts.get("json") and encoding == "scalar" and not texts:
+        encoding = "json"  # JSON Lines fields that arrived decoded
+    elif counts.get("json") and encoding in ("scalar", "python-literal") and texts:
+        if encoding == "python-literal" or counts["scalar"]:
+            encoding = "mixed"
+    if not any(v for k, v in counts.items() if k not in ("empty", "invalid")) and not counts.get("invalid"):
+        encoding = "empty"
+    column = DecodedColumn(name, encoding, values, quarantined,
+                           {k: v for k, v in sorted(counts.items()) if v}, sep if encoding == "delimited" else None,
+                           forced=bool(forced))
+    if encoding == "delimited":
+        column.ambiguity = delimited_ambiguity(texts, [lines[r] for r in text_rows], sep)
+    return column
+
+
+def _is_present(value) -> bool:
+    """Decoded empties ([], {}, (), None) are empty, never values."""
+    return value is not None and not (isinstance(value, (list, dict, tuple, set)) and not value)
+
+
+def _decode_many(fmt: str, texts: list[str], limits: Limits) -> list:
+    if fmt == "json":
+        return _decode_json_column(texts, limits)
+    return _decode_python_column(texts, limits)
+
+
+def _decodes_as(fmt: str, text: str, limits: Limits) -> bool:
+    return not isinstance(_decode_many(fmt, [text], limits)[0], CellError)
+
+
+def _dominant_nested(texts: list[str], nested: list[int]) -> str:
+    sample = [texts[k] for k in nested[:500]]
+    as_json = sum(not isinstance(v, CellError) for v in _decode_json_column(sample, Limits()))
+    as_python = sum(not isinstance(v, CellError) for v in _decode_python_column(sample, Limits()))
+    return "json" if as_json >= as_python else "python-literal"
+
+
+def _detect_format(texts: list[str], kinds: list[str]) -> tuple[str, str | None]:
+    if not texts:
+        return "scalar", None
+    nested = [k for k, kind in enumerate(kinds) if kind == "nested"]
+    if len(nested) >= 0.5 * len(texts):
+        return _dominant_nested(texts, nested), None
+    plain = [texts[k] for k, kind in enumerate(kinds) if kind == "text"]
+    sep = detect_separator(plain[:5000])
+    if sep is not None:
+        return "delimited", sep
+    return "scalar", None
+
+
+def decode(export: Export, limits: Limits = Limits(),
+           formats: dict[str, tuple[str, str | None]] | None = None) -> dict[str, DecodedColumn]:
+    """Decode every column of an export; ``formats`` fixes a column's format by name."""
+    formats = formats or {}
+    out = {}
+    for name in export.columns:
+        forced = formats.get(name)
+        if forced and forced[0] == "text":
+            forced = ("scalar", None)
+        out[name] = decode_column(name, export.cells[name], export.lines, export.path, limits, forced)
+    return out

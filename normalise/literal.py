@@ -1,0 +1,196 @@
+"""Exact decoding of single cells: JSON (RFC 8259) and Python literals.
+
+These are the reference paths. ``decode.py`` runs whole columns through faster
+routes and sends here only the cells those routes cannot settle, so every value
+the tool produces is the value ``json.loads`` or ``ast.literal_eval`` returns.
+
+Nothing here evaluates code: Python text is parsed to a syntax tree, checked to
+be a literal, and only then converted by ``ast.literal_eval``.
+"""
+
+from __future__ import annotations
+
+import ast
+import json
+import re
+from dataclasses import dataclass
+from itertools import accumulate
+
+# CPython's tokenizer refuses more than 200 nested brackets ("too many nested
+# parentheses"); json.loads recurses in C and hits RecursionError near 1,000.
+# The tool's own limit is checked first, so neither parser is ever pushed there.
+PYTHON_PARSER_MAX_DEPTH = 200
+DEFAULT_MAX_DEPTH = 100
+DEFAULT_MAX_CELL_CHARS = 16 * 1024 * 1024
+
+
+@dataclass(frozen=True)
+class Limits:
+    """Bounds on one cell; a cell beyond them is quarantined with a message."""
+
+    max_depth: int = DEFAULT_MAX_DEPTH
+    max_cell_chars: int = DEFAULT_MAX_CELL_CHARS
+
+
+class CellError(ValueError):
+    """A cell that cannot be decoded; ``position`` is a 1-based character offset."""
+
+    def __init__(self, message: str, position: int | None = None):
+        super().__init__(message)
+        self.message = message
+        self.position = position
+
+
+_STRING_LITERALS = re.compile(r"""'(?:[^'\\\n]|\\.)*'|"(?:[^"\\\n]|\\.)*\"""", re.S)
+_BRACKETS = re.compile(r"[\[\]{}()]")
+_OPENERS = frozenset("[{(")
+_SURROGATE = re.compile("[\ud800-\udfff]")
+
+
+def nesting_depth(text: str) -> int:
+    """Deepest bracket nesting outside string literals.
+
+    Example:
+        >>> nesting_depth("[{'a': '[[['}, [1]]")
+        2
+    """
+    brackets = _BRACKETS.findall(_STRING_LITERALS.sub("", text))
+    if not brackets:
+        return 0
+    return max(0, max(accumulate(1 if b in _OPENERS else -1 for b in brackets)))
+
+
+def check_limits(text: str, limits: Limits) -> None:
+    """Refuse a cell over the size or depth limit, or holding bytes the encoding could not read."""
+    if len(text) > limits.max_cell_chars:
+        raise CellError(f"cell of {len(text):,} characters exceeds the limit of "
+                        f"{limits.max_cell_chars:,} (--max-cell-chars)", 1)
+    if text.count("[") + text.count("{") + text.count("(") > limits.max_depth:
+        depth = nesting_depth(text)
+        if depth > limits.max_depth:
+            raise CellError(f"nesting depth {depth} exceeds the limit of {limits.max_depth} "
+                            f"(--max-depth)", 1)
+    if not text.isascii():
+        bad = _SURROGATE.search(text)
+        if bad:
+            raise CellError("bytes that are not valid in the file's encoding "
+                            "(try --encoding)", bad.start() + 1)
+
+
+def _refuse_constant(name: str):
+    raise CellError(f"{name} is not a JSON value (RFC 8259, section 6 allows no NaN or Infinity)")
+
+
+def decode_json(text: str, limits: Limits = Limits()):
+    """Decode one JSON text exactly as ``json.loads`` does, refusing NaN and Infinity.
+
+    Example:
+        >>> decode_json('[{"id": 7, "name": "Ann"}]')
+        [{'id': 7, 'name': 'Ann'}]
+        >>> decode_json('[NaN]')
+        Traceback (most recent call last):
+        ...
+        normalise.literal.CellError: NaN is not a JSON value (RFC 8259, section 6 allows no NaN or Infinity)
+    """
+    check_limits(text, limits)
+    try:
+        return json.loads(text, parse_constant=_refuse_constant)
+    except CellError as exc:
+        name = str(exc).split(" ", 1)[0]
+        found = re.search(r"(?<![\w\"])" + re.escape(name), text)
+        exc.position = found.start() + 1 if found else None
+        raise
+    except json.JSONDecodeError as exc:
+        raise CellError(f"not valid JSON: {exc.msg}", exc.pos + 1) from None
+    except (RecursionError, MemoryError):
+        raise CellError("too deeply nested to decode", 1) from None
+    except ValueError as exc:  # e.g. an integer beyond the interpreter's digit limit
+        raise CellError(f"not valid JSON: {exc}", None) from None
+
+
+_NOT_LITERAL = {
+    ast.Call: "a call",
+    ast.ListComp: "a comprehension",
+    ast.SetComp: "a comprehension",
+    ast.DictComp: "a comprehension",
+    ast.GeneratorExp: "a comprehension",
+    ast.Lambda: "a lambda",
+    ast.JoinedStr: "an f-string",
+    ast.Attribute: "attribute access",
+    ast.Subscript: "a subscript",
+    ast.Name: "a name",
+    ast.Starred: "unpacking",
+    ast.NamedExpr: "an assignment expression",
+    ast.IfExp: "a conditional expression",
+    ast.BoolOp: "a boolean operation",
+    ast.Compare: "a comparison",
+    ast.Await: "an await",
+    ast.Yield: "a yield",
+    ast.YieldFrom: "a yield",
+}
+
+
+def _offset(text: str, lineno: int | None, col: int | None) -> int | None:
+    """1-based character offset of a (1-based line, 0-based column) place in text."""
+    if lineno is None or col is None:
+        return None
+    lines = text.split("\n")
+    return sum(len(line) + 1 for line in lines[: lineno - 1]) + col + 1
+
+
+def _describe_non_literal(tree: ast.AST, text: str) -> CellError | None:
+    """The first construct (by position) that makes the tree more than a literal."""
+    found = []
+    for node in ast.walk(tree):
+        kind = _NOT_LITERAL.get(type(node))
+        if kind is None:
+            continue
+        if isinstance(node, ast.Call) and isinstance(node.func, ast.Name) \
+                and node.func.id == "set" and not node.args and not node.keywords:
+            continue  # set() is the one call ast.literal_eval accepts
+        if isinstance(node, ast.Name) and any(isinstance(p, ast.Call) and p.func is node
+                                               for p in ast.walk(tree)):
+            continue  # the callee's name; the call itself is reported
+        found.append(((node.lineno, node.col_offset), node, kind))
+    if not found:
+        return None
+    (line, col), node, kind = min(found, key=lambda f: f[0])
+    detail = f" {node.id!r}" if isinstance(node, ast.Name) else ""
+    return CellError(f"{kind}{detail} is not a Python literal; expressions are never evaluated",
+                     _offset(text, line, col))
+
+
+def decode_python_literal(text: str, limits: Limits = Limits()):
+    """Decode one Python literal exactly as ``ast.literal_eval`` does, without ever evaluating code.
+
+    Example:
+        >>> decode_python_literal("[{'id': 7, 'name': \\"O'Hara\\", 'lead': None}]")
+        [{'id': 7, 'name': "O'Hara", 'lead': None}]
+        >>> decode_python_literal("[__import__('os')]")
+        Traceback (most recent call last):
+        ...
+        normalise.literal.CellError: a call is not a Python literal; expressions are never evaluated
+    """
+    check_limits(text, limits)
+    if limits.max_depth >= PYTHON_PARSER_MAX_DEPTH and nesting_depth(text) >= PYTHON_PARSER_MAX_DEPTH:
+        raise CellError(f"nesting deeper than {PYTHON_PARSER_MAX_DEPTH} levels, the most "
+                        "Python's literal grammar allows", 1)
+    source = text.lstrip(" \t")  # as ast.literal_eval strips it
+    shift = len(text) - len(source)
+    try:
+        tree = ast.parse(source, mode="eval")
+    except SyntaxError as exc:
+        where = _offset(source, exc.lineno, (exc.offset or 1) - 1)
+        raise CellError(f"not a Python literal: {exc.msg}",
+                        None if where is None else where + shift) from None
+    except (ValueError, MemoryError, RecursionError) as exc:
+        raise CellError(f"not a Python literal: {exc}", None) from None
+    problem = _describe_non_literal(tree, source)
+    if problem is not None:
+        if problem.position is not None:
+            problem.position += shift
+        raise problem
+    try:
+        return ast.literal_eval(tree)
+    except (ValueError, TypeError, SyntaxError, MemoryError, RecursionError) as exc:
+        raise CellError(f"not a Python literal: {exc}", None) from None
