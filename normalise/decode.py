@@ -38,6 +38,11 @@ SEPARATOR_CANDIDATES = ("|", ";", ",")
 # comma belongs inside a value ("Dole, Jr."), not between values.
 _SUFFIX_PIECE = re.compile(r"(?i)^(jr|sr|ii|iii|iv|v|phd|ph\.d|md|esq|inc|ltd|llc|plc|co|gmbh)\.?$")
 _NESTED_START = frozenset("[{(")
+# A second grammar counts as a format of its own (the column is "mixed") only
+# when at least this many cells, and this share of the nested cells, need it;
+# fewer are malformed cells of the main format and go to quarantine.
+MIXED_MIN_CELLS = 3
+MIXED_MIN_SHARE = 0.05
 
 
 @dataclass
@@ -84,7 +89,7 @@ def excerpt(text: str, position: int | None, width: int = 24) -> str:
 # A string token of the shared subset: no backslash, no NUL (NUL separates cells).
 _SIMPLE_STRING = re.compile(r"""('[^'\x00]*'|"[^"\x00]*")""")
 # What may stand between string tokens in a cell the bulk route accepts.
-_SIMPLE_SKELETON = re.compile(r"(?:[ \t\r\n\[\]{},:0-9.eE+\-]+|None|True|False)*")
+_SIMPLE_SKELETON = re.compile(r"(?:[ \t\r\n\[\]{},:0-9.eE+\-]++|None|True|False)*+")
 _WORDS = (("None", "null"), ("True", "true"), ("False", "false"))
 _UNSET = object()
 
@@ -341,7 +346,7 @@ def decode_column(name: str, cells: list, lines: list[int], file: str,
             second = _decode_many(other, [texts[nested[j]] for j in failed], limits)
             retry = {j: v for j, v in zip(failed, second) if not isinstance(v, CellError)}
             share = len(retry) / max(1, len(nested))
-            if len(retry) < 2 or share < 0.05:
+            if len(retry) < MIXED_MIN_CELLS or share < MIXED_MIN_SHARE:
                 retry = {}  # a stray cell of the other grammar is a malformed cell, not a format
             else:
                 fmt = "mixed"
@@ -419,10 +424,19 @@ def _decodes_as(fmt: str, text: str, limits: Limits) -> bool:
 
 
 def _dominant_nested(texts: list[str], nested: list[int]) -> str:
-    sample = [texts[k] for k in nested[:500]]
-    as_json = sum(not isinstance(v, CellError) for v in _decode_json_column(sample, Limits()))
-    as_python = sum(not isinstance(v, CellError) for v in _decode_python_column(sample, Limits()))
-    return "json" if as_json >= as_python else "python-literal"
+    """JSON unless enough cells read only as Python literals to make it a Python column.
+
+    Most JSON cells are also Python literals, so cells valid in both grammars
+    are no evidence; a few Python-only cells in a JSON column are malformed
+    JSON (a trailing comma, single quotes), not a second format.
+    """
+    sample = [texts[k] for k in nested[:2000]]
+    as_json = [not isinstance(v, CellError) for v in _decode_json_column(sample, Limits())]
+    as_python = [not isinstance(v, CellError) for v in _decode_python_column(sample, Limits())]
+    python_only = sum(p and not j for j, p in zip(as_json, as_python))
+    if python_only < MIXED_MIN_CELLS or python_only < MIXED_MIN_SHARE * len(sample):
+        return "json"
+    return "python-literal"
 
 
 def _detect_format(texts: list[str], kinds: list[str]) -> tuple[str, str | None]:

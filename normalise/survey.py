@@ -1,0 +1,175 @@
+"""Survey: read, decode and profile exports, and say what each column holds.
+
+The survey is the read, decode and infer passes run for information only;
+``normalise survey`` prints it and ``survey()`` returns it as plain data.
+"""
+
+from __future__ import annotations
+
+import os
+from dataclasses import dataclass, field
+from statistics import median
+
+from .decode import DecodedColumn, decode
+from .infer import identity_candidates
+from .literal import Limits
+from .profile import profile_values
+from .read import Export, read
+
+SHOWN_MESSAGES = 5
+
+
+@dataclass
+class FileSurvey:
+    export: Export
+    columns: dict[str, DecodedColumn]
+    report: dict = field(default_factory=dict)
+
+
+def survey_column(export: Export, column: DecodedColumn) -> dict:
+    """The survey entry of one decoded column (plain data, ready for JSON)."""
+    values = column.values
+    rows = len(values)
+    filled = sum(v is not None for v in values)
+    entry: dict = {"name": column.name, "encoding": column.encoding,
+                   "fill_rate": round(filled / rows, 4) if rows else 0.0,
+                   "format_counts": column.format_counts,
+                   "quarantined": len(column.quarantined)}
+    if column.name != export.header_names.get(column.name, column.name):
+        entry["name_in_file"] = export.header_names[column.name]
+    if column.encoding in ("scalar", "empty"):
+        entry["shape"] = "scalar"
+        entry["type"] = scalar_type([v for v in values if v is not None])
+    else:
+        profile = profile_values(values, column.name)
+        entry["shape"] = profile.shape
+        entry.update({k: v for k, v in profile.to_json().items() if k not in ("path", "shape")})
+        if profile.shape in ("object-list", "object"):
+            objects, owners = [], []
+            for row, v in enumerate(values):
+                if isinstance(v, dict):
+                    objects.append(v)
+                    owners.append(row)
+                elif isinstance(v, (list, tuple)):
+                    for item in v:
+                        if isinstance(item, dict):
+                            objects.append(item)
+                            owners.append(row)
+            entry["identity_candidates"] = [c.to_json() for c in identity_candidates(objects, owners)]
+    if column.separator is not None:
+        entry["separator"] = column.separator
+    if column.ambiguity:
+        entry["ambiguous"] = True
+        entry["ambiguity"] = column.ambiguity
+    if column.quarantined:
+        entry["quarantine"] = [{"line": q.line, "position": q.position, "message": q.message,
+                                "excerpt": q.excerpt} for q in column.quarantined[:SHOWN_MESSAGES]]
+    return entry
+
+
+_INTEGER = __import__("re").compile(r"[-+]?\d{1,18}")
+_REAL = __import__("re").compile(r"[-+]?(\d+\.\d*|\.\d+|\d+)([eE][-+]?\d+)?")
+_DATE = __import__("re").compile(r"\d{4}-\d{2}-\d{2}")
+_TIMESTAMP = __import__("re").compile(r"\d{4}-\d{2}-\d{2}[T ]\d{2}:\d{2}(:\d{2}(\.\d+)?)?(Z|[+-]\d{2}:?\d{2})?")
+
+
+def scalar_type(values: list) -> str:
+    """The narrowest type that holds every value: integer, real, date, timestamp, boolean or text.
+
+    Example:
+        >>> scalar_type(["1", "2"]), scalar_type(["1", "2.5"]), scalar_type(["2024-01-31"]), scalar_type(["x", "1"])
+        ('integer', 'real', 'date', 'text')
+    """
+    if not values:
+        return "empty"
+    if all(isinstance(v, bool) for v in values):
+        return "boolean"
+    texts = [v if isinstance(v, str) else repr(v) for v in values]
+    for name, pattern in (("integer", _INTEGER), ("real", _REAL), ("date", _DATE), ("timestamp", _TIMESTAMP)):
+        if all(pattern.fullmatch(t) for t in texts):
+            return name
+    return "text"
+
+
+def survey(paths: list[str], *, limits: Limits = Limits(), formats: dict | None = None,
+           encoding: str | None = None, delimiter: str | None = None) -> dict:
+    """Survey exports; returns ``{"files": [{"path", "rows", "columns": [...]}, ...]}``.
+
+    Example:
+        >>> import tempfile, os
+        >>> d = tempfile.mkdtemp(); p = os.path.join(d, "t.csv")
+        >>> _ = open(p, "w").write("id,people\\n1,\\"[{'id': 7, 'name': 'Ann'}]\\"\\n")
+        >>> col = survey([p])["files"][0]["columns"][1]
+        >>> col["encoding"], col["shape"], col["identity_candidates"][0]["field"]
+        ('python-literal', 'object-list', 'id')
+    """
+    files = []
+    for path in paths:
+        export = read(path, encoding=encoding, delimiter=delimiter)
+        columns = decode(export, limits, formats)
+        files.append({
+            "path": os.fspath(path),
+            "format": export.kind,
+            "delimiter": export.delimiter,
+            "rows": export.rows_read,
+            "records": export.number_of_records,
+            "rejected_rows": len(export.rejected),
+            "rejected": [{"line": r.line, "reason": r.reason, "raw": r.raw[:200]}
+                         for r in export.rejected[:SHOWN_MESSAGES]],
+            "warnings": export.warnings,
+            "quarantined": sum(len(c.quarantined) for c in columns.values()),
+            "columns": [survey_column(export, c) for c in columns.values()],
+        })
+    return {"files": files}
+
+
+def render(result: dict) -> str:
+    """The survey as a readable terminal report."""
+    out = []
+    for f in result["files"]:
+        out.append(f"{f['path']}  ({f['format']}, {f['rows']} rows: {f['records']} records, "
+                   f"{f['rejected_rows']} rejected; {f['quarantined']} cells quarantined)")
+        for w in f["warnings"]:
+            out.append(f"  warning: {w}")
+        for r in f["rejected"]:
+            out.append(f"  rejected line {r['line']}: {r['reason']}")
+        if f["rejected_rows"] > len(f["rejected"]):
+            out.append(f"  ... and {f['rejected_rows'] - len(f['rejected'])} more rejected rows")
+        for c in f["columns"]:
+            if c["encoding"] in ("scalar", "empty"):
+                head = f"  {c['name']}: {c['type']}"
+            else:
+                head = f"  {c['name']}: {c['encoding']} {c['shape']}"
+            head += f", filled {c['fill_rate']:.0%}"
+            if "list_length" in c:
+                ll = c["list_length"]
+                head += f", list length {ll['min']}/{ll['median']:g}/{ll['max']} (min/median/max)"
+            if c.get("separator"):
+                head += f", separator {c['separator']!r}"
+            out.append(head)
+            if c["encoding"] == "mixed":
+                counts = ", ".join(f"{k} {v}" for k, v in c["format_counts"].items())
+                out.append(f"      mixed formats: {counts}")
+            for k in c.get("keys", []):
+                types = "/".join(k["types"])
+                line = f"      {k['path']}: {types}, filled {k['fill_rate']:.0%}"
+                if "nested" in k:
+                    line += f", holds {k['nested']['shape']}"
+                out.append(line)
+            cands = c.get("identity_candidates")
+            if cands:
+                best = cands[0]
+                extra = f" (determines {', '.join(best['determines'])})" if best["determines"] else ""
+                others = [x["field"] for x in cands[1:]]
+                out.append(f"      identity: {best['field']}{extra}"
+                           + (f"; also possible: {', '.join(others)}" if others else ""))
+            elif c["shape"] in ("object-list", "object"):
+                out.append("      identity: none found (objects become child rows)")
+            for a in c.get("ambiguity", []):
+                out.append(f"      ambiguous separator: {a}")
+            for q in c.get("quarantine", []):
+                pos = f", char {q['position']}" if q["position"] else ""
+                out.append(f"      quarantined line {q['line']}{pos}: {q['message']} (got {q['excerpt']!r})")
+            if c["quarantined"] > len(c.get("quarantine", [])):
+                out.append(f"      ... and {c['quarantined'] - len(c['quarantine'])} more quarantined")
+    return "\n".join(out)
