@@ -434,7 +434,8 @@ def _dominant_nested(texts: list[str], nested: list[int]) -> str:
     as_json = [not isinstance(v, CellError) for v in _decode_json_column(sample, Limits())]
     as_python = [not isinstance(v, CellError) for v in _decode_python_column(sample, Limits())]
     python_only = sum(p and not j for j, p in zip(as_json, as_python))
-    if python_only < MIXED_MIN_CELLS or python_only < MIXED_MIN_SHARE * len(sample):
+    few = python_only < MIXED_MIN_CELLS or python_only < MIXED_MIN_SHARE * len(sample)
+    if sum(as_json) > python_only and few:
         return "json"
     return "python-literal"
 
