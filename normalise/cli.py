@@ -54,6 +54,34 @@ def cmd_survey(args) -> int:
     return 0
 
 
+def _pairs(specs: list[str], option: str) -> dict:
+    from .errors import UsageError
+
+    out = {}
+    for spec in specs:
+        left, eq, right = spec.partition("=")
+        if not eq or not left:
+            raise UsageError(f"{option} {spec!r}: expected NAME=VALUE")
+        out[left] = right
+    return out
+
+
+def cmd_build(args) -> int:
+    from .infer import Options
+    from .pipeline import build_database
+    from .report import summary
+
+    options = Options(natural_keys=_pairs(args.key, "--key"), duplicates=args.duplicates,
+                      violation_threshold=args.threshold, identities=_pairs(args.identity, "--identity"),
+                      merge=[m.split(",") for m in args.merge], no_merge=args.no_merge)
+    result = build_database(args.files, args.db, options=options, limits=_limits(args),
+                            formats=_formats(args), encoding=args.encoding, delimiter=_delimiter(args),
+                            replace=args.replace, manifest_path=args.manifest)
+    if not args.quiet:
+        print(summary(result))
+    return 0 if result["integrity"]["reconciled"] else 1
+
+
 def build_parser() -> argparse.ArgumentParser:
     parser = argparse.ArgumentParser(prog="normalise",
                                      description="Turn flat exports with nested cells into a linked relational database.")
@@ -62,6 +90,26 @@ def build_parser() -> argparse.ArgumentParser:
     _common(p)
     p.add_argument("--json", action="store_true", help="print the survey as JSON")
     p.set_defaults(func=cmd_survey)
+
+    p = sub.add_parser("build", help="build a linked SQLite database from the exports")
+    _common(p)
+    p.add_argument("--db", required=True, metavar="PATH", help="the SQLite database to write")
+    p.add_argument("--manifest", metavar="PATH", help="also write the manifest (JSON) here")
+    p.add_argument("--replace", action="store_true", help="overwrite an existing database")
+    p.add_argument("--key", action="append", default=[], metavar="FILE=COLUMN",
+                   help="natural key of a file's records (FILE is the file name without extension)")
+    p.add_argument("--duplicates", choices=("first", "last", "refuse"), default="first",
+                   help="which record keeps a repeated natural key (others are set aside)")
+    p.add_argument("--threshold", type=float, default=0.05,
+                   help="tolerated share of functional-dependency violations (default 0.05)")
+    p.add_argument("--identity", action="append", default=[], metavar="COLUMN=FIELD",
+                   help="identity field of a nested column's objects (empty: none, objects become child rows)")
+    p.add_argument("--merge", action="append", default=[], metavar="FILE:COL,FILE:COL",
+                   help="force nested columns into one entity table")
+    p.add_argument("--no-merge", action="append", default=[], metavar="FILE:COL",
+                   help="keep a nested column's entities in a table of their own")
+    p.add_argument("--quiet", action="store_true", help="print nothing but errors")
+    p.set_defaults(func=cmd_build)
     return parser
 
 

@@ -14,6 +14,9 @@ import re
 from collections import Counter, defaultdict
 from dataclasses import dataclass
 
+from .names import Namer, singular, sql_name
+from .profile import profile_values
+
 DEFAULT_VIOLATION_THRESHOLD = 0.05
 _ID_NAME = re.compile(r"(?i)^(id|key|code|uuid|guid|slug)$|(_id|_key|_code|_uuid|Id|ID|_no|_number)$")
 _POSITION_NAME = re.compile(r"(?i)^(position|pos|order|ordinal|index|idx|rank|seq|sequence|sort_order)$")
@@ -147,3 +150,395 @@ def identity_candidates(objects: list[dict], owners: list[int],
     out.sort(key=lambda c: (-c.named_like_identity, -c.is_integer, -len(c.determines),
                             -c.fill_rate, c.field))
     return out
+
+
+# --- the model ------------------------------------------------------------------
+
+NATURAL_KEY_MIN_DISTINCT = 0.98  # a few duplicates are set aside, not a reason to reject the key
+WIDE_OBJECT_KEYS = 20  # a single object with more keys becomes a 1:1 child table
+
+
+@dataclass
+class Options:
+    """Choices a user can make instead of the inference."""
+
+    natural_keys: dict = None  # file stem -> column name
+    duplicates: str = "first"  # first | last | refuse
+    violation_threshold: float = DEFAULT_VIOLATION_THRESHOLD
+    identities: dict = None  # "file:column" or "column" -> identity field ("" = none)
+    merge: list = None  # lists of "file:column" forced into one entity
+    no_merge: list = None  # "file:column" never merged with another column
+
+    def __post_init__(self):
+        self.natural_keys = self.natural_keys or {}
+        self.identities = self.identities or {}
+        self.merge = self.merge or []
+        self.no_merge = self.no_merge or []
+
+
+def value_type(values) -> str:
+    """The SQL-side type of decoded scalar values: integer, real, boolean, date, timestamp or text.
+
+    Example:
+        >>> value_type([1, 2]), value_type([1, 2.5]), value_type([True]), value_type(["2024-01-02"]), value_type([1, "a"])
+        ('integer', 'real', 'boolean', 'date', 'text')
+    """
+    from .survey import scalar_type
+
+    kinds = set()
+    texts = []
+    for v in values:
+        if v is None:
+            continue
+        if isinstance(v, bool):
+            kinds.add("boolean")
+        elif isinstance(v, int):
+            kinds.add("integer" if -(1 << 63) <= v < (1 << 63) else "text")
+        elif isinstance(v, float):
+            kinds.add("real")
+        elif isinstance(v, str):
+            kinds.add("str")
+            texts.append(v)
+        else:
+            kinds.add("text")
+    if not kinds:
+        return "text"
+    if kinds == {"str"}:
+        t = scalar_type(texts[:10000])
+        return t if t in ("date", "timestamp") else "text"
+    if len(kinds) == 1:
+        return kinds.pop()
+    if kinds == {"integer", "real"}:
+        return "real"
+    return "text"
+
+
+def scalar_column_type(values: list) -> str:
+    """Type of a plain-text column (cells are strings)."""
+    from .survey import scalar_type
+
+    present = [v for v in values if v is not None]
+    if present and not all(isinstance(v, str) for v in present):
+        return value_type(present)
+    t = scalar_type(present)
+    return "text" if t == "empty" else t
+
+
+def detect_natural_key(columns: list[str], values: dict[str, list], types: dict[str, str]) -> str | None:
+    """The column that identifies the records: present everywhere, (nearly) unique, an identifier's name first.
+
+    Example:
+        >>> detect_natural_key(["title", "key"], {"title": ["A", "B", "C"], "key": ["k1", "k2", "k3"]},
+        ...                    {"title": "text", "key": "text"})
+        'key'
+    """
+    best = None
+    for position, name in enumerate(columns):
+        vals = values[name]
+        if not vals or any(v is None for v in vals) or types.get(name) not in ("integer", "text"):
+            continue
+        distinct = len(set(vals)) / len(vals)
+        if distinct < NATURAL_KEY_MIN_DISTINCT:
+            continue
+        score = (bool(_ID_NAME.search(name)), distinct == 1.0, -position)
+        if best is None or score > best[0]:
+            best = (score, name)
+    return None if best is None else best[1]
+
+
+def objects_of(values: list) -> tuple[list[dict], list[int]]:
+    """Every object inside a column's values, with the row it came from."""
+    objects, owners = [], []
+    for row, v in enumerate(values):
+        if isinstance(v, dict):
+            objects.append(v)
+            owners.append(row)
+        elif isinstance(v, (list, tuple)):
+            for item in v:
+                if isinstance(item, dict):
+                    objects.append(item)
+                    owners.append(row)
+    return objects, owners
+
+
+def entity_attributes(objects: list[dict], identity: str, fields: list[str],
+                      threshold: float) -> list[str]:
+    """Fields functionally determined by the identity (X -> A within the tolerated violation rate).
+
+    Only objects that carry a field are evidence for it. With no repeated
+    identity at all nothing can be measured; such fields count as entity
+    attributes unless their name says they are a position in a list.
+    """
+    out = []
+    for f in fields:
+        if f == identity:
+            continue
+        carrying = [o for o in objects if f in o]
+        d = measure_dependency(carrying, identity, f)
+        if d.occurrences == 0:
+            if not _POSITION_NAME.match(f):
+                out.append(f)
+        elif d.violation_rate <= threshold:
+            out.append(f)
+    return out
+
+
+def scalar_fields(objects: list[dict]) -> tuple[list[list[str]], list[list[str]]]:
+    """Paths to scalar fields (flattening sub-objects) and to list fields, in first-seen order."""
+    scalars: list[list[str]] = []
+    lists: list[list[str]] = []
+    seen: set = set()
+
+    def visit(obj: dict, prefix: list[str]) -> None:
+        for k, v in obj.items():
+            path = prefix + [str(k)]
+            key = tuple(path)
+            if isinstance(v, dict):
+                visit(v, path)
+                continue
+            if key in seen:
+                continue
+            if isinstance(v, (list, tuple, set)):
+                if v:
+                    seen.add(key)
+                    lists.append(path)
+            elif v is not None:
+                seen.add(key)
+                scalars.append(path)
+
+    for o in objects:
+        visit(o, [])
+    # a key holding a list in some objects and a scalar in others is a list
+    list_keys = {tuple(p) for p in lists}
+    scalars = [p for p in scalars if tuple(p) not in list_keys]
+    for o in objects:  # keys that are always null still become columns
+        for k, v in o.items():
+            if v is None and (str(k),) not in seen:
+                seen.add((str(k),))
+                scalars.append([str(k)])
+    return scalars, lists
+
+
+def get_path(obj, path: list[str]):
+    for k in path:
+        if not isinstance(obj, dict):
+            return None
+        obj = obj.get(k)
+    return obj
+
+
+META_TABLES = ("rejected_rows", "set_aside_rows", "quarantined_cells", "attribute_variants")
+_GENERIC_IDENTITY = frozenset(["id", "key", "code", "uuid", "guid", "slug"])
+
+
+def _entity_name(identity: str, column: str) -> str:
+    base = re.sub(r"(?i)(_id|_key|_code|_uuid|id)$", "", identity).strip("_")
+    if not base or identity.lower() in _GENERIC_IDENTITY:
+        return singular(sql_name(column))
+    return base
+
+
+def _agreement(a: list[dict], b: list[dict], identity: str) -> tuple[int, float]:
+    """Common identities of two object sets and the share of shared attributes that agree."""
+    def summary(objects):
+        out: dict = defaultdict(lambda: defaultdict(Counter))
+        for o in objects:
+            k = o.get(identity)
+            if k is None:
+                continue
+            for f, v in o.items():
+                if f != identity and is_scalar(v):
+                    out[_hashable(k)][f][_hashable(v)] += 1
+        return out
+
+    sa, sb = summary(a), summary(b)
+    common = set(sa) & set(sb)
+    checks = agree = 0
+    for k in common:
+        for f in set(sa[k]) & set(sb[k]):
+            checks += 1
+            agree += sa[k][f].most_common(1)[0][0] == sb[k][f].most_common(1)[0][0]
+    return len(common), (agree / checks if checks else 1.0)
+
+
+def infer_plan(exports: list, decoded: dict, options: Options | None = None) -> "Plan":
+    """Infer the relational model of decoded exports.
+
+    ``decoded`` maps each export's path to its ``{column: DecodedColumn}``.
+    """
+    from .plan import EntityGroup, FieldMap, NestedColumn, Plan, RecordSource
+
+    options = options or Options()
+    plan = Plan(violation_threshold=options.violation_threshold)
+    tables = Namer(META_TABLES)
+    entity_lists = []  # (NestedColumn, objects)
+
+    for export in exports:
+        columns = decoded[export.path]
+        record_table = tables(export.name)
+        scalar_values, scalar_types = {}, {}
+        record = RecordSource(file=export.name, path=export.path, table=record_table,
+                              key_column=f"{singular(record_table)}_sk", natural_key=[],
+                              duplicates=options.duplicates)
+        names = Namer([record.key_column])
+        for name, col in columns.items():
+            shape = "scalar"
+            if col.encoding not in ("scalar", "empty"):
+                shape = profile_values(col.values).shape
+            if shape == "scalar":
+                t = scalar_column_type(col.values)
+                scalar_values[name] = col.values
+                scalar_types[name] = t
+                record.scalars.append(FieldMap([name], names(name), t))
+                continue
+            nested = NestedColumn(file=export.name, column=name, kind="")
+            if shape == "scalar-list":
+                nested.kind = "value-list"
+            elif shape == "object":
+                objects, _ = objects_of(col.values)
+                fields, lists = scalar_fields(objects)
+                if len(fields) > WIDE_OBJECT_KEYS:
+                    nested.kind = "object-child"
+                    nested.links = _field_maps(objects, fields, Namer())
+                else:
+                    nested.kind = "object-columns"
+                    nested.links = [FieldMap(p, names(name + "_" + "_".join(p)), _type_at(objects, p))
+                                    for p in fields]
+                nested.children = [NestedColumn(export.name, name, "", path=".".join(p)) for p in lists]
+            else:
+                objects, owners = objects_of(col.values)
+                wanted = options.identities.get(f"{export.name}:{name}", options.identities.get(name))
+                if wanted is None:
+                    candidates = identity_candidates(objects, owners, options.violation_threshold)
+                    wanted = candidates[0].field if candidates else ""
+                nested.kind = "entity-list" if wanted else "child-list"
+                nested.identity = wanted
+                if wanted:
+                    entity_lists.append((nested, objects))
+                else:
+                    fields, lists = scalar_fields(objects)
+                    nested.links = _field_maps(objects, fields, Namer())
+                    nested.children = _child_lists(export.name, name, objects, lists)
+            record.nested.append(nested)
+        chosen = options.natural_keys.get(export.name)
+        if chosen is None:
+            chosen = detect_natural_key(list(scalar_values), scalar_values, scalar_types)
+        if chosen:
+            if chosen not in scalar_values:
+                from .errors import UsageError
+                raise UsageError(f"--key {export.name}={chosen}: {export.path} has no scalar column {chosen!r}")
+            record.natural_key = [next(f.column for f in record.scalars if f.path == [chosen])]
+        plan.records.append(record)
+
+    _group_entities(plan, entity_lists, options, tables)
+    for record in plan.records:
+        owner = singular(record.table)
+        for nested in record.nested:
+            if nested.kind in ("entity-list", "value-list", "child-list", "object-child"):
+                nested.table = tables(f"{owner}_{nested.column}")
+            if nested.kind == "value-list":
+                nested.entity = tables(singular(sql_name(nested.column)))
+            for child in nested.children:
+                _name_children(child, nested.table or record.table, tables)
+    from .schema import add_tables
+    add_tables(plan)
+    return plan
+
+
+def _name_children(nested, owner_table: str, tables: Namer) -> None:
+    nested.table = tables(f"{singular(owner_table)}_{nested.path.replace('.', '_')}")
+    if nested.kind == "value-list":
+        nested.entity = tables(singular(sql_name(nested.path.split(".")[-1])) + "_value")
+    for child in nested.children:
+        _name_children(child, nested.table, tables)
+
+
+def _type_at(objects: list[dict], path: list[str]) -> str:
+    return value_type([get_path(o, path) for o in objects])
+
+
+def _field_maps(objects: list[dict], paths: list[list[str]], names: Namer) -> list:
+    from .plan import FieldMap
+
+    return [FieldMap(p, names("_".join(p)), _type_at(objects, p)) for p in paths]
+
+
+def _child_lists(file: str, column: str, objects: list[dict], lists: list[list[str]]) -> list:
+    """Lists inside objects become grandchild tables: value lists or child lists, recursively."""
+    from .plan import NestedColumn
+
+    out = []
+    for path in lists:
+        inner = [get_path(o, path) for o in objects]
+        inner = [v for v in inner if isinstance(v, (list, tuple))]
+        items = [x for v in inner for x in v if x is not None]
+        nested = NestedColumn(file, column, "", path=".".join(path))
+        if items and all(isinstance(x, dict) for x in items):
+            nested.kind = "child-list"
+            fields, sub = scalar_fields(items)
+            nested.links = _field_maps(items, fields, Namer())
+            nested.children = _child_lists(file, column + "." + ".".join(path), items, sub)
+        else:
+            nested.kind = "value-list"
+        out.append(nested)
+    return out
+
+
+def _group_entities(plan, entity_lists, options: Options, tables: Namer) -> None:
+    """Put entity lists of one identity space into one entity table (union-find on agreement)."""
+    from .plan import EntityGroup, FieldMap
+
+    parent = list(range(len(entity_lists)))
+
+    def find(i):
+        while parent[i] != i:
+            parent[i] = parent[parent[i]]
+            i = parent[i]
+        return i
+
+    ref = [f"{n.file}:{n.column}" for n, _ in entity_lists]
+    forbidden = set(options.no_merge)
+    for i in range(len(entity_lists)):
+        for j in range(i + 1, len(entity_lists)):
+            (a, oa), (b, ob) = entity_lists[i], entity_lists[j]
+            if a.identity != b.identity or ref[i] in forbidden or ref[j] in forbidden:
+                continue
+            common, agree = _agreement(oa, ob, a.identity)
+            if common and agree >= 1 - options.violation_threshold:
+                parent[find(j)] = find(i)
+    for group in options.merge:
+        members = [ref.index(m) for m in group if m in ref]
+        for m in members[1:]:
+            parent[find(m)] = find(members[0])
+
+    groups: dict[int, list[int]] = {}
+    for i in range(len(entity_lists)):
+        groups.setdefault(find(i), []).append(i)
+    for members in groups.values():
+        first = entity_lists[members[0]][0]
+        identity = first.identity
+        objects = [o for m in members for o in entity_lists[m][1]]
+        table = tables(_entity_name(identity, first.column))
+        names = Namer([f"{table}_sk"])
+        identity_column = names(identity)
+        group = EntityGroup(table=table, key_column=f"{table}_sk", identity=identity,
+                            identity_column=identity_column,
+                            identity_type=_identity_type(objects, identity),
+                            members=[ref[m] for m in members])
+        all_fields, _ = scalar_fields(objects)
+        top = [p[0] for p in all_fields if len(p) == 1]
+        attrs = entity_attributes(objects, identity, top, options.violation_threshold)
+        group.attributes = [FieldMap([f], names(f), _type_at(objects, [f])) for f in attrs]
+        plan.entities.append(group)
+        for m in members:
+            nested, own = entity_lists[m]
+            nested.entity = table
+            fields, lists = scalar_fields(own)
+            links = [p for p in fields if p != [identity] and not (len(p) == 1 and p[0] in attrs)]
+            nested.links = _field_maps(own, links, Namer(["list_position"]))
+            nested.children = _child_lists(nested.file, nested.column, own, lists)
+
+
+def _identity_type(objects: list[dict], identity: str) -> str:
+    t = value_type([o.get(identity) for o in objects])
+    return t if t in ("integer", "text") else "text"

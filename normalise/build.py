@@ -1,0 +1,294 @@
+"""Build pass: turn decoded exports into table rows as the plan says.
+
+Surrogate keys are deterministic and need no shared counter, so chunks or
+partitions built apart agree (see DEVELOPERS.md, "Keys"):
+
+* a record's key is the line on which its row starts in the file;
+* an entity's key is the first 63 bits of the BLAKE2b hash of its typed
+  natural key (``integer:7``, ``text:Ann``);
+* a bridge or child row's key hashes its source column, its owner's key and
+  its position in the list.
+"""
+
+from __future__ import annotations
+
+import json
+from collections import Counter
+from dataclasses import dataclass, field
+from hashlib import blake2b
+
+from .errors import NormaliseError
+from .infer import get_path
+from .plan import NestedColumn, Plan, RecordSource
+
+_MASK = (1 << 63) - 1
+
+
+class DuplicateNaturalKey(NormaliseError):
+    """Records share a natural key and the policy is to refuse."""
+
+
+def key_of(text: str) -> int:
+    """A deterministic 63-bit surrogate key for a text.
+
+    Example:
+        >>> key_of("integer:7") == key_of("integer:7"), key_of("integer:7") == key_of("text:7")
+        (True, False)
+    """
+    digest = blake2b(text.encode("utf-8", "surrogatepass"), digest_size=8).digest()
+    return int.from_bytes(digest, "big") & _MASK
+
+
+def to_sql_value(value, type_: str):
+    """A decoded value as the column type stores it (None stays None)."""
+    if value is None:
+        return None
+    if type_ == "integer":
+        if isinstance(value, bool):
+            return int(value)
+        if isinstance(value, int):
+            return value
+        try:
+            return int(value)
+        except (TypeError, ValueError):
+            return None
+    if type_ == "real":
+        try:
+            return float(value)
+        except (TypeError, ValueError):
+            return None
+    if type_ == "boolean":
+        if isinstance(value, str):
+            return value.strip().lower() in ("true", "1", "yes")
+        return bool(value)
+    if isinstance(value, str):
+        return value
+    return json.dumps(value, ensure_ascii=False, default=str)
+
+
+def canonical(value, type_: str) -> str:
+    """The typed text form of a natural key, the input of its surrogate key."""
+    if type_ == "integer" and isinstance(value, int) and not isinstance(value, bool):
+        return f"integer:{value}"
+    return "text:" + (value if isinstance(value, str) else json.dumps(value, ensure_ascii=False))
+
+
+@dataclass
+class FileCounts:
+    file: str
+    path: str
+    rows_read: int = 0
+    records_loaded: int = 0
+    rows_set_aside: int = 0
+    rows_rejected: int = 0
+    elements_decoded: int = 0
+    elements_written: int = 0
+    elements_quarantined: int = 0
+    cells_quarantined: int = 0
+
+    @property
+    def reconciled(self) -> bool:
+        rows = self.rows_read == self.records_loaded + self.rows_set_aside + self.rows_rejected
+        elements = self.elements_decoded == self.elements_written + self.elements_quarantined
+        return rows and elements
+
+
+@dataclass
+class Built:
+    rows: dict[str, list[tuple]]
+    counts: list[FileCounts]
+    conflicts: int = 0
+    merges: list[str] = field(default_factory=list)
+
+
+class _Entities:
+    """Occurrences of each entity, to choose attribute values by frequency."""
+
+    def __init__(self, group):
+        self.group = group
+        self.seen: dict[str, tuple] = {}  # canonical -> (sk, natural key value)
+        self.values: dict[str, dict[str, Counter]] = {}
+
+    def add(self, ident, obj: dict) -> int:
+        group = self.group
+        value = ident if group.identity_type != "integer" or isinstance(ident, int) else ident
+        text = canonical(value, group.identity_type)
+        entry = self.seen.get(text)
+        if entry is None:
+            entry = self.seen[text] = (key_of(text), to_sql_value(value, group.identity_type))
+            self.values[text] = {f.column: Counter() for f in group.attributes}
+        counters = self.values[text]
+        for f in group.attributes:
+            key = f.path[0]
+            if key in obj:
+                v = obj[key]
+                counters[f.column][v if not isinstance(v, (list, dict)) else json.dumps(v)] += 1
+        return entry[0]
+
+
+def build(plan: Plan, exports: list, decoded: dict) -> Built:
+    """Rows for every table of the plan, and the counts that reconcile them."""
+    rows: dict[str, list[tuple]] = {t.name: [] for t in plan.tables}
+    entities = {g.table: _Entities(g) for g in plan.entities}
+    values: dict[str, dict] = {}  # value table -> {canonical: (sk, value)}
+    counts = []
+    by_path = {e.path: e for e in exports}
+    for record in plan.records:
+        export = by_path[record.path]
+        columns = decoded[export.path]
+        c = FileCounts(record.file, export.path, rows_read=export.rows_read,
+                       rows_rejected=len(export.rejected))
+        for r in export.rejected:
+            rows["rejected_rows"].append((r.file, r.line, r.reason, r.raw))
+        for col in columns.values():
+            for q in col.quarantined:
+                rows["quarantined_cells"].append((q.file, q.line, q.column, q.position, q.excerpt, q.message))
+                c.cells_quarantined += 1
+        kept = _keep(record, export, columns, rows["set_aside_rows"])
+        c.rows_set_aside = export.number_of_records - len(kept)
+        c.records_loaded = len(kept)
+        scalar_cols = [(columns[f.path[0]].values, f.type) for f in record.scalars]
+        for i in kept:
+            sk = export.lines[i]
+            row = [sk] + [to_sql_value(vals[i], t) for vals, t in scalar_cols]
+            for nested in record.nested:
+                if nested.kind == "object-columns":
+                    obj = columns[nested.column].values[i]
+                    obj = obj if isinstance(obj, dict) else {}
+                    row += [to_sql_value(get_path(obj, f.path), f.type) for f in nested.links]
+            rows[record.table].append(tuple(row))
+            for nested in record.nested:
+                value = columns[nested.column].values[i]
+                if value is None:
+                    continue
+                _nested_rows(plan, nested, value, sk, export, i, rows, entities, values, c)
+        counts.append(c)
+    conflicts = 0
+    for table, acc in entities.items():
+        out = rows[table]
+        for text in sorted(acc.seen):
+            sk, natural = acc.seen[text]
+            chosen = []
+            for f in acc.group.attributes:
+                counter = acc.values[text][f.column]
+                if not counter:
+                    chosen.append(None)
+                    continue
+                best = counter.most_common(1)[0][0]  # ties go to the first seen: most_common is stable
+                chosen.append(to_sql_value(best, f.type))
+                if len(counter) > 1:
+                    conflicts += 1
+                    for v, n in counter.items():
+                        rows["attribute_variants"].append(
+                            (table, sk, str(natural), f.column, None if v is None else str(to_sql_value(v, "text")),
+                             n, v == best))
+            out.append((sk, natural, *chosen))
+    for table, found in values.items():
+        rows[table] = [found[k] for k in sorted(found)]
+    for meta in ("rejected_rows", "set_aside_rows", "quarantined_cells", "attribute_variants"):
+        rows[meta] = [(n, *r) for n, r in enumerate(rows[meta], start=1)]
+    return Built(rows, counts, conflicts)
+
+
+def _keep(record: RecordSource, export, columns, set_aside: list) -> list[int]:
+    """Indices of the records to load; duplicates of the natural key are set aside."""
+    n = export.number_of_records
+    if not record.natural_key:
+        return list(range(n))
+    source = next(f.path[0] for f in record.scalars if f.column == record.natural_key[0])
+    keys = columns[source].values
+    first: dict = {}
+    order = range(n) if record.duplicates != "last" else range(n - 1, -1, -1)
+    kept, dropped = [], []
+    for i in order:
+        k = keys[i]
+        if k is None:
+            dropped.append((i, None, "no natural key"))
+        elif k in first:
+            dropped.append((i, first[k], f"duplicate natural key {k!r}"))
+        else:
+            first[k] = i
+            kept.append(i)
+    if dropped and record.duplicates == "refuse":
+        lines = ", ".join(f"line {export.lines[i]}" for i, _, _ in dropped[:5])
+        raise DuplicateNaturalKey(f"{export.path}: {len(dropped)} record(s) repeat a natural key "
+                                  f"({record.natural_key[0]}): {lines}; use --duplicates first or last "
+                                  f"to keep one and set the others aside")
+    for i, other, reason in sorted(dropped):
+        cells = {c: (export.cells[c][i] if isinstance(export.cells[c][i], str) or export.cells[c][i] is None
+                     else json.dumps(export.cells[c][i], ensure_ascii=False)) for c in export.columns}
+        set_aside_key = keys[i]
+        set_aside.append((export.path, export.lines[i], None if set_aside_key is None else str(set_aside_key),
+                          reason + ("" if other is None else f"; kept line {export.lines[other]}"),
+                          None if other is None else export.lines[other],
+                          json.dumps(cells, ensure_ascii=False)))
+    return sorted(kept)
+
+
+def _nested_rows(plan, nested: NestedColumn, value, owner_sk: int, export, i: int, rows, entities,
+                 values, c: FileCounts) -> None:
+    """Rows of one nested value (and of the lists inside it), owned by ``owner_sk``."""
+    where = f"{nested.file}:{nested.column}" + (f".{nested.path}" if nested.path else "")
+    if nested.kind == "object-columns":
+        if isinstance(value, dict):
+            c.elements_decoded += 1
+            c.elements_written += 1
+            for child in nested.children:
+                inner = get_path(value, child.path.split("."))
+                if inner:
+                    _nested_rows(plan, child, inner, owner_sk, export, i, rows, entities, values, c)
+        return
+    if nested.kind == "object-child":
+        c.elements_decoded += 1
+        if not isinstance(value, dict):
+            _quarantine_element(rows, export, i, nested, None, "expected an object", c)
+            return
+        sk = key_of(f"{where}:{owner_sk}")
+        rows[nested.table].append((sk, owner_sk, *[to_sql_value(get_path(value, f.path), f.type)
+                                                    for f in nested.links]))
+        c.elements_written += 1
+        return
+    items = value if isinstance(value, (list, tuple)) else [value]
+    table = rows[nested.table]
+    for position, item in enumerate(items, start=1):
+        c.elements_decoded += 1
+        sk = key_of(f"{where}:{owner_sk}:{position}")
+        if nested.kind == "value-list":
+            if item is None or isinstance(item, (dict, list, tuple)):
+                _quarantine_element(rows, export, i, nested, position,
+                                    "null element in a list" if item is None else "nested element in a list of values", c)
+                continue
+            text = canonical(item, "text") if not isinstance(item, str) else "text:" + item
+            found = values.setdefault(nested.entity, {})
+            entry = found.get(text)
+            if entry is None:
+                entry = found[text] = (key_of(text), to_sql_value(item, "text"))
+            table.append((sk, owner_sk, entry[0], position))
+            c.elements_written += 1
+            continue
+        if not isinstance(item, dict):
+            _quarantine_element(rows, export, i, nested, position, "expected an object in a list of objects", c)
+            continue
+        links = [to_sql_value(get_path(item, f.path), f.type) for f in nested.links]
+        if nested.kind == "entity-list":
+            ident = item.get(nested.identity)
+            if ident is None or isinstance(ident, (dict, list, tuple, bool)):
+                _quarantine_element(rows, export, i, nested, position,
+                                    f"object without a usable {nested.identity!r}", c)
+                continue
+            entity_sk = entities[nested.entity].add(ident, item)
+            table.append((sk, owner_sk, entity_sk, position, *links))
+        else:
+            table.append((sk, owner_sk, position, *links))
+        c.elements_written += 1
+        for child in nested.children:
+            inner = get_path(item, child.path.split("."))
+            if inner:
+                _nested_rows(plan, child, inner, sk, export, i, rows, entities, values, c)
+
+
+def _quarantine_element(rows, export, i, nested, position, message, c: FileCounts) -> None:
+    column = nested.column + (f".{nested.path}" if nested.path else "")
+    rows["quarantined_cells"].append((export.path, export.lines[i], column, position,
+                                      f"element {position}" if position else "", message))
+    c.elements_quarantined += 1

@@ -1,0 +1,64 @@
+"""SQL names for things found in the data.
+
+No name taken from the data ever reaches SQL text unquoted: every table and
+column name is mapped to ``[a-z0-9_]`` here (and quoted by SQLAlchemy when it
+is written), and the plan keeps the original name beside it.
+"""
+
+from __future__ import annotations
+
+import re
+import unicodedata
+
+_UNSAFE = re.compile(r"[^a-z0-9_]+")
+MAX_NAME = 60
+
+
+def sql_name(text: str) -> str:
+    """A lower-case SQL identifier for a name from the data.
+
+    Example:
+        >>> sql_name("Release Date"), sql_name("2nd-author"), sql_name("prénom"), sql_name("")
+        ('release_date', 'c_2nd_author', 'prenom', 'c')
+    """
+    text = unicodedata.normalize("NFKD", str(text)).encode("ascii", "ignore").decode()
+    name = _UNSAFE.sub("_", text.lower()).strip("_")
+    if not name or name[0].isdigit():
+        name = "c_" + name if name else "c"
+    return name[:MAX_NAME]
+
+
+_IRREGULAR = {"people": "person", "children": "child", "men": "man", "women": "woman", "data": "data"}
+
+
+def singular(name: str) -> str:
+    """A rough English singular, for naming a table after a plural column.
+
+    Example:
+        >>> singular("contributors"), singular("titles"), singular("categories"), singular("press"), singular("people")
+        ('contributor', 'title', 'category', 'press', 'person')
+    """
+    for plural, one in _IRREGULAR.items():
+        if name == plural or name.endswith("_" + plural):
+            return name[: len(name) - len(plural)] + one
+    if name.endswith("ies") and len(name) > 4:
+        return name[:-3] + "y"
+    if name.endswith("s") and not name.endswith("ss") and len(name) > 3:
+        return name[:-1]
+    return name
+
+
+class Namer:
+    """Hands out names unique within one scope (case-insensitively, as SQL compares them)."""
+
+    def __init__(self, taken=()):
+        self.taken = {t.lower() for t in taken}
+
+    def __call__(self, wanted: str) -> str:
+        base = sql_name(wanted)
+        name, n = base, 2
+        while name.lower() in self.taken:
+            name = f"{base}_{n}"
+            n += 1
+        self.taken.add(name.lower())
+        return name

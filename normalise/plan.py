@@ -1,0 +1,122 @@
+"""Plan pass: the relational model as plain data.
+
+A plan says which tables will be made, with which keys, from which input
+columns; it holds no data. ``infer_plan`` derives one from decoded exports;
+``build`` executes it. Everything here is dataclasses of strings, numbers and
+lists, so a plan can be printed, compared, saved and replayed.
+"""
+
+from __future__ import annotations
+
+from dataclasses import asdict, dataclass, field
+
+ROLES = ("record", "entity", "bridge", "child", "set_aside", "quarantine", "variants", "rejected")
+
+
+@dataclass
+class Column:
+    name: str
+    type: str  # integer | real | text | boolean | date | timestamp
+    nullable: bool = True
+    unique: bool = False
+    source: str | None = None  # where the values come from: "file:column" or a path inside it
+
+
+@dataclass
+class ForeignKey:
+    columns: list[str]
+    references: str
+    ref_columns: list[str]
+
+
+@dataclass
+class Table:
+    name: str
+    role: str
+    columns: list[Column]
+    primary_key: list[str]
+    natural_key: list[str] = field(default_factory=list)
+    position_column: str | None = None
+    foreign_keys: list[ForeignKey] = field(default_factory=list)
+    unique: list[list[str]] = field(default_factory=list)
+    sources: list[dict] = field(default_factory=list)  # [{"file": str, "column": str | None}]
+
+    def column(self, name: str) -> Column:
+        for c in self.columns:
+            if c.name == name:
+                return c
+        raise KeyError(f"{self.name} has no column {name!r}")
+
+
+@dataclass
+class FieldMap:
+    """One field of nested objects (or one scalar column) and the column it becomes."""
+
+    path: list[str]  # keys leading to the value inside an object; [column] for a scalar column
+    column: str
+    type: str
+
+
+@dataclass
+class EntityGroup:
+    """Nested columns whose objects are one kind of entity, sharing one entity table."""
+
+    table: str
+    key_column: str  # surrogate key column
+    identity: str  # the identity field inside the objects
+    identity_column: str  # its column in the entity table (the natural key)
+    identity_type: str
+    attributes: list[FieldMap] = field(default_factory=list)  # entity attributes
+    members: list[str] = field(default_factory=list)  # "file:column" of each nested column
+
+
+@dataclass
+class NestedColumn:
+    """How one nested input column becomes tables."""
+
+    file: str
+    column: str
+    kind: str  # entity-list | child-list | value-list | object-columns | object-child | scalar
+    table: str | None = None  # bridge, child or value-bridge table
+    entity: str | None = None  # entity or value table
+    links: list[FieldMap] = field(default_factory=list)  # link attributes (bridge) or fields (child)
+    children: list["NestedColumn"] = field(default_factory=list)  # lists inside the objects
+    path: str = ""  # path inside the record's column, for nested lists
+    identity: str = ""  # identity field of an entity list
+
+
+@dataclass
+class RecordSource:
+    """One input file and its record table."""
+
+    file: str
+    path: str
+    table: str
+    key_column: str
+    natural_key: list[str]
+    scalars: list[FieldMap] = field(default_factory=list)
+    nested: list[NestedColumn] = field(default_factory=list)
+    duplicates: str = "first"  # first | last | refuse
+
+
+@dataclass
+class Plan:
+    records: list[RecordSource] = field(default_factory=list)
+    entities: list[EntityGroup] = field(default_factory=list)
+    tables: list[Table] = field(default_factory=list)
+    violation_threshold: float = 0.05
+
+    def table(self, name: str) -> Table:
+        for t in self.tables:
+            if t.name == name:
+                return t
+        raise KeyError(name)
+
+    def entity_group(self, table: str) -> EntityGroup:
+        for g in self.entities:
+            if g.table == table:
+                return g
+        raise KeyError(table)
+
+    def to_dict(self) -> dict:
+        return asdict(self)

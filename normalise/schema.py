@@ -1,0 +1,104 @@
+"""Table definitions from the plan's decisions (part of the plan pass)."""
+
+from __future__ import annotations
+
+from .names import Namer, singular
+from .plan import Column, FieldMap, ForeignKey, NestedColumn, Plan, Table
+
+POSITION = "list_position"
+
+
+def add_tables(plan: Plan) -> None:
+    """Fill ``plan.tables`` from the record sources and entity groups."""
+    plan.tables = []
+    for group in plan.entities:
+        cols = [Column(group.key_column, "integer", nullable=False),
+                Column(group.identity_column, group.identity_type, nullable=False, unique=True,
+                       source=group.identity)]
+        cols += [Column(f.column, f.type, source=".".join(f.path)) for f in group.attributes]
+        plan.tables.append(Table(group.table, "entity", cols, [group.key_column],
+                                 natural_key=[group.identity_column],
+                                 sources=[_source(m) for m in group.members]))
+    for record in plan.records:
+        cols = [Column(record.key_column, "integer", nullable=False)]
+        for f in record.scalars:
+            is_key = [f.column] == record.natural_key
+            cols.append(Column(f.column, f.type, nullable=not is_key, unique=is_key,
+                               source=f.path[0]))
+        for nested in record.nested:
+            if nested.kind == "object-columns":
+                cols += [Column(f.column, f.type, source=nested.column + "." + ".".join(f.path))
+                         for f in nested.links]
+        plan.tables.append(Table(record.table, "record", cols, [record.key_column],
+                                 natural_key=list(record.natural_key),
+                                 sources=[{"file": record.file, "column": None}]))
+        for nested in record.nested:
+            _nested_tables(plan, nested, record.table, record.key_column)
+    for name, columns in _META.items():
+        cols = [Column(f"{singular(name)}_sk", "integer", nullable=False)]
+        cols += [Column(c, t, nullable=nullable) for c, t, nullable in columns]
+        plan.tables.append(Table(name, _META_ROLE[name], cols, [f"{singular(name)}_sk"]))
+
+
+_META = {
+    "rejected_rows": [("file", "text", False), ("line", "integer", False), ("reason", "text", False),
+                      ("raw", "text", False)],
+    "set_aside_rows": [("file", "text", False), ("line", "integer", False), ("natural_key", "text", True),
+                       ("reason", "text", False), ("kept_line", "integer", True), ("cells", "text", False)],
+    "quarantined_cells": [("file", "text", False), ("line", "integer", False), ("column_name", "text", False),
+                          ("position", "integer", True), ("excerpt", "text", False), ("message", "text", False)],
+    "attribute_variants": [("entity_table", "text", False), ("entity_sk", "integer", False),
+                           ("natural_key", "text", False), ("attribute", "text", False), ("value", "text", True),
+                           ("occurrences", "integer", False), ("chosen", "boolean", False)],
+}
+_META_ROLE = {"rejected_rows": "rejected", "set_aside_rows": "set_aside",
+              "quarantined_cells": "quarantine", "attribute_variants": "variants"}
+
+
+def _source(member: str, path: str = "") -> dict:
+    file, _, column = member.partition(":")
+    return {"file": file, "column": column + (("." + path) if path else "")}
+
+
+def own_key(table: str) -> str:
+    return f"{table}_sk"
+
+
+def _nested_tables(plan: Plan, nested: NestedColumn, owner: str, owner_key: str) -> None:
+    if nested.kind in ("object-columns", "scalar"):
+        for child in nested.children:
+            _nested_tables(plan, child, owner, owner_key)
+        return
+    source = [_source(f"{nested.file}:{nested.column}", nested.path)]
+    key = own_key(nested.table)
+    names = Namer([key, owner_key, POSITION])
+    cols = [Column(key, "integer", nullable=False), Column(owner_key, "integer", nullable=False)]
+    fks = [ForeignKey([owner_key], owner, [owner_key])]
+    unique = [[owner_key, POSITION]]
+    position = POSITION
+    role = "child"
+    if nested.kind == "entity-list":
+        group = plan.entity_group(nested.entity)
+        cols.append(Column(names(group.key_column), "integer", nullable=False))
+        fks.append(ForeignKey([group.key_column], group.table, [group.key_column]))
+        role = "bridge"
+    elif nested.kind == "value-list":
+        value_key = own_key(nested.entity)
+        value_column = singular(nested.entity) if not nested.entity.endswith("_value") else "value"
+        plan.tables.append(Table(nested.entity, "entity",
+                                 [Column(value_key, "integer", nullable=False),
+                                  Column(value_column, "text", nullable=False, unique=True)],
+                                 [value_key], natural_key=[value_column], sources=source))
+        cols.append(Column(names(value_key), "integer", nullable=False))
+        fks.append(ForeignKey([value_key], nested.entity, [value_key]))
+        role = "bridge"
+    elif nested.kind == "object-child":
+        position = None
+        unique = [[owner_key]]
+    if position:
+        cols.append(Column(POSITION, "integer", nullable=False))
+    cols += [Column(f.column, f.type, source=".".join(f.path)) for f in nested.links]
+    plan.tables.append(Table(nested.table, role, cols, [key], position_column=position,
+                             foreign_keys=fks, unique=unique, sources=source))
+    for child in nested.children:
+        _nested_tables(plan, child, nested.table, key)
