@@ -126,9 +126,14 @@ class _Entities:
         return entry[0]
 
 
-def build(plan: Plan, exports: list, decoded: dict) -> Built:
-    """Rows for every table of the plan, and the counts that reconcile them."""
+def build(plan: Plan, exports: list, decoded: dict, extra: dict | None = None) -> Built:
+    """Rows for every table of the plan, and the counts that reconcile them.
+
+    ``extra`` holds rows made by earlier passes (the join's set-aside and unmatched rows).
+    """
     rows: dict[str, list[tuple]] = {t.name: [] for t in plan.tables}
+    for table, more in (extra or {}).items():
+        rows[table].extend(more)
     entities = {g.table: _Entities(g) for g in plan.entities}
     values: dict[str, dict] = {}  # value table -> {canonical: (sk, value)}
     counts = []
@@ -136,20 +141,22 @@ def build(plan: Plan, exports: list, decoded: dict) -> Built:
     for record in plan.records:
         export = by_path[record.path]
         columns = decoded[export.path]
-        c = FileCounts(record.file, export.path, rows_read=export.rows_read,
+        main_rows = getattr(export, "main_rows", export.number_of_records)
+        c = FileCounts(record.file, export.path, rows_read=getattr(export, "main_rows_read", export.rows_read),
                        rows_rejected=len(export.rejected))
         for r in export.rejected:
             rows["rejected_rows"].append((r.file, r.line, r.reason, r.raw))
         for col in columns.values():
             for q in col.quarantined:
                 rows["quarantined_cells"].append((q.file, q.line, q.column, q.position, q.excerpt, q.message))
-                c.cells_quarantined += 1
+                c.cells_quarantined += q.file == export.path
         kept = _keep(record, export, columns, rows["set_aside_rows"])
-        c.rows_set_aside = export.number_of_records - len(kept)
-        c.records_loaded = len(kept)
+        c.records_loaded = sum(i < main_rows for i in kept)
+        c.rows_set_aside = main_rows - c.records_loaded
         scalar_cols = [(columns[f.path[0]].values, f.type) for f in record.scalars]
+        record_keys = getattr(export, "record_keys", None) or export.lines
         for i in kept:
-            sk = export.lines[i]
+            sk = record_keys[i]
             row = [sk] + [to_sql_value(vals[i], t) for vals, t in scalar_cols]
             for nested in record.nested:
                 if nested.kind == "object-columns":
@@ -185,7 +192,7 @@ def build(plan: Plan, exports: list, decoded: dict) -> Built:
             out.append((sk, natural, *chosen))
     for table, found in values.items():
         rows[table] = [found[k] for k in sorted(found)]
-    for meta in ("rejected_rows", "set_aside_rows", "quarantined_cells", "attribute_variants"):
+    for meta in ("rejected_rows", "set_aside_rows", "unmatched_rows", "quarantined_cells", "attribute_variants"):
         rows[meta] = [(n, *r) for n, r in enumerate(rows[meta], start=1)]
     return Built(rows, counts, conflicts)
 
@@ -193,23 +200,31 @@ def build(plan: Plan, exports: list, decoded: dict) -> Built:
 def _keep(record: RecordSource, export, columns, set_aside: list) -> list[int]:
     """Indices of the records to load; duplicates of the natural key are set aside."""
     n = export.number_of_records
-    if not record.natural_key:
+    inner_unmatched = getattr(export, "inner_unmatched", {})
+    if not record.natural_key and not inner_unmatched:
         return list(range(n))
-    source = next(f.path[0] for f in record.scalars if f.column == record.natural_key[0])
-    keys = columns[source].values
+    if record.natural_key:
+        source = next(f.path[0] for f in record.scalars if f.column == record.natural_key[0])
+        keys = columns[source].values
+    else:
+        keys = list(range(n))
     first: dict = {}
     order = range(n) if record.duplicates != "last" else range(n - 1, -1, -1)
     kept, dropped = [], []
     for i in order:
         k = keys[i]
-        if k is None:
+        if i in inner_unmatched:
+            dropped.append((i, None, inner_unmatched[i]))
+        elif k is None:
             dropped.append((i, None, "no natural key"))
         elif k in first:
             dropped.append((i, first[k], f"duplicate natural key {k!r}"))
         else:
             first[k] = i
             kept.append(i)
-    if dropped and record.duplicates == "refuse":
+    repeated = [d for d in dropped if d[1] is not None]
+    if repeated and record.duplicates == "refuse":
+        dropped = repeated
         lines = ", ".join(f"line {export.lines[i]}" for i, _, _ in dropped[:5])
         raise DuplicateNaturalKey(f"{export.path}: {len(dropped)} record(s) repeat a natural key "
                                   f"({record.natural_key[0]}): {lines}; use --duplicates first or last "
@@ -247,6 +262,10 @@ def _nested_rows(plan, nested: NestedColumn, value, owner_sk: int, export, i: in
         rows[nested.table].append((sk, owner_sk, *[to_sql_value(get_path(value, f.path), f.type)
                                                     for f in nested.links]))
         c.elements_written += 1
+        for child in nested.children:
+            inner = get_path(value, child.path.split("."))
+            if inner:
+                _nested_rows(plan, child, inner, sk, export, i, rows, entities, values, c)
         return
     items = value if isinstance(value, (list, tuple)) else [value]
     table = rows[nested.table]

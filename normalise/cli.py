@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import argparse
 import json
+import re
 import sys
 
 from .decode import parse_decode_option
@@ -47,11 +48,26 @@ def cmd_survey(args) -> int:
     result = survey(args.files, limits=_limits(args), formats=_formats(args),
                     encoding=args.encoding, delimiter=_delimiter(args))
     if args.json:
-        json.dump(result, sys.stdout, indent=2, ensure_ascii=False, default=str)
-        sys.stdout.write("\n")
+        print(_escape_surrogates(json.dumps(result, indent=2, ensure_ascii=False, default=str)))
     else:
-        print(render(result))
+        print(_escape_surrogates(render(result)))
     return 0
+
+
+def _escape_surrogates(text: str) -> str:
+    """Write lone surrogates (undecodable bytes kept by the reader) as ``\\udcXX``.
+
+    A strict UTF-8 stdout cannot encode them; the escape is valid inside a JSON
+    string and readable in the plain report.
+
+    Example:
+        >>> _escape_surrogates('"caf\\udce9"')
+        '"caf\\\\udce9"'
+    """
+    return _SURROGATE.sub(lambda m: f"\\u{ord(m.group()):04x}", text)
+
+
+_SURROGATE = re.compile("[\ud800-\udfff]")
 
 
 def _pairs(specs: list[str], option: str) -> dict:
@@ -67,14 +83,26 @@ def _pairs(specs: list[str], option: str) -> dict:
 
 
 def cmd_build(args) -> int:
+    from .errors import UsageError
     from .infer import Options
+    from .join import JoinOptions
     from .pipeline import build_database
     from .report import summary
 
     options = Options(natural_keys=_pairs(args.key, "--key"), duplicates=args.duplicates,
                       violation_threshold=args.threshold, identities=_pairs(args.identity, "--identity"),
                       merge=[m.split(",") for m in args.merge], no_merge=args.no_merge)
-    result = build_database(args.files, args.db, options=options, limits=_limits(args),
+    on = {}
+    for spec in args.join:
+        right, eq, left = spec.partition("=")
+        file, dot, column = right.rpartition(".")
+        if not dot or not file or not column:
+            raise UsageError(f"--join {spec!r}: expected FILE.COLUMN (the joined file's key column), "
+                             "optionally =MAINCOLUMN, e.g. --join contributions.title_key")
+        on[file] = (column, left.rpartition(".")[2] or None)
+    join_options = JoinOptions(how=args.how, cardinality=args.cardinality, on=on, separate=args.separate,
+                               duplicates=args.duplicates)
+    result = build_database(args.files, args.db, options=options, limits=_limits(args), join_options=join_options,
                             formats=_formats(args), encoding=args.encoding, delimiter=_delimiter(args),
                             replace=args.replace, manifest_path=args.manifest)
     if not args.quiet:
@@ -108,6 +136,14 @@ def build_parser() -> argparse.ArgumentParser:
                    help="force nested columns into one entity table")
     p.add_argument("--no-merge", action="append", default=[], metavar="FILE:COL",
                    help="keep a nested column's entities in a table of their own")
+    p.add_argument("--join", action="append", default=[], metavar="FILE.COLUMN[=MAINCOLUMN]",
+                   help="the column of a further file that holds the main file's keys (default: detected)")
+    p.add_argument("--how", choices=("left", "inner", "full"), default="left",
+                   help="left keeps every main record (default); inner sets aside those without a match; "
+                        "full also loads unmatched joined rows")
+    p.add_argument("--cardinality", choices=("one-to-one", "one-to-many"), default="one-to-one",
+                   help="declared relation of joined rows to main records")
+    p.add_argument("--separate", action="store_true", help="join nothing: every file its own record table")
     p.add_argument("--quiet", action="store_true", help="print nothing but errors")
     p.set_defaults(func=cmd_build)
     return parser

@@ -11,6 +11,7 @@ attribute* otherwise (a role or a position that varies from record to record).
 from __future__ import annotations
 
 import re
+from pathlib import Path
 from collections import Counter, defaultdict
 from dataclasses import dataclass
 
@@ -327,7 +328,7 @@ def get_path(obj, path: list[str]):
     return obj
 
 
-META_TABLES = ("rejected_rows", "set_aside_rows", "quarantined_cells", "attribute_variants")
+META_TABLES = ("rejected_rows", "set_aside_rows", "unmatched_rows", "quarantined_cells", "attribute_variants")
 _GENERIC_IDENTITY = frozenset(["id", "key", "code", "uuid", "guid", "slug"])
 
 
@@ -391,7 +392,8 @@ def infer_plan(exports: list, decoded: dict, options: Options | None = None) -> 
                 scalar_types[name] = t
                 record.scalars.append(FieldMap([name], names(name), t))
                 continue
-            nested = NestedColumn(file=export.name, column=name, kind="")
+            origin = getattr(export, "origin", {}).get(name)
+            nested = NestedColumn(file=Path(origin[0]).stem if origin else export.name, column=name, kind="")
             if shape == "scalar-list":
                 nested.kind = "value-list"
             elif shape == "object":
@@ -404,7 +406,7 @@ def infer_plan(exports: list, decoded: dict, options: Options | None = None) -> 
                     nested.kind = "object-columns"
                     nested.links = [FieldMap(p, names(name + "_" + "_".join(p)), _type_at(objects, p))
                                     for p in fields]
-                nested.children = [NestedColumn(export.name, name, "", path=".".join(p)) for p in lists]
+                nested.children = _child_lists(export.name, name, objects, lists)
             else:
                 objects, owners = objects_of(col.values)
                 wanted = options.identities.get(f"{export.name}:{name}", options.identities.get(name))

@@ -9,6 +9,7 @@ from .build import build
 from .check import check_plan, check_rows
 from .decode import decode
 from .infer import Options, infer_plan
+from .join import JoinOptions, join
 from .literal import Limits
 from .read import read
 from .report import manifest
@@ -17,7 +18,7 @@ from .write import write_sqlite
 
 def build_database(paths: list[str], database: str, *, options: Options | None = None,
                    limits: Limits = Limits(), formats: dict | None = None, encoding: str | None = None,
-                   delimiter: str | None = None, replace: bool = False,
+                   delimiter: str | None = None, replace: bool = False, join_options: JoinOptions | None = None,
                    manifest_path: str | None = None) -> dict:
     """Run every pass on the exports and write a SQLite database; returns the manifest.
 
@@ -31,15 +32,20 @@ def build_database(paths: list[str], database: str, *, options: Options | None =
     """
     exports = [read(p, encoding=encoding, delimiter=delimiter) for p in paths]
     decoded = {e.path: decode(e, limits, formats) for e in exports}
+    options = options or Options()
+    joined = join(exports, decoded, join_options or JoinOptions(duplicates=options.duplicates),
+                  options.natural_keys)
+    exports, decoded = joined.exports, joined.decoded
     plan = infer_plan(exports, decoded, options)
     order = check_plan(plan)
-    built = build(plan, exports, decoded)
+    built = build(plan, exports, decoded,
+                  extra={"set_aside_rows": joined.set_aside, "unmatched_rows": joined.unmatched})
     missing = check_rows(plan, built.rows)
     if missing:
         from .check import IntegrityError
         raise IntegrityError(f"{missing} foreign-key values name no row; nothing was written")
     integrity = write_sqlite(plan, built.rows, order, database, replace=replace)
-    result = manifest(plan, built, os.fspath(database), integrity)
+    result = manifest(plan, built, os.fspath(database), integrity, joined)
     if manifest_path:
         with open(manifest_path, "w", encoding="utf-8") as f:
             json.dump(result, f, indent=2, ensure_ascii=False)

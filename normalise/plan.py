@@ -10,7 +10,7 @@ from __future__ import annotations
 
 from dataclasses import asdict, dataclass, field
 
-ROLES = ("record", "entity", "bridge", "child", "set_aside", "quarantine", "variants", "rejected")
+ROLES = ("record", "entity", "bridge", "child", "set_aside", "quarantine", "variants", "rejected", "unmatched")
 
 
 @dataclass

@@ -91,13 +91,19 @@ def read(path: str | os.PathLike, *, encoding: str | None = None,
     suffix = Path(path).suffix.lower()
     if suffix in (".jsonl", ".ndjson") or (suffix == ".json" and _looks_like_json_lines(path)):
         return _read_json_lines(path, encoding or "utf-8-sig")
+    if suffix == ".json" and _json_head(path).startswith(b"["):
+        raise UnreadableFile(f"{path}: holds a JSON array, not JSON Lines (one object per line); "
+                             "rewrite it with one object per line (e.g. jq -c '.[]') as .jsonl")
     return _read_delimited(path, encoding or "utf-8-sig", delimiter)
 
 
-def _looks_like_json_lines(path: str) -> bool:
+def _json_head(path: str) -> bytes:
     with open(path, "rb") as f:
-        head = f.read(1024).lstrip(b"\xef\xbb\xbf \t\r\n")
-    return head.startswith(b"{")
+        return f.read(1024).lstrip(b"\xef\xbb\xbf \t\r\n")
+
+
+def _looks_like_json_lines(path: str) -> bool:
+    return _json_head(path).startswith(b"{")
 
 
 def _open_text(path: str, encoding: str) -> io.TextIOWrapper:
@@ -188,6 +194,9 @@ def _read_delimited(path: str, encoding: str, delimiter: str | None) -> Export:
         if header is None:
             return Export(path, kind, [], {}, [], warnings=[f"{path}: empty file"],
                           delimiter=delimiter, encoding=encoding)
+        if _quote_left_open("".join(tap.taken), delimiter):
+            raise UnreadableFile(f"{path}: a quote opened in the header (line 1) is never closed, "
+                                 "so the whole file reads as the header; close or remove the quote")
         columns, warnings = unique_header(header)
         width = len(columns)
         cells: dict[str, list] = {c: [] for c in columns}
@@ -197,6 +206,7 @@ def _read_delimited(path: str, encoding: str, delimiter: str | None) -> Export:
         tap.taken.clear()
         line_no = reader.line_num  # lines consumed so far
         blank = 0
+        last, last_start, last_taken = None, 0, []  # kind, line and lines of the last row
         while True:
             try:
                 row = next(reader)
@@ -206,6 +216,7 @@ def _read_delimited(path: str, encoding: str, delimiter: str | None) -> Export:
                 rejected.append(RejectedRow(path, line_no + 1, "".join(tap.taken), f"unreadable row: {exc}"))
                 tap.taken.clear()
                 line_no = reader.line_num
+                last = None
                 continue
             start = line_no + 1
             line_no = reader.line_num
@@ -213,22 +224,52 @@ def _read_delimited(path: str, encoding: str, delimiter: str | None) -> Export:
                 for put, value in zip(store, row):
                     put(value)
                 lines.append(start)
+                last = "record"
             elif not row:
                 blank += 1
+                last = None
             else:
                 raw = "".join(tap.taken)
                 reason = (f"too many fields: {len(row)} of {width}" if len(row) > width
                           else f"too few fields: {len(row)} of {width}")
-                if raw and raw[-1] not in "\r\n" and raw.count('"') % 2:
-                    reason += " (a quote opened on this line is never closed)"
                 rejected.append(RejectedRow(path, start, raw, reason))
-            tap.taken.clear()
+                last = "rejected"
+            last_start, last_taken, tap.taken = start, tap.taken, []
+        # Only the last row can hold a quote that is never closed: it runs to
+        # the end of the file. Such a row is rejected even when its field count
+        # happens to be right, so the rest of the file is not taken as one cell.
+        if last is not None and _quote_left_open("".join(last_taken), delimiter):
+            note = "a quote opened in this row is never closed; the row runs to the end of the file"
+            if last == "record":
+                for c in columns:
+                    cells[c].pop()
+                lines.pop()
+                rejected.append(RejectedRow(path, last_start, "".join(last_taken), note))
+            else:
+                rejected[-1].reason += f" ({note})"
     if blank:
         warnings.append(f"{blank} blank line(s) skipped")
     if not lines and not rejected:
         warnings.append(f"{path}: header only, no data rows")
     return Export(path, kind, columns, cells, lines, rejected, warnings,
                   header_names=dict(zip(columns, header)), delimiter=delimiter, encoding=encoding)
+
+
+def _quote_left_open(raw: str, delimiter: str) -> bool:
+    """Whether a row's text ends inside a quoted field (a quote never closed).
+
+    A sentinel line after a complete row reads as a row of its own; after an
+    open quote the csv reader takes it into the quoted field.
+
+    Example:
+        >>> _quote_left_open('1,"a\\nb\\n', ","), _quote_left_open('1,"a\\nb"\\n', ","), _quote_left_open('1,a"b\\n', ",")
+        (True, False, False)
+    """
+    if '"' not in raw:
+        return False
+    sentinel = "x" if delimiter != "x" else "y"
+    rows = list(csv.reader(io.StringIO(raw + "\n" + sentinel, newline=""), delimiter=delimiter))
+    return rows[-1] != [sentinel]
 
 
 def _refuse_constant(name: str):

@@ -20,7 +20,7 @@ def mask_password(url: str) -> str:
     return re.sub(r"(://[^:/@]+:)[^@]*(@)", r"\1***\2", url)
 
 
-def manifest(plan: Plan, built: Built, database: str, integrity: dict) -> dict:
+def manifest(plan: Plan, built: Built, database: str, integrity: dict, joined=None) -> dict:
     tables = []
     for t in plan.tables:
         tables.append({
@@ -33,6 +33,10 @@ def manifest(plan: Plan, built: Built, database: str, integrity: dict) -> dict:
                         for c in t.columns],
         })
     reconciled = all(c.reconciled for c in built.counts)
+    joined_inputs = list(joined.inputs) if joined else []
+    for i in joined_inputs:
+        reconciled &= i["rows_read"] == (i["records_loaded"] + i["rows_set_aside"] + i["rows_rejected"]
+                                         + i["rows_unmatched"])
     return {
         "manifest_version": MANIFEST_VERSION,
         "database": mask_password(database),
@@ -40,7 +44,8 @@ def manifest(plan: Plan, built: Built, database: str, integrity: dict) -> dict:
                     "rows_set_aside": c.rows_set_aside, "rows_rejected": c.rows_rejected,
                     "cells_quarantined": c.cells_quarantined, "elements_decoded": c.elements_decoded,
                     "elements_written": c.elements_written, "elements_quarantined": c.elements_quarantined}
-                   for c in built.counts],
+                   for c in built.counts] + joined_inputs,
+        "joins": list(joined.joins) if joined else [],
         "tables": tables,
         "cells_quarantined": sum(c.cells_quarantined for c in built.counts),
         "conflicts": built.conflicts,
@@ -56,6 +61,13 @@ def summary(m: dict) -> str:
     """The end-of-run summary a person reads."""
     out = [f"wrote {m['database']}"]
     for i in m["inputs"]:
+        if "joined_into" in i:
+            total = i["records_loaded"] + i["rows_set_aside"] + i["rows_rejected"] + i["rows_unmatched"]
+            ok = "=" if i["rows_read"] == total else "!="
+            out.append(f"  {i['path']}: {i['rows_read']} rows read {ok} {i['records_loaded']} joined into "
+                       f"{i['joined_into']} + {i['rows_set_aside']} set aside + {i['rows_rejected']} rejected "
+                       f"+ {i['rows_unmatched']} unmatched (kept in unmatched_rows)")
+            continue
         ok = "=" if i["rows_read"] == i["records_loaded"] + i["rows_set_aside"] + i["rows_rejected"] else "!="
         out.append(f"  {i['path']}: {i['rows_read']} rows read {ok} {i['records_loaded']} loaded "
                    f"+ {i['rows_set_aside']} set aside + {i['rows_rejected']} rejected; "
@@ -64,6 +76,14 @@ def summary(m: dict) -> str:
     width = max(len(t["name"]) for t in m["tables"])
     for t in m["tables"]:
         out.append(f"  {t['name']:<{width}}  {t['role']:<10} {t['rows']:>9,} rows")
+    for j in m.get("joins", []):
+        on = ", ".join(f"{a} = {b}" for a, b in j["on"])
+        out.append(f"  join ({j['how']}, {j['cardinality']}) {j['right']} on {on}: "
+                   f"{j['left_only']} keys only in {j['left']}"
+                   + (f" (e.g. {', '.join(map(str, j['left_only_examples']))})" if j["left_only"] else "")
+                   + f", {j['right_only']} only in {j['right']}"
+                   + (f" (e.g. {', '.join(map(str, j['right_only_examples']))})" if j["right_only"] else "")
+                   + f", {j['right_duplicates_set_aside']} duplicates set aside")
     for e in m["entities"]:
         if len(e["members"]) > 1:
             out.append(f"  entity {e['table']} shared by {', '.join(e['members'])} (identity {e['identity']})")

@@ -45,13 +45,15 @@ _META = {
                       ("raw", "text", False)],
     "set_aside_rows": [("file", "text", False), ("line", "integer", False), ("natural_key", "text", True),
                        ("reason", "text", False), ("kept_line", "integer", True), ("cells", "text", False)],
+    "unmatched_rows": [("file", "text", False), ("line", "integer", False), ("join_key", "text", True),
+                       ("reason", "text", False), ("cells", "text", False)],
     "quarantined_cells": [("file", "text", False), ("line", "integer", False), ("column_name", "text", False),
                           ("position", "integer", True), ("excerpt", "text", False), ("message", "text", False)],
     "attribute_variants": [("entity_table", "text", False), ("entity_sk", "integer", False),
                            ("natural_key", "text", False), ("attribute", "text", False), ("value", "text", True),
                            ("occurrences", "integer", False), ("chosen", "boolean", False)],
 }
-_META_ROLE = {"rejected_rows": "rejected", "set_aside_rows": "set_aside",
+_META_ROLE = {"rejected_rows": "rejected", "set_aside_rows": "set_aside", "unmatched_rows": "unmatched",
               "quarantined_cells": "quarantine", "attribute_variants": "variants"}
 
 

@@ -1,0 +1,226 @@
+"""Join pass (between decode and infer): attach further exports to the main one by key.
+
+The main export is the first file. Another export relates to it when one of
+its scalar columns holds the main export's natural-key values (or the user
+says which column, ``--join FILE.COLUMN``). For a one-to-one join the joined
+file's repeated keys are set aside first (kept, with their lines); then its
+columns are modelled as if they belonged to the main export. Keys found on one
+side only are counted both ways; the joined file's unmatched rows are kept in
+``unmatched_rows``. ``left`` (default) keeps every main record, ``inner`` sets
+aside main records without a match, ``full`` also loads unmatched joined rows
+as records of their own.
+"""
+
+from __future__ import annotations
+
+import json
+from dataclasses import dataclass, field
+
+from .decode import DecodedColumn
+from .errors import NormaliseError, UsageError
+from .infer import NATURAL_KEY_MIN_DISTINCT, detect_natural_key, scalar_column_type
+from .read import Export
+
+HOWS = ("left", "inner", "full")
+CARDINALITIES = ("one-to-one", "one-to-many")
+MIN_OVERLAP = 0.5  # share of a column's distinct values found among the main keys
+EXAMPLES = 5
+FULL_JOIN_KEY_BASE = 10**9  # records that only the n-th file has get key n * 10**9 + line
+
+
+class CardinalityViolation(NormaliseError):
+    """A join declared one-to-one or one-to-many that the data does not keep."""
+
+
+@dataclass
+class JoinedExport(Export):
+    """The main export with the columns of the exports joined to it."""
+
+    record_keys: list[int] | None = None  # surrogate key per row, when not the line
+    main_rows: int = 0  # rows that come from the main export itself
+    main_rows_read: int = 0
+    origin: dict = field(default_factory=dict)  # column -> (file path, column in that file)
+    inner_unmatched: dict = field(default_factory=dict)  # row -> why an inner join sets it aside
+
+
+@dataclass
+class Joined:
+    exports: list[Export]
+    decoded: dict
+    joins: list[dict] = field(default_factory=list)
+    set_aside: list[tuple] = field(default_factory=list)  # rows of set_aside_rows
+    unmatched: list[tuple] = field(default_factory=list)  # rows of unmatched_rows
+    inputs: list[dict] = field(default_factory=list)  # counts of the joined files
+
+
+@dataclass
+class JoinOptions:
+    how: str = "left"
+    cardinality: str = "one-to-one"
+    on: dict = field(default_factory=dict)  # right file stem -> (right column, left column or None)
+    separate: bool = False  # never join; every file its own record table
+    duplicates: str = "first"
+
+
+def _key_values(export: Export, decoded: dict, column: str) -> list:
+    return [None if v is None else str(v) for v in decoded[export.path][column].values]
+
+
+def find_relation(main: Export, main_key: str, other: Export, decoded: dict) -> str | None:
+    """The column of ``other`` whose values are the main export's natural keys, if any."""
+    keys = set(_key_values(main, decoded, main_key))
+    best = None
+    for name, col in decoded[other.path].items():
+        if col.encoding not in ("scalar",):
+            continue
+        values = {v for v in _key_values(other, decoded, name) if v is not None}
+        if not values:
+            continue
+        overlap = len(values & keys) / len(values)
+        if overlap >= MIN_OVERLAP and (best is None or (overlap, name == main_key) > best[0]):
+            best = ((overlap, name == main_key), name)
+    return None if best is None else best[1]
+
+
+def join(exports: list[Export], decoded: dict, options: JoinOptions, natural_keys: dict) -> Joined:
+    """Join every export that relates to the first one; the others stay separate record tables."""
+    result = Joined(list(exports), dict(decoded))
+    if len(exports) < 2 or options.separate:
+        return result
+    if options.how not in HOWS:
+        raise UsageError(f"--how {options.how!r}: use one of {', '.join(HOWS)}")
+    main = exports[0]
+    main_cols = decoded[main.path]
+    main_key = natural_keys.get(main.name)
+    if main_key is None:
+        types = {n: scalar_column_type(c.values) for n, c in main_cols.items() if c.encoding in ("scalar", "empty")}
+        main_key = detect_natural_key(list(types), {n: main_cols[n].values for n in types}, types)
+    if main_key is None:
+        return result
+    combined = JoinedExport(main.path, main.kind, list(main.columns), dict(main.cells), list(main.lines),
+                            list(main.rejected), list(main.warnings), dict(main.header_names),
+                            main.delimiter, main.encoding, record_keys=list(main.lines),
+                            main_rows=main.number_of_records, main_rows_read=main.rows_read)
+    combined_cols = dict(main_cols)
+    joined_any = False
+    for other in exports[1:]:
+        stated = options.on.get(other.name)
+        if stated:
+            right_col, left_col = stated
+            if left_col and left_col != main_key:
+                raise UsageError(f"--join {other.name}.{right_col}={main.name}.{left_col}: the main file's "
+                                 f"natural key is {main_key!r}; name it, or choose the key with --key")
+            if right_col not in decoded[other.path]:
+                raise UsageError(f"--join {other.name}.{right_col}: {other.path} has no column {right_col!r} "
+                                 f"(columns: {', '.join(other.columns)})")
+        else:
+            right_col = find_relation(main, main_key, other, decoded)
+        if right_col is None:
+            continue
+        joined_any = True
+        _join_one(result, combined, combined_cols, main, main_key, other, right_col, decoded, options)
+        result.exports.remove(other)
+        del result.decoded[other.path]
+    if joined_any:
+        result.exports[0] = combined
+        result.decoded[main.path] = combined_cols
+    return result
+
+
+def _join_one(result: Joined, combined: JoinedExport, combined_cols: dict, main: Export, main_key: str,
+              other: Export, right_col: str, decoded: dict, options: JoinOptions) -> None:
+    if options.cardinality != "one-to-one":
+        raise UsageError("--cardinality one-to-many is not supported yet: give the file as its own "
+                         "export with --separate, or join it one-to-one")
+    right_keys = _key_values(other, decoded, right_col)
+    left_keys = _key_values(main, decoded, main_key)
+    first: dict[str, int] = {}
+    duplicates = []
+    order = range(len(right_keys)) if options.duplicates != "last" else range(len(right_keys) - 1, -1, -1)
+    for j in order:
+        k = right_keys[j]
+        if k is None:
+            continue
+        if k in first:
+            duplicates.append((j, first[k]))
+        else:
+            first[k] = j
+    if duplicates and options.duplicates == "refuse":
+        lines = ", ".join(f"line {other.lines[j]}" for j, _ in sorted(duplicates)[:5])
+        raise CardinalityViolation(f"{other.path}: the join on {right_col} is declared one-to-one but "
+                                   f"{len(duplicates)} row(s) repeat a key ({lines}); use --duplicates first "
+                                   f"or last to keep one and set the others aside")
+    for j, kept in sorted(duplicates):
+        result.set_aside.append((other.path, other.lines[j], right_keys[j],
+                                 f"duplicate join key {right_keys[j]!r} in {other.name}; kept line "
+                                 f"{other.lines[kept]}", other.lines[kept], _cells_json(other, j)))
+    left_set = {k for k in left_keys if k is not None}
+    left_only = sorted(left_set - set(first))
+    right_only = sorted(set(first) - left_set)
+    no_key = [j for j, k in enumerate(right_keys) if k is None]
+    for j in sorted([first[k] for k in right_only] + no_key):
+        reason = "no join key" if right_keys[j] is None else f"key {right_keys[j]!r} not in {main.name}"
+        if options.how == "full" and right_keys[j] is not None:
+            continue
+        result.unmatched.append((other.path, other.lines[j], right_keys[j], reason, _cells_json(other, j)))
+    # the joined file's columns, aligned on the main file's rows
+    index = [first.get(k) for k in left_keys]
+    extra_rows = [first[k] for k in right_only] if options.how == "full" else []
+    names = {}
+    for name in other.columns:
+        if name == right_col:
+            continue
+        new = name if name not in combined.cells else f"{other.name}_{name}"
+        names[name] = new
+        source = decoded[other.path][name]
+        padding = len(combined.lines) - len(index)
+        values = [None if j is None else source.values[j] for j in index] + [None] * padding
+        values += [source.values[j] for j in extra_rows]
+        raw = other.cells[name]
+        cells = [None if j is None else raw[j] for j in index] + [None] * padding + [raw[j] for j in extra_rows]
+        combined.columns.append(new)
+        combined.cells[new] = cells
+        combined.header_names[new] = other.header_names.get(name, name)
+        combined.origin[new] = (other.path, name)
+        combined_cols[new] = DecodedColumn(new, source.encoding, values, source.quarantined,
+                                           source.format_counts, source.separator, source.ambiguity,
+                                           source.forced)
+    if extra_rows:
+        position = len(result.joins) + 2
+        for name in list(combined.cells):
+            if name in names.values():
+                continue
+            combined.cells[name] = combined.cells[name] + [None] * len(extra_rows)
+            col = combined_cols[name]
+            if name == main_key:
+                keyed = [other.cells[right_col][j] for j in extra_rows]
+                combined.cells[name][-len(extra_rows):] = keyed
+                col.values = col.values + [decoded[other.path][right_col].values[j] for j in extra_rows]
+            else:
+                col.values = col.values + [None] * len(extra_rows)
+        combined.lines += [other.lines[j] for j in extra_rows]
+        combined.record_keys += [position * FULL_JOIN_KEY_BASE + other.lines[j] for j in extra_rows]
+    matched = len({j for j in index if j is not None})
+    result.inputs.append({"path": other.path, "rows_read": other.rows_read,
+                          "records_loaded": matched + len(extra_rows),
+                          "rows_set_aside": len(duplicates), "rows_rejected": len(other.rejected),
+                          "rows_unmatched": other.number_of_records - matched - len(extra_rows) - len(duplicates),
+                          "joined_into": main.path})
+    result.joins.append({"left": main.path, "right": other.path, "on": [[main_key, right_col]],
+                         "how": options.how, "cardinality": options.cardinality,
+                         "left_only": len(left_only), "right_only": len(right_only),
+                         "right_duplicates_set_aside": len(duplicates),
+                         "left_only_examples": left_only[:EXAMPLES], "right_only_examples": right_only[:EXAMPLES],
+                         "columns": names})
+    if options.how == "inner":
+        for i, j in enumerate(index):
+            if j is None and i < combined.main_rows:
+                combined.inner_unmatched.setdefault(i, f"no match in {other.name} (inner join)")
+
+
+def _cells_json(export: Export, j: int) -> str:
+    cells = {}
+    for c in export.columns:
+        v = export.cells[c][j]
+        cells[c] = v if v is None or isinstance(v, str) else json.dumps(v, ensure_ascii=False)
+    return json.dumps(cells, ensure_ascii=False)
