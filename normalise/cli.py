@@ -104,7 +104,8 @@ def cmd_build(args) -> int:
                                duplicates=args.duplicates)
     result = build_database(args.files, args.db, options=options, limits=_limits(args), join_options=join_options,
                             formats=_formats(args), encoding=args.encoding, delimiter=_delimiter(args),
-                            replace=args.replace, manifest_path=args.manifest)
+                            replace=args.replace, manifest_path=args.manifest, picks=args.pick,
+                            parquet_dir=args.parquet)
     if not args.quiet:
         print(summary(result))
     return 0 if result["integrity"]["reconciled"] else 1
@@ -144,6 +145,9 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--cardinality", choices=("one-to-one", "one-to-many"), default="one-to-one",
                    help="declared relation of joined rows to main records")
     p.add_argument("--separate", action="store_true", help="join nothing: every file its own record table")
+    p.add_argument("--pick", action="append", default=[], metavar="NAME=COLUMN:ATTRIBUTE=VALUE",
+                   help="a record-summary column: the first entity of COLUMN whose link ATTRIBUTE is VALUE")
+    p.add_argument("--parquet", metavar="DIR", help="also write every table and view as a Parquet file")
     p.add_argument("--quiet", action="store_true", help="print nothing but errors")
     p.set_defaults(func=cmd_build)
     return parser

@@ -443,7 +443,10 @@ def infer_plan(exports: list, decoded: dict, options: Options | None = None) -> 
             for child in nested.children:
                 _name_children(child, nested.table or record.table, tables)
     from .schema import add_tables
+    from .views import default_views
+
     add_tables(plan)
+    plan.views = default_views(plan)
     return plan
 
 

@@ -13,13 +13,15 @@ from .join import JoinOptions, join
 from .literal import Limits
 from .read import read
 from .report import manifest
-from .write import write_sqlite
+from .views import add_pick
+from .write import write_parquet, write_sqlite
 
 
 def build_database(paths: list[str], database: str, *, options: Options | None = None,
                    limits: Limits = Limits(), formats: dict | None = None, encoding: str | None = None,
                    delimiter: str | None = None, replace: bool = False, join_options: JoinOptions | None = None,
-                   manifest_path: str | None = None) -> dict:
+                   manifest_path: str | None = None, picks: list[str] | None = None,
+                   parquet_dir: str | None = None) -> dict:
     """Run every pass on the exports and write a SQLite database; returns the manifest.
 
     Example:
@@ -37,6 +39,8 @@ def build_database(paths: list[str], database: str, *, options: Options | None =
                   options.natural_keys)
     exports, decoded = joined.exports, joined.decoded
     plan = infer_plan(exports, decoded, options)
+    for spec in picks or ():
+        add_pick(plan, spec)
     order = check_plan(plan)
     built = build(plan, exports, decoded,
                   extra={"set_aside_rows": joined.set_aside, "unmatched_rows": joined.unmatched})
@@ -46,6 +50,8 @@ def build_database(paths: list[str], database: str, *, options: Options | None =
         raise IntegrityError(f"{missing} foreign-key values name no row; nothing was written")
     integrity = write_sqlite(plan, built.rows, order, database, replace=replace)
     result = manifest(plan, built, os.fspath(database), integrity, joined)
+    if parquet_dir:
+        result["parquet"] = write_parquet(database, plan, parquet_dir)
     if manifest_path:
         with open(manifest_path, "w", encoding="utf-8") as f:
             json.dump(result, f, indent=2, ensure_ascii=False)

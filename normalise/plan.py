@@ -104,6 +104,7 @@ class Plan:
     records: list[RecordSource] = field(default_factory=list)
     entities: list[EntityGroup] = field(default_factory=list)
     tables: list[Table] = field(default_factory=list)
+    views: list = field(default_factory=list)  # views.View
     violation_threshold: float = 0.05
 
     def table(self, name: str) -> Table:

@@ -47,6 +47,7 @@ def manifest(plan: Plan, built: Built, database: str, integrity: dict, joined=No
                    for c in built.counts] + joined_inputs,
         "joins": list(joined.joins) if joined else [],
         "tables": tables,
+        "views": [{"name": v.name, "kind": v.kind, "table": v.table} for v in plan.views],
         "cells_quarantined": sum(c.cells_quarantined for c in built.counts),
         "conflicts": built.conflicts,
         "entities": [{"table": g.table, "identity": g.identity, "members": g.members,
@@ -76,6 +77,8 @@ def summary(m: dict) -> str:
     width = max(len(t["name"]) for t in m["tables"])
     for t in m["tables"]:
         out.append(f"  {t['name']:<{width}}  {t['role']:<10} {t['rows']:>9,} rows")
+    for v in m.get("views", []):
+        out.append(f"  view {v['name']} ({v['kind'].replace('_', ' ')} of {v['table']})")
     for j in m.get("joins", []):
         on = ", ".join(f"{a} = {b}" for a, b in j["on"])
         out.append(f"  join ({j['how']}, {j['cardinality']}) {j['right']} on {on}: "

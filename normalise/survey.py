@@ -67,10 +67,20 @@ def survey_column(export: Export, column: DecodedColumn) -> dict:
     return entry
 
 
-_INTEGER = __import__("re").compile(r"[-+]?\d{1,18}")
-_REAL = __import__("re").compile(r"[-+]?(\d+\.\d*|\.\d+|\d+)([eE][-+]?\d+)?")
+_INTEGER = __import__("re").compile(r"[-+]?(0|[1-9]\d{0,17})")  # leading zeros are codes, not numbers
+_REAL = __import__("re").compile(r"[-+]?((0|[1-9]\d*)(\.\d*)?|\.\d+)([eE][-+]?\d+)?")
 _DATE = __import__("re").compile(r"\d{4}-\d{2}-\d{2}")
 _TIMESTAMP = __import__("re").compile(r"\d{4}-\d{2}-\d{2}[T ]\d{2}:\d{2}(:\d{2}(\.\d+)?)?(Z|[+-]\d{2}:?\d{2})?")
+
+
+def _is_calendar_date(text: str) -> bool:
+    from datetime import date
+
+    try:
+        date.fromisoformat(text)
+    except ValueError:
+        return False
+    return True
 
 
 def scalar_type(values: list) -> str:
@@ -79,6 +89,8 @@ def scalar_type(values: list) -> str:
     Example:
         >>> scalar_type(["1", "2"]), scalar_type(["1", "2.5"]), scalar_type(["2024-01-31"]), scalar_type(["x", "1"])
         ('integer', 'real', 'date', 'text')
+        >>> scalar_type(["007", "12"]), scalar_type(["2024-13-45"])
+        ('text', 'text')
     """
     if not values:
         return "empty"
@@ -87,6 +99,8 @@ def scalar_type(values: list) -> str:
     texts = [v if isinstance(v, str) else repr(v) for v in values]
     for name, pattern in (("integer", _INTEGER), ("real", _REAL), ("date", _DATE), ("timestamp", _TIMESTAMP)):
         if all(pattern.fullmatch(t) for t in texts):
+            if name in ("date", "timestamp") and not all(_is_calendar_date(t[:10]) for t in texts):
+                continue
             return name
     return "text"
 

@@ -15,6 +15,7 @@ from sqlalchemy import event
 
 from .errors import NormaliseError
 from .plan import Plan
+from .views import view_sql
 
 TYPES = {
     "integer": sa.BigInteger,
@@ -50,6 +51,10 @@ def metadata_for(plan: Plan) -> sa.MetaData:
         for fk in t.foreign_keys:
             sa.Index(f"ix_{t.name}_{'_'.join(fk.columns)}", *[table.c[c] for c in fk.columns])
     return md
+
+
+def _quote(name: str) -> str:
+    return '"' + name.replace('"', '""') + '"'
 
 
 def _foreign_keys_on(dbapi_connection, _record) -> None:
@@ -94,6 +99,8 @@ def write_sqlite(plan: Plan, rows: dict[str, list[tuple]], order: list[str], des
             for name in order:
                 for index in md.tables[name].indexes:
                     index.create(conn)
+            for view in plan.views:
+                conn.exec_driver_sql(f"CREATE VIEW {_quote(view.name)} AS {view_sql(view, plan, 'sqlite')}")
         with engine.connect() as conn:
             violations = conn.exec_driver_sql("PRAGMA foreign_key_check").fetchall()
             integrity = conn.exec_driver_sql("PRAGMA integrity_check").scalar()
@@ -105,3 +112,33 @@ def write_sqlite(plan: Plan, rows: dict[str, list[tuple]], order: list[str], des
             os.remove(temporary)
         raise
     return {"foreign_key_violations": len(violations), "integrity_check": integrity}
+
+
+def write_parquet(database: str, plan: Plan, directory: str) -> list[str]:
+    """Every table and view of a written SQLite database as a Parquet file; returns the paths."""
+    import sqlite3
+
+    import pyarrow as pa
+    import pyarrow.parquet as pq
+
+    Path(directory).mkdir(parents=True, exist_ok=True)
+    written = []
+    arrow_types = {"integer": pa.int64(), "real": pa.float64(), "boolean": pa.bool_()}
+    with sqlite3.connect(database) as conn:
+        names = [t.name for t in plan.tables] + [v.name for v in plan.views]
+        declared = {t.name: {c.name: c.type for c in t.columns} for t in plan.tables}
+        for name in names:
+            cursor = conn.execute(f"SELECT * FROM {_quote(name)}")
+            columns = [d[0] for d in cursor.description]
+            data = list(zip(*cursor.fetchall())) or [[] for _ in columns]
+            arrays = []
+            for column, values in zip(columns, data):
+                kind = declared.get(name, {}).get(column)
+                values = list(values)
+                if kind == "boolean":
+                    values = [None if v is None else bool(v) for v in values]
+                arrays.append(pa.array(values, type=arrow_types.get(kind)))
+            path = os.path.join(directory, f"{name}.parquet")
+            pq.write_table(pa.Table.from_arrays(arrays, names=columns), path)
+            written.append(path)
+    return written

@@ -1,0 +1,220 @@
+"""Wide summary views that BI tools read directly (part of the plan and write passes).
+
+* A record summary: one row per record with, for each list, the number of
+  linked entities and their display names joined in list order (NULL for an
+  empty list), plus *picks*: the first entity of a list whose link attribute
+  equals a value (the first contributor whose role is editor).
+* An entity summary: one row per entity with the number of distinct records
+  it appears in, per source column and in total, and the first and last record
+  by a date column of the records when there is one.
+
+Views are plain data in the plan; ``view_sql`` renders one for a SQL dialect.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+from .plan import Plan, Table
+
+LIST_SEPARATOR = "; "
+_DISPLAY_NAMES = ("name", "display_name", "full_name", "title", "label")
+
+
+@dataclass
+class Pick:
+    """The first entity of a list whose link attribute equals a value, as one column."""
+
+    name: str
+    bridge: str
+    attribute: str
+    value: str
+
+
+@dataclass
+class View:
+    name: str
+    kind: str  # record_summary | entity_summary
+    table: str
+    lists: list[str] = field(default_factory=list)  # bridges summarised (record summary) or counted (entity)
+    picks: list[Pick] = field(default_factory=list)
+    date_column: str | None = None
+    separator: str = LIST_SEPARATOR
+
+
+def display_column(table: Table) -> str:
+    """The column that names an entity for people: a name-like text column, else its natural key."""
+    names = {c.name: c for c in table.columns}
+    for wanted in _DISPLAY_NAMES:
+        if wanted in names:
+            return wanted
+    for c in table.columns:
+        if c.type == "text" and c.name not in table.primary_key and c.name.endswith("name"):
+            return c.name
+    return table.natural_key[0] if table.natural_key else table.primary_key[0]
+
+
+def _bridge_entity(plan: Plan, bridge: Table) -> Table:
+    return plan.table(bridge.foreign_keys[1].references)
+
+
+def default_views(plan: Plan) -> list[View]:
+    """A record summary per record table with lists, an entity summary per entity table with bridges."""
+    views = []
+    taken = {t.name for t in plan.tables}
+    bridges = [t for t in plan.tables if t.role == "bridge"]
+    for record in (t for t in plan.tables if t.role == "record"):
+        own = [b.name for b in bridges if b.foreign_keys[0].references == record.name]
+        if own:
+            name = _free(f"{record.name}_summary", taken)
+            views.append(View(name, "record_summary", record.name, own))
+    for entity in (t for t in plan.tables if t.role == "entity"):
+        used = [b for b in bridges if b.foreign_keys[1].references == entity.name
+                and plan.table(b.foreign_keys[0].references).role == "record"]
+        if not used:
+            continue
+        owners = {b.foreign_keys[0].references for b in used}
+        date_column = None
+        if len(owners) == 1:
+            owner = plan.table(owners.pop())
+            dates = [c.name for c in owner.columns if c.type in ("date", "timestamp")]
+            date_column = dates[0] if dates else None
+        name = _free(f"{entity.name}_summary", taken)
+        views.append(View(name, "entity_summary", entity.name, [b.name for b in used], date_column=date_column))
+    return views
+
+
+def _free(name: str, taken: set) -> str:
+    base, n = name, 2
+    while name in taken:
+        name = f"{base}_{n}"
+        n += 1
+    taken.add(name)
+    return name
+
+
+def _q(name: str) -> str:
+    return '"' + name.replace('"', '""') + '"'
+
+
+def _lit(value: str) -> str:
+    return "'" + str(value).replace("'", "''") + "'"
+
+
+def _ordered_join(dialect: str, expr: str, order: str, source: str, separator: str) -> str:
+    """An aggregate joining ``expr`` over ``source`` in ``order``; NULL when there are no rows."""
+    if dialect == "postgresql":
+        return f"(SELECT string_agg(CAST({expr} AS TEXT), {_lit(separator)} ORDER BY {order}) FROM {source})"
+    # SQLite before 3.44 has no ORDER BY inside aggregates; group_concat takes the rows
+    # in the order the inner query delivers them.
+    return (f"(SELECT group_concat(v, {_lit(separator)}) FROM (SELECT CAST({expr} AS TEXT) AS v "
+            f"FROM {source} ORDER BY {order}))")
+
+
+def view_sql(view: View, plan: Plan, dialect: str) -> str:
+    """The SELECT that defines a view, in the given dialect ("sqlite" or "postgresql")."""
+    if view.kind == "record_summary":
+        return _record_summary(view, plan, dialect)
+    return _entity_summary(view, plan, dialect)
+
+
+def _record_summary(view: View, plan: Plan, dialect: str) -> str:
+    record = plan.table(view.table)
+    key = record.primary_key[0]
+    cols = [f"r.{_q(key)}"] + [f"r.{_q(c)}" for c in record.natural_key]
+    for name in view.lists:
+        bridge = plan.table(name)
+        entity = _bridge_entity(plan, bridge)
+        owner_col = bridge.foreign_keys[0].columns[0]
+        entity_col = bridge.foreign_keys[1].columns[0]
+        shown = display_column(entity)
+        label = name[len(singular_prefix(record.name)):] if name.startswith(singular_prefix(record.name)) else name
+        source = (f"{_q(name)} b JOIN {_q(entity.name)} e ON e.{_q(entity_col)} = b.{_q(entity_col)} "
+                  f"WHERE b.{_q(owner_col)} = r.{_q(key)}")
+        cols.append(f"(SELECT count(*) FROM {_q(name)} b WHERE b.{_q(owner_col)} = r.{_q(key)}) "
+                    f"AS {_q('number_of_' + label)}")
+        cols.append(_ordered_join(dialect, f"e.{_q(shown)}", "b.list_position", source, view.separator)
+                    + f" AS {_q(label)}")
+    for pick in view.picks:
+        bridge = plan.table(pick.bridge)
+        entity = _bridge_entity(plan, bridge)
+        owner_col = bridge.foreign_keys[0].columns[0]
+        entity_col = bridge.foreign_keys[1].columns[0]
+        cols.append(f"(SELECT e.{_q(display_column(entity))} FROM {_q(pick.bridge)} b JOIN {_q(entity.name)} e "
+                    f"ON e.{_q(entity_col)} = b.{_q(entity_col)} WHERE b.{_q(owner_col)} = r.{_q(key)} "
+                    f"AND CAST(b.{_q(pick.attribute)} AS TEXT) = {_lit(pick.value)} "
+                    f"ORDER BY b.list_position LIMIT 1) AS {_q(pick.name)}")
+    return f"SELECT {', '.join(cols)} FROM {_q(record.name)} r"
+
+
+def add_pick(plan: Plan, spec: str) -> Pick:
+    """Add a pick ``NAME=COLUMN:ATTRIBUTE=VALUE`` to the record summary that shows COLUMN.
+
+    COLUMN is the nested input column (or its bridge table), ATTRIBUTE a link
+    attribute on its bridge: ``editor=contributors:role=editor`` names, per
+    record, the first contributor whose role is editor.
+    """
+    from .errors import UsageError
+
+    name, eq, rest = spec.partition("=")
+    column, colon, condition = rest.partition(":")
+    attribute, eq2, value = condition.partition("=")
+    if not (eq and colon and eq2 and name and column and attribute):
+        raise UsageError(f"--pick {spec!r}: expected NAME=COLUMN:ATTRIBUTE=VALUE, "
+                         "e.g. --pick first_editor=contributors:role=editor")
+    bridges = [t for t in plan.tables if t.role == "bridge" and
+               (t.name == column or any(s.get("column") == column for s in t.sources))]
+    if not bridges:
+        lists = sorted({s["column"] for t in plan.tables if t.role == "bridge" for s in t.sources})
+        raise UsageError(f"--pick {spec!r}: no list of entities comes from {column!r} "
+                         f"(lists: {', '.join(lists)})")
+    bridge = bridges[0]
+    if attribute not in [c.name for c in bridge.columns]:
+        raise UsageError(f"--pick {spec!r}: {attribute!r} is not a link attribute of {bridge.name} "
+                         f"(columns: {', '.join(c.name for c in bridge.columns)})")
+    for view in plan.views:
+        if view.kind == "record_summary" and bridge.name in view.lists:
+            pick = Pick(name, bridge.name, attribute, value)
+            view.picks.append(pick)
+            return pick
+    raise UsageError(f"--pick {spec!r}: {bridge.name} belongs to no record summary")
+
+
+def singular_prefix(record_table: str) -> str:
+    from .names import singular
+
+    return singular(record_table) + "_"
+
+
+def _entity_summary(view: View, plan: Plan, dialect: str) -> str:
+    entity = plan.table(view.table)
+    key = entity.primary_key[0]
+    cols = [f"e.{_q(key)}"] + [f"e.{_q(c)}" for c in entity.natural_key]
+    shown = display_column(entity)
+    if shown not in entity.natural_key:
+        cols.append(f"e.{_q(shown)}")
+    unions = []
+    for name in view.lists:
+        bridge = plan.table(name)
+        owner_col = bridge.foreign_keys[0].columns[0]
+        cols.append(f"(SELECT count(DISTINCT b.{_q(owner_col)}) FROM {_q(name)} b WHERE b.{_q(key)} = e.{_q(key)}) "
+                    f"AS {_q('records_in_' + name)}")
+        owner = bridge.foreign_keys[0].references
+        unions.append(f"SELECT {_lit(owner)} AS t, b.{_q(owner_col)} AS k FROM {_q(name)} b "
+                      f"WHERE b.{_q(key)} = e.{_q(key)}")
+    cols.append(f"(SELECT count(*) FROM ({' UNION '.join(unions)}) u) AS {_q('records_in_total')}")
+    if view.date_column:
+        owner = plan.table(plan.table(view.lists[0]).foreign_keys[0].references)
+        owner_key = owner.primary_key[0]
+        label = owner.natural_key[0] if owner.natural_key else owner_key
+        inner = " UNION ".join(f"SELECT b.{_q(plan.table(n).foreign_keys[0].columns[0])} AS k FROM {_q(n)} b "
+                               f"WHERE b.{_q(key)} = e.{_q(key)}" for n in view.lists)
+        for which, direction in (("first", "ASC"), ("last", "DESC")):
+            cols.append(f"(SELECT r.{_q(label)} FROM {_q(owner.name)} r WHERE r.{_q(owner_key)} IN ({inner}) "
+                        f"AND r.{_q(view.date_column)} IS NOT NULL "
+                        f"ORDER BY r.{_q(view.date_column)} {direction}, r.{_q(label)} {direction} LIMIT 1) "
+                        f"AS {_q(f'{which}_{singular_prefix(owner.name)[:-1]}')}")
+            cols.append(f"(SELECT {'min' if which == 'first' else 'max'}(r.{_q(view.date_column)}) "
+                        f"FROM {_q(owner.name)} r WHERE r.{_q(owner_key)} IN ({inner})) "
+                        f"AS {_q(f'{which}_{view.date_column}')}")
+    return f"SELECT {', '.join(cols)} FROM {_q(entity.name)} e"
