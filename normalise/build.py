@@ -99,6 +99,7 @@ class Built:
     counts: list[FileCounts]
     conflicts: int = 0
     merges: list[str] = field(default_factory=list)
+    cells_quarantined_by_file: dict = field(default_factory=dict)  # every input file, joined ones too
 
 
 class _Entities:
@@ -137,6 +138,7 @@ def build(plan: Plan, exports: list, decoded: dict, extra: dict | None = None) -
     entities = {g.table: _Entities(g) for g in plan.entities}
     values: dict[str, dict] = {}  # value table -> {canonical: (sk, value)}
     counts = []
+    quarantined_by_file: Counter = Counter()
     by_path = {e.path: e for e in exports}
     for record in plan.records:
         export = by_path[record.path]
@@ -150,6 +152,7 @@ def build(plan: Plan, exports: list, decoded: dict, extra: dict | None = None) -
             for q in col.quarantined:
                 rows["quarantined_cells"].append((q.file, q.line, q.column, q.position, q.excerpt, q.message))
                 c.cells_quarantined += q.file == export.path
+                quarantined_by_file[q.file] += 1
         kept = _keep(record, export, columns, rows["set_aside_rows"])
         c.records_loaded = sum(i < main_rows for i in kept)
         c.rows_set_aside = main_rows - c.records_loaded
@@ -194,7 +197,7 @@ def build(plan: Plan, exports: list, decoded: dict, extra: dict | None = None) -
         rows[table] = [found[k] for k in sorted(found)]
     for meta in ("rejected_rows", "set_aside_rows", "unmatched_rows", "quarantined_cells", "attribute_variants"):
         rows[meta] = [(n, *r) for n, r in enumerate(rows[meta], start=1)]
-    return Built(rows, counts, conflicts)
+    return Built(rows, counts, conflicts, cells_quarantined_by_file=dict(quarantined_by_file))
 
 
 def _keep(record: RecordSource, export, columns, set_aside: list) -> list[int]:

@@ -105,10 +105,46 @@ def cmd_build(args) -> int:
     result = build_database(args.files, args.db, options=options, limits=_limits(args), join_options=join_options,
                             formats=_formats(args), encoding=args.encoding, delimiter=_delimiter(args),
                             replace=args.replace, manifest_path=args.manifest, picks=args.pick,
-                            parquet_dir=args.parquet)
+                            parquet_dir=args.parquet, plan_path=args.plan)
     if not args.quiet:
         print(summary(result))
     return 0 if result["integrity"]["reconciled"] else 1
+
+
+def cmd_plan(args) -> int:
+    from .infer import Options
+    from .pipeline import make_plan
+
+    options = Options(natural_keys=_pairs(args.key, "--key"), duplicates=args.duplicates,
+                      violation_threshold=args.threshold, identities=_pairs(args.identity, "--identity"),
+                      merge=[m.split(",") for m in args.merge], no_merge=args.no_merge)
+    text = make_plan(args.files, args.output, options=options, limits=_limits(args), formats=_formats(args),
+                     encoding=args.encoding, delimiter=_delimiter(args), picks=args.pick, plan_path=args.plan)
+    if not args.output:
+        print(text)
+    else:
+        print(f"wrote {args.output}; replay it with: normalise build {' '.join(args.files)} "
+              f"--plan {args.output} --db PATH")
+    return 0
+
+
+def _inference_options(p) -> None:
+    p.add_argument("--key", action="append", default=[], metavar="FILE=COLUMN",
+                   help="natural key of a file's records (FILE is the file name without extension)")
+    p.add_argument("--duplicates", choices=("first", "last", "refuse"), default="first",
+                   help="which record keeps a repeated natural key (others are set aside)")
+    p.add_argument("--threshold", type=float, default=0.05,
+                   help="tolerated share of functional-dependency violations (default 0.05)")
+    p.add_argument("--identity", action="append", default=[], metavar="COLUMN=FIELD",
+                   help="identity field of a nested column's objects (empty: none, objects become child rows)")
+    p.add_argument("--merge", action="append", default=[], metavar="FILE:COL,FILE:COL",
+                   help="force nested columns into one entity table")
+    p.add_argument("--no-merge", action="append", default=[], metavar="FILE:COL",
+                   help="keep a nested column's entities in a table of their own")
+    p.add_argument("--pick", action="append", default=[], metavar="NAME=COLUMN:ATTRIBUTE=VALUE",
+                   help="a record-summary column: the first entity of COLUMN whose link ATTRIBUTE is VALUE")
+    p.add_argument("--plan", metavar="PLAN.toml",
+                   help="use this plan (written by `normalise plan`, edits included) instead of inferring one")
 
 
 def build_parser() -> argparse.ArgumentParser:
@@ -125,18 +161,7 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--db", required=True, metavar="PATH", help="the SQLite database to write")
     p.add_argument("--manifest", metavar="PATH", help="also write the manifest (JSON) here")
     p.add_argument("--replace", action="store_true", help="overwrite an existing database")
-    p.add_argument("--key", action="append", default=[], metavar="FILE=COLUMN",
-                   help="natural key of a file's records (FILE is the file name without extension)")
-    p.add_argument("--duplicates", choices=("first", "last", "refuse"), default="first",
-                   help="which record keeps a repeated natural key (others are set aside)")
-    p.add_argument("--threshold", type=float, default=0.05,
-                   help="tolerated share of functional-dependency violations (default 0.05)")
-    p.add_argument("--identity", action="append", default=[], metavar="COLUMN=FIELD",
-                   help="identity field of a nested column's objects (empty: none, objects become child rows)")
-    p.add_argument("--merge", action="append", default=[], metavar="FILE:COL,FILE:COL",
-                   help="force nested columns into one entity table")
-    p.add_argument("--no-merge", action="append", default=[], metavar="FILE:COL",
-                   help="keep a nested column's entities in a table of their own")
+    _inference_options(p)
     p.add_argument("--join", action="append", default=[], metavar="FILE.COLUMN[=MAINCOLUMN]",
                    help="the column of a further file that holds the main file's keys (default: detected)")
     p.add_argument("--how", choices=("left", "inner", "full"), default="left",
@@ -145,11 +170,15 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--cardinality", choices=("one-to-one", "one-to-many"), default="one-to-one",
                    help="declared relation of joined rows to main records")
     p.add_argument("--separate", action="store_true", help="join nothing: every file its own record table")
-    p.add_argument("--pick", action="append", default=[], metavar="NAME=COLUMN:ATTRIBUTE=VALUE",
-                   help="a record-summary column: the first entity of COLUMN whose link ATTRIBUTE is VALUE")
     p.add_argument("--parquet", metavar="DIR", help="also write every table and view as a Parquet file")
     p.add_argument("--quiet", action="store_true", help="print nothing but errors")
     p.set_defaults(func=cmd_build)
+
+    p = sub.add_parser("plan", help="write the inferred model as an editable TOML plan")
+    _common(p)
+    _inference_options(p)
+    p.add_argument("-o", "--output", metavar="PLAN.toml", help="write the plan here (default: print it)")
+    p.set_defaults(func=cmd_plan)
     return parser
 
 

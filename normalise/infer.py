@@ -409,7 +409,10 @@ def infer_plan(exports: list, decoded: dict, options: Options | None = None) -> 
                 nested.children = _child_lists(export.name, name, objects, lists)
             else:
                 objects, owners = objects_of(col.values)
-                wanted = options.identities.get(f"{export.name}:{name}", options.identities.get(name))
+                # FILE:COLUMN names the file the column comes from (a joined file's own name), as
+                # entity members and --no-merge do; the main file's name and the bare column also work
+                wanted = options.identities.get(f"{nested.file}:{name}", options.identities.get(
+                    f"{export.name}:{name}", options.identities.get(name)))
                 if wanted is None:
                     candidates = identity_candidates(objects, owners, options.violation_threshold)
                     wanted = candidates[0].field if candidates else ""

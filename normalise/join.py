@@ -51,6 +51,7 @@ class Joined:
     set_aside: list[tuple] = field(default_factory=list)  # rows of set_aside_rows
     unmatched: list[tuple] = field(default_factory=list)  # rows of unmatched_rows
     inputs: list[dict] = field(default_factory=list)  # counts of the joined files
+    settings: "JoinOptions | None" = None
 
 
 @dataclass

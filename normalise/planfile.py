@@ -1,0 +1,332 @@
+"""Plans as files: write the inferred model as commented TOML, read it back, check it against the data.
+
+The file holds the decisions, not the data: record tables and their keys,
+scalar columns and types, what each nested column becomes, entity tables
+with their identity and attributes (the rest are link attributes on the
+bridges), joins and views. Tables are derived from those decisions, so
+renaming a table is one edit, and replaying an unedited plan gives the same
+database as the inference did.
+
+An entity is referred to by its ``handle``: a nested column with
+``entity = "person"`` shares the entity whose handle is ``person``. Giving a
+nested column a handle no ``[[entity]]`` defines keeps its entities apart (a
+forbidden merge): its entity table is then inferred for it alone.
+"""
+
+from __future__ import annotations
+
+import json
+import re
+import tomllib
+from pathlib import Path
+
+from .errors import NormaliseError
+from .plan import EntityGroup, FieldMap, NestedColumn, Plan, RecordSource
+from .views import Pick, View
+
+PLAN_VERSION = 1
+KINDS = ("entity-list", "child-list", "value-list", "object-columns", "object-child")
+TYPES = ("integer", "real", "text", "boolean", "date", "timestamp")
+
+
+class InvalidPlan(NormaliseError):
+    """A plan file that cannot be read or does not fit the data."""
+
+
+# --- writing ---------------------------------------------------------------------
+
+def _v(value) -> str:
+    if isinstance(value, bool):
+        return "true" if value else "false"
+    if isinstance(value, (int, float)):
+        return repr(value)
+    if isinstance(value, str):
+        return json.dumps(value, ensure_ascii=False)
+    if isinstance(value, list):
+        return "[" + ", ".join(_v(v) for v in value) + "]"
+    if isinstance(value, dict):
+        return "{ " + ", ".join(f"{_k(k)} = {_v(v)}" for k, v in value.items()) + " }"
+    raise TypeError(value)
+
+
+def _k(key: str) -> str:
+    return key if re.fullmatch(r"[A-Za-z0-9_-]+", key) else json.dumps(key, ensure_ascii=False)
+
+
+def _fields(maps: list[FieldMap]) -> list[dict]:
+    return [{"key": f.path, "name": f.column, "type": f.type} for f in maps]
+
+
+def plan_to_toml(plan: Plan, joins: dict | None = None) -> str:
+    """The plan as readable, commented TOML."""
+    out = ["# normalise plan: the relational model of these exports, as decisions.",
+           "# Edit and replay with: normalise build FILE... --plan THIS_FILE --db PATH",
+           "# Types: integer, real, text, boolean, date, timestamp.", "",
+           f"version = {PLAN_VERSION}",
+           "# share of functional-dependency violations tolerated when deciding entity attributes",
+           f"violation_threshold = {_v(plan.violation_threshold)}", ""]
+    joins = joins or {}
+    out += ["# Further files attach to the first one by key: how = left | inner | full",
+            "[join]", f"how = {_v(joins.get('how', 'left'))}",
+            f"cardinality = {_v(joins.get('cardinality', 'one-to-one'))}",
+            f"separate = {_v(bool(joins.get('separate', False)))}"]
+    for file, (column, _) in sorted(joins.get("on", {}).items()):
+        out.append(f"on.{_k(file)} = {_v(column)}  # the column of {file} holding the main file's keys")
+    out.append("")
+    for record in plan.records:
+        out += ["# One record table per input file (joined files add their columns to it).",
+                "[[record]]", f"file = {_v(record.file)}", f"table = {_v(record.table)}",
+                f"key = {_v(record.key_column)}  # surrogate key: the line the row starts on",
+                f"natural_key = {_v(record.natural_key[0] if record.natural_key else '')}",
+                f"duplicates = {_v(record.duplicates)}  # first | last | refuse",
+                "columns = ["]
+        out += [f"  {_v(f)}," for f in _fields(record.scalars)]
+        out.append("]")
+        for nested in record.nested:
+            out += _nested_toml(nested, "record.nested")
+        out.append("")
+    for group in plan.entities:
+        out += ["# An entity table: one row per distinct identity; the attributes are functionally",
+                "# determined by the identity. Other fields of the objects are link attributes.",
+                "[[entity]]", f"handle = {_v(group.table)}", f"table = {_v(group.table)}",
+                f"identity = {_v(group.identity)}", f"identity_column = {_v(group.identity_column)}",
+                f"identity_type = {_v(group.identity_type)}",
+                f"members = {_v(group.members)}  # nested columns whose objects are these entities",
+                "attributes = ["]
+        out += [f"  {_v(f)}," for f in _fields(group.attributes)]
+        out += ["]", ""]
+    for view in plan.views:
+        out += ["[[view]]", f"name = {_v(view.name)}",
+                f"kind = {_v(view.kind)}  # record_summary | entity_summary", f"table = {_v(view.table)}",
+                f"lists = {_v(view.lists)}"]
+        if view.date_column:
+            out.append(f"date_column = {_v(view.date_column)}")
+        out.append(f"separator = {_v(view.separator)}")
+        for pick in view.picks:
+            out += ["[[view.pick]]  # the first entity of a list whose link attribute equals a value",
+                    f"name = {_v(pick.name)}", f"list = {_v(pick.bridge)}", f"attribute = {_v(pick.attribute)}",
+                    f"value = {_v(pick.value)}"]
+        out.append("")
+    return "\n".join(out)
+
+
+def _nested_toml(nested: NestedColumn, header: str) -> list[str]:
+    out = [f"[[{header}]]", f"column = {_v(nested.column)}"]
+    if nested.path:
+        out.append(f"path = {_v(nested.path)}")
+    out += [f"file = {_v(nested.file)}",
+            f"kind = {_v(nested.kind)}  # entity-list | child-list | value-list | object-columns | object-child"]
+    if nested.table:
+        out.append(f"table = {_v(nested.table)}")
+    if nested.kind == "entity-list":
+        out += [f"entity = {_v(nested.entity)}  # handle of an [[entity]]", f"identity = {_v(nested.identity)}"]
+    if nested.kind == "value-list":
+        out.append(f"values_table = {_v(nested.entity)}")
+    label = {"entity-list": "link attributes (kept on the bridge)", "child-list": "fields",
+             "object-columns": "record columns", "object-child": "fields"}.get(nested.kind)
+    if label:
+        out.append(f"fields = [  # {label}")
+        out += [f"  {_v(f)}," for f in _fields(nested.links)]
+        out.append("]")
+    for child in nested.children:
+        out += _nested_toml(child, header + ".children")
+    return out
+
+
+# --- reading -----------------------------------------------------------------------
+
+def _line_of(text: str, *needles: str, after: str | None = None) -> int | None:
+    lines = text.splitlines()
+    start = 0
+    if after:
+        start = next((n for n, line in enumerate(lines) if after in line), 0)
+    for needle in needles:
+        for n, line in enumerate(lines[start:], start=start + 1):
+            if needle in line:
+                return n
+    return None
+
+
+def _fail(text: str, message: str, hint: str, *needles: str, after: str | None = None):
+    line = _line_of(text, *needles, after=after) if needles else None
+    where = f"line {line}: " if line else ""
+    raise InvalidPlan(f"plan {where}{message}\n  hint: {hint}")
+
+
+def _maps(text: str, items, where: str) -> list[FieldMap]:
+    out = []
+    for f in items or []:
+        if not isinstance(f, dict) or not {"key", "name", "type"} <= set(f):
+            _fail(text, f"{where}: each field needs key, name and type", 'write { key = ["name"], name = "name", type = "text" }',
+                  where.split(".")[-1])
+        if f["type"] not in TYPES:
+            _fail(text, f"{where}: unknown type {f['type']!r}", f"use one of {', '.join(TYPES)}", f'"{f["type"]}"')
+        key = f["key"] if isinstance(f["key"], list) else [f["key"]]
+        out.append(FieldMap([str(k) for k in key], f["name"], f["type"]))
+    return out
+
+
+def read_plan(path: str) -> tuple[dict, str]:
+    """The raw plan document and its text; TOML syntax errors name their line."""
+    text = Path(path).read_text(encoding="utf-8")
+    try:
+        doc = tomllib.loads(text)
+    except tomllib.TOMLDecodeError as exc:
+        raise InvalidPlan(f"plan {path}: {exc}\n  hint: the plan is TOML; check quotes, brackets and "
+                          "commas on that line") from None
+    if doc.get("version") != PLAN_VERSION:
+        _fail(text, f"version {doc.get('version')!r} is not {PLAN_VERSION}", f"set version = {PLAN_VERSION}",
+              "version")
+    return doc, text
+
+
+def join_settings(doc: dict) -> dict:
+    j = doc.get("join", {})
+    return {"how": j.get("how", "left"), "cardinality": j.get("cardinality", "one-to-one"),
+            "separate": bool(j.get("separate", False)), "on": {k: (v, None) for k, v in j.get("on", {}).items()}}
+
+
+def plan_from_doc(doc: dict, text: str, exports: list, decoded: dict) -> Plan:
+    """Rebuild the plan from its file and check that it still fits the decoded data."""
+    from .infer import entity_attributes, objects_of, scalar_fields, _type_at
+    from .schema import add_tables
+
+    plan = Plan(violation_threshold=float(doc.get("violation_threshold", 0.05)))
+    by_name = {e.name: e for e in exports}
+    handles = {}
+    for e in doc.get("entity", []):
+        missing = {"handle", "table", "identity", "identity_column", "identity_type"} - set(e)
+        if missing:
+            _fail(text, f"[[entity]] {e.get('handle', '?')} lacks {', '.join(sorted(missing))}",
+                  "every [[entity]] needs handle, table, identity, identity_column and identity_type", "[[entity]]")
+        group = EntityGroup(table=e["table"], key_column=f"{e['table']}_sk", identity=e["identity"],
+                            identity_column=e["identity_column"], identity_type=e["identity_type"],
+                            attributes=_maps(text, e.get("attributes"), f"entity {e['handle']}.attributes"))
+        handles[e["handle"]] = group
+    for r in doc.get("record", []):
+        file = r.get("file")
+        if file not in by_name:
+            _fail(text, f"[[record]] file {file!r} is not among the inputs ({', '.join(by_name)})",
+                  "give that file on the command line, or remove its [[record]] block", f'"{file}"')
+        export = by_name[file]
+        columns = decoded[export.path]
+        record = RecordSource(file=file, path=export.path, table=r["table"], key_column=r["key"],
+                              natural_key=[r["natural_key"]] if r.get("natural_key") else [],
+                              duplicates=r.get("duplicates", "first"),
+                              scalars=_maps(text, r.get("columns"), f"record {file}.columns"))
+        planned = {f.path[0] for f in record.scalars}
+        for nested in r.get("nested", []):
+            record.nested.append(_nested_from(text, nested, columns, handles, plan))
+            planned.add(nested["column"])
+        for f in record.scalars:
+            if f.path[0] not in columns:
+                _fail(text, f"column {f.path[0]!r} of {file} is gone from the data",
+                      "remove it from the plan's columns, or check the input file", f'"{f.path[0]}"')
+        new = [c for c in columns if c not in planned]
+        if new:
+            _fail(text, f"{file} has column(s) the plan does not know: {', '.join(new)}",
+                  "write a fresh plan with `normalise plan`, or add them to the record's columns",
+                  f'file = "{file}"')
+        plan.records.append(record)
+    # entity lists whose handle no [[entity]] defines get an entity table of their own
+    for record in plan.records:
+        for nested in record.nested:
+            if nested.kind != "entity-list" or nested.entity in handles:
+                continue
+            objects, _ = objects_of(decoded[record.path][nested.column].values)
+            fields, _ = scalar_fields(objects)
+            top = [p[0] for p in fields if len(p) == 1]
+            attrs = entity_attributes(objects, nested.identity, top, plan.violation_threshold)
+            handles[nested.entity] = EntityGroup(
+                table=nested.entity, key_column=f"{nested.entity}_sk", identity=nested.identity,
+                identity_column=nested.identity, identity_type="integer" if all(
+                    isinstance(o.get(nested.identity), int) for o in objects if o.get(nested.identity) is not None)
+                else "text", attributes=[FieldMap([a], a, _type_at(objects, [a])) for a in attrs])
+            nested.links = [f for f in nested.links if f.path[0] not in attrs]
+    for handle, group in handles.items():
+        for record in plan.records:
+            for nested in record.nested:
+                if nested.kind == "entity-list" and nested.entity == handle:
+                    nested.entity = group.table
+                    if nested.identity != group.identity:
+                        _fail(text, f"nested column {nested.column!r} has identity {nested.identity!r} but entity "
+                                    f"{handle!r} is identified by {group.identity!r}",
+                              "use the same identity, or give the column an entity handle of its own",
+                              f'identity = "{nested.identity}"')
+                    group.members.append(f"{nested.file}:{nested.column}")
+                    _check_keys(text, decoded[record.path][nested.column].values, nested, group)
+        if group.members:
+            plan.entities.append(group)
+    add_tables(plan)
+    names = {t.name for t in plan.tables}
+    for v in doc.get("view", []):
+        lists = v.get("lists", [])
+        for name in [v.get("table")] + lists:
+            if name not in names:
+                _fail(text, f"view {v.get('name')!r} names table {name!r}, which the plan does not make",
+                      f"use one of: {', '.join(sorted(names))}", f'"{name}"', after=f'name = "{v.get("name")}"')
+        view = View(v["name"], v["kind"], v["table"], lists, date_column=v.get("date_column"),
+                    separator=v.get("separator", "; "))
+        for p in v.get("pick", []):
+            view.picks.append(Pick(p["name"], p["list"], p["attribute"], str(p["value"])))
+        _check_view(text, plan, view)
+        plan.views.append(view)
+    return plan
+
+
+def _check_view(text: str, plan: Plan, view: View) -> None:
+    if view.kind not in ("record_summary", "entity_summary"):
+        _fail(text, f"view {view.name!r}: unknown kind {view.kind!r}", "use record_summary or entity_summary",
+              f'"{view.kind}"')
+    end = 0 if view.kind == "record_summary" else 1
+    for name in view.lists:
+        table = plan.table(name)
+        if table.role != "bridge" or table.foreign_keys[end].references != view.table:
+            what = "is owned by" if end == 0 else "links to"
+            _fail(text, f"view {view.name!r} lists {name!r}, which is not a bridge that {what} {view.table!r}",
+                  f"remove {name!r} from the view's lists", f'"{name}"', after=f'name = "{view.name}"')
+    for pick in view.picks:
+        if pick.bridge not in view.lists:
+            _fail(text, f"pick {pick.name!r} uses list {pick.bridge!r}, which view {view.name!r} does not show",
+                  "add the list to the view's lists", f'"{pick.name}"', after=f'name = "{view.name}"')
+        if pick.attribute not in [c.name for c in plan.table(pick.bridge).columns]:
+            _fail(text, f"pick {pick.name!r}: {pick.attribute!r} is not a column of {pick.bridge!r}",
+                  "name a link attribute of that bridge", f'"{pick.attribute}"', after=f'name = "{view.name}"')
+    if view.date_column and view.kind == "entity_summary" and view.lists:
+        owner = plan.table(plan.table(view.lists[0]).foreign_keys[0].references)
+        if view.date_column not in [c.name for c in owner.columns]:
+            _fail(text, f"view {view.name!r}: {owner.name!r} has no column {view.date_column!r}",
+                  "name a date column of the records, or remove date_column", f'"{view.date_column}"')
+
+
+def _nested_from(text: str, n: dict, columns: dict, handles: dict, plan: Plan) -> NestedColumn:
+    column = n.get("column")
+    if "path" not in n and column not in columns:
+        _fail(text, f"nested column {column!r} is gone from the data", "remove its [[record.nested]] block",
+              f'column = "{column}"')
+    kind = n.get("kind")
+    if kind not in KINDS:
+        _fail(text, f"nested column {column!r}: unknown kind {kind!r}", f"use one of {', '.join(KINDS)}",
+              f'kind = "{kind}"')
+    nested = NestedColumn(file=n.get("file", ""), column=column, kind=kind, table=n.get("table"),
+                          entity=n.get("entity") or n.get("values_table"), path=n.get("path", ""),
+                          identity=n.get("identity", ""),
+                          links=_maps(text, n.get("fields"), f"{column}.fields"))
+    nested.children = [_nested_from(text, c, columns, handles, plan) for c in n.get("children", [])]
+    return nested
+
+
+def _check_keys(text: str, values: list, nested: NestedColumn, group: EntityGroup) -> None:
+    """Every key of the column's objects must be planned (identity, attribute, link or nested list)."""
+    known = {nested.identity} | {f.path[0] for f in group.attributes} | {f.path[0] for f in nested.links}
+    known |= {c.path.split(".")[0] for c in nested.children}
+    found = set()
+    for v in values:
+        for o in (v if isinstance(v, (list, tuple)) else [v]):
+            if isinstance(o, dict):
+                found.update(str(k) for k in o)
+    new = sorted(found - known)
+    if new:
+        _fail(text, f"nested column {nested.column!r} has key(s) the plan does not know: {', '.join(new)}",
+              f"add them to the fields of {nested.column!r} (link attributes) or to the attributes of entity "
+              f"{group.table!r}, or write a fresh plan", f'column = "{nested.column}"')
