@@ -146,27 +146,46 @@ def python_literals_as_json(texts: list[str]) -> list[str | None]:
     return out
 
 
+try:  # the C accelerator, built when a compiler was there at install time
+    from ._pyliteral import many_py_to_json as _many_py_to_json
+except ImportError:  # pragma: no cover - depends on the installation
+    _many_py_to_json = None
+
+ACCELERATED = _many_py_to_json is not None
+
+
+def rewrite_as_json(texts: list[str]) -> list[str | None]:
+    """JSON text per Python-literal cell where the grammars agree, else None (C when built, else bulk Python)."""
+    if _many_py_to_json is not None:
+        return _many_py_to_json(texts)
+    return python_literals_as_json(texts)
+
+
 def _decode_python_column(texts: list[str], limits: Limits) -> list:
     """Decode Python-literal cells; a CellError instance marks a failed cell."""
     values = []
-    as_json = python_literals_as_json(texts)
+    append = values.append
+    as_json = rewrite_as_json(texts)
+    # The rewritten text holds no letters but null/true/false, so json.loads needs
+    # no NaN guard here, and its shared default decoder is the fastest call.
     loads = json.loads
+    max_chars, max_depth = limits.max_cell_chars, limits.max_depth
     for text, js in zip(texts, as_json):
-        value = _UNSET
         if js is not None:
             try:
-                check_limits(text, limits)
-                value = loads(js, parse_constant=_no_constant)
+                if len(text) > max_chars or text.count("[") + text.count("{") > max_depth:
+                    check_limits(text, limits)
+                append(loads(js))
+                continue
             except CellError as exc:
-                value = exc
+                append(exc)
+                continue
             except (ValueError, RecursionError):
-                value = _UNSET
-        if value is _UNSET:
-            try:
-                value = decode_python_literal(text, limits)
-            except CellError as exc:
-                value = exc
-        values.append(value)
+                pass
+        try:
+            append(decode_python_literal(text, limits))
+        except CellError as exc:
+            append(exc)
     return values
 
 
@@ -174,20 +193,31 @@ def _no_constant(name):
     raise ValueError(name)
 
 
+# json.loads builds a new decoder whenever it is given options; one shared decoder
+# that refuses NaN and Infinity (RFC 8259, section 6) avoids that per cell.
+_STRICT_JSON = json.JSONDecoder(parse_constant=_no_constant)
+_SURROGATE = re.compile("[\ud800-\udfff]")
+
+
 def _decode_json_column(texts: list[str], limits: Limits) -> list:
+    """Decode JSON cells with one shared decoder; failures get the exact path's message."""
     values = []
-    loads = json.loads
+    append = values.append
+    decode_one = _STRICT_JSON.decode
+    max_chars, max_depth = limits.max_cell_chars, limits.max_depth
     for text in texts:
         try:
-            check_limits(text, limits)
-            values.append(loads(text, parse_constant=_no_constant))
+            if (len(text) > max_chars or text.count("[") + text.count("{") > max_depth
+                    or (not text.isascii() and _SURROGATE.search(text))):
+                check_limits(text, limits)
+            append(decode_one(text))
         except CellError as exc:
-            values.append(exc)
+            append(exc)
         except (ValueError, RecursionError):
             try:
-                values.append(decode_json(text, limits))
+                append(decode_json(text, limits))
             except CellError as exc:
-                values.append(exc)
+                append(exc)
     return values
 
 
