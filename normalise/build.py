@@ -127,81 +127,133 @@ class _Entities:
         return entry[0]
 
 
-def build(plan: Plan, exports: list, decoded: dict, extra: dict | None = None) -> Built:
-    """Rows for every table of the plan, and the counts that reconcile them.
+META_TABLES = ("rejected_rows", "set_aside_rows", "unmatched_rows", "quarantined_cells", "attribute_variants")
 
-    ``extra`` holds rows made by earlier passes (the join's set-aside and unmatched rows).
+
+class Builder:
+    """Builds rows chunk by chunk; entity and value tables and the meta tables come at the end.
+
+    ``add`` takes one chunk of one export (any number of rows); ``take_rows``
+    hands over the record, bridge and child rows made so far, so a caller can
+    write them and let them go; ``finish`` makes the entity, value and meta
+    rows and the counts. One chunk or many give the same rows: keys need no
+    counter, duplicates are judged against every key seen before, and entity
+    attributes are chosen from counts over all chunks.
     """
-    rows: dict[str, list[tuple]] = {t.name: [] for t in plan.tables}
-    for table, more in (extra or {}).items():
-        rows[table].extend(more)
-    entities = {g.table: _Entities(g) for g in plan.entities}
-    values: dict[str, dict] = {}  # value table -> {canonical: (sk, value)}
-    counts = []
-    quarantined_by_file: Counter = Counter()
-    by_path = {e.path: e for e in exports}
-    for record in plan.records:
-        export = by_path[record.path]
-        columns = decoded[export.path]
+
+    def __init__(self, plan: Plan, extra: dict | None = None):
+        self.plan = plan
+        self.meta: dict[str, list[tuple]] = {name: list((extra or {}).get(name, [])) for name in META_TABLES}
+        self.rows: dict[str, list[tuple]] = {t.name: [] for t in plan.tables if t.name not in self.meta}
+        self.entities = {g.table: _Entities(g) for g in plan.entities}
+        self.values: dict[str, dict] = {}  # value table -> {canonical: (sk, value)}
+        self.counts: dict[str, FileCounts] = {}
+        self.quarantined_by_file: Counter = Counter()
+        self.first_seen: dict[str, dict] = {}  # record table -> {natural key: line kept}
+
+    def add(self, export, columns: dict) -> None:
+        """Rows of one chunk of one export (``columns`` is its decoded columns)."""
+        for record in self.plan.records:
+            if record.path == export.path:
+                self._add_record(record, export, columns)
+
+    def _add_record(self, record: RecordSource, export, columns: dict) -> None:
+        rows, meta = self.rows, self.meta
         main_rows = getattr(export, "main_rows", export.number_of_records)
-        c = FileCounts(record.file, export.path, rows_read=getattr(export, "main_rows_read", export.rows_read),
-                       rows_rejected=len(export.rejected))
+        c = self.counts.get(export.path)
+        if c is None:
+            c = self.counts[export.path] = FileCounts(record.file, export.path)
+        c.rows_read += getattr(export, "main_rows_read", export.rows_read)
+        c.rows_rejected += len(export.rejected)
         for r in export.rejected:
-            rows["rejected_rows"].append((r.file, r.line, r.reason, r.raw))
+            meta["rejected_rows"].append((r.file, r.line, r.reason, r.raw))
         for col in columns.values():
             for q in col.quarantined:
-                rows["quarantined_cells"].append((q.file, q.line, q.column, q.position, q.excerpt, q.message))
+                meta["quarantined_cells"].append((q.file, q.line, q.column, q.position, q.excerpt, q.message))
                 c.cells_quarantined += q.file == export.path
-                quarantined_by_file[q.file] += 1
-        kept = _keep(record, export, columns, rows["set_aside_rows"])
-        c.records_loaded = sum(i < main_rows for i in kept)
-        c.rows_set_aside = main_rows - c.records_loaded
+                self.quarantined_by_file[q.file] += 1
+        first = self.first_seen.setdefault(record.table, {})
+        kept = _keep(record, export, columns, meta["set_aside_rows"], first)
+        loaded = sum(i < main_rows for i in kept)
+        c.records_loaded += loaded
+        c.rows_set_aside += main_rows - loaded
         scalar_cols = [(columns[f.path[0]].values, f.type) for f in record.scalars]
         record_keys = getattr(export, "record_keys", None) or export.lines
+        out = rows[record.table]
+        object_columns = [n for n in record.nested if n.kind == "object-columns"]
         for i in kept:
             sk = record_keys[i]
             row = [sk] + [to_sql_value(vals[i], t) for vals, t in scalar_cols]
-            for nested in record.nested:
-                if nested.kind == "object-columns":
-                    obj = columns[nested.column].values[i]
-                    obj = obj if isinstance(obj, dict) else {}
-                    row += [to_sql_value(get_path(obj, f.path), f.type) for f in nested.links]
-            rows[record.table].append(tuple(row))
+            for nested in object_columns:
+                obj = columns[nested.column].values[i]
+                obj = obj if isinstance(obj, dict) else {}
+                row += [to_sql_value(get_path(obj, f.path), f.type) for f in nested.links]
+            out.append(tuple(row))
             for nested in record.nested:
                 value = columns[nested.column].values[i]
                 if value is None:
                     continue
-                _nested_rows(plan, nested, value, sk, export, i, rows, entities, values, c)
-        counts.append(c)
-    conflicts = 0
-    for table, acc in entities.items():
-        out = rows[table]
-        for text in sorted(acc.seen):
-            sk, natural = acc.seen[text]
-            chosen = []
-            for f in acc.group.attributes:
-                counter = acc.values[text][f.column]
-                if not counter:
-                    chosen.append(None)
-                    continue
-                best = counter.most_common(1)[0][0]  # ties go to the first seen: most_common is stable
-                chosen.append(to_sql_value(best, f.type))
-                if len(counter) > 1:
-                    conflicts += 1
-                    for v, n in counter.items():
-                        rows["attribute_variants"].append(
-                            (table, sk, str(natural), f.column, None if v is None else str(to_sql_value(v, "text")),
-                             n, v == best))
-            out.append((sk, natural, *chosen))
-    for table, found in values.items():
-        rows[table] = [found[k] for k in sorted(found)]
-    for meta in ("rejected_rows", "set_aside_rows", "unmatched_rows", "quarantined_cells", "attribute_variants"):
-        rows[meta] = [(n, *r) for n, r in enumerate(rows[meta], start=1)]
-    return Built(rows, counts, conflicts, cells_quarantined_by_file=dict(quarantined_by_file))
+                _nested_rows(self.plan, nested, value, sk, export, i, rows, self.entities, self.values, c,
+                             meta["quarantined_cells"])
+
+    def take_rows(self) -> dict[str, list[tuple]]:
+        """The record, bridge and child rows made since the last call."""
+        taken = self.rows
+        self.rows = {name: [] for name in taken}
+        return taken
+
+    def finish(self) -> Built:
+        """Entity, value and meta rows, and the counts; call once, after the last chunk."""
+        rows = self.take_rows()
+        conflicts = 0
+        for table, acc in self.entities.items():
+            out = rows[table]
+            for text in sorted(acc.seen):
+                sk, natural = acc.seen[text]
+                chosen = []
+                for f in acc.group.attributes:
+                    counter = acc.values[text][f.column]
+                    if not counter:
+                        chosen.append(None)
+                        continue
+                    best = counter.most_common(1)[0][0]  # ties go to the first seen: most_common is stable
+                    chosen.append(to_sql_value(best, f.type))
+                    if len(counter) > 1:
+                        conflicts += 1
+                        for v, n in counter.items():
+                            self.meta["attribute_variants"].append(
+                                (table, sk, str(natural), f.column,
+                                 None if v is None else str(to_sql_value(v, "text")), n, v == best))
+                out.append((sk, natural, *chosen))
+        for table, found in self.values.items():
+            rows[table] = [found[k] for k in sorted(found)]
+        for name in META_TABLES:
+            rows[name] = [(n, *r) for n, r in enumerate(self.meta[name], start=1)]
+        counts = [self.counts[r.path] if r.path in self.counts else FileCounts(r.file, r.path)
+                  for r in self.plan.records]
+        return Built(rows, counts, conflicts, cells_quarantined_by_file=dict(self.quarantined_by_file))
 
 
-def _keep(record: RecordSource, export, columns, set_aside: list) -> list[int]:
-    """Indices of the records to load; duplicates of the natural key are set aside."""
+def build(plan: Plan, exports: list, decoded: dict, extra: dict | None = None) -> Built:
+    """Rows for every table of the plan, and the counts that reconcile them, all in memory.
+
+    ``extra`` holds rows made by earlier passes (the join's set-aside and unmatched rows).
+    """
+    builder = Builder(plan, extra)
+    for export in exports:
+        builder.add(export, decoded[export.path])
+    made = builder.take_rows()
+    built = builder.finish()
+    for name, rows in made.items():
+        built.rows[name] = rows + built.rows.get(name, [])
+    return built
+
+
+def _keep(record: RecordSource, export, columns, set_aside: list, first: dict | None = None) -> list[int]:
+    """Indices of the records to load; duplicates of the natural key are set aside.
+
+    ``first`` maps each natural key already kept (in earlier chunks too) to its line.
+    """
     n = export.number_of_records
     inner_unmatched = getattr(export, "inner_unmatched", {})
     if not record.natural_key and not inner_unmatched:
@@ -211,7 +263,7 @@ def _keep(record: RecordSource, export, columns, set_aside: list) -> list[int]:
         keys = columns[source].values
     else:
         keys = list(range(n))
-    first: dict = {}
+    first = {} if first is None else first
     order = range(n) if record.duplicates != "last" else range(n - 1, -1, -1)
     kept, dropped = [], []
     for i in order:
@@ -223,28 +275,26 @@ def _keep(record: RecordSource, export, columns, set_aside: list) -> list[int]:
         elif k in first:
             dropped.append((i, first[k], f"duplicate natural key {k!r}"))
         else:
-            first[k] = i
+            first[k] = export.lines[i]
             kept.append(i)
     repeated = [d for d in dropped if d[1] is not None]
     if repeated and record.duplicates == "refuse":
-        dropped = repeated
-        lines = ", ".join(f"line {export.lines[i]}" for i, _, _ in dropped[:5])
-        raise DuplicateNaturalKey(f"{export.path}: {len(dropped)} record(s) repeat a natural key "
+        lines = ", ".join(f"line {export.lines[i]}" for i, _, _ in repeated[:5])
+        raise DuplicateNaturalKey(f"{export.path}: {len(repeated)} record(s) repeat a natural key "
                                   f"({record.natural_key[0]}): {lines}; use --duplicates first or last "
                                   f"to keep one and set the others aside")
-    for i, other, reason in sorted(dropped):
+    for i, kept_line, reason in sorted(dropped):
         cells = {c: (export.cells[c][i] if isinstance(export.cells[c][i], str) or export.cells[c][i] is None
                      else json.dumps(export.cells[c][i], ensure_ascii=False)) for c in export.columns}
         set_aside_key = keys[i]
         set_aside.append((export.path, export.lines[i], None if set_aside_key is None else str(set_aside_key),
-                          reason + ("" if other is None else f"; kept line {export.lines[other]}"),
-                          None if other is None else export.lines[other],
-                          json.dumps(cells, ensure_ascii=False)))
+                          reason + ("" if kept_line is None else f"; kept line {kept_line}"),
+                          kept_line, json.dumps(cells, ensure_ascii=False)))
     return sorted(kept)
 
 
 def _nested_rows(plan, nested: NestedColumn, value, owner_sk: int, export, i: int, rows, entities,
-                 values, c: FileCounts) -> None:
+                 values, c: FileCounts, quarantine: list) -> None:
     """Rows of one nested value (and of the lists inside it), owned by ``owner_sk``."""
     where = f"{nested.file}:{nested.column}" + (f".{nested.path}" if nested.path else "")
     if nested.kind == "object-columns":
@@ -254,12 +304,12 @@ def _nested_rows(plan, nested: NestedColumn, value, owner_sk: int, export, i: in
             for child in nested.children:
                 inner = get_path(value, child.path.split("."))
                 if inner:
-                    _nested_rows(plan, child, inner, owner_sk, export, i, rows, entities, values, c)
+                    _nested_rows(plan, child, inner, owner_sk, export, i, rows, entities, values, c, quarantine)
         return
     if nested.kind == "object-child":
         c.elements_decoded += 1
         if not isinstance(value, dict):
-            _quarantine_element(rows, export, i, nested, None, "expected an object", c)
+            _quarantine_element(quarantine, export, i, nested, None, "expected an object", c)
             return
         sk = key_of(f"{where}:{owner_sk}")
         rows[nested.table].append((sk, owner_sk, *[to_sql_value(get_path(value, f.path), f.type)
@@ -268,7 +318,7 @@ def _nested_rows(plan, nested: NestedColumn, value, owner_sk: int, export, i: in
         for child in nested.children:
             inner = get_path(value, child.path.split("."))
             if inner:
-                _nested_rows(plan, child, inner, sk, export, i, rows, entities, values, c)
+                _nested_rows(plan, child, inner, sk, export, i, rows, entities, values, c, quarantine)
         return
     items = value if isinstance(value, (list, tuple)) else [value]
     table = rows[nested.table]
@@ -277,7 +327,7 @@ def _nested_rows(plan, nested: NestedColumn, value, owner_sk: int, export, i: in
         sk = key_of(f"{where}:{owner_sk}:{position}")
         if nested.kind == "value-list":
             if item is None or isinstance(item, (dict, list, tuple)):
-                _quarantine_element(rows, export, i, nested, position,
+                _quarantine_element(quarantine, export, i, nested, position,
                                     "null element in a list" if item is None else "nested element in a list of values", c)
                 continue
             text = canonical(item, "text") if not isinstance(item, str) else "text:" + item
@@ -289,13 +339,13 @@ def _nested_rows(plan, nested: NestedColumn, value, owner_sk: int, export, i: in
             c.elements_written += 1
             continue
         if not isinstance(item, dict):
-            _quarantine_element(rows, export, i, nested, position, "expected an object in a list of objects", c)
+            _quarantine_element(quarantine, export, i, nested, position, "expected an object in a list of objects", c)
             continue
         links = [to_sql_value(get_path(item, f.path), f.type) for f in nested.links]
         if nested.kind == "entity-list":
             ident = item.get(nested.identity)
             if ident is None or isinstance(ident, (dict, list, tuple, bool)):
-                _quarantine_element(rows, export, i, nested, position,
+                _quarantine_element(quarantine, export, i, nested, position,
                                     f"object without a usable {nested.identity!r}", c)
                 continue
             entity_sk = entities[nested.entity].add(ident, item)
@@ -306,11 +356,11 @@ def _nested_rows(plan, nested: NestedColumn, value, owner_sk: int, export, i: in
         for child in nested.children:
             inner = get_path(item, child.path.split("."))
             if inner:
-                _nested_rows(plan, child, inner, sk, export, i, rows, entities, values, c)
+                _nested_rows(plan, child, inner, sk, export, i, rows, entities, values, c, quarantine)
 
 
-def _quarantine_element(rows, export, i, nested, position, message, c: FileCounts) -> None:
+def _quarantine_element(quarantine, export, i, nested, position, message, c: FileCounts) -> None:
     column = nested.column + (f".{nested.path}" if nested.path else "")
-    rows["quarantined_cells"].append((export.path, export.lines[i], column, position,
+    quarantine.append((export.path, export.lines[i], column, position,
                                       f"element {position}" if position else "", message))
     c.elements_quarantined += 1

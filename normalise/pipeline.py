@@ -6,17 +6,40 @@ import json
 import os
 from pathlib import Path
 
-from .build import build
+from .build import Builder, build
 from .check import check_plan, check_rows
 from .decode import decode
 from .infer import Options, infer_plan
 from .join import JoinOptions, join
 from .literal import Limits
 from .planfile import join_settings, plan_from_doc, plan_to_toml, read_plan
-from .read import read
+from .read import iter_chunks, read
 from .report import manifest
 from .views import add_pick
-from .write import write_parquet, write_sqlite
+from .write import SqliteWriter
+from .write import DEFAULT_SCHEMA, display_url, is_postgresql, write_parquet, write_postgresql, write_sqlite
+
+
+# The model is inferred from the first SAMPLE_ROWS records of each export, in
+# memory and in chunks alike, so the database never depends on the chunk size.
+SAMPLE_ROWS = 5000
+
+
+def head(exports: list, decoded: dict, n: int) -> tuple[list, dict]:
+    """The first ``n`` records of each export and of its decoded columns."""
+    from dataclasses import replace as copy_with
+
+    out_exports, out_decoded = [], {}
+    for export in exports:
+        if export.number_of_records <= n:
+            out_exports.append(export)
+            out_decoded[export.path] = decoded[export.path]
+            continue
+        out_exports.append(copy_with(export, cells={c: v[:n] for c, v in export.cells.items()},
+                                     lines=export.lines[:n]))
+        out_decoded[export.path] = {name: copy_with(col, values=col.values[:n])
+                                    for name, col in decoded[export.path].items()}
+    return out_exports, out_decoded
 
 
 def prepare(paths: list[str], *, options: Options | None = None, limits: Limits = Limits(),
@@ -40,7 +63,7 @@ def prepare(paths: list[str], *, options: Options | None = None, limits: Limits 
     if doc is not None:
         plan = plan_from_doc(doc, text, exports, decoded)
     else:
-        plan = infer_plan(exports, decoded, options)
+        plan = infer_plan(*head(exports, decoded, SAMPLE_ROWS), options)
     for spec in picks or ():
         add_pick(plan, spec)
     joined.settings = join_options or JoinOptions(duplicates=options.duplicates)
@@ -62,8 +85,12 @@ def build_database(paths: list[str], database: str, *, options: Options | None =
                    limits: Limits = Limits(), formats: dict | None = None, encoding: str | None = None,
                    delimiter: str | None = None, replace: bool = False, join_options: JoinOptions | None = None,
                    manifest_path: str | None = None, picks: list[str] | None = None,
-                   parquet_dir: str | None = None, plan_path: str | None = None) -> dict:
+                   parquet_dir: str | None = None, plan_path: str | None = None,
+                   schema: str | None = None, chunk_rows: int | None = None, progress=None) -> dict:
     """Run every pass on the exports and write a SQLite database; returns the manifest.
+
+    ``database`` may instead be a ``postgresql+psycopg://`` URL: the tables then go into
+    ``schema`` (default ``normalise``) of that database, in one transaction.
 
     Example:
         >>> import tempfile, os
@@ -73,6 +100,24 @@ def build_database(paths: list[str], database: str, *, options: Options | None =
         >>> [(t["name"], t["role"], t["rows"]) for t in m["tables"] if t["rows"]]
         [('person', 'entity', 1), ('books', 'record', 1), ('book_people', 'bridge', 1)]
     """
+    postgresql = is_postgresql(database)
+    if schema is not None and not postgresql:
+        from .errors import UsageError
+        raise UsageError("--schema applies to a PostgreSQL --db (postgresql+psycopg://...), not to a SQLite file")
+    if parquet_dir and postgresql:
+        from .errors import UsageError
+        raise UsageError("--parquet is written from a SQLite database; it is not available with a PostgreSQL --db")
+    if chunk_rows and not postgresql and _can_stream(paths, options, join_options):
+        result = _build_streaming(paths[0], database, options=options, limits=limits, formats=formats,
+                                  encoding=encoding, delimiter=delimiter, replace=replace, picks=picks,
+                                  plan_path=plan_path, chunk_rows=chunk_rows, progress=progress)
+        if parquet_dir:
+            result["parquet"] = write_parquet(database, result.pop("_plan"), parquet_dir)
+        result.pop("_plan", None)
+        if manifest_path:
+            with open(manifest_path, "w", encoding="utf-8") as f:
+                json.dump(result, f, indent=2, ensure_ascii=False)
+        return result
     plan, exports, decoded, joined = prepare(paths, options=options, limits=limits, formats=formats,
                                              encoding=encoding, delimiter=delimiter, join_options=join_options,
                                              picks=picks, plan_path=plan_path)
@@ -83,11 +128,98 @@ def build_database(paths: list[str], database: str, *, options: Options | None =
     if missing:
         from .check import IntegrityError
         raise IntegrityError(f"{missing} foreign-key values name no row; nothing was written")
-    integrity = write_sqlite(plan, built.rows, order, database, replace=replace)
-    result = manifest(plan, built, os.fspath(database), integrity, joined)
+    if postgresql:
+        integrity = write_postgresql(plan, built.rows, order, database, schema=schema or DEFAULT_SCHEMA,
+                                     replace=replace)
+        result = manifest(plan, built, display_url(database), integrity, joined)
+        result["schema"] = integrity["schema"]
+    else:
+        integrity = write_sqlite(plan, built.rows, order, database, replace=replace)
+        result = manifest(plan, built, os.fspath(database), integrity, joined)
     if parquet_dir:
         result["parquet"] = write_parquet(database, plan, parquet_dir)
     if manifest_path:
         with open(manifest_path, "w", encoding="utf-8") as f:
             json.dump(result, f, indent=2, ensure_ascii=False)
     return result
+
+
+def _can_stream(paths: list[str], options: Options | None, join_options: JoinOptions | None) -> bool:
+    """One CSV or TSV file whose duplicates keep the first (or are refused) streams in chunks."""
+    if len(paths) != 1 or Path(paths[0]).suffix.lower() in (".jsonl", ".ndjson", ".json"):
+        return False
+    return (options or Options()).duplicates != "last"
+
+
+def _build_streaming(path: str, database: str, *, options: Options | None, limits: Limits, formats: dict | None,
+                     encoding: str | None, delimiter: str | None, replace: bool, picks: list[str] | None,
+                     plan_path: str | None, chunk_rows: int, progress) -> dict:
+    """Build one export in chunks with bounded memory: infer on the first records, then stream."""
+    options = options or Options()
+    chunks = iter_chunks(path, chunk_rows, encoding=encoding, delimiter=delimiter)
+    sample, first = [], []
+    taken = 0
+    for chunk in chunks:
+        first.append(chunk)
+        taken += chunk.number_of_records
+        if taken >= SAMPLE_ROWS:
+            break
+    start = concat(first)
+    start_decoded = decode(start, limits, formats)
+    # later chunks are read in the formats found at the start, so every chunk agrees
+    fixed = dict(formats or {})
+    for name, col in start_decoded.items():
+        if name not in fixed and col.encoding in ("json", "python-literal", "delimited", "scalar"):
+            fixed[name] = (col.encoding, col.separator)
+    sample_exports, sample_decoded = head([start], {start.path: start_decoded}, SAMPLE_ROWS)
+    if plan_path:
+        doc, text = read_plan(plan_path)
+        plan = plan_from_doc(doc, text, sample_exports, sample_decoded)
+    else:
+        plan = infer_plan(sample_exports, sample_decoded, options)
+    for spec in picks or ():
+        add_pick(plan, spec)
+    order = check_plan(plan)
+    builder = Builder(plan)
+    writer = SqliteWriter(plan, order, database, replace)
+    try:
+        builder.add(start, start_decoded)
+        _flush(builder, writer)
+        done = start.number_of_records + len(start.rejected)
+        if progress:
+            progress(done, getattr(start, "chars_read", 0))
+        del start, start_decoded, sample_exports, sample_decoded, first
+        for chunk in chunks:
+            builder.add(chunk, decode(chunk, limits, fixed))
+            _flush(builder, writer)
+            done += chunk.number_of_records + len(chunk.rejected)
+            if progress:
+                progress(done, getattr(chunk, "chars_read", 0))
+        built = builder.finish()
+        for name in order:
+            writer.insert(name, built.rows.get(name, []))
+    except BaseException:
+        writer.abort()
+        raise
+    integrity = writer.finish()
+    result = manifest(plan, built, os.fspath(database), integrity, None, row_counts=writer.row_counts)
+    result["_plan"] = plan
+    return result
+
+
+def _flush(builder: Builder, writer: SqliteWriter) -> None:
+    for name, rows in builder.take_rows().items():
+        writer.insert(name, rows)
+
+
+def concat(chunks: list):
+    """One Export from consecutive chunks of the same file."""
+    from dataclasses import replace as copy_with
+
+    if len(chunks) == 1:
+        return chunks[0]
+    first = chunks[0]
+    return copy_with(first, cells={c: [v for ch in chunks for v in ch.cells[c]] for c in first.columns},
+                     lines=[n for ch in chunks for n in ch.lines],
+                     rejected=[r for ch in chunks for r in ch.rejected],
+                     warnings=[w for ch in chunks for w in ch.warnings])

@@ -56,6 +56,7 @@ class Export:
     header_names: dict[str, str] = field(default_factory=dict)  # column -> name in the file
     delimiter: str | None = None
     encoding: str = "utf-8"
+    chars_read: int = 0  # characters of the file read up to the end of this chunk (for progress)
 
     @property
     def name(self) -> str:
@@ -166,11 +167,12 @@ def unique_header(names: list[str]) -> tuple[list[str], list[str]]:
 class _LineTap:
     """Iterator over a file's lines that remembers the lines of the current row."""
 
-    __slots__ = ("_lines", "taken")
+    __slots__ = ("_lines", "taken", "chars")
 
     def __init__(self, lines):
         self._lines = lines
         self.taken: list[str] = []
+        self.chars = 0
 
     def __iter__(self):
         return self
@@ -178,10 +180,32 @@ class _LineTap:
     def __next__(self) -> str:
         line = next(self._lines)
         self.taken.append(line)
+        self.chars += len(line)
         return line
 
 
 def _read_delimited(path: str, encoding: str, delimiter: str | None) -> Export:
+    return next(_iter_delimited(path, encoding, delimiter, None))
+
+
+def iter_chunks(path: str | os.PathLike, chunk_rows: int, *, encoding: str | None = None,
+                delimiter: str | None = None):
+    """Read a CSV or TSV export as a sequence of Exports of at most ``chunk_rows`` records each.
+
+    Line numbers, rejected rows and warnings are those of the whole file; a
+    JSON Lines file (whose columns can appear on any line) comes as one chunk.
+    """
+    path = os.fspath(path)
+    suffix = Path(path).suffix.lower()
+    if suffix in (".jsonl", ".ndjson", ".json"):
+        yield read(path, encoding=encoding, delimiter=delimiter)
+        return
+    if not os.path.isfile(path):
+        read(path, encoding=encoding, delimiter=delimiter)  # raises the usual error
+    yield from _iter_delimited(path, encoding or "utf-8-sig", delimiter, chunk_rows)
+
+
+def _iter_delimited(path: str, encoding: str, delimiter: str | None, chunk_rows: int | None):
     suffix = Path(path).suffix.lower()
     with _open_text(path, encoding) as f:
         if delimiter is None:
@@ -192,13 +216,21 @@ def _read_delimited(path: str, encoding: str, delimiter: str | None) -> Export:
         kind = "tsv" if delimiter == "\t" else "csv"
         header = next(reader, None)
         if header is None:
-            return Export(path, kind, [], {}, [], warnings=[f"{path}: empty file"],
-                          delimiter=delimiter, encoding=encoding)
+            yield Export(path, kind, [], {}, [], warnings=[f"{path}: empty file"],
+                         delimiter=delimiter, encoding=encoding)
+            return
         if _quote_left_open("".join(tap.taken), delimiter):
             raise UnreadableFile(f"{path}: a quote opened in the header (line 1) is never closed, "
                                  "so the whole file reads as the header; close or remove the quote")
         columns, warnings = unique_header(header)
+        header_names = dict(zip(columns, header))
         width = len(columns)
+
+        def chunk(cells, lines, rejected, warnings):
+            return Export(path, kind, columns, cells, lines, rejected, warnings,
+                          header_names=header_names, delimiter=delimiter, encoding=encoding,
+                          chars_read=tap.chars)
+
         cells: dict[str, list] = {c: [] for c in columns}
         store = [cells[c].append for c in columns]
         lines: list[int] = []
@@ -206,6 +238,7 @@ def _read_delimited(path: str, encoding: str, delimiter: str | None) -> Export:
         tap.taken.clear()
         line_no = reader.line_num  # lines consumed so far
         blank = 0
+        any_rows = False
         last, last_start, last_taken = None, 0, []  # kind, line and lines of the last row
         while True:
             try:
@@ -221,6 +254,14 @@ def _read_delimited(path: str, encoding: str, delimiter: str | None) -> Export:
             start = line_no + 1
             line_no = reader.line_num
             if len(row) == width:
+                if chunk_rows is not None and len(lines) >= chunk_rows:
+                    # hand over all but nothing of this row: the last row of the file
+                    # must stay behind in case its quote never closes
+                    yield chunk(cells, lines, rejected, warnings)
+                    any_rows = True
+                    cells = {c: [] for c in columns}
+                    store = [cells[c].append for c in columns]
+                    lines, rejected, warnings = [], [], []
                 for put, value in zip(store, row):
                     put(value)
                 lines.append(start)
@@ -249,10 +290,9 @@ def _read_delimited(path: str, encoding: str, delimiter: str | None) -> Export:
                 rejected[-1].reason += f" ({note})"
     if blank:
         warnings.append(f"{blank} blank line(s) skipped")
-    if not lines and not rejected:
+    if not lines and not rejected and not any_rows:
         warnings.append(f"{path}: header only, no data rows")
-    return Export(path, kind, columns, cells, lines, rejected, warnings,
-                  header_names=dict(zip(columns, header)), delimiter=delimiter, encoding=encoding)
+    yield chunk(cells, lines, rejected, warnings)
 
 
 def _quote_left_open(raw: str, delimiter: str) -> bool:

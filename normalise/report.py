@@ -21,11 +21,12 @@ def mask_password(url: str) -> str:
     return re.sub(r"(://[^:/@]*:)[^@]*(@)", r"\1***\2", url)
 
 
-def manifest(plan: Plan, built: Built, database: str, integrity: dict, joined=None) -> dict:
+def manifest(plan: Plan, built: Built, database: str, integrity: dict, joined=None,
+             row_counts: dict | None = None) -> dict:
     tables = []
     for t in plan.tables:
         tables.append({
-            "name": t.name, "role": t.role, "rows": len(built.rows[t.name]),
+            "name": t.name, "role": t.role, "rows": (row_counts or {}).get(t.name, len(built.rows.get(t.name, []))),
             "sources": t.sources, "primary_key": t.primary_key, "natural_key": t.natural_key,
             "position_column": t.position_column,
             "foreign_keys": [{"columns": fk.columns, "references": fk.references, "ref_columns": fk.ref_columns}
