@@ -86,8 +86,9 @@ def excerpt(text: str, position: int | None, width: int = 24) -> str:
 
 # --- Python literals, whole column -------------------------------------------
 
-# A string token of the shared subset: no backslash, no NUL (NUL separates cells).
-_SIMPLE_STRING = re.compile(r"""('[^'\x00]*'|"[^"\x00]*")""")
+# A string token of the shared subset: no backslash, no NUL (NUL separates cells),
+# no lone surrogate (undecodable bytes: json.loads keeps them, ast.literal_eval refuses).
+_SIMPLE_STRING = re.compile(r"""('[^'\x00\ud800-\udfff]*'|"[^"\x00\ud800-\udfff]*")""")
 # What may stand between string tokens in a cell the bulk route accepts.
 _SIMPLE_SKELETON = re.compile(r"(?:[ \t\r\n\[\]{},:0-9.eE+\-]++|None|True|False)*+")
 _WORDS = (("None", "null"), ("True", "true"), ("False", "false"))
@@ -463,8 +464,8 @@ def _dominant_nested(texts: list[str], nested: list[int]) -> str:
     """
     sample = [texts[k] for k in nested[:2000]]
     as_json = [not isinstance(v, CellError) for v in _decode_json_column(sample, Limits())]
-    as_python = [not isinstance(v, CellError) for v in _decode_python_column(sample, Limits())]
-    python_only = sum(p and not j for j, p in zip(as_json, as_python))
+    refused = [t for t, ok in zip(sample, as_json) if not ok]
+    python_only = sum(not isinstance(v, CellError) for v in _decode_python_column(refused, Limits()))
     few = python_only < MIXED_MIN_CELLS or python_only < MIXED_MIN_SHARE * len(sample)
     if sum(as_json) > python_only and few:
         return "json"

@@ -15,6 +15,7 @@ from __future__ import annotations
 
 import json
 from dataclasses import dataclass, field
+from pathlib import Path
 
 from .decode import DecodedColumn
 from .errors import NormaliseError, UsageError
@@ -86,6 +87,11 @@ def find_relation(main: Export, main_key: str, other: Export, decoded: dict) -> 
 def join(exports: list[Export], decoded: dict, options: JoinOptions, natural_keys: dict) -> Joined:
     """Join every export that relates to the first one; the others stay separate record tables."""
     result = Joined(list(exports), dict(decoded))
+    others = {name for e in exports[1:] for name in (e.name, Path(e.path).name)}
+    for file in options.on:
+        if file not in others:
+            raise UsageError(f"--join {file}.{options.on[file][0]}: no further input file is called {file!r} "
+                             f"(joined files: {', '.join(e.name for e in exports[1:]) or 'none'})")
     if len(exports) < 2 or options.separate:
         return result
     if options.how not in HOWS:
@@ -97,6 +103,9 @@ def join(exports: list[Export], decoded: dict, options: JoinOptions, natural_key
         types = {n: scalar_column_type(c.values) for n, c in main_cols.items() if c.encoding in ("scalar", "empty")}
         main_key = detect_natural_key(list(types), {n: main_cols[n].values for n in types}, types)
     if main_key is None:
+        if options.on:
+            raise UsageError(f"--join: {main.path} has no natural key to join on (a column filled in every row, "
+                             f"with unique values); name it with --key {main.name}=COLUMN")
         return result
     combined = JoinedExport(main.path, main.kind, list(main.columns), dict(main.cells), list(main.lines),
                             list(main.rejected), list(main.warnings), dict(main.header_names),
@@ -105,7 +114,7 @@ def join(exports: list[Export], decoded: dict, options: JoinOptions, natural_key
     combined_cols = dict(main_cols)
     joined_any = False
     for other in exports[1:]:
-        stated = options.on.get(other.name)
+        stated = options.on.get(other.name) or options.on.get(Path(other.path).name)
         if stated:
             right_col, left_col = stated
             if left_col and left_col != main_key:
@@ -114,6 +123,9 @@ def join(exports: list[Export], decoded: dict, options: JoinOptions, natural_key
             if right_col not in decoded[other.path]:
                 raise UsageError(f"--join {other.name}.{right_col}: {other.path} has no column {right_col!r} "
                                  f"(columns: {', '.join(other.columns)})")
+            if decoded[other.path][right_col].encoding not in ("scalar", "empty"):
+                raise UsageError(f"--join {other.name}.{right_col}: that column holds nested values, not keys; "
+                                 "name the column of plain values that holds the main file's keys")
         else:
             right_col = find_relation(main, main_key, other, decoded)
         if right_col is None:

@@ -41,7 +41,11 @@ class CellError(ValueError):
         self.position = position
 
 
-_STRING_LITERALS = re.compile(r"""'(?:[^'\\\n]|\\.)*'|"(?:[^"\\\n]|\\.)*\"""", re.S)
+# What the bracket count skips, as Python's tokenizer reads it: triple-quoted
+# strings first (else ''' reads as '' and a quote), one-line strings, comments.
+# Valid JSON holds neither of the extra forms outside its strings.
+_STRING_LITERALS = re.compile(r"""'''(?:[^'\\]|\\.|'(?!''))*'''|\"\"\"(?:[^"\\]|\\.|"(?!""))*\"\"\"|"""
+                              r"""'(?:[^'\\\n]|\\.)*'|"(?:[^"\\\n]|\\.)*"|#[^\r\n]*""", re.S)
 _BRACKETS = re.compile(r"[\[\]{}()]")
 _OPENERS = frozenset("[{(")
 _SURROGATE = re.compile("[\ud800-\udfff]")
@@ -77,6 +81,9 @@ def check_limits(text: str, limits: Limits) -> None:
                             "(try --encoding)", bad.start() + 1)
 
 
+_JSON_STRING = re.compile(r'"(?:[^"\\]|\\.)*"', re.S)
+
+
 def _refuse_constant(name: str):
     raise CellError(f"{name} is not a JSON value (RFC 8259, section 6 allows no NaN or Infinity)")
 
@@ -97,7 +104,8 @@ def decode_json(text: str, limits: Limits = Limits()):
         return json.loads(text, parse_constant=_refuse_constant)
     except CellError as exc:
         name = str(exc).split(" ", 1)[0]
-        found = re.search(r"(?<![\w\"])" + re.escape(name), text)
+        outside_strings = _JSON_STRING.sub(lambda m: " " * len(m.group()), text)
+        found = re.search(r"(?<![\w\"])" + re.escape(name), outside_strings)
         exc.position = found.start() + 1 if found else None
         raise
     except json.JSONDecodeError as exc:
@@ -130,17 +138,30 @@ _NOT_LITERAL = {
 }
 
 
-def _offset(text: str, lineno: int | None, col: int | None) -> int | None:
-    """1-based character offset of a (1-based line, 0-based column) place in text."""
+_LINE_BREAK = re.compile(r"\r\n|\r|\n")  # the line breaks Python's tokenizer counts
+
+
+def _offset(text: str, lineno: int | None, col: int | None, utf8: bool = False) -> int | None:
+    """1-based character offset of a (1-based line, 0-based column) place in text.
+
+    A SyntaxError counts the column in characters; a syntax tree node counts it
+    in UTF-8 bytes (``utf8=True``).
+    """
     if lineno is None or col is None:
         return None
-    lines = text.split("\n")
-    return sum(len(line) + 1 for line in lines[: lineno - 1]) + col + 1
+    starts = [0] + [m.end() for m in _LINE_BREAK.finditer(text)]
+    if not 1 <= lineno <= len(starts):
+        return None
+    start = starts[lineno - 1]
+    if utf8:
+        col = len(text[start:start + col].encode("utf-8", "surrogatepass")[:col].decode("utf-8", "ignore"))
+    return start + col + 1
 
 
 def _describe_non_literal(tree: ast.AST, text: str) -> CellError | None:
     """The first construct (by position) that makes the tree more than a literal."""
     found = []
+    callees = {id(node.func) for node in ast.walk(tree) if isinstance(node, ast.Call)}
     for node in ast.walk(tree):
         kind = _NOT_LITERAL.get(type(node))
         if kind is None:
@@ -148,8 +169,7 @@ def _describe_non_literal(tree: ast.AST, text: str) -> CellError | None:
         if isinstance(node, ast.Call) and isinstance(node.func, ast.Name) \
                 and node.func.id == "set" and not node.args and not node.keywords:
             continue  # set() is the one call ast.literal_eval accepts
-        if isinstance(node, ast.Name) and any(isinstance(p, ast.Call) and p.func is node
-                                               for p in ast.walk(tree)):
+        if isinstance(node, ast.Name) and id(node) in callees:
             continue  # the callee's name; the call itself is reported
         found.append(((node.lineno, node.col_offset), node, kind))
     if not found:
@@ -157,7 +177,7 @@ def _describe_non_literal(tree: ast.AST, text: str) -> CellError | None:
     (line, col), node, kind = min(found, key=lambda f: f[0])
     detail = f" {node.id!r}" if isinstance(node, ast.Name) else ""
     return CellError(f"{kind}{detail} is not a Python literal; expressions are never evaluated",
-                     _offset(text, line, col))
+                     _offset(text, line, col, utf8=True))
 
 
 def decode_python_literal(text: str, limits: Limits = Limits()):
@@ -172,7 +192,7 @@ def decode_python_literal(text: str, limits: Limits = Limits()):
         normalise.literal.CellError: a call is not a Python literal; expressions are never evaluated
     """
     check_limits(text, limits)
-    if limits.max_depth >= PYTHON_PARSER_MAX_DEPTH and nesting_depth(text) >= PYTHON_PARSER_MAX_DEPTH:
+    if limits.max_depth > PYTHON_PARSER_MAX_DEPTH and nesting_depth(text) > PYTHON_PARSER_MAX_DEPTH:
         raise CellError(f"nesting deeper than {PYTHON_PARSER_MAX_DEPTH} levels, the most "
                         "Python's literal grammar allows", 1)
     source = text.lstrip(" \t")  # as ast.literal_eval strips it
@@ -183,14 +203,16 @@ def decode_python_literal(text: str, limits: Limits = Limits()):
         where = _offset(source, exc.lineno, (exc.offset or 1) - 1)
         raise CellError(f"not a Python literal: {exc.msg}",
                         None if where is None else where + shift) from None
-    except (ValueError, MemoryError, RecursionError) as exc:
-        raise CellError(f"not a Python literal: {exc}", None) from None
-    problem = _describe_non_literal(tree, source)
-    if problem is not None:
-        if problem.position is not None:
-            problem.position += shift
-        raise problem
+    except (ValueError, MemoryError, RecursionError) as exc:  # MemoryError: the parser's stack
+        raise CellError(f"not a Python literal: {str(exc) or 'too deeply nested to parse'}", None) from None
     try:
+        # literal_eval only converts a tree of literals and refuses anything else;
+        # the refusal is then explained with the first offending construct.
         return ast.literal_eval(tree)
     except (ValueError, TypeError, SyntaxError, MemoryError, RecursionError) as exc:
+        problem = _describe_non_literal(tree, source)
+        if problem is not None:
+            if problem.position is not None:
+                problem.position += shift
+            raise problem from None
         raise CellError(f"not a Python literal: {exc}", None) from None

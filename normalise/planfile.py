@@ -177,6 +177,11 @@ def read_plan(path: str) -> tuple[dict, str]:
     if doc.get("version") != PLAN_VERSION:
         _fail(text, f"version {doc.get('version')!r} is not {PLAN_VERSION}", f"set version = {PLAN_VERSION}",
               "version")
+    for setting, allowed in (("how", ("left", "inner", "full")), ("cardinality", ("one-to-one", "one-to-many"))):
+        value = doc.get("join", {}).get(setting, allowed[0])
+        if value not in allowed:
+            _fail(text, f"[join] {setting} {value!r} is not one of {', '.join(allowed)}",
+                  f"set {setting} = {_v(allowed[0])}", f"{setting} =", after="[join]")
     return doc, text
 
 
@@ -199,6 +204,9 @@ def plan_from_doc(doc: dict, text: str, exports: list, decoded: dict) -> Plan:
         if missing:
             _fail(text, f"[[entity]] {e.get('handle', '?')} lacks {', '.join(sorted(missing))}",
                   "every [[entity]] needs handle, table, identity, identity_column and identity_type", "[[entity]]")
+        if e["identity_type"] not in TYPES:
+            _fail(text, f"entity {e['handle']!r}: unknown identity_type {e['identity_type']!r}",
+                  f"use one of {', '.join(TYPES)}", f'identity_type = "{e["identity_type"]}"')
         group = EntityGroup(table=e["table"], key_column=f"{e['table']}_sk", identity=e["identity"],
                             identity_column=e["identity_column"], identity_type=e["identity_type"],
                             attributes=_maps(text, e.get("attributes"), f"entity {e['handle']}.attributes"))
@@ -208,6 +216,13 @@ def plan_from_doc(doc: dict, text: str, exports: list, decoded: dict) -> Plan:
         if file not in by_name:
             _fail(text, f"[[record]] file {file!r} is not among the inputs ({', '.join(by_name)})",
                   "give that file on the command line, or remove its [[record]] block", f'"{file}"')
+        missing = {"table", "key"} - set(r)
+        if missing:
+            _fail(text, f"[[record]] {file} lacks {', '.join(sorted(missing))}",
+                  "every [[record]] needs file, table and key", f'file = "{file}"')
+        if r.get("duplicates", "first") not in ("first", "last", "refuse"):
+            _fail(text, f"[[record]] {file}: unknown duplicates policy {r['duplicates']!r}",
+                  "use first, last or refuse", f'duplicates = "{r["duplicates"]}"')
         export = by_name[file]
         columns = decoded[export.path]
         record = RecordSource(file=file, path=export.path, table=r["table"], key_column=r["key"],
@@ -228,6 +243,10 @@ def plan_from_doc(doc: dict, text: str, exports: list, decoded: dict) -> Plan:
                   "write a fresh plan with `normalise plan`, or add them to the record's columns",
                   f'file = "{file}"')
         plan.records.append(record)
+    unplanned = [e.name for e in exports if e.name not in {r.file for r in plan.records}]
+    if unplanned:
+        _fail(text, f"input file(s) {', '.join(unplanned)} have no [[record]] block, so their rows would be lost",
+              "write a fresh plan with `normalise plan`, or give only the files the plan names", "[[record]]")
     # entity lists whose handle no [[entity]] defines get an entity table of their own
     for record in plan.records:
         for nested in record.nested:
@@ -257,9 +276,19 @@ def plan_from_doc(doc: dict, text: str, exports: list, decoded: dict) -> Plan:
                     _check_keys(text, decoded[record.path][nested.column].values, nested, group)
         if group.members:
             plan.entities.append(group)
+    for record in plan.records:  # objects that are no entities: child rows or record columns
+        for nested in record.nested:
+            if nested.kind in ("child-list", "object-columns", "object-child"):
+                _check_keys(text, decoded[record.path][nested.column].values, nested)
     add_tables(plan)
     names = {t.name for t in plan.tables}
     for v in doc.get("view", []):
+        missing = {"name", "kind", "table"} - set(v)
+        if missing:
+            _fail(text, f"[[view]] {v.get('name', '?')} lacks {', '.join(sorted(missing))}",
+                  "every [[view]] needs name, kind and table", f'name = "{v.get("name")}"', "[[view]]")
+        if v["table"] not in names and v["table"] in handles:
+            v = dict(v, table=handles[v["table"]].table)  # the handle of an entity whose table was renamed
         lists = v.get("lists", [])
         for name in [v.get("table")] + lists:
             if name not in names:
@@ -268,6 +297,11 @@ def plan_from_doc(doc: dict, text: str, exports: list, decoded: dict) -> Plan:
         view = View(v["name"], v["kind"], v["table"], lists, date_column=v.get("date_column"),
                     separator=v.get("separator", "; "))
         for p in v.get("pick", []):
+            if not {"name", "list", "attribute", "value"} <= set(p):
+                _fail(text, f"a pick of view {view.name!r} lacks "
+                            f"{', '.join(sorted({'name', 'list', 'attribute', 'value'} - set(p)))}",
+                      "every [[view.pick]] needs name, list, attribute and value", "[[view.pick]]",
+                      after=f'name = "{view.name}"')
             view.picks.append(Pick(p["name"], p["list"], p["attribute"], str(p["value"])))
         _check_view(text, plan, view)
         plan.views.append(view)
@@ -275,6 +309,9 @@ def plan_from_doc(doc: dict, text: str, exports: list, decoded: dict) -> Plan:
 
 
 def _check_view(text: str, plan: Plan, view: View) -> None:
+    if view.name in {t.name for t in plan.tables} | {v.name for v in plan.views}:
+        _fail(text, f"view name {view.name!r} is already taken by a table or another view",
+              "give the view a name of its own", f'name = "{view.name}"')
     if view.kind not in ("record_summary", "entity_summary"):
         _fail(text, f"view {view.name!r}: unknown kind {view.kind!r}", "use record_summary or entity_summary",
               f'"{view.kind}"')
@@ -316,17 +353,22 @@ def _nested_from(text: str, n: dict, columns: dict, handles: dict, plan: Plan) -
     return nested
 
 
-def _check_keys(text: str, values: list, nested: NestedColumn, group: EntityGroup) -> None:
-    """Every key of the column's objects must be planned (identity, attribute, link or nested list)."""
-    known = {nested.identity} | {f.path[0] for f in group.attributes} | {f.path[0] for f in nested.links}
+def _check_keys(text: str, values: list, nested: NestedColumn, group: EntityGroup | None = None) -> None:
+    """Every key of the column's objects must be planned (identity, attribute, link or nested list).
+
+    Keys that only ever hold empty lists or objects make no column or table, so they need no plan.
+    """
+    attributes = group.attributes if group else []
+    known = {nested.identity} | {f.path[0] for f in attributes} | {f.path[0] for f in nested.links}
     known |= {c.path.split(".")[0] for c in nested.children}
     found = set()
     for v in values:
         for o in (v if isinstance(v, (list, tuple)) else [v]):
             if isinstance(o, dict):
-                found.update(str(k) for k in o)
+                found.update(str(k) for k, x in o.items() if not (isinstance(x, (list, tuple, dict)) and not x))
     new = sorted(found - known)
     if new:
+        where = (f" (link attributes) or to the attributes of entity {group.table!r}" if group else "")
         _fail(text, f"nested column {nested.column!r} has key(s) the plan does not know: {', '.join(new)}",
-              f"add them to the fields of {nested.column!r} (link attributes) or to the attributes of entity "
-              f"{group.table!r}, or write a fresh plan", f'column = "{nested.column}"')
+              f"add them to the fields of {nested.column!r}{where}, or write a fresh plan",
+              f'column = "{nested.column}"')
