@@ -361,6 +361,11 @@ def _nested_rows(plan, nested: NestedColumn, value, owner_sk: int, export, i: in
 
 def _quarantine_element(quarantine, export, i, nested, position, message, c: FileCounts) -> None:
     column = nested.column + (f".{nested.path}" if nested.path else "")
-    quarantine.append((export.path, export.lines[i], column, position,
+    path, line = export.path, export.lines[i]
+    origin = getattr(export, "origin", {}).get(nested.column)
+    if origin is not None:  # a column of a joined file: name its own file and line
+        path, column = origin[0], origin[1] + (f".{nested.path}" if nested.path else "")
+        line = export.origin_lines[nested.column][i] or line
+    quarantine.append((path, line, column, position,
                                       f"element {position}" if position else "", message))
     c.elements_quarantined += 1

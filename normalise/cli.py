@@ -92,16 +92,7 @@ def cmd_build(args) -> int:
     options = Options(natural_keys=_pairs(args.key, "--key"), duplicates=args.duplicates,
                       violation_threshold=args.threshold, identities=_pairs(args.identity, "--identity"),
                       merge=[m.split(",") for m in args.merge], no_merge=args.no_merge)
-    on = {}
-    for spec in args.join:
-        right, eq, left = spec.partition("=")
-        file, dot, column = right.rpartition(".")
-        if not dot or not file or not column:
-            raise UsageError(f"--join {spec!r}: expected FILE.COLUMN (the joined file's key column), "
-                             "optionally =MAINCOLUMN, e.g. --join contributions.title_key")
-        on[file] = (column, left.rpartition(".")[2] or None)
-    join_options = JoinOptions(how=args.how, cardinality=args.cardinality, on=on, separate=args.separate,
-                               duplicates=args.duplicates)
+    join_options = _join_options(args)
     from .progress import Progress
 
     progress = Progress(args.files[0], enabled=False if args.quiet else None)
@@ -111,7 +102,37 @@ def cmd_build(args) -> int:
         progress.close()
     if not args.quiet:
         print(summary(result))
+        for what, path in (("report", args.report), ("data dictionary", args.dictionary)):
+            if path:
+                print(f"  {what}: {path}")
     return 0 if result["integrity"]["reconciled"] else 1
+
+
+def _join_options(args):
+    from .errors import UsageError
+    from .join import JoinOptions
+
+    on = {}
+    for spec in args.join:
+        right, eq, left = spec.partition("=")
+        file, dot, column = right.rpartition(".")
+        if not dot or not file or not column:
+            raise UsageError(f"--join {spec!r}: expected FILE.COLUMN (the joined file's key column), "
+                             "optionally =MAINCOLUMN, e.g. --join contributions.title_key")
+        on[file] = (column, left.rpartition(".")[2] or None)
+    return JoinOptions(how=args.how, cardinality=args.cardinality, on=on, separate=args.separate,
+                       duplicates=args.duplicates)
+
+
+def _join_arguments(p) -> None:
+    p.add_argument("--join", action="append", default=[], metavar="FILE.COLUMN[=MAINCOLUMN]",
+                   help="the column of a further file that holds the main file's keys (default: detected)")
+    p.add_argument("--how", choices=("left", "inner", "full"), default="left",
+                   help="left keeps every main record (default); inner sets aside those without a match; "
+                        "full also loads unmatched joined rows")
+    p.add_argument("--cardinality", choices=("one-to-one", "one-to-many"), default="one-to-one",
+                   help="declared relation of joined rows to main records")
+    p.add_argument("--separate", action="store_true", help="join nothing: every file its own record table")
 
 
 def _run_build(args, options, join_options, progress):
@@ -121,7 +142,8 @@ def _run_build(args, options, join_options, progress):
                             formats=_formats(args), encoding=args.encoding, delimiter=_delimiter(args),
                             replace=args.replace, manifest_path=args.manifest, picks=args.pick,
                             parquet_dir=args.parquet, plan_path=args.plan, chunk_rows=args.chunk_rows or None,
-                            progress=progress, schema=args.schema)
+                            progress=progress, schema=args.schema,
+                            report_path=args.report, dictionary_path=args.dictionary)
 
 
 def cmd_plan(args) -> int:
@@ -132,7 +154,8 @@ def cmd_plan(args) -> int:
                       violation_threshold=args.threshold, identities=_pairs(args.identity, "--identity"),
                       merge=[m.split(",") for m in args.merge], no_merge=args.no_merge)
     text = make_plan(args.files, args.output, options=options, limits=_limits(args), formats=_formats(args),
-                     encoding=args.encoding, delimiter=_delimiter(args), picks=args.pick, plan_path=args.plan)
+                     encoding=args.encoding, delimiter=_delimiter(args), picks=args.pick, plan_path=args.plan,
+                     join_options=_join_options(args))
     if not args.output:
         print(text)
     else:
@@ -160,6 +183,28 @@ def _inference_options(p) -> None:
                    help="use this plan (written by `normalise plan`, edits included) instead of inferring one")
 
 
+def cmd_report(args) -> int:
+    from .errors import UsageError
+    from .report_html import write_outputs
+
+    if not args.output and not args.dictionary:
+        raise UsageError("report: give -o PATH.html, --dictionary PATH.md or both")
+    manifest = None
+    if args.manifest:
+        try:
+            with open(args.manifest, encoding="utf-8") as f:
+                manifest = json.load(f)
+        except (OSError, ValueError) as exc:
+            raise UsageError(f"--manifest {args.manifest}: {exc}") from None
+        if not isinstance(manifest, dict) or not isinstance(manifest.get("tables"), list):
+            raise UsageError(f"--manifest {args.manifest}: not a normalise manifest")
+    written = write_outputs(args.database, manifest, report_path=args.output, dictionary_path=args.dictionary,
+                            manifest_origin=f"file {args.manifest}" if args.manifest else None)
+    for what, path in written.items():
+        print(f"wrote {what} {path}")
+    return 0
+
+
 def build_parser() -> argparse.ArgumentParser:
     parser = argparse.ArgumentParser(prog="normalise",
                                      description="Turn flat exports with nested cells into a linked relational database.")
@@ -180,15 +225,11 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--replace", action="store_true",
                    help="overwrite an existing database (PostgreSQL: drop the tables and views of the schema)")
     _inference_options(p)
-    p.add_argument("--join", action="append", default=[], metavar="FILE.COLUMN[=MAINCOLUMN]",
-                   help="the column of a further file that holds the main file's keys (default: detected)")
-    p.add_argument("--how", choices=("left", "inner", "full"), default="left",
-                   help="left keeps every main record (default); inner sets aside those without a match; "
-                        "full also loads unmatched joined rows")
-    p.add_argument("--cardinality", choices=("one-to-one", "one-to-many"), default="one-to-one",
-                   help="declared relation of joined rows to main records")
-    p.add_argument("--separate", action="store_true", help="join nothing: every file its own record table")
+    _join_arguments(p)
     p.add_argument("--parquet", metavar="DIR", help="also write every table and view as a Parquet file")
+    p.add_argument("--report", metavar="PATH.html",
+                   help="also write a self-contained HTML report: schema diagram, counts, checks, problems, charts")
+    p.add_argument("--dictionary", metavar="PATH.md", help="also write a data dictionary (Markdown)")
     p.add_argument("--chunk-rows", type=int, default=20000, metavar="N",
                    help="records read at a time when one CSV/TSV file is built (bounded memory; 0: all at once)")
     p.add_argument("--quiet", action="store_true", help="print nothing but errors (no progress)")
@@ -197,8 +238,17 @@ def build_parser() -> argparse.ArgumentParser:
     p = sub.add_parser("plan", help="write the inferred model as an editable TOML plan")
     _common(p)
     _inference_options(p)
+    _join_arguments(p)
     p.add_argument("-o", "--output", metavar="PLAN.toml", help="write the plan here (default: print it)")
     p.set_defaults(func=cmd_plan)
+
+    p = sub.add_parser("report", help="write the HTML report and/or data dictionary of an existing SQLite database")
+    p.add_argument("database", metavar="DB", help="a SQLite database written by normalise build")
+    p.add_argument("-o", "--output", metavar="PATH.html", help="write the HTML report here")
+    p.add_argument("--dictionary", metavar="PATH.md", help="write the data dictionary (Markdown) here")
+    p.add_argument("--manifest", metavar="PATH.json",
+                   help="the build's manifest (--manifest of build): adds roles, sources and the rows read")
+    p.set_defaults(func=cmd_report)
     return parser
 
 

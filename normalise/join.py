@@ -42,6 +42,7 @@ class JoinedExport(Export):
     main_rows_read: int = 0
     origin: dict = field(default_factory=dict)  # column -> (file path, column in that file)
     inner_unmatched: dict = field(default_factory=dict)  # row -> why an inner join sets it aside
+    origin_lines: dict = field(default_factory=dict)  # joined column -> line in its own file, per row
 
 
 @dataclass
@@ -195,6 +196,8 @@ def _join_one(result: Joined, combined: JoinedExport, combined_cols: dict, main:
         combined.cells[new] = cells
         combined.header_names[new] = other.header_names.get(name, name)
         combined.origin[new] = (other.path, name)
+        combined.origin_lines[new] = ([None if j is None else other.lines[j] for j in index] + [None] * padding
+                                      + [other.lines[j] for j in extra_rows])
         combined_cols[new] = DecodedColumn(new, source.encoding, values, source.quarantined,
                                            source.format_counts, source.separator, source.ambiguity,
                                            source.forced)

@@ -54,8 +54,10 @@ def prepare(paths: list[str], *, options: Options | None = None, limits: Limits 
     if plan_path:
         doc, text = read_plan(plan_path)
         settings = join_settings(doc)
+        records = doc.get("record", [])
+        duplicates = records[0].get("duplicates", options.duplicates) if records else options.duplicates
         join_options = JoinOptions(how=settings["how"], cardinality=settings["cardinality"], on=settings["on"],
-                                   separate=settings["separate"], duplicates=options.duplicates)
+                                   separate=settings["separate"], duplicates=duplicates)
         options.natural_keys = {r["file"]: r["natural_key"] for r in doc.get("record", []) if r.get("natural_key")}
     joined = join(exports, decoded, join_options or JoinOptions(duplicates=options.duplicates),
                   options.natural_keys)
@@ -86,7 +88,8 @@ def build_database(paths: list[str], database: str, *, options: Options | None =
                    delimiter: str | None = None, replace: bool = False, join_options: JoinOptions | None = None,
                    manifest_path: str | None = None, picks: list[str] | None = None,
                    parquet_dir: str | None = None, plan_path: str | None = None,
-                   schema: str | None = None, chunk_rows: int | None = None, progress=None) -> dict:
+                   schema: str | None = None, chunk_rows: int | None = None, progress=None,
+                   report_path: str | None = None, dictionary_path: str | None = None) -> dict:
     """Run every pass on the exports and write a SQLite database; returns the manifest.
 
     ``database`` may instead be a ``postgresql+psycopg://`` URL: the tables then go into
@@ -107,6 +110,10 @@ def build_database(paths: list[str], database: str, *, options: Options | None =
     if parquet_dir and postgresql:
         from .errors import UsageError
         raise UsageError("--parquet is written from a SQLite database; it is not available with a PostgreSQL --db")
+    if (report_path or dictionary_path) and postgresql:
+        from .errors import UsageError
+        raise UsageError("--report and --dictionary read a SQLite database; they are not available with a "
+                         "PostgreSQL --db")
     if chunk_rows and not postgresql and _can_stream(paths, options, join_options):
         result = _build_streaming(paths[0], database, options=options, limits=limits, formats=formats,
                                   encoding=encoding, delimiter=delimiter, replace=replace, picks=picks,
@@ -117,6 +124,7 @@ def build_database(paths: list[str], database: str, *, options: Options | None =
         if manifest_path:
             with open(manifest_path, "w", encoding="utf-8") as f:
                 json.dump(result, f, indent=2, ensure_ascii=False)
+        _write_reports(database, result, report_path, dictionary_path)
         return result
     plan, exports, decoded, joined = prepare(paths, options=options, limits=limits, formats=formats,
                                              encoding=encoding, delimiter=delimiter, join_options=join_options,
@@ -141,7 +149,15 @@ def build_database(paths: list[str], database: str, *, options: Options | None =
     if manifest_path:
         with open(manifest_path, "w", encoding="utf-8") as f:
             json.dump(result, f, indent=2, ensure_ascii=False)
+    _write_reports(database, result, report_path, dictionary_path)
     return result
+
+
+def _write_reports(database, result: dict, report_path: str | None, dictionary_path: str | None) -> None:
+    """The HTML report and the data dictionary of the written SQLite database (report_html.py, dictionary.py)."""
+    if report_path or dictionary_path:
+        from .report_html import write_outputs
+        write_outputs(database, result, report_path=report_path, dictionary_path=dictionary_path)
 
 
 def _can_stream(paths: list[str], options: Options | None, join_options: JoinOptions | None) -> bool:

@@ -101,6 +101,17 @@ def _lit(value: str) -> str:
     return "'" + str(value).replace("'", "''") + "'"
 
 
+def _bytewise(dialect: str, expr: str, type_: str) -> str:
+    """A text expression compared byte by byte, as SQLite compares text (its BINARY collation).
+
+    PostgreSQL would otherwise order text by the database's locale ("B" after
+    "a" in en_US), so a view's first and last rows would depend on the server.
+    """
+    if dialect == "postgresql" and type_ in ("text", "date", "timestamp"):
+        return f'{expr} COLLATE "C"'
+    return expr
+
+
 def _ordered_join(dialect: str, expr: str, order: str, source: str, separator: str) -> str:
     """An aggregate joining ``expr`` over ``source`` in ``order``; NULL when there are no rows."""
     if dialect == "postgresql":
@@ -209,12 +220,14 @@ def _entity_summary(view: View, plan: Plan, dialect: str) -> str:
         label = owner.natural_key[0] if owner.natural_key else owner_key
         inner = " UNION ".join(f"SELECT b.{_q(plan.table(n).foreign_keys[0].columns[0])} AS k FROM {_q(n)} b "
                                f"WHERE b.{_q(key)} = e.{_q(key)}" for n in view.lists)
+        date = _bytewise(dialect, f"r.{_q(view.date_column)}", owner.column(view.date_column).type)
+        shown_label = _bytewise(dialect, f"r.{_q(label)}", owner.column(label).type)
         for which, direction in (("first", "ASC"), ("last", "DESC")):
             cols.append(f"(SELECT r.{_q(label)} FROM {_q(owner.name)} r WHERE r.{_q(owner_key)} IN ({inner}) "
                         f"AND r.{_q(view.date_column)} IS NOT NULL "
-                        f"ORDER BY r.{_q(view.date_column)} {direction}, r.{_q(label)} {direction} LIMIT 1) "
+                        f"ORDER BY {date} {direction}, {shown_label} {direction} LIMIT 1) "
                         f"AS {_q(f'{which}_{singular_prefix(owner.name)[:-1]}')}")
-            cols.append(f"(SELECT {'min' if which == 'first' else 'max'}(r.{_q(view.date_column)}) "
+            cols.append(f"(SELECT {'min' if which == 'first' else 'max'}({date}) "
                         f"FROM {_q(owner.name)} r WHERE r.{_q(owner_key)} IN ({inner})) "
                         f"AS {_q(f'{which}_{view.date_column}')}")
     return f"SELECT {', '.join(cols)} FROM {_q(entity.name)} e"

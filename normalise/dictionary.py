@@ -1,0 +1,346 @@
+"""Data dictionary: every table and view of a written database, for the people who query it.
+
+Markdown, one section per table and view: what a row is, its keys, and per
+column the type, whether it may be empty, its key role, where it came from in
+the input (the export, the nested column and the field inside its objects) and
+what it means. It is made from the same reading of the database as the HTML
+report (``report_html.read_database``): the catalog, plus the run's manifest
+for roles and sources when there is one.
+"""
+
+from __future__ import annotations
+
+import re
+
+from .report_html import META_ROLES, clean, display_column, owner_fk, source_label
+
+TYPE_WORDS = {
+    "integer": "integer",
+    "real": "decimal number",
+    "text": "text",
+    "boolean": "boolean (0 or 1)",
+    "date": "date (ISO 8601 text, YYYY-MM-DD)",
+    "timestamp": "timestamp (ISO 8601 text)",
+}
+
+ROLE_WORDS = {
+    "record": "record table",
+    "entity": "entity table",
+    "bridge": "bridge table",
+    "child": "child table",
+    "set_aside": "bookkeeping",
+    "rejected": "bookkeeping",
+    "unmatched": "bookkeeping",
+    "quarantine": "bookkeeping",
+    "variants": "bookkeeping",
+}
+
+META_MEANING = {
+    "rejected_rows": ("One row per input line that could not be read as a row (wrong number of fields, "
+                      "undecodable text); nothing of it was loaded.", {
+                          "file": "The input file.", "line": "Line number in the input file (the header is line 1).",
+                          "reason": "Why the line was rejected.", "raw": "The line as it was read."}),
+    "set_aside_rows": ("One row per input row that was not loaded because another row had the same natural key "
+                       "(a duplicate); the kept row is named by its line.", {
+                           "file": "The input file.", "line": "Line number of the set-aside row.",
+                           "natural_key": "The repeated natural key.", "reason": "Why the row was set aside.",
+                           "kept_line": "Line number of the row that was loaded instead.",
+                           "cells": "The row's cells, as a JSON object (column \u2192 text)."}),
+    "unmatched_rows": ("One row per row of a joined file whose key names no record of the main file; kept here "
+                       "instead of being loaded.", {
+                           "file": "The joined input file.", "line": "Line number in that file.",
+                           "join_key": "The key that matched no record.", "reason": "Why the row is here.",
+                           "cells": "The row's cells, as a JSON object (column \u2192 text)."}),
+    "quarantined_cells": ("One row per cell (or element of a list) that could not be decoded; the rest of its row "
+                          "was loaded, without this value.", {
+                              "file": "The input file.", "line": "Line number of the row.",
+                              "column_name": "The input column of the cell.",
+                              "position": "Character position of the fault in the cell, or the element's position in "
+                                          "its list.",
+                              "excerpt": "The text around the fault.", "message": "What is wrong."}),
+    "attribute_variants": ("One row per value seen for an entity attribute that was written with different values "
+                           "in different places (a conflict); the chosen value is the one in the entity table.", {
+                               "entity_table": "The entity table.", "entity_sk": "The entity's surrogate key.",
+                               "natural_key": "The entity's natural key.", "attribute": "The attribute (column).",
+                               "value": "One value seen.", "occurrences": "How many times it was seen.",
+                               "chosen": "1 for the value kept in the entity table, else 0."}),
+}
+
+
+def code(name) -> str:
+    """An inline code span that holds any text, table pipes escaped (GitHub-flavoured Markdown).
+
+    Example:
+        >>> code("a|b"), code("x`y")
+        ('`a\\\\|b`', '`` x`y ``')
+    """
+    text = clean(name).replace("\n", " ").replace("|", "\\|")
+    run = max((len(m) for m in re.findall(r"`+", text)), default=0)
+    fence = "`" * (run + 1)
+    pad = " " if run or text.startswith("`") or text.endswith("`") else ""
+    return f"{fence}{pad}{text}{pad}{fence}"
+
+
+def plain(text) -> str:
+    """Text taken from data, safe in a Markdown table cell: no markup, no HTML, no line breaks.
+
+    Example:
+        >>> plain("<b>*x*</b> | y")
+        '&lt;b&gt;\\\\*x\\\\*&lt;/b&gt; \\\\| y'
+    """
+    text = clean(text).replace("\n", " ").replace("&", "&amp;").replace("<", "&lt;").replace(">", "&gt;")
+    return re.sub(r"([\\`*_\[\]|#!~])", r"\\\1", text)
+
+
+def _sources(table: dict) -> list[tuple[str, str | None]]:
+    return [(str(s.get("file") or "?"), s.get("column")) for s in table.get("sources") or []]
+
+
+def _where(file: str, column: str | None) -> str:
+    return f"{code(file)}" + (f" column {code(column)}" if column else "")
+
+
+def _table_meaning(table: dict, tables: dict) -> str:
+    role, name = table["role"], table["name"]
+    srcs = _sources(table)
+    where = ", ".join(_where(f, c) for f, c in srcs)
+    fk = owner_fk(table)
+    if name in META_MEANING and role in META_ROLES:
+        return META_MEANING[name][0]
+    if role == "record":
+        key = ", ".join(code(c) for c in table["natural_key"])
+        return (f"One row per record of the export {where or code(name)}"
+                + (f", identified by its natural key {key}" if key else "") + ".")
+    if role == "entity":
+        ident = ", ".join(code(c) for c in table["natural_key"])
+        return (f"One row per distinct {code(name)} found in {where or 'the nested lists'}"
+                + (f", identified by {ident}" if ident else "") + "; each appears once however many lists name it.")
+    if role in ("bridge", "child") and fk:
+        others = [f for f in table["foreign_keys"] if not f["owner"]]
+        if role == "bridge" and others:
+            ent = ", ".join(code(f["references"]) for f in others)
+            return (f"Links each {code(fk['references'])} row to the {ent} rows listed in {where or 'its list'}, "
+                    f"one row per element" + (", in list order" if table["position_column"] else "")
+                    + "; the columns besides the keys describe the link, not the entity.")
+        if fk["unique"]:
+            return f"The fields of the object in {where or 'a nested column'}, at most one row per {code(fk['references'])} row."
+        return (f"One row per element of the list in {where or 'a nested column'}, under its "
+                f"{code(fk['references'])} row" + (", in list order" if table["position_column"] else "") + ".")
+    return "A table of the database (its role is not recorded)."
+
+
+def _column_meaning(table: dict, column: dict, tables: dict) -> tuple[str, str]:
+    """(key role, meaning) of one column."""
+    name, role = column["name"], table["role"]
+    keys = []
+    meaning = ""
+    fks = [f for f in table["foreign_keys"] if name in f["columns"]]
+    if name in table["primary_key"]:
+        keys.append("PK")
+        how = {"record": "the line on which the record starts in its export",
+               "entity": "a hash of the natural key", "bridge": "a hash of the owner's key and the list position",
+               "child": "a hash of the owner's key and the list position"}.get(role)
+        meaning = ("Surrogate key made by normalise" + (f" from {how}" if how else "")
+                   + ": the same for the same input on every build; use it to join, not as business data.")
+    for f in fks:
+        ref = f["ref_columns"][f["columns"].index(name)] if len(f["ref_columns"]) == len(f["columns"]) else "?"
+        keys.append(f"FK \u2192 {code(f['references'])}.{code(ref)}")
+        if not meaning:
+            meaning = (f"The {code(f['references'])} row this row belongs to." if f["owner"]
+                       else f"The {code(f['references'])} row this row links to.")
+    if name in table["natural_key"]:
+        keys.append("NK")
+    if column.get("unique") and "NK" not in keys and "PK" not in keys:
+        keys.append("unique")
+    if meaning:
+        return ", ".join(keys), meaning
+    if table["name"] in META_MEANING and role in META_ROLES:
+        return ", ".join(keys), META_MEANING[table["name"]][1].get(name, "")
+    if name == table.get("position_column"):
+        return ", ".join(keys), "Position of the element in its list in the input cell, counted from 1."
+    srcs = _sources(table)
+    source = column.get("source")
+    if role == "record":
+        if name in table["natural_key"]:
+            return ", ".join(keys), "Natural key of the record in the export (unique)."
+        if source and "." in source:
+            col, _, path = source.partition(".")
+            return ", ".join(keys), f"Field {code(path)} of the object in column {code(col)}."
+        return ", ".join(keys), f"Column {code(source or name)} of the export, as typed by normalise."
+    if role == "entity":
+        if name in table["natural_key"]:
+            if source:
+                return ", ".join(keys), (f"Identity of the entity: field {code(source)} of the objects in the lists "
+                                         "(unique).")
+            return ", ".join(keys), "The distinct value itself (unique): each value of the lists once."
+        return ", ".join(keys), (f"Attribute of the entity: field {code(source or name)} of its objects. Where one "
+                                 "entity was written with different values, the most frequent one is kept and every "
+                                 f"variant is in {code('attribute_variants')}.")
+    if role == "bridge":
+        return ", ".join(keys), (f"Link attribute: field {code(source or name)} of each element of the list; it "
+                                 "describes this link (the same entity may have another value in another list).")
+    if role == "child":
+        return ", ".join(keys), f"Field {code(source or name)} of each element."
+    return ", ".join(keys), ""
+
+
+def _column_source(table: dict, column: dict) -> str:
+    """Where the values of a column came from in the input, as far as the manifest says."""
+    source = column.get("source")
+    srcs = _sources(table)
+    if not srcs or source is None:
+        if column["name"] in table["primary_key"]:
+            return "assigned by normalise"
+        if column["name"] == table.get("position_column"):
+            return "position in the list"
+        if any(column["name"] in f["columns"] for f in table["foreign_keys"]):
+            return "key of the referenced row"
+        return "\u2014"
+    if table["role"] == "record":
+        return "; ".join(f"{code(f)} column {code(source)}" for f, _ in srcs)
+    parts = []
+    for f, c in srcs:
+        parts.append(f"{code(f)} column {code(c)}" if c else code(f))
+    return "; ".join(parts) + f" \u2192 field {code(source)}"
+
+
+def _type(column: dict) -> str:
+    words = TYPE_WORDS.get(column["type"], column["type"] or column.get("sql_type") or "")
+    return plain(words)
+
+
+def _view_column_meaning(view: dict, column: str, tables: dict) -> str:
+    table = tables.get(view.get("table") or "")
+    if table and column in [c["name"] for c in table["columns"]]:
+        return f"{code(view['table'] + '.' + column)}."
+    if view.get("kind") == "record_summary" and table:
+        if column.startswith("number_of_"):
+            return f"How many elements the record's list {code(column[10:])} has (0 when empty)."
+        bridges = [t for t in tables.values() if owner_fk(t) and owner_fk(t)["references"] == table["name"]]
+        for b in bridges:
+            if b["name"].endswith(column):
+                ent = [f["references"] for f in b["foreign_keys"] if not f["owner"]]
+                shown = display_column(tables[ent[0]]) if ent and ent[0] in tables else "name"
+                return (f"The {code(shown)} of each entity in the list, joined with \"; \" in list order "
+                        f"(from {code(b['name'])}); NULL when the list is empty.")
+        return "A pick: the first entity of a list whose link attribute has a given value (NULL when none)."
+    if view.get("kind") == "entity_summary" and table:
+        if column == "records_in_total":
+            return "In how many distinct records the entity appears, over all its lists."
+        if column.startswith("records_in_"):
+            return f"In how many distinct records the entity appears through {code(column[11:])}."
+        if column.startswith(("first_", "last_")):
+            which = "earliest" if column.startswith("first_") else "latest"
+            return f"Of the records the entity appears in, the {which} (by their date column), or that date."
+        if column == display_column(table):
+            return f"{code(table['name'] + '.' + column)}."
+    return ""
+
+
+def render_dictionary(model: dict) -> str:
+    """The data dictionary of a database read by ``report_html.read_database``, as Markdown."""
+    tables = {t["name"]: t for t in model["tables"]}
+    data_tables = [t for t in model["tables"] if t["role"] not in META_ROLES]
+    meta_tables = [t for t in model["tables"] if t["role"] in META_ROLES]
+    origin = model.get("manifest_origin")
+    out = [f"# Data dictionary: {plain(model['database'])}", "",
+           f"{len(model['tables'])} tables and {len(model['views'])} views. Made by normalise from the database's "
+           "catalog" + (f" and the run's manifest ({plain(origin)})." if origin else
+                        "; no manifest was given, so roles are inferred from the keys and input sources are unknown."),
+           "",
+           "Keys: **PK** primary key (a surrogate key made by normalise), **FK** foreign key (the table and column it "
+           "refers to), **NK** natural key (the identifier from the input). Join a table to another through its FK "
+           "columns. Row counts are those of the database when this file was made.", "",
+           "## Contents", "", "| table | kind | rows | from the input |", "| --- | --- | ---: | --- |"]
+    for t in model["tables"]:
+        out.append(f"| [{code(t['name'])}](#{_anchor(t['name'])}) | {plain(ROLE_WORDS.get(t['role'], t['role'] or ''))} "
+                   f"| {t['rows']:,} | {plain(source_label(t)) or chr(0x2014)} |")
+    for v in model["views"]:
+        out.append(f"| [{code(v['name'])}](#{_anchor(v['name'])}) | view | | "
+                   f"{'of ' + code(v['table']) if v.get('table') else chr(0x2014)} |")
+    out.append("")
+    if data_tables:
+        out += ["## Tables", ""]
+        for t in data_tables:
+            out += _table_section(t, tables)
+    if model["views"]:
+        out += ["## Views", "", "Views are stored queries over the tables; BI tools read them like tables.", ""]
+        for v in model["views"]:
+            out += _view_section(v, tables)
+    if meta_tables:
+        out += ["## Bookkeeping tables", "",
+                "What the run did not load as data, kept so that every input row and nested element is accounted for.",
+                ""]
+        for t in meta_tables:
+            out += _table_section(t, tables)
+    links = [(t, f) for t in model["tables"] for f in t["foreign_keys"]]
+    if links:
+        out += ["## Relationships", "", "| from | to | kind |", "| --- | --- | --- |"]
+        for t, f in links:
+            kind = "at most one per referenced row" if f["unique"] else "many per referenced row"
+            out.append(f"| {code(t['name'] + '.' + ', '.join(f['columns']))} | "
+                       f"{code(f['references'] + '.' + ', '.join(str(c) for c in f['ref_columns']))} | {kind} |")
+        out.append("")
+    return "\n".join(out).rstrip() + "\n"
+
+
+def _anchor(name: str) -> str:
+    """The heading anchor GitHub makes for "`name` ...", approximately: lower case, spaces to dashes."""
+    text = clean(name).lower()
+    return re.sub(r"[^a-z0-9_\- ]", "", text).replace(" ", "-")
+
+
+def _table_section(t: dict, tables: dict) -> list[str]:
+    role = ROLE_WORDS.get(t["role"], t["role"] or "table")
+    out = [f"### {code(t['name'])}", "",
+           f"*{plain(role)}, {t['rows']:,} row{'s' if t['rows'] != 1 else ''}.* {_table_meaning(t, tables)}", ""]
+    facts = []
+    if t["primary_key"]:
+        facts.append("Primary key: " + ", ".join(code(c) for c in t["primary_key"]) + ".")
+    if t["natural_key"]:
+        facts.append("Natural key: " + ", ".join(code(c) for c in t["natural_key"]) + ".")
+    srcs = source_label(t)
+    if srcs:
+        facts.append(f"From the input: {plain(srcs)}.")
+    for u in t["unique"]:
+        if u != t["natural_key"] and len(u) > 1:
+            facts.append("Unique together: " + ", ".join(code(c) for c in u) + ".")
+    if facts:
+        out += [" ".join(facts), ""]
+    out += ["| column | type | empty? | key | from the input | meaning |", "| --- | --- | --- | --- | --- | --- |"]
+    for c in t["columns"]:
+        keys, meaning = _column_meaning(t, c, tables)
+        out.append(f"| {code(c['name'])} | {_type(c)} | {'may be NULL' if c['nullable'] else 'never NULL'} | "
+                   f"{keys} | {_column_source(t, c)} | {meaning} |")
+    out.append("")
+    return out
+
+
+def _view_section(v: dict, tables: dict) -> list[str]:
+    kind = (v.get("kind") or "view").replace("_", " ")
+    of = f" of {code(v['table'])}" if v.get("table") else ""
+    what = {"record_summary": "one row per record, with each list counted and its names joined in list order",
+            "entity_summary": "one row per entity, with the number of distinct records it appears in"}.get(v.get("kind"), "")
+    out = [f"### {code(v['name'])}", "", f"*{plain(kind)}{of}.*" + (f" {what.capitalize()}." if what else ""), "",
+           "| column | meaning |", "| --- | --- |"]
+    for c in v["columns"]:
+        out.append(f"| {code(c['name'])} | {_view_column_meaning(v, c['name'], tables)} |")
+    out.append("")
+    if v.get("sql"):
+        sql = clean(v["sql"])
+        run = max((len(m) for m in re.findall(r"`+", sql)), default=0)
+        fence = "`" * max(3, run + 1)
+        out += ["<details><summary>definition</summary>", "", f"{fence}sql", sql, fence, "", "</details>", ""]
+    return out
+
+
+def write_dictionary(database, path, manifest: dict | None = None) -> str:
+    """Write the data dictionary of a SQLite database to ``path``; returns the path."""
+    from pathlib import Path
+
+    from .report_html import read_database
+
+    model = read_database(database, manifest)
+    Path(path).parent.mkdir(parents=True, exist_ok=True)
+    Path(path).write_text(render_dictionary(model), encoding="utf-8")
+    return str(path)
