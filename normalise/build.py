@@ -6,8 +6,9 @@ partitions built apart agree (see DEVELOPERS.md, "Keys"):
 * a record's key is the line on which its row starts in the file;
 * an entity's key is the first 63 bits of the BLAKE2b hash of its typed
   natural key (``integer:7``, ``text:Ann``);
-* a bridge or child row's key hashes its source column, its owner's key and
-  its position in the list.
+* a bridge or child row owned by a record gets ``record key * 2**24 +
+  position``; one owned by another bridge or child row (a list inside an
+  object) hashes its source column, its owner's key and its position.
 """
 
 from __future__ import annotations
@@ -37,6 +38,26 @@ def key_of(text: str) -> int:
     """
     digest = blake2b(text.encode("utf-8", "surrogatepass"), digest_size=8).digest()
     return int.from_bytes(digest, "big") & _MASK
+
+
+_RECORD_KEY_LIMIT = 1 << 39
+_POSITION_BITS = 24
+
+
+def row_key(source: str, owner_sk: int, position: int) -> int:
+    """The key of a bridge or child row: its record's key and its position, or a hash below that.
+
+    Rows owned by a record get ``record key * 2**24 + position``: keys that grow
+    in file order, which SQLite appends cheaply. Rows owned by other bridge or
+    child rows (lists inside objects) hash their source, owner and position.
+
+    Example:
+        >>> row_key("f:c", 12, 3) == 12 * 2**24 + 3
+        True
+    """
+    if owner_sk < _RECORD_KEY_LIMIT and position < (1 << _POSITION_BITS):
+        return (owner_sk << _POSITION_BITS) | position
+    return key_of(f"{source}:{owner_sk}:{position}")
 
 
 def to_sql_value(value, type_: str):
@@ -311,7 +332,7 @@ def _nested_rows(plan, nested: NestedColumn, value, owner_sk: int, export, i: in
         if not isinstance(value, dict):
             _quarantine_element(quarantine, export, i, nested, None, "expected an object", c)
             return
-        sk = key_of(f"{where}:{owner_sk}")
+        sk = row_key(where, owner_sk, 0)
         rows[nested.table].append((sk, owner_sk, *[to_sql_value(get_path(value, f.path), f.type)
                                                     for f in nested.links]))
         c.elements_written += 1
@@ -324,7 +345,7 @@ def _nested_rows(plan, nested: NestedColumn, value, owner_sk: int, export, i: in
     table = rows[nested.table]
     for position, item in enumerate(items, start=1):
         c.elements_decoded += 1
-        sk = key_of(f"{where}:{owner_sk}:{position}")
+        sk = row_key(where, owner_sk, position)
         if nested.kind == "value-list":
             if item is None or isinstance(item, (dict, list, tuple)):
                 _quarantine_element(quarantine, export, i, nested, position,

@@ -12,6 +12,7 @@ from __future__ import annotations
 
 import re
 
+from .names import singular
 from .report_html import META_ROLES, clean, display_column, owner_fk, source_label
 
 TYPE_WORDS = {
@@ -139,7 +140,7 @@ def _column_meaning(table: dict, column: dict, tables: dict) -> tuple[str, str]:
         keys.append("PK")
         how = {"record": "the line on which the record starts in its export",
                "entity": "a hash of the natural key", "bridge": "a hash of the owner's key and the list position",
-               "child": "a hash of the owner's key and the list position"}.get(role)
+               "child": "a hash of the owner's key and the list position"}.get(role) if not table["inferred"] else None
         meaning = ("Surrogate key made by normalise" + (f" from {how}" if how else "")
                    + ": the same for the same input on every build; use it to join, not as business data.")
     for f in fks:
@@ -188,7 +189,8 @@ def _column_source(table: dict, column: dict) -> str:
     """Where the values of a column came from in the input, as far as the manifest says."""
     source = column.get("source")
     srcs = _sources(table)
-    if not srcs or source is None:
+    value_list = table["role"] == "entity" and column["name"] in table["natural_key"] and srcs
+    if not srcs or (source is None and not value_list):
         if column["name"] in table["primary_key"]:
             return "assigned by normalise"
         if column["name"] == table.get("position_column"):
@@ -198,10 +200,10 @@ def _column_source(table: dict, column: dict) -> str:
         return "\u2014"
     if table["role"] == "record":
         return "; ".join(f"{code(f)} column {code(source)}" for f, _ in srcs)
-    parts = []
-    for f, c in srcs:
-        parts.append(f"{code(f)} column {code(c)}" if c else code(f))
-    return "; ".join(parts) + f" \u2192 field {code(source)}"
+    places = "; ".join(f"{code(f)} column {code(c)}" if c else code(f) for f, c in srcs)
+    if source is None:
+        return f"each value of the lists in {places}"
+    return f"field {code(source)} of the objects in {places}"
 
 
 def _type(column: dict) -> str:
@@ -230,8 +232,18 @@ def _view_column_meaning(view: dict, column: str, tables: dict) -> str:
         if column.startswith("records_in_"):
             return f"In how many distinct records the entity appears through {code(column[11:])}."
         if column.startswith(("first_", "last_")):
-            which = "earliest" if column.startswith("first_") else "latest"
-            return f"Of the records the entity appears in, the {which} (by their date column), or that date."
+            which, rest = column.split("_", 1)
+            which = "earliest" if which == "first" else "latest"
+            owners = [t for t in tables.values() if t["role"] == "record" and singular(t["name"]) == rest]
+            if owners:
+                key = code(owners[0]["natural_key"][0]) if owners[0]["natural_key"] else "key"
+                return (f"The {key} of the {which} {code(owners[0]['name'])} record the entity appears in "
+                        "(by the records' date).")
+            dated = [t for t in tables.values() if t["role"] == "record"
+                     and any(c["name"] == rest for c in t["columns"])]
+            if dated:
+                return f"The {which} {code(rest)} of the records the entity appears in."
+            return f"The natural key of the {which} record the entity appears in (by the records' date column)."
         if column == display_column(table):
             return f"{code(table['name'] + '.' + column)}."
     return ""

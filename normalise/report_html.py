@@ -652,7 +652,7 @@ def _f(v: float) -> str:
 
 def render_diagram(layout: Layout) -> str:
     """The schema as one inline SVG element: a group of class ``table-box`` per table."""
-    out = [f'<svg class="er" xmlns="http://www.w3.org/2000/svg" width="{layout.width}" height="{layout.height}" '
+    out = [f'<svg class="er" width="{layout.width}" height="{layout.height}" '
            f'viewBox="0 0 {layout.width} {layout.height}" role="img" aria-labelledby="er-title">',
            '<title id="er-title">Tables and the foreign keys that link them</title>']
     for band in layout.bands:
@@ -735,7 +735,7 @@ def hbar_chart(items: list[tuple[str, int, str]], *, label_chars: int = 30, widt
     top = max(v for _, v, _ in items) or 1
     row = 22
     height = row * len(items) + 8
-    out = [f'<svg class="chart hbar" xmlns="http://www.w3.org/2000/svg" width="{width}" height="{height}" '
+    out = [f'<svg class="chart hbar" width="{width}" height="{height}" '
            f'viewBox="0 0 {width} {height}" role="img">']
     for i, (label, value, tip) in enumerate(items):
         y = 4 + i * row
@@ -757,7 +757,7 @@ def histogram(bins: list[tuple[str, int]], *, x_title: str, y_title: str) -> str
     height = plot_h + bottom_room + 18
     top = max(c for _, c in bins) or 1
     base = 18 + plot_h
-    out = [f'<svg class="chart hist" xmlns="http://www.w3.org/2000/svg" width="{width}" height="{height}" '
+    out = [f'<svg class="chart hist" width="{width}" height="{height}" '
            f'viewBox="0 0 {width} {height}" role="img">',
            f'<path class="axis" d="M{left - 4},{base} H{width - 8}"/>']
     for i, (label, count) in enumerate(bins):

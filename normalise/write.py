@@ -39,6 +39,9 @@ def metadata_for(plan: Plan) -> sa.MetaData:
         for c in t.columns:
             kind = TYPES[c.type]
             col_type = kind(create_constraint=False) if kind is sa.Boolean else kind()
+            if t.primary_key == [c.name] and c.type == "integer":
+                # SQLite makes an INTEGER PRIMARY KEY the table's rowid: no second index to maintain
+                col_type = sa.BigInteger().with_variant(sa.INTEGER(), "sqlite")
             cols.append(sa.Column(c.name, col_type, nullable=c.nullable and c.name not in t.primary_key,
                                   unique=c.unique, autoincrement=False))
         args = [sa.PrimaryKeyConstraint(*t.primary_key, name=f"pk_{t.name}")]
@@ -48,7 +51,10 @@ def metadata_for(plan: Plan) -> sa.MetaData:
         for u in t.unique:
             args.append(sa.UniqueConstraint(*u, name=f"uq_{t.name}_{'_'.join(u)}"))
         table = sa.Table(t.name, md, *cols, *args)
+        keyed = [t.primary_key] + t.unique + [[c.name] for c in t.columns if c.unique]
         for fk in t.foreign_keys:
+            if any(k[: len(fk.columns)] == fk.columns for k in keyed):
+                continue  # a key that starts with these columns already indexes them
             sa.Index(f"ix_{t.name}_{'_'.join(fk.columns)}", *[table.c[c] for c in fk.columns])
     return md
 
