@@ -121,31 +121,56 @@ class Built:
     conflicts: int = 0
     merges: list[str] = field(default_factory=list)
     cells_quarantined_by_file: dict = field(default_factory=dict)  # every input file, joined ones too
+    updates: dict = field(default_factory=dict)  # entity table -> rows to rewrite with their chosen values
+
+
+class _ValueTable:
+    """The distinct values of a list of scalars, and those first seen since they were last taken."""
+
+    def __init__(self):
+        self.rows: dict[str, tuple] = {}  # canonical -> (sk, value)
+        self.new: list[tuple] = []
 
 
 class _Entities:
-    """Occurrences of each entity, to choose attribute values by frequency."""
+    """Occurrences of each entity, to choose attribute values by frequency.
+
+    An entity's row is made when it is first seen (so it can be written before
+    the bridge rows that refer to it); ``chosen`` later gives the rows whose
+    values the counts over all occurrences changed.
+    """
 
     def __init__(self, group):
         self.group = group
-        self.seen: dict[str, tuple] = {}  # canonical -> (sk, natural key value)
+        self.seen: dict = {}  # natural key value -> (canonical text, sk)
         self.values: dict[str, dict[str, Counter]] = {}
+        self.first: dict[str, tuple] = {}  # canonical -> the row as first written
+        self.new_rows: list[tuple] = []
+        self.keys = [(f.column, f.path[0], f.type) for f in group.attributes]
 
     def add(self, ident, obj: dict) -> int:
         group = self.group
-        value = ident if group.identity_type != "integer" or isinstance(ident, int) else ident
-        text = canonical(value, group.identity_type)
-        entry = self.seen.get(text)
-        if entry is None:
-            entry = self.seen[text] = (key_of(text), to_sql_value(value, group.identity_type))
-            self.values[text] = {f.column: Counter() for f in group.attributes}
-        counters = self.values[text]
-        for f in group.attributes:
-            key = f.path[0]
+        hit = self.seen.get((type(ident), ident))
+        if hit is None:
+            text = canonical(ident, group.identity_type)
+            sk = key_of(text)
+            hit = self.seen[(type(ident), ident)] = (text, sk)
+            if text not in self.values:
+                self.values[text] = {column: Counter() for column, _, _ in self.keys}
+                row = (sk, to_sql_value(ident, group.identity_type),
+                       *[to_sql_value(obj.get(key), t) for _, key, t in self.keys])
+                self.first[text] = row
+                self.new_rows.append(row)
+        counters = self.values[hit[0]]
+        for column, key, _ in self.keys:
             if key in obj:
                 v = obj[key]
-                counters[f.column][v if not isinstance(v, (list, dict)) else json.dumps(v)] += 1
-        return entry[0]
+                counters[column][v if not isinstance(v, (list, dict)) else json.dumps(v)] += 1
+        return hit[1]
+
+    def take_new_rows(self) -> list[tuple]:
+        rows, self.new_rows = self.new_rows, []
+        return rows
 
 
 META_TABLES = ("rejected_rows", "set_aside_rows", "unmatched_rows", "quarantined_cells", "attribute_variants")
@@ -167,7 +192,7 @@ class Builder:
         self.meta: dict[str, list[tuple]] = {name: list((extra or {}).get(name, [])) for name in META_TABLES}
         self.rows: dict[str, list[tuple]] = {t.name: [] for t in plan.tables if t.name not in self.meta}
         self.entities = {g.table: _Entities(g) for g in plan.entities}
-        self.values: dict[str, dict] = {}  # value table -> {canonical: (sk, value)}
+        self.values: dict[str, _ValueTable] = {}
         self.counts: dict[str, FileCounts] = {}
         self.quarantined_by_file: Counter = Counter()
         self.first_seen: dict[str, dict] = {}  # record table -> {natural key: line kept}
@@ -218,41 +243,49 @@ class Builder:
                              meta["quarantined_cells"])
 
     def take_rows(self) -> dict[str, list[tuple]]:
-        """The record, bridge and child rows made since the last call."""
+        """Rows made since the last call: records, bridges, children, and entities and values first seen."""
         taken = self.rows
         self.rows = {name: [] for name in taken}
+        for table, acc in self.entities.items():
+            taken[table] = acc.take_new_rows()
+        for table, found in self.values.items():
+            taken[table], found.new = found.new, []
         return taken
 
     def finish(self) -> Built:
-        """Entity, value and meta rows, and the counts; call once, after the last chunk."""
+        """Meta rows, counts, and the entity rows whose chosen values differ from those first written.
+
+        Call once, after the last chunk (and after the last ``take_rows``).
+        """
         rows = self.take_rows()
         conflicts = 0
+        updates: dict[str, list[tuple]] = {}
         for table, acc in self.entities.items():
-            out = rows[table]
-            for text in sorted(acc.seen):
-                sk, natural = acc.seen[text]
+            for text in sorted(acc.first):
+                first = acc.first[text]
+                sk, natural = first[0], first[1]
                 chosen = []
-                for f in acc.group.attributes:
-                    counter = acc.values[text][f.column]
+                for (column, _, type_), counter in zip(acc.keys, acc.values[text].values()):
                     if not counter:
                         chosen.append(None)
                         continue
                     best = counter.most_common(1)[0][0]  # ties go to the first seen: most_common is stable
-                    chosen.append(to_sql_value(best, f.type))
+                    chosen.append(to_sql_value(best, type_))
                     if len(counter) > 1:
                         conflicts += 1
                         for v, n in counter.items():
                             self.meta["attribute_variants"].append(
-                                (table, sk, str(natural), f.column,
+                                (table, sk, str(natural), column,
                                  None if v is None else str(to_sql_value(v, "text")), n, v == best))
-                out.append((sk, natural, *chosen))
-        for table, found in self.values.items():
-            rows[table] = [found[k] for k in sorted(found)]
+                row = (sk, natural, *chosen)
+                if row != first:
+                    updates.setdefault(table, []).append(row)
         for name in META_TABLES:
             rows[name] = [(n, *r) for n, r in enumerate(self.meta[name], start=1)]
         counts = [self.counts[r.path] if r.path in self.counts else FileCounts(r.file, r.path)
                   for r in self.plan.records]
-        return Built(rows, counts, conflicts, cells_quarantined_by_file=dict(self.quarantined_by_file))
+        return Built(rows, counts, conflicts, cells_quarantined_by_file=dict(self.quarantined_by_file),
+                     updates=updates)
 
 
 def build(plan: Plan, exports: list, decoded: dict, extra: dict | None = None) -> Built:
@@ -267,6 +300,10 @@ def build(plan: Plan, exports: list, decoded: dict, extra: dict | None = None) -
     built = builder.finish()
     for name, rows in made.items():
         built.rows[name] = rows + built.rows.get(name, [])
+    for table, changed in built.updates.items():
+        chosen = {row[0]: row for row in changed}
+        built.rows[table] = [chosen.get(row[0], row) for row in built.rows[table]]
+    built.updates = {}
     return built
 
 
@@ -352,10 +389,13 @@ def _nested_rows(plan, nested: NestedColumn, value, owner_sk: int, export, i: in
                                     "null element in a list" if item is None else "nested element in a list of values", c)
                 continue
             text = canonical(item, "text") if not isinstance(item, str) else "text:" + item
-            found = values.setdefault(nested.entity, {})
-            entry = found.get(text)
+            found = values.get(nested.entity)
+            if found is None:
+                found = values[nested.entity] = _ValueTable()
+            entry = found.rows.get(text)
             if entry is None:
-                entry = found[text] = (key_of(text), to_sql_value(item, "text"))
+                entry = found.rows[text] = (key_of(text), to_sql_value(item, "text"))
+                found.new.append(entry)
             table.append((sk, owner_sk, entry[0], position))
             c.elements_written += 1
             continue

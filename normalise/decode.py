@@ -28,7 +28,8 @@ import re
 from collections import Counter
 from dataclasses import dataclass, field
 
-from .literal import CellError, Limits, check_limits, decode_json, decode_python_literal
+from .literal import (CellError, Limits, check_escapes, check_limits, decode_json, decode_python_literal,
+                      lone_surrogate_in)
 from .read import Export
 
 FORMATS = ("json", "python-literal", "delimited", "text")
@@ -200,8 +201,12 @@ _STRICT_JSON = json.JSONDecoder(parse_constant=_no_constant)
 _SURROGATE = re.compile("[\ud800-\udfff]")
 
 
-def _decode_json_column(texts: list[str], limits: Limits) -> list:
-    """Decode JSON cells with one shared decoder; failures get the exact path's message."""
+def _decode_json_column(texts: list[str], limits: Limits, raw_surrogates: bool = True) -> list:
+    """Decode JSON cells with one shared decoder; failures get the exact path's message.
+
+    ``raw_surrogates`` says whether the file had bytes its encoding could not
+    read (kept as lone surrogates); when it had none, cells need no scan for them.
+    """
     values = []
     append = values.append
     decode_one = _STRICT_JSON.decode
@@ -209,9 +214,12 @@ def _decode_json_column(texts: list[str], limits: Limits) -> list:
     for text in texts:
         try:
             if (len(text) > max_chars or text.count("[") + text.count("{") > max_depth
-                    or (not text.isascii() and _SURROGATE.search(text))):
+                    or (raw_surrogates and not text.isascii() and _SURROGATE.search(text))):
                 check_limits(text, limits)
-            append(decode_one(text))
+            value = decode_one(text)
+            if "\\u" in text:
+                check_escapes(text, value)
+            append(value)
         except CellError as exc:
             append(exc)
         except (ValueError, RecursionError):
@@ -321,7 +329,8 @@ def parse_decode_option(spec: str) -> tuple[str, str, str | None]:
 
 
 def decode_column(name: str, cells: list, lines: list[int], file: str,
-                  limits: Limits = Limits(), forced: tuple[str, str | None] | None = None) -> DecodedColumn:
+                  limits: Limits = Limits(), forced: tuple[str, str | None] | None = None,
+                  raw_surrogates: bool = True) -> DecodedColumn:
     """Decode one column of raw cells, detecting its format unless ``forced``.
 
     Example:
@@ -333,6 +342,7 @@ def decode_column(name: str, cells: list, lines: list[int], file: str,
     values: list = [None] * n
     counts: Counter = Counter()
     quarantined: list[QuarantinedCell] = []
+    pending_bad: list[int] = []  # already-decoded cells holding lone surrogates
     text_rows: list[int] = []
     texts: list[str] = []
     kinds: list[str] = []
@@ -349,11 +359,13 @@ def decode_column(name: str, cells: list, lines: list[int], file: str,
                 texts.append(text)
                 kinds.append(kind)
         elif isinstance(cell, (list, dict)):  # JSON Lines: already decoded
-            counts["json"] += 1
-            values[i] = cell if cell else None
             if not cell:
-                counts["json"] -= 1
                 counts["empty"] += 1
+            elif raw_surrogates and lone_surrogate_in(cell):
+                pending_bad.append(i)
+            else:
+                counts["json"] += 1
+                values[i] = cell
         else:  # JSON Lines scalar
             if isinstance(cell, float) and cell != cell:
                 counts["empty"] += 1
@@ -366,11 +378,15 @@ def decode_column(name: str, cells: list, lines: list[int], file: str,
                                            excerpt(text, error.position), error.message))
         counts["invalid"] += 1
 
+    for i in pending_bad:
+        quarantine(i, json.dumps(cells[i], ensure_ascii=True)[:200],
+                   CellError("a string holds a lone surrogate, which is not a character "
+                             "(RFC 8259, section 8.2); it cannot be stored as text", None))
     fmt, sep = forced if forced else _detect_format(texts, kinds)
     if fmt in ("json", "python-literal", "mixed"):
         nested = [k for k, kind in enumerate(kinds) if kind == "nested" or forced]
         primary = fmt if fmt != "mixed" else _dominant_nested(texts, nested)
-        decoded = _decode_many(primary, [texts[k] for k in nested], limits)
+        decoded = _decode_many(primary, [texts[k] for k in nested], limits, raw_surrogates)
         other = "python-literal" if primary == "json" else "json"
         failed = [j for j, v in enumerate(decoded) if isinstance(v, CellError)]
         retry = {}
@@ -445,9 +461,9 @@ def _is_present(value) -> bool:
     return value is not None and not (isinstance(value, (list, dict, tuple, set)) and not value)
 
 
-def _decode_many(fmt: str, texts: list[str], limits: Limits) -> list:
+def _decode_many(fmt: str, texts: list[str], limits: Limits, raw_surrogates: bool = True) -> list:
     if fmt == "json":
-        return _decode_json_column(texts, limits)
+        return _decode_json_column(texts, limits, raw_surrogates)
     return _decode_python_column(texts, limits)
 
 
@@ -494,5 +510,6 @@ def decode(export: Export, limits: Limits = Limits(),
         forced = formats.get(name)
         if forced and forced[0] == "text":
             forced = ("scalar", None)
-        out[name] = decode_column(name, export.cells[name], export.lines, export.path, limits, forced)
+        out[name] = decode_column(name, export.cells[name], export.lines, export.path, limits, forced,
+                                  raw_surrogates=getattr(export, "invalid_bytes", True))
     return out

@@ -64,6 +64,34 @@ def nesting_depth(text: str) -> int:
     return max(0, max(accumulate(1 if b in _OPENERS else -1 for b in brackets)))
 
 
+_SURROGATE_ESCAPE = re.compile(r"\\(u[dD][89a-fA-F]|U0000[dD][89a-fA-F])")
+
+
+def lone_surrogate_in(value) -> bool:
+    """Whether a decoded value holds a string with a lone surrogate (not a character, so not storable)."""
+    stack = [value]
+    while stack:
+        v = stack.pop()
+        if isinstance(v, str):
+            if not v.isascii() and _SURROGATE.search(v):
+                return True
+        elif isinstance(v, dict):
+            stack.extend(v.keys())
+            stack.extend(v.values())
+        elif isinstance(v, (list, tuple, set, frozenset)):
+            stack.extend(v)
+    return False
+
+
+def check_escapes(text: str, value) -> None:
+    """Refuse a value whose escapes (\\ud800...) made a lone surrogate: RFC 8259 section 8.2 calls such
+    strings unpredictable, and no database stores them as text."""
+    if "\\" in text and _SURROGATE_ESCAPE.search(text) and lone_surrogate_in(value):
+        found = _SURROGATE_ESCAPE.search(text)
+        raise CellError("an escape gives a lone surrogate, which is not a character "
+                        "(RFC 8259, section 8.2); it cannot be stored as text", found.start() + 1)
+
+
 def check_limits(text: str, limits: Limits) -> None:
     """Refuse a cell over the size or depth limit, or holding bytes the encoding could not read."""
     if len(text) > limits.max_cell_chars:
@@ -101,7 +129,7 @@ def decode_json(text: str, limits: Limits = Limits()):
     """
     check_limits(text, limits)
     try:
-        return json.loads(text, parse_constant=_refuse_constant)
+        value = json.loads(text, parse_constant=_refuse_constant)
     except CellError as exc:
         name = str(exc).split(" ", 1)[0]
         outside_strings = _JSON_STRING.sub(lambda m: " " * len(m.group()), text)
@@ -114,6 +142,8 @@ def decode_json(text: str, limits: Limits = Limits()):
         raise CellError("too deeply nested to decode", 1) from None
     except ValueError as exc:  # e.g. an integer beyond the interpreter's digit limit
         raise CellError(f"not valid JSON: {exc}", None) from None
+    check_escapes(text, value)
+    return value
 
 
 _NOT_LITERAL = {
@@ -208,7 +238,7 @@ def decode_python_literal(text: str, limits: Limits = Limits()):
     try:
         # literal_eval only converts a tree of literals and refuses anything else;
         # the refusal is then explained with the first offending construct.
-        return ast.literal_eval(tree)
+        value = ast.literal_eval(tree)
     except (ValueError, TypeError, SyntaxError, MemoryError, RecursionError) as exc:
         problem = _describe_non_literal(tree, source)
         if problem is not None:
@@ -216,3 +246,5 @@ def decode_python_literal(text: str, limits: Limits = Limits()):
                 problem.position += shift
             raise problem from None
         raise CellError(f"not a Python literal: {exc}", None) from None
+    check_escapes(text, value)
+    return value

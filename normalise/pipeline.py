@@ -214,6 +214,8 @@ def _build_streaming(path: str, database: str, *, options: Options | None, limit
         built = builder.finish()
         for name in order:
             writer.insert(name, built.rows.get(name, []))
+        for table, rows in built.updates.items():
+            writer.update(table, rows)
     except BaseException:
         writer.abort()
         raise
@@ -224,8 +226,9 @@ def _build_streaming(path: str, database: str, *, options: Options | None, limit
 
 
 def _flush(builder: Builder, writer: SqliteWriter) -> None:
-    for name, rows in builder.take_rows().items():
-        writer.insert(name, rows)
+    rows = builder.take_rows()
+    for name in writer.order:  # referenced tables first: foreign keys are enforced as rows arrive
+        writer.insert(name, rows.get(name, []))
 
 
 def concat(chunks: list):

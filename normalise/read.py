@@ -9,6 +9,7 @@ the reason, never dropped and never fatal.
 
 from __future__ import annotations
 
+import codecs
 import csv
 import io
 import json
@@ -57,6 +58,7 @@ class Export:
     delimiter: str | None = None
     encoding: str = "utf-8"
     chars_read: int = 0  # characters of the file read up to the end of this chunk (for progress)
+    invalid_bytes: bool = True  # whether cells may hold bytes the encoding could not read (lone surrogates)
 
     @property
     def name(self) -> str:
@@ -107,10 +109,25 @@ def _looks_like_json_lines(path: str) -> bool:
     return _json_head(path).startswith(b"{")
 
 
+class _InvalidBytes:
+    """surrogateescape that also notes that it was needed: valid files pay nothing for the check."""
+
+    seen = False
+
+    @classmethod
+    def handle(cls, error: UnicodeDecodeError):
+        cls.seen = True
+        return codecs.lookup_error("surrogateescape")(error)
+
+
+codecs.register_error("normalise-invalid-bytes", _InvalidBytes.handle)
+
+
 def _open_text(path: str, encoding: str) -> io.TextIOWrapper:
-    # surrogateescape keeps undecodable bytes as lone surrogates; the decode
-    # pass quarantines such cells with their position instead of crashing here.
-    return open(path, "r", encoding=encoding, errors="surrogateescape", newline="")
+    # Undecodable bytes are kept as lone surrogates; the decode pass then
+    # quarantines such cells with their position instead of crashing here.
+    _InvalidBytes.seen = False
+    return open(path, "r", encoding=encoding, errors="normalise-invalid-bytes", newline="")
 
 
 def detect_delimiter(sample: str, suffix: str = "") -> str:
@@ -229,7 +246,7 @@ def _iter_delimited(path: str, encoding: str, delimiter: str | None, chunk_rows:
         def chunk(cells, lines, rejected, warnings):
             return Export(path, kind, columns, cells, lines, rejected, warnings,
                           header_names=header_names, delimiter=delimiter, encoding=encoding,
-                          chars_read=tap.chars)
+                          chars_read=tap.chars, invalid_bytes=_InvalidBytes.seen)
 
         cells: dict[str, list] = {c: [] for c in columns}
         store = [cells[c].append for c in columns]

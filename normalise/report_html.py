@@ -172,6 +172,8 @@ def _catalog(conn: sqlite3.Connection, manifest: dict | None) -> dict:
         order = {n: i for i, n in enumerate(known)}
         tables.sort(key=lambda t: order.get(t["name"], len(order)))
     _infer_roles(tables)
+    if not known:  # the catalog's order is the load order: data tables first, the bookkeeping after them
+        tables.sort(key=lambda t: t["role"] in META_ROLES)
     by_name = {t["name"]: t for t in tables}
     for v in views:  # a view's table, when the manifest does not say: the name before "_summary"
         if not v["table"] and v["name"].endswith("_summary") and v["name"][:-8] in by_name:
@@ -405,6 +407,7 @@ class Layout:
     boxes: dict[str, Box]
     bands: list[dict] = field(default_factory=list)  # label, x, y, w, h, kind
     edges: list[dict] = field(default_factory=list)
+    columns: list[tuple[float, float]] = field(default_factory=list)  # (x, width) of the nesting columns
     width: float = 0.0
     height: float = 0.0
 
@@ -608,12 +611,13 @@ def layout_schema(model: dict, rounds: int = 4) -> Layout:
             if f["references"] in boxes:
                 edges.append({"table": t["name"], "index": i, "references": f["references"],
                               "unique": f["unique"], "owner": f["owner"]})
-    return Layout(boxes=boxes, bands=bands, edges=edges, width=math.ceil(width), height=math.ceil(bottom + MARGIN))
+    return Layout(boxes=boxes, bands=bands, edges=edges, columns=list(zip(col_x, col_w)), width=math.ceil(width),
+                  height=math.ceil(bottom + MARGIN))
 
 
 def _band_label(band: dict, tables: dict) -> str:
     if band["kind"] == "entities":
-        return "entities (shared by the lists that name them)"
+        return "entities (shared)"
     if band["kind"] == "meta":
         return "bookkeeping: what was set aside, rejected, quarantined or found in conflict"
     root = tables[band["root"]]
@@ -659,16 +663,62 @@ def render_diagram(layout: Layout) -> str:
         out.append(f'<g class="band band-{band["kind"]}"><rect x="{_f(band["x"])}" y="{_f(band["y"])}" '
                    f'width="{_f(band["w"])}" height="{_f(band["h"])}" rx="6"/>'
                    f'<text x="{_f(band["x"] + 10)}" y="{_f(band["y"] + 16)}">{esc(band["label"], 90)}</text></g>')
-    ends = set()
+    ends: set = set()
+    lanes: dict = defaultdict(int)
     for e in layout.edges:
-        out.append(_edge(layout, e, ends))
+        out.append(_edge(layout, e, ends, lanes))
     for box in layout.boxes.values():
         out.append(_box_svg(box))
     out.append("</svg>")
     return "\n".join(out)
 
 
-def _edge(layout: Layout, e: dict, ends: set) -> str:
+def _waypoint(layout: Layout, column: tuple[float, float], want: float, lanes: dict) -> float:
+    """A height at which a line crosses a column without crossing a box: the free gap nearest ``want``."""
+    x, w = column
+    stack = sorted((b.y, b.y + b.h) for b in layout.boxes.values() if b.x < x + w and x < b.x + b.w)
+    gaps, top = [], -math.inf
+    for y0, y1 in stack:
+        if y0 > top:
+            gaps.append((top, y0))
+        top = max(top, y1)
+    gaps.append((top, math.inf))
+    best = None
+    for lo, hi in gaps:
+        y = min(max(want, lo + 4), hi - 4) if hi - lo > 8 else (lo + hi) / 2
+        if best is None or abs(y - want) < abs(best[0] - want):
+            best = (y, lo, hi)
+    y, lo, hi = best
+    n = lanes[(x, lo)]  # lines through one gap side by side, 3px apart, as far as the gap allows
+    lanes[(x, lo)] += 1
+    shift = (n + 1) // 2 * 3 * (1 if n % 2 else -1)
+    return min(max(y + shift, lo + 2), hi - 2) if hi - lo > 4 else y
+
+
+def _route(layout: Layout, sx: float, sy: float, ex: float, ey: float, lanes: dict) -> str:
+    """A path from (sx, sy) to (ex, ey), horizontal at both ends, through the gaps of the columns between."""
+    lo, hi = min(sx, ex), max(sx, ex)
+    between = sorted((c for c in layout.columns if lo < c[0] and c[0] + c[1] < hi), reverse=sx > ex)
+    d = 1 if ex >= sx else -1
+    points = [(sx, sy)]
+    for x, w in between:
+        mid = x + w / 2
+        want = sy + (ey - sy) * (mid - sx) / (ex - sx)
+        y = _waypoint(layout, (x, w), want, lanes)
+        a, b = (x - 10, x + w + 10) if d > 0 else (x + w + 10, x - 10)
+        points += [(a, y), (b, y)]
+    points.append((ex, ey))
+    path = [f"M{_f(sx)},{_f(sy)}"]
+    for i in range(0, len(points) - 1, 2):
+        (x1, y1), (x2, y2) = points[i], points[i + 1]
+        k = max(24.0, abs(x2 - x1) / 2)
+        path.append(f"C{_f(x1 + d * k)},{_f(y1)} {_f(x2 - d * k)},{_f(y2)} {_f(x2)},{_f(y2)}")
+        if i + 2 < len(points):
+            path.append(f"L{_f(points[i + 2][0])},{_f(points[i + 2][1])}")
+    return " ".join(path)
+
+
+def _edge(layout: Layout, e: dict, ends: set, lanes: dict) -> str:
     child, parent = layout.boxes[e["table"]], layout.boxes[e["references"]]
     line = next(i for i, ln in enumerate(child.lines) if ln[3] == e["index"])
     cy, py = child.row_y(line), parent.row_y(0)
@@ -678,13 +728,15 @@ def _edge(layout: Layout, e: dict, ends: set) -> str:
         sx, d, ex, pd = child.x, -1, parent.x + parent.w, 1
     else:  # same column: round the right-hand side
         sx, d, ex, pd = child.x + child.w, 1, parent.x + parent.w, 1
-    k = max(36.0, abs(ex - sx) / 2)
-    c1 = sx + d * k
-    c2 = ex + pd * k
+    if d == -pd:
+        route = _route(layout, sx, cy, ex, py, lanes)
+    else:
+        k = max(36.0, abs(ex - sx) / 2)
+        route = f"M{_f(sx)},{_f(cy)} C{_f(sx + d * k)},{_f(cy)} {_f(ex + pd * k)},{_f(py)} {_f(ex)},{_f(py)}"
     label = f"{e['table']} \u2192 {e['references']}"
     parts = [f'<g class="fk-edge{" fk-owner" if e["owner"] else ""}"><title>{esc(label)}: '
              f'{"at most one" if e["unique"] else "many"} {esc(e["table"])} rows per {esc(e["references"])} row</title>',
-             f'<path class="fk-line" d="M{_f(sx)},{_f(cy)} C{_f(c1)},{_f(cy)} {_f(c2)},{_f(py)} {_f(ex)},{_f(py)}"/>']
+             f'<path class="fk-line" d="{route}"/>']
     # the child's end: a crow's foot (many) or a bar (at most one), with a circle: there may be none
     if e["unique"]:
         parts.append(f'<path class="fk-mark" d="M{_f(sx + d * 10)},{_f(cy - 6)} V{_f(cy + 6)}"/>')
@@ -1023,9 +1075,7 @@ def _reconciliation_section(model: dict) -> str:
             unmatched = i.get("rows_unmatched", 0) if "joined_into" in i else 0
             out = i["records_loaded"] + i["rows_set_aside"] + i["rows_rejected"] + unmatched
             ok = out == i["rows_read"]
-            check = [("set_aside", i["rows_set_aside"]), ("rejected", i["rows_rejected"])]
-            if "joined_into" in i:
-                check.append(("unmatched", unmatched))
+            check = [("set_aside", i["rows_set_aside"]), ("rejected", i["rows_rejected"]), ("unmatched", unmatched)]
             db = []
             for role, n in check:
                 got = f.get(role, 0)
@@ -1114,13 +1164,13 @@ def _integrity_section(model: dict) -> str:
     rows = [[f"<td>{_code('PRAGMA foreign_key_check')}</td>",
              f'<td class="{"ok" if not integ["foreign_key_violations"] else "bad"}">'
              f'{_num(integ["foreign_key_violations"])} violations</td>',
-             _cell(f"{m['foreign_key_violations']} violations" if "foreign_key_violations" in m else None)],
+             _cell(f"{m['foreign_key_violations']} violations" if "foreign_key_violations" in m else _DASH)],
             [f"<td>{_code('PRAGMA integrity_check')}</td>",
              f'<td class="{"ok" if integ["integrity_check"] == "ok" else "bad"}">{esc(integ["integrity_check"], 300)}</td>',
-             _cell(m.get("integrity_check"))],
+             _cell(m.get("integrity_check", _DASH))],
             ["<td>rows and elements reconciled</td>",
              _cell({True: "yes", False: "NO", None: "unknown (no manifest)"}[_reconciled(model)]),
-             _cell({True: "yes", False: "NO"}.get(m.get("reconciled")))]]
+             _cell({True: "yes", False: "NO"}.get(m.get("reconciled"), _DASH))]]
     out = (_src("SQLite's own checks, run on the database as this report was made; the last column is what the "
                 "build recorded in its manifest")
            + _table_html(["check", "now", "at build"], rows))

@@ -85,9 +85,9 @@ def sqlite_engine(path: str) -> sa.Engine:
 class SqliteWriter:
     """A SQLite database written in one transaction into a temporary file, moved into place when complete.
 
-    ``insert`` may be called many times per table and in any order: foreign keys
-    are checked at the end (``PRAGMA defer_foreign_keys``), before the commit, so a
-    violation writes nothing. Journaling and syncing are off while loading: a
+    ``insert`` may be called many times per table; referenced rows must come
+    first (foreign keys are enforced as rows arrive, and checked once more with
+    ``PRAGMA foreign_key_check`` before the commit), so a violation writes nothing. Journaling and syncing are off while loading: a
     failed load is thrown away whole, never repaired, and the finished file is
     synced once before it is moved into place.
     """
@@ -113,7 +113,6 @@ class SqliteWriter:
             self.db.isolation_level = None
             self.cursor = self.db.cursor()
             self.cursor.execute("BEGIN")
-            self.cursor.execute("PRAGMA defer_foreign_keys=ON")
             self.statements = {}
             self.row_counts: dict[str, int] = {}
             for name in order:  # indexes come after the rows: building them once is faster
@@ -130,6 +129,15 @@ class SqliteWriter:
         if rows:
             self.cursor.executemany(self.statements[name], rows)
             self.row_counts[name] = self.row_counts.get(name, 0) + len(rows)
+
+    def update(self, name: str, rows: list[tuple]) -> None:
+        """Rewrite rows (whole, matched on their first column, the primary key)."""
+        if rows:
+            table = self.md.tables[name]
+            key, *rest = [c.name for c in table.columns]
+            sets = ", ".join(f"{_quote(c)} = ?" for c in rest)
+            self.cursor.executemany(f"UPDATE {_quote(name)} SET {sets} WHERE {_quote(key)} = ?",
+                                    [(*row[1:], row[0]) for row in rows])
 
     def finish(self) -> dict:
         """Indexes, views, SQLite's own checks, commit, and the move into place."""

@@ -1,0 +1,107 @@
+"""End-to-end build against the hand-written way, and the scale run, measured in one run.
+
+    python benchmarks/bench_build.py [--records 50000] [--runs 3] [--scale 10] [--dir /tmp/normalise-bench]
+
+For the 1x export (``--records`` records, two nested object lists of about 30
+links per record, a scalar list and an object column) it runs, ``--runs`` times
+each, ``normalise build`` to SQLite and ``benchmarks/baseline_handwritten.py``
+(per-cell ``ast.literal_eval``/``json.loads``, ``explode``, ``json_normalize``,
+``drop_duplicates``, ``to_sql``), each in a fresh process, and prints the median
+wall time and peak memory (the child's maximum resident set size) side by side.
+With ``--scale N`` it also builds an export N times larger (once) and reports
+its peak memory and its time against N times the 1x median.
+Targets: >= 5x faster and <= 0.5x the memory of the baseline; at 10x, peak
+memory under 2 GiB and time within 12x of the 1x run.
+"""
+
+from __future__ import annotations
+
+import argparse
+import os
+import sqlite3
+import statistics
+import subprocess
+import sys
+import time
+from pathlib import Path
+
+HERE = Path(__file__).resolve().parent
+
+
+def run(cmd: list[str]) -> tuple[float, int]:
+    """Wall seconds and peak resident memory (bytes) of one child process."""
+    start = time.perf_counter()
+    proc = subprocess.Popen(cmd, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE)
+    _, status, usage = os.wait4(proc.pid, 0)
+    elapsed = time.perf_counter() - start
+    err = proc.stderr.read().decode(errors="replace")
+    proc.stderr.close()
+    if os.waitstatus_to_exitcode(status) != 0:
+        raise SystemExit(f"failed: {' '.join(cmd)}\n{err}")
+    return elapsed, usage.ru_maxrss * 1024  # ru_maxrss is in KiB on Linux
+
+
+def ensure_export(path: Path, records: int) -> None:
+    if not path.exists():
+        subprocess.run([sys.executable, str(HERE / "make_export.py"), str(path), "--records", str(records)],
+                       check=True)
+
+
+def count(db: Path, table: str) -> int:
+    with sqlite3.connect(db) as con:
+        return con.execute(f'SELECT count(*) FROM "{table}"').fetchone()[0]
+
+
+def main() -> None:
+    p = argparse.ArgumentParser(description=__doc__, formatter_class=argparse.RawDescriptionHelpFormatter)
+    p.add_argument("--records", type=int, default=50000)
+    p.add_argument("--runs", type=int, default=3)
+    p.add_argument("--scale", type=int, default=0, help="also build an export this many times larger (0: skip)")
+    p.add_argument("--dir", default="/tmp/normalise-bench")
+    p.add_argument("--skip-baseline", action="store_true")
+    a = p.parse_args()
+    work = Path(a.dir)
+    work.mkdir(parents=True, exist_ok=True)
+    export = work / f"export_{a.records}.csv"
+    ensure_export(export, a.records)
+    size_mb = export.stat().st_size / 1e6
+
+    ours, theirs = [], []
+    for _ in range(a.runs):
+        db = work / "normalise.db"
+        ours.append(run([sys.executable, "-m", "normalise", "build", str(export), "--db", str(db),
+                         "--replace", "--quiet"]))
+        if not a.skip_baseline:
+            base_db = work / "baseline.db"
+            if base_db.exists():
+                base_db.unlink()
+            theirs.append(run([sys.executable, str(HERE / "baseline_handwritten.py"), str(export), str(base_db)]))
+    stem = export.stem
+    links = count(db, f"{stem}_contributors") + count(db, f"{stem}_team")
+    if not a.skip_baseline:
+        base_links = count(base_db, "record_contributors") + count(base_db, "record_team")
+        assert links == base_links, f"link counts differ: normalise {links}, baseline {base_links}"
+
+    t_ours = statistics.median(t for t, _ in ours)
+    m_ours = statistics.median(m for _, m in ours)
+    print(f"export: {a.records:,} records, {links:,} links, {size_mb:,.0f} MB; median of {a.runs} runs; "
+          f"{os.cpu_count()} cores")
+    print(f"{'':<26}{'time':>10}{'peak memory':>14}")
+    print(f"{'normalise build':<26}{t_ours:9.1f}s{m_ours / 2**20:11,.0f} MiB")
+    if theirs:
+        t_base = statistics.median(t for t, _ in theirs)
+        m_base = statistics.median(m for _, m in theirs)
+        print(f"{'hand-written baseline':<26}{t_base:9.1f}s{m_base / 2**20:11,.0f} MiB")
+        print(f"normalise: {t_base / t_ours:.1f}x faster (target >= 5x), {m_ours / m_base:.2f}x the memory "
+              f"(target <= 0.5x)")
+    if a.scale:
+        big = work / f"export_{a.records * a.scale}.csv"
+        ensure_export(big, a.records * a.scale)
+        t_big, m_big = run([sys.executable, "-m", "normalise", "build", str(big), "--db",
+                            str(work / "normalise_big.db"), "--replace", "--quiet"])
+        print(f"{a.scale}x export ({big.stat().st_size / 1e9:.1f} GB): {t_big:.1f}s = "
+              f"{t_big / t_ours:.1f}x the 1x time (target <= 12x), peak {m_big / 2**30:.2f} GiB (target < 2 GiB)")
+
+
+if __name__ == "__main__":
+    main()
