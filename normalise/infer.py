@@ -11,6 +11,7 @@ attribute* otherwise (a role or a position that varies from record to record).
 from __future__ import annotations
 
 import re
+from itertools import chain
 from pathlib import Path
 from collections import Counter, defaultdict
 from dataclasses import dataclass
@@ -78,16 +79,26 @@ def measure_dependency(objects: list[dict], key: str, field: str) -> Dependency:
     return Dependency(key, field, occurrences, violations)
 
 
+_MISSING = object()
+
+
 class ObjectTable:
     """Objects as factorised columns, so that many dependencies are measured quickly.
 
     ``measure`` gives what ``measure_dependency`` gives (the pure-Python
-    definition, kept as the reference), with the counting done by pandas.
+    definition, kept as the reference), with the counting done by numpy.
     """
 
     def __init__(self, objects: list[dict]):
         self.objects = objects
+        self._columns: dict = {}
         self._codes: dict = {}
+
+    def column(self, field: str) -> list:
+        found = self._columns.get(field)
+        if found is None:
+            found = self._columns[field] = [o.get(field, _MISSING) for o in self.objects]
+        return found
 
     def codes(self, field: str):
         import numpy as np
@@ -95,11 +106,15 @@ class ObjectTable:
 
         found = self._codes.get(field)
         if found is None:
-            values = [_hashable(o.get(field)) for o in self.objects]
-            codes, _ = pd.factorize(pd.Series(values, dtype=object), use_na_sentinel=False)
-            present = np.fromiter((field in o for o in self.objects), dtype=bool, count=len(self.objects))
-            isnull = np.fromiter((o.get(field) is None for o in self.objects), dtype=bool, count=len(self.objects))
-            found = self._codes[field] = (codes, present, isnull)
+            col = self.column(field)
+            kinds = set(map(type, col))
+            values = [_hashable(v) for v in col] if kinds & {list, dict, set} else col
+            present = np.array([v is not _MISSING for v in col], dtype=bool)
+            isnull = np.array([v is None or v is _MISSING for v in col], dtype=bool)
+            # a missing key reads as None, as in measure_dependency's obj.get(field)
+            values = [None if v is _MISSING else v for v in values] if not present.all() else values
+            codes, _ = pd.factorize(np.array(values, dtype=object), use_na_sentinel=False)
+            found = self._codes[field] = (codes.astype(np.int64), present, isnull)
         return found
 
     def measure(self, key: str, field: str, carrying_only: bool = False) -> Dependency:
@@ -114,7 +129,7 @@ class ObjectTable:
         if not len(kc):
             return Dependency(key, field, 0, 0)
         width = int(vc.max()) + 1
-        pairs, counts = np.unique(kc.astype(np.int64) * width + vc, return_counts=True)
+        pairs, counts = np.unique(kc * width + vc, return_counts=True)
         owner = pairs // width
         total = np.bincount(owner, weights=counts)
         top = np.zeros_like(total)
@@ -161,27 +176,31 @@ def identity_candidates(objects: list[dict], owners: list[int],
         for k in obj:
             if k not in keys:
                 keys.append(k)
+    import numpy as np
+
     out = []
     n = len(objects)
     table = ObjectTable(objects)
+    owner_codes = np.asarray(owners, dtype=np.int64)
     for key in keys:
-        vals = [obj.get(key) for obj in objects]
-        present = [v for v in vals if v is not None]
-        if len(present) < 0.95 * n:
+        col = table.column(key)
+        kinds = set(map(type, col)) - {type(None), type(_MISSING)}
+        if not kinds or not kinds <= {int, str}:
             continue
-        if not all(isinstance(v, (int, str)) and not isinstance(v, bool) for v in present):
+        codes, _, isnull = table.codes(key)
+        present_count = int((~isnull).sum())
+        if present_count < 0.95 * n:
             continue
-        per_list: dict = defaultdict(list)
-        for owner, v in zip(owners, vals):
-            if v is not None:
-                per_list[owner].append(v)
-        dup = sum(len(v) - len(set(v)) for v in per_list.values())
-        unique_within = 1 - dup / max(1, len(present))
+        present_codes = codes[~isnull]
+        width = int(present_codes.max()) + 1
+        pairs = np.unique(owner_codes[~isnull] * width + present_codes)
+        unique_within = len(pairs) / max(1, present_count)  # 1 - repeats inside a list / values
         if unique_within < 0.99:
             continue
-        distinct = len(set(present))
+        distinct = len(np.unique(present_codes))
         if distinct < 2 and n > 1:
             continue
+        present = [v for v in col if v is not None and v is not _MISSING]
         determines = []
         for other in keys:
             if other == key:
@@ -233,31 +252,20 @@ def value_type(values) -> str:
     """
     from .survey import scalar_type
 
-    kinds = set()
-    texts = []
-    for v in values:
-        if v is None:
-            continue
-        if isinstance(v, bool):
-            kinds.add("boolean")
-        elif isinstance(v, int):
-            kinds.add("integer" if -(1 << 63) <= v < (1 << 63) else "text")
-        elif isinstance(v, float):
-            kinds.add("real")
-        elif isinstance(v, str):
-            kinds.add("str")
-            texts.append(v)
-        else:
-            kinds.add("text")
+    kinds = set(map(type, values)) - {type(None)}
     if not kinds:
         return "text"
-    if kinds == {"str"}:
+    if kinds == {bool}:
+        return "boolean"
+    if kinds <= {int, float}:
+        ints = [v for v in values if type(v) is int] if int in kinds else []
+        if ints and not (-(1 << 63) <= min(ints) and max(ints) < (1 << 63)):
+            return "text"  # beyond 64 bits: kept exactly as text
+        return "integer" if kinds == {int} else "real"
+    if kinds == {str}:
+        texts = [v for v in values if v is not None]
         t = scalar_type(texts[:10000])
         return t if t in ("date", "timestamp") else "text"
-    if len(kinds) == 1:
-        return kinds.pop()
-    if kinds == {"integer", "real"}:
-        return "real"
     return "text"
 
 
@@ -292,6 +300,27 @@ def detect_natural_key(columns: list[str], values: dict[str, list], types: dict[
         if best is None or score > best[0]:
             best = (score, name)
     return None if best is None else best[1]
+
+
+def shape_of(values: list) -> str:
+    """The dominant shape of a column's decoded values: object-list, object, scalar-list or scalar.
+
+    Example:
+        >>> shape_of([[{"a": 1}], None, [{"a": 2}, {"a": 3}]]), shape_of([["x"], ["y", "z"]]), shape_of([{"a": 1}])
+        ('object-list', 'scalar-list', 'object')
+    """
+    counts = Counter()
+    for v in values:
+        if v is None:
+            continue
+        if isinstance(v, (list, tuple)):
+            present = [x for x in v if x is not None]
+            counts["object-list" if present and all(type(x) is dict for x in present) else "scalar-list"] += 1
+        elif isinstance(v, dict):
+            counts["object"] += 1
+        else:
+            counts["scalar"] += 1
+    return counts.most_common(1)[0][0] if counts else "scalar"
 
 
 def objects_of(values: list) -> tuple[list[dict], list[int]]:
@@ -331,39 +360,38 @@ def entity_attributes(objects: list[dict], identity: str, fields: list[str],
     return out
 
 
-def scalar_fields(objects: list[dict]) -> tuple[list[list[str]], list[list[str]]]:
-    """Paths to scalar fields (flattening sub-objects) and to list fields, in first-seen order."""
+def scalar_fields(objects: list[dict], prefix: list[str] | None = None) -> tuple[list[list[str]], list[list[str]]]:
+    """Paths to scalar fields (flattening sub-objects) and to list fields, in first-seen order.
+
+    A key that holds a non-empty list anywhere is a list field; one that holds
+    only objects (or nulls) is flattened into its sub-keys; any other key is a
+    scalar field, even when it is always null. Keys only ever holding empty
+    lists carry nothing and are left out.
+
+    Example:
+        >>> scalar_fields([{"id": 1, "tags": ["a"], "place": {"city": "X"}}, {"id": 2, "note": None}])
+        ([['id'], ['place', 'city'], ['note']], [['tags']])
+    """
+    prefix = prefix or []
+    types: dict = {}
+    for k in dict.fromkeys(chain.from_iterable(objects)):  # every key, in first-seen order
+        types[k] = set(map(type, [o.get(k) for o in objects]))
     scalars: list[list[str]] = []
     lists: list[list[str]] = []
-    seen: set = set()
-
-    def visit(obj: dict, prefix: list[str]) -> None:
-        for k, v in obj.items():
-            path = prefix + [str(k)]
-            key = tuple(path)
-            if isinstance(v, dict):
-                visit(v, path)
-                continue
-            if key in seen:
-                continue
-            if isinstance(v, (list, tuple, set)):
-                if v:
-                    seen.add(key)
-                    lists.append(path)
-            elif v is not None:
-                seen.add(key)
+    for k, kinds in types.items():
+        path = prefix + [str(k)]
+        if kinds & {list, tuple, set}:
+            if any(isinstance(o.get(k), (list, tuple, set)) and o.get(k) for o in objects):
+                lists.append(path)
+            elif kinds - {list, tuple, set, type(None)}:
                 scalars.append(path)
-
-    for o in objects:
-        visit(o, [])
-    # a key holding a list in some objects and a scalar in others is a list
-    list_keys = {tuple(p) for p in lists}
-    scalars = [p for p in scalars if tuple(p) not in list_keys]
-    for o in objects:  # keys that are always null still become columns
-        for k, v in o.items():
-            if v is None and (str(k),) not in seen:
-                seen.add((str(k),))
-                scalars.append([str(k)])
+        elif dict in kinds and kinds <= {dict, type(None)}:
+            inner = [o[k] for o in objects if isinstance(o.get(k), dict)]
+            sub_scalars, sub_lists = scalar_fields(inner, path)
+            scalars += sub_scalars
+            lists += sub_lists
+        else:
+            scalars.append(path)
     return scalars, lists
 
 
@@ -387,26 +415,56 @@ def _entity_name(identity: str, column: str) -> str:
 
 
 def _agreement(a: list[dict], b: list[dict], identity: str) -> tuple[int, float]:
-    """Common identities of two object sets and the share of shared attributes that agree."""
-    def summary(objects):
-        out: dict = defaultdict(lambda: defaultdict(Counter))
-        for o in objects:
-            k = o.get(identity)
-            if k is None:
-                continue
-            for f, v in o.items():
-                if f != identity and is_scalar(v):
-                    out[_hashable(k)][f][_hashable(v)] += 1
-        return out
+    """Common identities of two object sets and the share of shared attributes that agree.
 
-    sa, sb = summary(a), summary(b)
-    common = set(sa) & set(sb)
+    For each identity in both sets and each scalar attribute both carry, the
+    most frequent value on each side (ties to the first seen) is compared.
+    """
+    import numpy as np
+
+    table = ObjectTable(a + b)
+    side = np.zeros(len(a) + len(b), dtype=bool)
+    side[len(a):] = True
+    ident, _, inull = table.codes(identity)
+    in_a = set(np.unique(ident[~inull & ~side]).tolist())
+    in_b = set(np.unique(ident[~inull & side]).tolist())
+    common = in_a & in_b
+    if not common:
+        return 0, 1.0
+    fields = [f for f in _keys_of(a) if f != identity and f in set(_keys_of(b))]
     checks = agree = 0
-    for k in common:
-        for f in set(sa[k]) & set(sb[k]):
-            checks += 1
-            agree += sa[k][f].most_common(1)[0][0] == sb[k][f].most_common(1)[0][0]
+    mask_common = np.isin(ident, np.fromiter(common, dtype=np.int64)) & ~inull
+    for f in fields:
+        col = table.column(f)
+        if set(map(type, col)) & {list, dict, tuple, set}:
+            continue
+        vc, present, _ = table.codes(f)
+        tops = []
+        for which in (False, True):
+            keep = mask_common & present & (side == which)
+            tops.append(_most_frequent(ident[keep], vc[keep]))
+        shared = tops[0].keys() & tops[1].keys()
+        checks += len(shared)
+        agree += sum(tops[0][k] == tops[1][k] for k in shared)
     return len(common), (agree / checks if checks else 1.0)
+
+
+def _keys_of(objects: list[dict]) -> list[str]:
+    return list(dict.fromkeys(chain.from_iterable(objects)))
+
+
+def _most_frequent(keys, values) -> dict:
+    """Per key code, the most frequent value code (ties to the smallest, i.e. first-seen, code)."""
+    import numpy as np
+
+    if not len(keys):
+        return {}
+    width = int(values.max()) + 1
+    pairs, counts = np.unique(keys * width + values, return_counts=True)
+    order = np.lexsort((pairs % width, -counts, pairs // width))
+    k_sorted = (pairs // width)[order]
+    first = np.unique(k_sorted, return_index=True)[1]
+    return dict(zip(k_sorted[first].tolist(), (pairs % width)[order][first].tolist()))
 
 
 def infer_plan(exports: list, decoded: dict, options: Options | None = None) -> "Plan":
@@ -432,7 +490,7 @@ def infer_plan(exports: list, decoded: dict, options: Options | None = None) -> 
         for name, col in columns.items():
             shape = "scalar"
             if col.encoding not in ("scalar", "empty"):
-                shape = profile_values(col.values).shape
+                shape = shape_of(col.values)
             if shape == "scalar":
                 t = scalar_column_type(col.values)
                 scalar_values[name] = col.values
@@ -509,6 +567,9 @@ def _name_children(nested, owner_table: str, tables: Namer) -> None:
 
 
 def _type_at(objects: list[dict], path: list[str]) -> str:
+    if len(path) == 1:
+        key = path[0]
+        return value_type([o.get(key) for o in objects])
     return value_type([get_path(o, path) for o in objects])
 
 
