@@ -124,6 +124,52 @@ class Built:
     updates: dict = field(default_factory=dict)  # entity table -> rows to rewrite with their chosen values
 
 
+class _Audit:
+    """What the model, inferred from the first records, could not hold: reported, never dropped quietly.
+
+    A key that appears in objects but not in the plan, and a value that does not
+    fit its column's type, each become rows of ``quarantined_cells`` (one per
+    column and key, with the first line and the count).
+    """
+
+    def __init__(self, quarantine: list):
+        self.quarantine = quarantine
+        self._known: dict[int, frozenset] = {}
+        self.unplanned: dict[tuple, list] = {}  # (file, column, key) -> [first line, count]
+        self.mismatched: dict[tuple, list] = {}  # (file, column, type) -> [first line, count, example]
+
+    def known(self, nested: NestedColumn, entities: dict) -> frozenset:
+        found = self._known.get(id(nested))
+        if found is None:
+            keys = {f.path[0] for f in nested.links} | {c.path.split(".")[0] for c in nested.children}
+            if nested.identity:
+                keys.add(nested.identity)
+            if nested.kind == "entity-list":
+                keys |= {f.path[0] for f in entities[nested.entity].group.attributes}
+            found = self._known[id(nested)] = frozenset(keys)
+        return found
+
+    def note_keys(self, nested: NestedColumn, keys, path: str, line: int) -> None:
+        for key in keys:
+            entry = self.unplanned.setdefault((path, nested.column, str(key)), [line, 0])
+            entry[1] += 1
+
+    def note_type(self, path: str, column: str, type_: str, value, line: int) -> None:
+        entry = self.mismatched.setdefault((path, column, type_), [line, 0, value])
+        entry[1] += 1
+
+    def report(self) -> None:
+        for (path, column, key), (line, n) in self.unplanned.items():
+            self.quarantine.append((path, line, f"{column}.{key}", None, f"key {key!r}",
+                                    f"key {key!r} appears in {n} object(s) from this line on but is not in the "
+                                    f"model (inferred from the first records); its values were not stored: "
+                                    f"write a plan with `normalise plan` and add it"))
+        for (path, column, type_), (line, n, example) in self.mismatched.items():
+            self.quarantine.append((path, line, column, None, repr(example)[:40],
+                                    f"{n} value(s) from this line on are not {type_}, the column's type "
+                                    f"(inferred from the first records); they were stored as NULL"))
+
+
 class _ValueTable:
     """The distinct values of a list of scalars, and those first seen since they were last taken."""
 
@@ -196,6 +242,7 @@ class Builder:
         self.counts: dict[str, FileCounts] = {}
         self.quarantined_by_file: Counter = Counter()
         self.first_seen: dict[str, dict] = {}  # record table -> {natural key: line kept}
+        self.audit = _Audit(self.meta["quarantined_cells"])
 
     def add(self, export, columns: dict) -> None:
         """Rows of one chunk of one export (``columns`` is its decoded columns)."""
@@ -230,6 +277,10 @@ class Builder:
         for i in kept:
             sk = record_keys[i]
             row = [sk] + [to_sql_value(vals[i], t) for vals, t in scalar_cols]
+            if None in row:
+                for (vals, t), f, stored in zip(scalar_cols, record.scalars, row[1:]):
+                    if stored is None and vals[i] is not None:
+                        self.audit.note_type(export.path, f.column, t, vals[i], export.lines[i])
             for nested in object_columns:
                 obj = columns[nested.column].values[i]
                 obj = obj if isinstance(obj, dict) else {}
@@ -240,7 +291,7 @@ class Builder:
                 if value is None:
                     continue
                 _nested_rows(self.plan, nested, value, sk, export, i, rows, self.entities, self.values, c,
-                             meta["quarantined_cells"])
+                             self.audit)
 
     def take_rows(self) -> dict[str, list[tuple]]:
         """Rows made since the last call: records, bridges, children, and entities and values first seen."""
@@ -258,6 +309,7 @@ class Builder:
         Call once, after the last chunk (and after the last ``take_rows``).
         """
         rows = self.take_rows()
+        self.audit.report()
         conflicts = 0
         updates: dict[str, list[tuple]] = {}
         for table, acc in self.entities.items():
@@ -352,7 +404,7 @@ def _keep(record: RecordSource, export, columns, set_aside: list, first: dict | 
 
 
 def _nested_rows(plan, nested: NestedColumn, value, owner_sk: int, export, i: int, rows, entities,
-                 values, c: FileCounts, quarantine: list) -> None:
+                 values, c: FileCounts, audit: _Audit) -> None:
     """Rows of one nested value (and of the lists inside it), owned by ``owner_sk``."""
     where = f"{nested.file}:{nested.column}" + (f".{nested.path}" if nested.path else "")
     if nested.kind == "object-columns":
@@ -362,12 +414,12 @@ def _nested_rows(plan, nested: NestedColumn, value, owner_sk: int, export, i: in
             for child in nested.children:
                 inner = get_path(value, child.path.split("."))
                 if inner:
-                    _nested_rows(plan, child, inner, owner_sk, export, i, rows, entities, values, c, quarantine)
+                    _nested_rows(plan, child, inner, owner_sk, export, i, rows, entities, values, c, audit)
         return
     if nested.kind == "object-child":
         c.elements_decoded += 1
         if not isinstance(value, dict):
-            _quarantine_element(quarantine, export, i, nested, None, "expected an object", c)
+            _quarantine_element(audit.quarantine, export, i, nested, None, "expected an object", c)
             return
         sk = row_key(where, owner_sk, 0)
         rows[nested.table].append((sk, owner_sk, *[to_sql_value(get_path(value, f.path), f.type)
@@ -376,7 +428,7 @@ def _nested_rows(plan, nested: NestedColumn, value, owner_sk: int, export, i: in
         for child in nested.children:
             inner = get_path(value, child.path.split("."))
             if inner:
-                _nested_rows(plan, child, inner, sk, export, i, rows, entities, values, c, quarantine)
+                _nested_rows(plan, child, inner, sk, export, i, rows, entities, values, c, audit)
         return
     items = value if isinstance(value, (list, tuple)) else [value]
     table = rows[nested.table]
@@ -385,7 +437,7 @@ def _nested_rows(plan, nested: NestedColumn, value, owner_sk: int, export, i: in
         sk = row_key(where, owner_sk, position)
         if nested.kind == "value-list":
             if item is None or isinstance(item, (dict, list, tuple)):
-                _quarantine_element(quarantine, export, i, nested, position,
+                _quarantine_element(audit.quarantine, export, i, nested, position,
                                     "null element in a list" if item is None else "nested element in a list of values", c)
                 continue
             text = canonical(item, "text") if not isinstance(item, str) else "text:" + item
@@ -400,13 +452,21 @@ def _nested_rows(plan, nested: NestedColumn, value, owner_sk: int, export, i: in
             c.elements_written += 1
             continue
         if not isinstance(item, dict):
-            _quarantine_element(quarantine, export, i, nested, position, "expected an object in a list of objects", c)
+            _quarantine_element(audit.quarantine, export, i, nested, position, "expected an object in a list of objects", c)
             continue
         links = [to_sql_value(get_path(item, f.path), f.type) for f in nested.links]
+        known = audit.known(nested, entities)
+        if not item.keys() <= known:
+            audit.note_keys(nested, item.keys() - known, export.path, export.lines[i])
+        if None in links:
+            for f, out in zip(nested.links, links):
+                if out is None and get_path(item, f.path) is not None:
+                    audit.note_type(export.path, f"{nested.column}.{f.column}", f.type, get_path(item, f.path),
+                                    export.lines[i])
         if nested.kind == "entity-list":
             ident = item.get(nested.identity)
             if ident is None or isinstance(ident, (dict, list, tuple, bool)):
-                _quarantine_element(quarantine, export, i, nested, position,
+                _quarantine_element(audit.quarantine, export, i, nested, position,
                                     f"object without a usable {nested.identity!r}", c)
                 continue
             entity_sk = entities[nested.entity].add(ident, item)
@@ -417,10 +477,10 @@ def _nested_rows(plan, nested: NestedColumn, value, owner_sk: int, export, i: in
         for child in nested.children:
             inner = get_path(item, child.path.split("."))
             if inner:
-                _nested_rows(plan, child, inner, sk, export, i, rows, entities, values, c, quarantine)
+                _nested_rows(plan, child, inner, sk, export, i, rows, entities, values, c, audit)
 
 
-def _quarantine_element(quarantine, export, i, nested, position, message, c: FileCounts) -> None:
+def _quarantine_element(quarantine: list, export, i, nested, position, message, c: FileCounts) -> None:
     column = nested.column + (f".{nested.path}" if nested.path else "")
     path, line = export.path, export.lines[i]
     origin = getattr(export, "origin", {}).get(nested.column)
