@@ -4,6 +4,7 @@ from .decode import DecodedColumn, QuarantinedCell, decode, decode_column
 from .errors import NormaliseError, UnreadableFile, UsageError
 from .literal import CellError, Limits, decode_json, decode_python_literal
 from .read import Export, RejectedRow, read
+from .pipeline import build_database, make_plan
 from .survey import survey
 
 __all__ = [
@@ -16,10 +17,12 @@ __all__ = [
     "RejectedRow",
     "UnreadableFile",
     "UsageError",
+    "build_database",
     "decode",
     "decode_column",
     "decode_json",
     "decode_python_literal",
+    "make_plan",
     "read",
     "survey",
 ]
