@@ -124,7 +124,8 @@ def _table_meaning(table: dict, tables: dict) -> str:
                     f"one row per element" + (", in list order" if table["position_column"] else "")
                     + "; the columns besides the keys describe the link, not the entity.")
         if fk["unique"]:
-            return f"The fields of the object in {where or 'a nested column'}, at most one row per {code(fk['references'])} row."
+            return (f"The fields of the object in {where or 'a nested column'}, at most one row per "
+                    f"{code(fk['references'])} row.")
         return (f"One row per element of the list in {where or 'a nested column'}, under its "
                 f"{code(fk['references'])} row" + (", in list order" if table["position_column"] else "") + ".")
     return "A table of the database (its role is not recorded)."
@@ -159,7 +160,6 @@ def _column_meaning(table: dict, column: dict, tables: dict) -> tuple[str, str]:
         return ", ".join(keys), META_MEANING[table["name"]][1].get(name, "")
     if name == table.get("position_column"):
         return ", ".join(keys), "Position of the element in its list in the input cell, counted from 1."
-    srcs = _sources(table)
     source = column.get("source")
     if role == "record":
         if name in table["natural_key"]:
@@ -265,7 +265,8 @@ def render_dictionary(model: dict) -> str:
            "columns. Row counts are those of the database when this file was made.", "",
            "## Contents", "", "| table | kind | rows | from the input |", "| --- | --- | ---: | --- |"]
     for t in model["tables"]:
-        out.append(f"| [{code(t['name'])}](#{_anchor(t['name'])}) | {plain(ROLE_WORDS.get(t['role'], t['role'] or ''))} "
+        kind = plain(ROLE_WORDS.get(t["role"], t["role"] or ""))
+        out.append(f"| [{code(t['name'])}](#{_anchor(t['name'])}) | {kind} "
                    f"| {t['rows']:,} | {plain(source_label(t)) or chr(0x2014)} |")
     for v in model["views"]:
         out.append(f"| [{code(v['name'])}](#{_anchor(v['name'])}) | view | | "
@@ -332,7 +333,8 @@ def _view_section(v: dict, tables: dict) -> list[str]:
     kind = (v.get("kind") or "view").replace("_", " ")
     of = f" of {code(v['table'])}" if v.get("table") else ""
     what = {"record_summary": "one row per record, with each list counted and its names joined in list order",
-            "entity_summary": "one row per entity, with the number of distinct records it appears in"}.get(v.get("kind"), "")
+            "entity_summary": "one row per entity, with the number of distinct records it appears in",
+            }.get(v.get("kind"), "")
     out = [f"### {code(v['name'])}", "", f"*{plain(kind)}{of}.*" + (f" {what.capitalize()}." if what else ""), "",
            "| column | meaning |", "| --- | --- |"]
     for c in v["columns"]:

@@ -219,8 +219,11 @@ def _build_streaming(path: str, database: str, *, options: Options | None, limit
     except BaseException:
         writer.abort()
         raise
+    def describe(checks):
+        return manifest(plan, built, os.fspath(database), checks, None, row_counts=writer.row_counts)
+
     integrity = writer.finish()
-    result = manifest(plan, built, os.fspath(database), integrity, None, row_counts=writer.row_counts)
+    result = describe(integrity)
     result["_plan"] = plan
     return result
 

@@ -211,7 +211,8 @@ def _table(conn: sqlite3.Connection, name: str, known: dict | None) -> dict:
     for _cid, cname, ctype, notnull, _default, in_pk in info:
         k = known_cols.get(cname, {})
         base = (ctype or "").split("(")[0].strip().upper()
-        columns.append({"name": cname, "sql_type": ctype or "", "type": k.get("type") or _SQL_TYPES.get(base, base.lower()),
+        columns.append({"name": cname, "sql_type": ctype or "",
+                        "type": k.get("type") or _SQL_TYPES.get(base, base.lower()),
                         "nullable": not notnull and not in_pk, "source": k.get("source"),
                         "unique": [cname] in uniques})
     table = {"name": name, "rows": rows, "columns": columns, "primary_key": pk, "foreign_keys": foreign_keys,
@@ -313,7 +314,8 @@ def _collect(conn: sqlite3.Connection, model: dict, head_rows: int) -> dict:
                 data["by_file"].setdefault(file, {})[table["role"]] = n
         if table["role"] == "variants" and {"entity_table", "entity_sk", "attribute"} <= set(cols):
             data["meta"]["variants"]["conflicts"] = conn.execute(
-                f"SELECT count(*) FROM (SELECT DISTINCT entity_table, entity_sk, attribute FROM {_q(name)})").fetchone()[0]
+                f"SELECT count(*) FROM (SELECT DISTINCT entity_table, entity_sk, attribute FROM {_q(name)})"
+            ).fetchone()[0]
     for entity in (t for t in model["tables"] if t["role"] == "entity" and len(t["primary_key"]) == 1):
         refs = [(t["name"], f["columns"][0]) for t in model["tables"] for f in t["foreign_keys"]
                 if f["references"] == entity["name"] and not f["owner"] and len(f["columns"]) == 1
@@ -432,7 +434,8 @@ def _box(table: dict) -> Box:
     for c in table["natural_key"]:
         if c not in table["primary_key"]:
             lines.append(("nk", "NK", c, None))
-    shown = set(table["primary_key"]) | set(table["natural_key"]) | {c for f in table["foreign_keys"] for c in f["columns"]}
+    shown = set(table["primary_key"]) | set(table["natural_key"])
+    shown |= {c for f in table["foreign_keys"] for c in f["columns"]}
     more = len([c for c in table["columns"] if c["name"] not in shown])
     if more:
         lines.append(("more", "", f"+ {more} more column{'s' if more != 1 else ''}", None))
@@ -735,7 +738,8 @@ def _edge(layout: Layout, e: dict, ends: set, lanes: dict) -> str:
         route = f"M{_f(sx)},{_f(cy)} C{_f(sx + d * k)},{_f(cy)} {_f(ex + pd * k)},{_f(py)} {_f(ex)},{_f(py)}"
     label = f"{e['table']} \u2192 {e['references']}"
     parts = [f'<g class="fk-edge{" fk-owner" if e["owner"] else ""}"><title>{esc(label)}: '
-             f'{"at most one" if e["unique"] else "many"} {esc(e["table"])} rows per {esc(e["references"])} row</title>',
+             f'{"at most one" if e["unique"] else "many"} {esc(e["table"])} rows per '
+             f'{esc(e["references"])} row</title>',
              f'<path class="fk-line" d="{route}"/>']
     # the child's end: a crow's foot (many) or a bar (at most one), with a circle: there may be none
     if e["unique"]:
@@ -762,7 +766,8 @@ def _box_svg(b: Box) -> str:
            f'<rect class="box" x="{_f(x)}" y="{_f(y)}" width="{_f(b.w)}" height="{_f(b.h)}" rx="4"/>',
            f'<path class="box-head" d="M{_f(x)},{_f(y + HEAD)} V{_f(y + 4)} Q{_f(x)},{_f(y)} {_f(x + 4)},{_f(y)} '
            f'H{_f(x + b.w - 4)} Q{_f(x + b.w)},{_f(y)} {_f(x + b.w)},{_f(y + 4)} V{_f(y + HEAD)} Z"/>',
-           f'<text class="box-name" x="{_f(x + PAD)}" y="{_f(y + 16)}">{esc(shorten(clean(b.name), int((MAX_W - 2 * PAD) / NAME_CHAR)))}</text>',
+           f'<text class="box-name" x="{_f(x + PAD)}" y="{_f(y + 16)}">'
+           f'{esc(shorten(clean(b.name), int((MAX_W - 2 * PAD) / NAME_CHAR)))}</text>',
            f'<text class="box-sub" x="{_f(x + PAD)}" y="{_f(y + 31)}">{esc(b.sub)}</text>']
     for i, (kind, mark, text, _) in enumerate(b.lines):
         ty = b.row_y(i) + 4
@@ -793,7 +798,8 @@ def hbar_chart(items: list[tuple[str, int, str]], *, label_chars: int = 30, widt
         y = 4 + i * row
         w = max(1.0, bar_w * value / top)
         out.append(f'<g class="bar"><title>{esc(tip)}</title>'
-                   f'<text class="bar-label" x="{label_w - 8}" y="{y + 15}" text-anchor="end">{esc(label, label_chars)}</text>'
+                   f'<text class="bar-label" x="{label_w - 8}" y="{y + 15}" text-anchor="end">'
+                   f'{esc(label, label_chars)}</text>'
                    f'<rect x="{label_w}" y="{y + 3}" width="{_f(w)}" height="{row - 6}" rx="2"/>'
                    f'<text class="bar-value" x="{_f(label_w + w + 6)}" y="{y + 15}">{value:,}</text></g>')
     out.append("</svg>")
@@ -804,22 +810,29 @@ def histogram(bins: list[tuple[str, int]], *, x_title: str, y_title: str) -> str
     """Vertical bars, one per bin (label, count), with the count above each bar."""
     if not bins:
         return ""
-    bar, gap, left, bottom_room, plot_h = 26, 6, 16, 46, 150
-    width = max(left + len(bins) * (bar + gap) + 16, 260)
-    height = plot_h + bottom_room + 18
+    gap, left, plot_h, head = 6, 16, 150, 30
+    bar = max(18, min(44, 440 // len(bins) - gap))
+    rotate = max(len(label) for label, _ in bins) * 6.5 > bar + gap
+    bottom_room = 70 if rotate else 46
+    width = max(left + len(bins) * (bar + gap) + 16, 280)
+    height = head + plot_h + bottom_room
     top = max(c for _, c in bins) or 1
-    base = 18 + plot_h
+    base = head + plot_h
     out = [f'<svg class="chart hist" width="{width}" height="{height}" '
            f'viewBox="0 0 {width} {height}" role="img">',
+           f'<text class="axis-title" x="{left - 4}" y="12">{esc(y_title)}</text>',
            f'<path class="axis" d="M{left - 4},{base} H{width - 8}"/>']
     for i, (label, count) in enumerate(bins):
         x = left + i * (bar + gap)
         h = plot_h * count / top
+        cx = x + bar / 2
+        where = (f'x="{_f(cx + 4)}" y="{base + 12}" text-anchor="end" transform="rotate(-45 {_f(cx + 4)} {base + 12})"'
+                 if rotate else f'x="{_f(cx)}" y="{base + 14}" text-anchor="middle"')
         out.append(f'<g class="bar"><title>{esc(label)}: {count:,} {esc(y_title)}</title>'
                    f'<rect x="{x}" y="{_f(base - h)}" width="{bar}" height="{_f(h)}" rx="2"/>'
-                   f'<text class="bar-value" x="{x + bar / 2}" y="{_f(base - h - 4)}" text-anchor="middle">{count:,}</text>'
-                   f'<text class="bar-label" x="{x + bar / 2}" y="{base + 14}" text-anchor="middle">{esc(label)}</text></g>')
-    out.append(f'<text class="axis-title" x="{left}" y="{base + 34}">{esc(x_title)}</text>')
+                   f'<text class="bar-value" x="{_f(cx)}" y="{_f(base - h - 4)}" text-anchor="middle">{count:,}</text>'
+                   f'<text class="bar-label" {where}>{esc(label)}</text></g>')
+    out.append(f'<text class="axis-title" x="{left - 4}" y="{base + bottom_room - 8}">{esc(x_title)}</text>')
     out.append("</svg>")
     return "".join(out)
 
@@ -868,7 +881,8 @@ p { margin: 4px 0 10px; }
 nav.toc { margin: 14px 0 4px; font-size: 13px; color: var(--muted); }
 nav.toc a { color: var(--accent); text-decoration: none; margin-right: 14px; white-space: nowrap; }
 .tiles { display: flex; flex-wrap: wrap; gap: 10px; margin: 16px 0 6px; }
-.tile { background: var(--paper); border: 1px solid var(--line); border-radius: 6px; padding: 8px 14px; min-width: 130px; }
+.tile { background: var(--paper); border: 1px solid var(--line); border-radius: 6px; padding: 8px 14px;
+        min-width: 130px; }
 .tile .v { font-size: 20px; font-weight: 600; font-variant-numeric: tabular-nums; }
 .tile .k { color: var(--muted); font-size: 12px; }
 .tile.bad { border-color: var(--accent); box-shadow: inset 4px 0 0 var(--accent); }
@@ -884,7 +898,8 @@ p.ok { color: var(--muted); }
 .bad { font-weight: 600; }
 td.bad, span.bad { color: var(--accent); }
 .note { color: var(--muted); font-size: 12.5px; }
-.diagram { overflow: auto; border: 1px solid var(--line); background: var(--paper); border-radius: 6px; max-height: 1400px; }
+.diagram { overflow: auto; border: 1px solid var(--line); background: var(--paper); border-radius: 6px;
+           max-height: 1400px; }
 .legend { color: var(--muted); font-size: 12.5px; margin: 6px 0 0; }
 .charts { display: flex; flex-wrap: wrap; gap: 12px 28px; }
 .chart-card { background: var(--paper); border: 1px solid var(--line); border-radius: 6px; padding: 10px 14px;
@@ -1119,7 +1134,8 @@ def _reconciliation_section(model: dict) -> str:
             + _table_html(["input", "#cells quarantined (manifest)", "#rows in quarantined_cells"], q))
         extra = sorted(str(f) for f in by_file if f not in files)
         if extra:
-            parts.append(f'<p class="note">Bookkeeping rows name files the manifest does not: {esc(", ".join(extra))}</p>')
+            parts.append('<p class="note">Bookkeeping rows name files the manifest does not: '
+                         f'{esc(", ".join(extra))}</p>')
         joins = [j for j in m.get("joins", []) if isinstance(j, dict)]
         if joins:
             rows = []
@@ -1166,7 +1182,8 @@ def _integrity_section(model: dict) -> str:
              f'{_num(integ["foreign_key_violations"])} violations</td>',
              _cell(f"{m['foreign_key_violations']} violations" if "foreign_key_violations" in m else _DASH)],
             [f"<td>{_code('PRAGMA integrity_check')}</td>",
-             f'<td class="{"ok" if integ["integrity_check"] == "ok" else "bad"}">{esc(integ["integrity_check"], 300)}</td>',
+             f'<td class="{"ok" if integ["integrity_check"] == "ok" else "bad"}">'
+             f'{esc(integ["integrity_check"], 300)}</td>',
              _cell(m.get("integrity_check", _DASH))],
             ["<td>rows and elements reconciled</td>",
              _cell({True: "yes", False: "NO", None: "unknown (no manifest)"}[_reconciled(model)]),
@@ -1206,7 +1223,8 @@ def _conflicts_section(model: dict) -> str:
     if meta is None:
         return f'<p class="note">The database has no {_code("attribute_variants")} table.</p>'
     cols = meta["columns"]
-    src = _src(f"{_code(meta['table'])} \u00b7 {_n(meta.get('conflicts', 0), 'conflict')}, {_n(meta['total'], 'variant')}: "
+    src = _src(f"{_code(meta['table'])} \u00b7 {_n(meta.get('conflicts', 0), 'conflict')}, "
+               f"{_n(meta['total'], 'variant')}: "
                "an entity whose attribute was written with different values keeps the most frequent (chosen)")
     if not meta["rows"]:
         return src + '<p class="ok">None.</p>'
@@ -1247,7 +1265,8 @@ def _entities_section(model: dict, tables: dict) -> str:
             + _src(f"{refs} (rows referring to each {_code(e['table'])} row), names from "
                    f"{_code(e['table'] + '.' + e['display'])} \u00b7 {e['references']:,} references to "
                    f"{e['referenced']:,} distinct entities"
-                   + (f"; {e['entities'] - e['referenced']:,} referred to by none" if e["entities"] > e["referenced"] else ""))
+                   + (f"; {e['entities'] - e['referenced']:,} referred to by none"
+                      if e["entities"] > e["referenced"] else ""))
             + hbar_chart(items) + "</div>")
     return '<div class="charts">' + "".join(cards) + "</div>"
 
@@ -1266,8 +1285,8 @@ def _lists_section(model: dict) -> str:
             + _src(f"{_code(d['table'])} rows per {_code(d['owner'])} row (joined on {_code(d['column'])}), "
                    f"every {_code(d['owner'])} row counted, those with none too \u00b7 {d['owners']:,} owners, "
                    f"{d['empty']:,} with none, {d['elements']:,} elements, mean {mean:.2f}, longest {d['longest']:,}")
-            + histogram(length_bins(d["distribution"]), x_title=f"elements per {d['owner']} row",
-                        y_title=f"{d['owner']} rows")
+            + histogram(length_bins(d["distribution"]), x_title=f"elements in the list of one {d['owner']} row",
+                        y_title=f"number of {d['owner']} rows")
             + "</div>")
     return '<div class="charts">' + "".join(cards) + "</div>"
 
@@ -1277,7 +1296,8 @@ def _views_section(model: dict) -> str:
         return _src(_code("sqlite_master")) + '<p class="note">The database has no views.</p>'
     rows = [[f"<td>{_code(v['name'])}</td>", _cell((v["kind"] or "view").replace("_", " ")),
              f"<td>{_code(v['table']) if v['table'] else _NONE}</td>",
-             _cell(len(v["columns"])), f'<td class="wrap mono">{esc(", ".join(c["name"] for c in v["columns"]), 300)}</td>']
+             _cell(len(v["columns"])),
+             f'<td class="wrap mono">{esc(", ".join(c["name"] for c in v["columns"]), 300)}</td>']
             for v in model["views"]]
     return (_src(f"{_code('sqlite_master')} and {_code('PRAGMA table_info')} of each view; the data dictionary "
                  "describes every column") + _table_html(["view", "kind", "of table", "#columns", "columns"], rows))

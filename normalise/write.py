@@ -7,7 +7,9 @@ as it was. Every connection has ``PRAGMA foreign_keys=ON``.
 
 from __future__ import annotations
 
+import json
 import os
+import re
 from pathlib import Path
 
 import sqlalchemy as sa
@@ -25,6 +27,24 @@ TYPES = {
     "date": sa.Text,  # ISO 8601 text: SQLite has no date type, and text sorts and compares correctly
     "timestamp": sa.Text,
 }
+
+
+META_ROLES = ("rejected", "set_aside", "unmatched", "quarantine", "variants")
+
+
+def printable(value):
+    """Text with undecodable bytes (kept as lone surrogates) written as \\xNN escapes; other values as they are.
+
+    Example:
+        >>> printable("An\udce9"), printable(7)
+        ('An\\xe9', 7)
+    """
+    if not isinstance(value, str):
+        return value
+    try:
+        return value.encode("utf-8", "surrogateescape").decode("utf-8", "backslashreplace")
+    except UnicodeEncodeError:
+        return value.encode("utf-8", "backslashreplace").decode("utf-8")
 
 
 class DestinationExists(NormaliseError):
@@ -126,9 +146,17 @@ class SqliteWriter:
             raise
 
     def insert(self, name: str, rows: list[tuple]) -> None:
-        if rows:
+        if not rows:
+            return
+        try:
             self.cursor.executemany(self.statements[name], rows)
-            self.row_counts[name] = self.row_counts.get(name, 0) + len(rows)
+        except UnicodeEncodeError:
+            # Only the bookkeeping tables quote raw input (excerpts, rejected rows), which may hold
+            # bytes the file's encoding could not read; they are written as \xNN escapes there.
+            if self.plan.table(name).role not in META_ROLES:
+                raise
+            self.cursor.executemany(self.statements[name], [tuple(map(printable, row)) for row in rows])
+        self.row_counts[name] = self.row_counts.get(name, 0) + len(rows)
 
     def update(self, name: str, rows: list[tuple]) -> None:
         """Rewrite rows (whole, matched on their first column, the primary key)."""
@@ -139,8 +167,12 @@ class SqliteWriter:
             self.cursor.executemany(f"UPDATE {_quote(name)} SET {sets} WHERE {_quote(key)} = ?",
                                     [(*row[1:], row[0]) for row in rows])
 
-    def finish(self) -> dict:
-        """Indexes, views, SQLite's own checks, commit, and the move into place."""
+    def finish(self, describe=None) -> dict:
+        """Indexes, views, SQLite's own checks, commit, and the move into place.
+
+        ``describe(checks)`` may return the run's manifest; it is stored in the
+        database itself (table ``run_manifest``) within the same transaction.
+        """
         try:
             for name in self.order:
                 for index in self.md.tables[name].indexes:
@@ -153,8 +185,13 @@ class SqliteWriter:
                 first = ", ".join(f"{v[0]} row {v[1]} -> {v[2]}" for v in violations[:5])
                 raise IntegrityError(f"{len(violations)} foreign-key values name no row ({first}); "
                                      "nothing was written")
-            self.cursor.execute("COMMIT")
             integrity = self.cursor.execute("PRAGMA integrity_check").fetchone()[0]
+            checks = {"foreign_key_violations": len(violations), "integrity_check": integrity}
+            if describe is not None:
+                self.cursor.execute("CREATE TABLE run_manifest (manifest TEXT NOT NULL)")
+                self.cursor.execute("INSERT INTO run_manifest VALUES (?)",
+                                    (json.dumps(describe(checks), ensure_ascii=False, default=str),))
+            self.cursor.execute("COMMIT")
             self.raw.close()
             self.engine.dispose()
             with open(self.temporary, "rb") as f:
@@ -163,7 +200,7 @@ class SqliteWriter:
         except BaseException:
             self.abort()
             raise
-        return {"foreign_key_violations": len(violations), "integrity_check": integrity}
+        return checks
 
     def abort(self) -> None:
         try:
@@ -176,7 +213,7 @@ class SqliteWriter:
 
 
 def write_sqlite(plan: Plan, rows: dict[str, list[tuple]], order: list[str], destination: str,
-                 replace: bool = False) -> dict:
+                 replace: bool = False, describe=None) -> dict:
     """Write a complete SQLite database at ``destination``; returns SQLite's own integrity checks."""
     writer = SqliteWriter(plan, order, destination, replace)
     try:
@@ -185,7 +222,7 @@ def write_sqlite(plan: Plan, rows: dict[str, list[tuple]], order: list[str], des
     except BaseException:
         writer.abort()
         raise
-    return writer.finish()
+    return writer.finish(describe)
 
 
 def write_parquet(database: str, plan: Plan, directory: str) -> list[str]:
@@ -223,6 +260,7 @@ def write_parquet(database: str, plan: Plan, directory: str) -> list[str]:
 DEFAULT_SCHEMA = "normalise"
 PG_MAX_IDENTIFIER = 63  # bytes: NAMEDATALEN - 1; PostgreSQL truncates longer names with only a notice
 _PG_DRIVERS = {"postgresql", "postgres", "postgresql+psycopg"}
+_SURROGATE = re.compile("[\ud800-\udfff]")
 _PG_DROP = {"v": "VIEW", "m": "MATERIALIZED VIEW", "f": "FOREIGN TABLE", "r": "TABLE", "p": "TABLE"}
 
 
@@ -266,8 +304,8 @@ def display_url(database: str) -> str:
         from .report import mask_password
         return mask_password(database)
     if "password" in url.query:
-        url = url.update_query_dict({"password": "***"})
-    return url.render_as_string(hide_password=True)
+        url = url.update_query_dict({"password": "MASKED"})
+    return url.render_as_string(hide_password=True).replace("password=MASKED", "password=***")
 
 
 class DestinationError(NormaliseError):
@@ -339,10 +377,17 @@ def _pg_relations(cursor, schema: str) -> list[tuple[str, str]]:
     return cursor.fetchall()
 
 
-def _copy_rows(cursor, schema: str, table: sa.Table, data: list[tuple]) -> None:
-    """Load rows into a table with COPY FROM STDIN (text format, every identifier quoted)."""
+def _copy_rows(cursor, schema: str, table: sa.Table, data: list[tuple], role: str = "") -> None:
+    """Load rows into a table with COPY FROM STDIN (text format, every identifier quoted).
+
+    As in SQLite, the bookkeeping tables (which quote raw input) get undecodable
+    bytes as \\xNN escapes; elsewhere such text, and NUL, which PostgreSQL text
+    cannot hold at all, stop the run with the table, column and key named.
+    """
     from psycopg import sql
 
+    if role in META_ROLES:
+        data = (tuple(map(printable, row)) for row in data)
     statement = sql.SQL("COPY {}.{} ({}) FROM STDIN").format(
         sql.Identifier(schema), sql.Identifier(table.name),
         sql.SQL(", ").join(sql.Identifier(c.name) for c in table.columns))
@@ -351,13 +396,17 @@ def _copy_rows(cursor, schema: str, table: sa.Table, data: list[tuple]) -> None:
             try:
                 copy.write_row(row)
             except Exception as exc:
-                bad = [c.name for c, v in zip(table.columns, row) if isinstance(v, str) and "\x00" in v]
-                if bad:
-                    names = [c.name for c in table.columns]
-                    key = ", ".join(f"{k.name}={row[names.index(k.name)]!r}" for k in table.primary_key.columns)
-                    raise UnstorableValue(f"{table.name}.{bad[0]} (row {number} of the table, {key}) holds a NUL "
-                                          "character, which PostgreSQL text cannot store; nothing was written"
-                                          ) from exc
+                names = [c.name for c in table.columns]
+                key = ", ".join(f"{k.name}={row[names.index(k.name)]!r}" for k in table.primary_key.columns)
+                for column, value in zip(names, row):
+                    if isinstance(value, str) and "\x00" in value:
+                        problem = "a NUL character, which PostgreSQL text cannot store"
+                    elif isinstance(value, str) and _SURROGATE.search(value):
+                        problem = "bytes its file's encoding could not decode"
+                    else:
+                        continue
+                    raise UnstorableValue(f"{table.name}.{column} (row {number} of the table, {key}) holds "
+                                          f"{problem}; nothing was written") from exc
                 raise
 
 
@@ -404,7 +453,9 @@ def write_postgresql(plan: Plan, rows: dict[str, list[tuple]], order: list[str],
                 names = ", ".join(name for name, _ in existing[:5]) + (", ..." if len(existing) > 5 else "")
                 raise DestinationExists(f"schema {schema!r} of {shown} already holds {len(existing)} tables or "
                                         f"views ({names}); use --replace to drop them and write it again")
-            cursor.execute(sql.SQL("CREATE SCHEMA IF NOT EXISTS {}").format(ident))
+            cursor.execute("SELECT count(*) FROM pg_catalog.pg_namespace WHERE nspname = %s", (schema,))
+            if not cursor.fetchone()[0]:  # (IF NOT EXISTS would still need CREATE on the database)
+                cursor.execute(sql.SQL("CREATE SCHEMA {}").format(ident))
             for kind in dict.fromkeys(_PG_DROP.values()):  # views first: they depend on the tables
                 names = [name for name, k in existing if _PG_DROP[k] == kind]
                 if names:  # no CASCADE: objects of other schemas built on these tables stop the run
@@ -415,7 +466,7 @@ def write_postgresql(plan: Plan, rows: dict[str, list[tuple]], order: list[str],
                 conn.execute(sa.schema.CreateTable(md.tables[name], include_foreign_key_constraints=[]))
             for name in order:
                 if rows[name]:
-                    _copy_rows(cursor, schema, md.tables[name], rows[name])
+                    _copy_rows(cursor, schema, md.tables[name], rows[name], plan.table(name).role)
             for name in order:
                 for fk in sorted(md.tables[name].foreign_key_constraints, key=lambda c: str(c.name)):
                     conn.execute(sa.schema.AddConstraint(fk))
@@ -436,8 +487,12 @@ def write_postgresql(plan: Plan, rows: dict[str, list[tuple]], order: list[str],
         raise DestinationError(f"--replace cannot drop the tables of schema {schema!r} of {shown}: "
                                f"{exc.diag.message_primary} ({exc.diag.message_detail}); nothing was changed"
                                ) from exc
-    except sa.exc.OperationalError as exc:
-        raise DestinationError(f"cannot write to {shown}: {str(exc.orig).strip()}") from exc
+    except (pg_errors.Error, sa.exc.DBAPIError) as exc:  # refused, unreachable, out of space...
+        error = getattr(exc, "orig", None) or exc
+        detail = getattr(getattr(error, "diag", None), "message_detail", None)
+        raise DestinationError(f"PostgreSQL at {shown} (schema {schema!r}): {str(error).strip()}"
+                               + (f" ({detail})" if detail and detail not in str(error) else "")
+                               + "; nothing was written") from exc
     finally:
         engine.dispose()
     # Every foreign key was added, and so checked by PostgreSQL against every row, before
