@@ -19,7 +19,7 @@ from dataclasses import dataclass, field
 from hashlib import blake2b
 
 from .errors import NormaliseError
-from .infer import get_path
+from .infer import get_path, match_key
 from .plan import NestedColumn, Plan, RecordSource
 
 _MASK = (1 << 63) - 1
@@ -119,7 +119,7 @@ class Built:
     rows: dict[str, list[tuple]]
     counts: list[FileCounts]
     conflicts: int = 0
-    merges: list[str] = field(default_factory=list)
+    merges: list[dict] = field(default_factory=list)  # entities matched from several spellings
     cells_quarantined_by_file: dict = field(default_factory=dict)  # every input file, joined ones too
     updates: dict = field(default_factory=dict)  # entity table -> rows to rewrite with their chosen values
 
@@ -311,6 +311,7 @@ class Builder:
         rows = self.take_rows()
         self.audit.report()
         conflicts = 0
+        merges: list[dict] = []
         updates: dict[str, list[tuple]] = {}
         for table, acc in self.entities.items():
             for text in sorted(acc.first):
@@ -329,6 +330,10 @@ class Builder:
                             self.meta["attribute_variants"].append(
                                 (table, sk, str(natural), column,
                                  None if v is None else str(to_sql_value(v, "text")), n, v == best))
+                if acc.group.matched:
+                    spellings = acc.values[text][acc.keys[0][0]]
+                    if len(spellings) > 1:
+                        merges.append({"table": table, "key": natural, "spellings": dict(spellings)})
                 row = (sk, natural, *chosen)
                 if row != first:
                     updates.setdefault(table, []).append(row)
@@ -336,8 +341,8 @@ class Builder:
             rows[name] = [(n, *r) for n, r in enumerate(self.meta[name], start=1)]
         counts = [self.counts[r.path] if r.path in self.counts else FileCounts(r.file, r.path)
                   for r in self.plan.records]
-        return Built(rows, counts, conflicts, cells_quarantined_by_file=dict(self.quarantined_by_file),
-                     updates=updates)
+        return Built(rows, counts, conflicts, merges=merges,
+                     cells_quarantined_by_file=dict(self.quarantined_by_file), updates=updates)
 
 
 def build(plan: Plan, exports: list, decoded: dict, extra: dict | None = None) -> Built:
@@ -465,6 +470,8 @@ def _nested_rows(plan, nested: NestedColumn, value, owner_sk: int, export, i: in
                                     export.lines[i])
         if nested.kind == "entity-list":
             ident = item.get(nested.identity)
+            if nested.matched:
+                ident = match_key(ident) or None
             if ident is None or isinstance(ident, (dict, list, tuple, bool)):
                 _quarantine_element(audit.quarantine, export, i, nested, position,
                                     f"object without a usable {nested.identity!r}", c)

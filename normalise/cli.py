@@ -91,7 +91,8 @@ def cmd_build(args) -> int:
 
     options = Options(natural_keys=_pairs(args.key, "--key"), duplicates=args.duplicates,
                       violation_threshold=args.threshold, identities=_pairs(args.identity, "--identity"),
-                      merge=[m.split(",") for m in args.merge], no_merge=args.no_merge)
+                      merge=[m.split(",") for m in args.merge], no_merge=args.no_merge,
+                      match=_pairs(args.match, "--match"))
     join_options = _join_options(args)
     from .progress import Progress
 
@@ -152,7 +153,8 @@ def cmd_plan(args) -> int:
 
     options = Options(natural_keys=_pairs(args.key, "--key"), duplicates=args.duplicates,
                       violation_threshold=args.threshold, identities=_pairs(args.identity, "--identity"),
-                      merge=[m.split(",") for m in args.merge], no_merge=args.no_merge)
+                      merge=[m.split(",") for m in args.merge], no_merge=args.no_merge,
+                      match=_pairs(args.match, "--match"))
     text = make_plan(args.files, args.output, options=options, limits=_limits(args), formats=_formats(args),
                      encoding=args.encoding, delimiter=_delimiter(args), picks=args.pick, plan_path=args.plan,
                      join_options=_join_options(args))
@@ -177,6 +179,9 @@ def _inference_options(p) -> None:
                    help="force nested columns into one entity table")
     p.add_argument("--no-merge", action="append", default=[], metavar="FILE:COL",
                    help="keep a nested column's entities in a table of their own")
+    p.add_argument("--match", action="append", default=[], metavar="COLUMN=FIELD",
+                   help="objects without an identity: match them on FIELD's normalised text "
+                        "(NFKC, case folded, white space collapsed)")
     p.add_argument("--pick", action="append", default=[], metavar="NAME=COLUMN:ATTRIBUTE=VALUE",
                    help="a record-summary column: the first entity of COLUMN whose link ATTRIBUTE is VALUE")
     p.add_argument("--plan", metavar="PLAN.toml",

@@ -240,7 +240,10 @@ def split_delimited(text: str, sep: str) -> list[str]:
         ['poetry', 'essays|letters', 'drama']
     """
     if '"' in text:
-        pieces = next(csv.reader([text], delimiter=sep, skipinitialspace=True), [])
+        try:
+            pieces = next(csv.reader([text], delimiter=sep, skipinitialspace=True), [])
+        except csv.Error:  # a line break outside quotes ("a\nb|"c"), which the csv module refuses
+            pieces = text.split(sep)
     else:
         pieces = text.split(sep)
     return [p.strip() for p in pieces if p.strip()]
@@ -273,7 +276,7 @@ def detect_separator(texts: list[str]) -> str | None:
         long_prose = sum(len(p) > 60 for p in pieces) / len(pieces)
         if long_prose > 0.2:
             continue
-        if sep == "," and repeat < 0.3:
+        if sep == "," and (repeat < 0.3 or not _pieces_stand_alone(texts, sep)):
             continue
         if sep != "," and repeat < 0.1 and len(pieces) > 20:
             continue
@@ -281,6 +284,19 @@ def detect_separator(texts: list[str]) -> str | None:
         if best is None or score > best[0]:
             best = (score, sep)
     return None if best is None else best[1]
+
+
+def _pieces_stand_alone(texts: list[str], sep: str) -> bool:
+    """Whether the values found between separators also fill cells on their own, as list items do.
+
+    A comma inside prose or a title ("The Orchard, Revisited") splits off pieces
+    that never stand alone; the items of a list ("poetry, essays") do.
+    """
+    alone = {t.strip() for t in texts if sep not in t}
+    pieces = [p for t in texts if sep in t for p in split_delimited(t, sep)]
+    if not pieces or not alone:
+        return False
+    return sum(p in alone for p in pieces) / len(pieces) >= 0.2
 
 
 def delimited_ambiguity(texts: list[str], lines: list[int], sep: str, limit: int = 5) -> list[str]:

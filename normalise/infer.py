@@ -234,11 +234,13 @@ class Options:
     violation_threshold: float = DEFAULT_VIOLATION_THRESHOLD
     identities: dict = None  # "file:column" or "column" -> identity field ("" = none)
     merge: list = None  # lists of "file:column" forced into one entity
+    match: dict = None  # "file:column" or "column" -> field matched on its normalised text
     no_merge: list = None  # "file:column" never merged with another column
 
     def __post_init__(self):
         self.natural_keys = self.natural_keys or {}
         self.identities = self.identities or {}
+        self.match = self.match or {}
         self.merge = self.merge or []
         self.no_merge = self.no_merge or []
 
@@ -408,10 +410,16 @@ _GENERIC_IDENTITY = frozenset(["id", "key", "code", "uuid", "guid", "slug"])
 
 
 def _entity_name(identity: str, column: str) -> str:
+    """An entity table's name: the identity without its id suffix (person_id -> person), else the column's singular.
+
+    Example:
+        >>> _entity_name("person_id", "contributors"), _entity_name("id", "people"), _entity_name("name", "authors")
+        ('person', 'person', 'author')
+    """
     base = re.sub(r"(?i)(_id|_key|_code|_uuid|id)$", "", identity).strip("_")
-    if not base or identity.lower() in _GENERIC_IDENTITY:
+    if not base or base == identity or identity.lower() in _GENERIC_IDENTITY:
         return singular(sql_name(column))
-    return base
+    return sql_name(base)
 
 
 def _agreement(a: list[dict], b: list[dict], identity: str) -> tuple[int, float]:
@@ -518,6 +526,10 @@ def infer_plan(exports: list, decoded: dict, options: Options | None = None) -> 
                 # entity members and --no-merge do; the main file's name and the bare column also work
                 wanted = options.identities.get(f"{nested.file}:{name}", options.identities.get(
                     f"{export.name}:{name}", options.identities.get(name)))
+                matched = options.match.get(f"{nested.file}:{name}", options.match.get(
+                    f"{export.name}:{name}", options.match.get(name)))
+                if matched:
+                    wanted, nested.matched = matched, True
                 if wanted is None:
                     candidates = identity_candidates(objects, owners, options.violation_threshold)
                     wanted = candidates[0].field if candidates else ""
@@ -617,7 +629,7 @@ def _group_entities(plan, entity_lists, options: Options, tables: Namer) -> None
     for i in range(len(entity_lists)):
         for j in range(i + 1, len(entity_lists)):
             (a, oa), (b, ob) = entity_lists[i], entity_lists[j]
-            if a.identity != b.identity or ref[i] in forbidden or ref[j] in forbidden:
+            if a.identity != b.identity or a.matched != b.matched or ref[i] in forbidden or ref[j] in forbidden:
                 continue
             common, agree = _agreement(oa, ob, a.identity)
             if common and agree >= 1 - options.violation_threshold:
@@ -636,14 +648,21 @@ def _group_entities(plan, entity_lists, options: Options, tables: Namer) -> None
         objects = [o for m in members for o in entity_lists[m][1]]
         table = tables(_entity_name(identity, first.column))
         names = Namer([f"{table}_sk"])
-        identity_column = names(identity)
+        matched = first.matched
+        identity_column = names(f"{identity}_key" if matched else identity)
         group = EntityGroup(table=table, key_column=f"{table}_sk", identity=identity,
                             identity_column=identity_column,
-                            identity_type=_identity_type(objects, identity),
-                            members=[ref[m] for m in members])
+                            identity_type="text" if matched else _identity_type(objects, identity),
+                            members=[ref[m] for m in members], matched=matched)
         all_fields, _ = scalar_fields(objects)
         top = [p[0] for p in all_fields if len(p) == 1]
-        attrs = entity_attributes(objects, identity, top, options.violation_threshold)
+        if matched:
+            # the field itself is an attribute (its most frequent spelling); others by dependency on the match key
+            keyed = [dict(o, **{_MATCH_KEY: match_key(o.get(identity))}) for o in objects]
+            attrs = [identity] + [f for f in entity_attributes(keyed, _MATCH_KEY, top, options.violation_threshold)
+                                  if f != identity]
+        else:
+            attrs = entity_attributes(objects, identity, top, options.violation_threshold)
         group.attributes = [FieldMap([f], names(f), _type_at(objects, [f])) for f in attrs]
         plan.entities.append(group)
         for m in members:
@@ -653,6 +672,23 @@ def _group_entities(plan, entity_lists, options: Options, tables: Namer) -> None
             links = [p for p in fields if p != [identity] and not (len(p) == 1 and p[0] in attrs)]
             nested.links = _field_maps(own, links, Namer(["list_position"]))
             nested.children = _child_lists(nested.file, nested.column, own, lists)
+
+
+_MATCH_KEY = "\x00match_key"
+
+
+def match_key(value):
+    """The normalised natural key objects are matched on: Unicode NFKC, case folded, white space collapsed.
+
+    Example:
+        >>> match_key("  Ann\u00a0 O'HARA "), match_key("ﬁona"), match_key(7)
+        ("ann o'hara", 'fiona', 7)
+    """
+    if not isinstance(value, str):
+        return value
+    import unicodedata
+
+    return " ".join(unicodedata.normalize("NFKC", value).casefold().split())
 
 
 def _identity_type(objects: list[dict], identity: str) -> str:

@@ -68,6 +68,7 @@ class EntityGroup:
     identity_type: str
     attributes: list[FieldMap] = field(default_factory=list)  # entity attributes
     members: list[str] = field(default_factory=list)  # "file:column" of each nested column
+    matched: bool = False  # identity is a field's normalised text (NFKC, case folded, spaces collapsed)
 
 
 @dataclass
@@ -83,6 +84,7 @@ class NestedColumn:
     children: list["NestedColumn"] = field(default_factory=list)  # lists inside the objects
     path: str = ""  # path inside the record's column, for nested lists
     identity: str = ""  # identity field of an entity list
+    matched: bool = False  # objects matched on the identity field's normalised text
 
 
 @dataclass

@@ -91,6 +91,7 @@ def plan_to_toml(plan: Plan, joins: dict | None = None) -> str:
                 "[[entity]]", f"handle = {_v(group.table)}", f"table = {_v(group.table)}",
                 f"identity = {_v(group.identity)}", f"identity_column = {_v(group.identity_column)}",
                 f"identity_type = {_v(group.identity_type)}",
+                f"matched = {_v(group.matched)}  # true: identity is the field's normalised text (NFKC, case folded)",
                 f"members = {_v(group.members)}  # nested columns whose objects are these entities",
                 "attributes = ["]
         out += [f"  {_v(f)}," for f in _fields(group.attributes)]
@@ -120,6 +121,8 @@ def _nested_toml(nested: NestedColumn, header: str) -> list[str]:
         out.append(f"table = {_v(nested.table)}")
     if nested.kind == "entity-list":
         out += [f"entity = {_v(nested.entity)}  # handle of an [[entity]]", f"identity = {_v(nested.identity)}"]
+        if nested.matched:
+            out.append("matched = true")
     if nested.kind == "value-list":
         out.append(f"values_table = {_v(nested.entity)}")
     label = {"entity-list": "link attributes (kept on the bridge)", "child-list": "fields",
@@ -209,6 +212,7 @@ def plan_from_doc(doc: dict, text: str, exports: list, decoded: dict) -> Plan:
                   f"use one of {', '.join(TYPES)}", f'identity_type = "{e["identity_type"]}"')
         group = EntityGroup(table=e["table"], key_column=f"{e['table']}_sk", identity=e["identity"],
                             identity_column=e["identity_column"], identity_type=e["identity_type"],
+                            matched=bool(e.get("matched", False)),
                             attributes=_maps(text, e.get("attributes"), f"entity {e['handle']}.attributes"))
         handles[e["handle"]] = group
     for r in doc.get("record", []):
@@ -347,7 +351,7 @@ def _nested_from(text: str, n: dict, columns: dict, handles: dict, plan: Plan) -
               f'kind = "{kind}"')
     nested = NestedColumn(file=n.get("file", ""), column=column, kind=kind, table=n.get("table"),
                           entity=n.get("entity") or n.get("values_table"), path=n.get("path", ""),
-                          identity=n.get("identity", ""),
+                          identity=n.get("identity", ""), matched=bool(n.get("matched", False)),
                           links=_maps(text, n.get("fields"), f"{column}.fields"))
     nested.children = [_nested_from(text, c, columns, handles, plan) for c in n.get("children", [])]
     return nested

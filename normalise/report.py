@@ -51,6 +51,7 @@ def manifest(plan: Plan, built: Built, database: str, integrity: dict, joined=No
                    for c in built.counts] + joined_inputs,
         "joins": list(joined.joins) if joined else [],
         "tables": tables,
+        "matched": built.merges,
         "views": [{"name": v.name, "kind": v.kind, "table": v.table} for v in plan.views],
         "cells_quarantined": (sum(c.cells_quarantined for c in built.counts)
                               + sum(i["cells_quarantined"] for i in joined_inputs)),
@@ -82,6 +83,10 @@ def summary(m: dict) -> str:
     width = max(len(t["name"]) for t in m["tables"])
     for t in m["tables"]:
         out.append(f"  {t['name']:<{width}}  {t['role']:<10} {t['rows']:>9,} rows")
+    if m.get("matched"):
+        examples = "; ".join(" = ".join(repr(k) for k in x["spellings"]) for x in m["matched"][:3])
+        out.append(f"  matched on normalised names: {len(m['matched'])} entities from several spellings "
+                   f"(e.g. {examples}; all in attribute_variants)")
     for v in m.get("views", []):
         out.append(f"  view {v['name']} ({v['kind'].replace('_', ' ')} of {v['table']})")
     for j in m.get("joins", []):

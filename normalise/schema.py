@@ -81,8 +81,9 @@ def _nested_tables(plan: Plan, nested: NestedColumn, owner: str, owner_key: str)
     role = "child"
     if nested.kind == "entity-list":
         group = plan.entity_group(nested.entity)
-        cols.append(Column(names(group.key_column), "integer", nullable=False))
-        fks.append(ForeignKey([group.key_column], group.table, [group.key_column]))
+        entity_column = names(group.key_column)  # the owner's key column may carry the same name
+        cols.append(Column(entity_column, "integer", nullable=False))
+        fks.append(ForeignKey([entity_column], group.table, [group.key_column]))
         role = "bridge"
     elif nested.kind == "value-list":
         value_key = own_key(nested.entity)
@@ -91,8 +92,9 @@ def _nested_tables(plan: Plan, nested: NestedColumn, owner: str, owner_key: str)
                                  [Column(value_key, "integer", nullable=False),
                                   Column(value_column, "text", nullable=False, unique=True)],
                                  [value_key], natural_key=[value_column], sources=source))
-        cols.append(Column(names(value_key), "integer", nullable=False))
-        fks.append(ForeignKey([value_key], nested.entity, [value_key]))
+        value_column = names(value_key)
+        cols.append(Column(value_column, "integer", nullable=False))
+        fks.append(ForeignKey([value_column], nested.entity, [value_key]))
         role = "bridge"
     elif nested.kind == "object-child":
         position = None

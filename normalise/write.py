@@ -36,7 +36,7 @@ def printable(value):
     """Text with undecodable bytes (kept as lone surrogates) written as \\xNN escapes; other values as they are.
 
     Example:
-        >>> printable("An\udce9"), printable(7)
+        >>> printable("An\\udce9"), printable(7)
         ('An\\xe9', 7)
     """
     if not isinstance(value, str):
