@@ -294,7 +294,9 @@ def _pieces_stand_alone(texts: list[str], sep: str) -> bool:
     """
     alone = {t.strip() for t in texts if sep not in t}
     pieces = [p for t in texts if sep in t for p in split_delimited(t, sep)]
-    if not pieces or not alone:
+    if not alone:
+        return True  # every cell holds several values: nothing to compare with
+    if not pieces:
         return False
     return sum(p in alone for p in pieces) / len(pieces) >= 0.2
 
