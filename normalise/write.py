@@ -37,7 +37,7 @@ def printable(value):
 
     Example:
         >>> printable("An\\udce9"), printable(7)
-        ('An\\xe9', 7)
+        ('An\\\\xe9', 7)
     """
     if not isinstance(value, str):
         return value
