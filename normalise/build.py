@@ -17,6 +17,7 @@ import json
 from collections import Counter
 from dataclasses import dataclass, field
 from hashlib import blake2b
+from itertools import chain
 
 from .errors import NormaliseError
 from .infer import get_path, match_key
@@ -182,37 +183,87 @@ class _Entities:
     """Occurrences of each entity, to choose attribute values by frequency.
 
     An entity's row is made when it is first seen (so it can be written before
-    the bridge rows that refer to it); ``chosen`` later gives the rows whose
-    values the counts over all occurrences changed.
+    the bridge rows that refer to it). For every attribute, each (entity, value)
+    pair is counted and the place it was first seen kept — (line, column,
+    position in the list) — so the chosen value (most frequent; ties to the
+    first seen in the file) is the same however the input is chunked.
     """
 
     def __init__(self, group):
         self.group = group
-        self.seen: dict = {}  # natural key value -> (canonical text, sk)
-        self.values: dict[str, dict[str, Counter]] = {}
+        self.seen: dict = {}  # (type, natural key value) -> (canonical text, sk)
         self.first: dict[str, tuple] = {}  # canonical -> the row as first written
         self.new_rows: list[tuple] = []
         self.keys = [(f.column, f.path[0], f.type) for f in group.attributes]
+        self.counts = [Counter() for _ in self.keys]  # per attribute: (canonical, value) -> occurrences
+        self.first_at = [{} for _ in self.keys]  # per attribute: (canonical, value) -> first place
 
-    def add(self, ident, obj: dict) -> int:
-        group = self.group
+    def lookup(self, ident) -> tuple[str, int]:
         hit = self.seen.get((type(ident), ident))
         if hit is None:
-            text = canonical(ident, group.identity_type)
-            sk = key_of(text)
-            hit = self.seen[(type(ident), ident)] = (text, sk)
-            if text not in self.values:
-                self.values[text] = {column: Counter() for column, _, _ in self.keys}
-                row = (sk, to_sql_value(ident, group.identity_type),
-                       *[to_sql_value(obj.get(key), t) for _, key, t in self.keys])
-                self.first[text] = row
-                self.new_rows.append(row)
-        counters = self.values[hit[0]]
-        for column, key, _ in self.keys:
+            text = canonical(ident, self.group.identity_type)
+            hit = self.seen[(type(ident), ident)] = (text, key_of(text))
+        return hit
+
+    def new_entity(self, text: str, sk: int, ident, obj: dict) -> None:
+        if text not in self.first:
+            row = (sk, to_sql_value(ident, self.group.identity_type),
+                   *[to_sql_value(obj.get(key), t) for _, key, t in self.keys])
+            self.first[text] = row
+            self.new_rows.append(row)
+
+    def add(self, ident, obj: dict, place: tuple) -> int:
+        """One occurrence (the per-object path)."""
+        text, sk = self.lookup(ident)
+        self.new_entity(text, sk, ident, obj)
+        for k, (_, key, _) in enumerate(self.keys):
             if key in obj:
                 v = obj[key]
-                counters[column][v if not isinstance(v, (list, dict)) else json.dumps(v)] += 1
-        return hit[1]
+                pair = (text, v if not isinstance(v, (list, dict)) else json.dumps(v))
+                self.counts[k][pair] += 1
+                if pair not in self.first_at[k] or place < self.first_at[k][pair]:
+                    self.first_at[k][pair] = place
+        return sk
+
+    def add_column(self, idents: list, objects: list[dict], places: list[tuple]) -> list[int]:
+        """Many occurrences at once (the columnar path); returns their entity keys."""
+        found = {}
+        for ident, where in zip(reversed(idents), reversed(range(len(idents)))):
+            found[(type(ident), ident)] = where  # ends on each identity's first occurrence
+        texts = {}
+        for (kind, ident), where in found.items():
+            text, sk = self.lookup(ident)
+            texts[(kind, ident)] = (text, sk)
+            self.new_entity(text, sk, ident, objects[where])
+        keyed = [texts[(type(i), i)] for i in idents]
+        text_col = [t for t, _ in keyed]
+        for k, (_, key, _) in enumerate(self.keys):
+            carrying = [(t, o[key]) for t, o in zip(text_col, objects) if key in o]
+            if carrying and any(isinstance(v, (list, dict)) for _, v in carrying):
+                carrying = [(t, v if not isinstance(v, (list, dict)) else json.dumps(v)) for t, v in carrying]
+            self.counts[k].update(carrying)
+            where = [p for o, p in zip(objects, places) if key in o]
+            first_here = dict(zip(reversed(carrying), reversed(where)))
+            first_at = self.first_at[k]
+            for pair, place in first_here.items():
+                if pair not in first_at or place < first_at[pair]:
+                    first_at[pair] = place
+        return [sk for _, sk in keyed]
+
+    def choose(self):
+        """Per entity: its chosen attribute values, and per attribute the variants (value, count, first place)."""
+        variants: dict[str, list[list]] = {text: [[] for _ in self.keys] for text in self.first}
+        for k, counter in enumerate(self.counts):
+            first_at = self.first_at[k]
+            for (text, value), n in counter.items():
+                variants[text][k].append((value, n, first_at[(text, value)]))
+        for text in sorted(self.first):
+            per_attribute = variants[text]
+            chosen = []
+            for found in per_attribute:
+                found.sort(key=lambda v: v[2])  # in the order first seen in the file
+                chosen.append(max(found, key=lambda v: v[1])[0] if found else None)  # ties: the first seen
+            yield text, chosen, per_attribute
 
     def take_new_rows(self) -> list[tuple]:
         rows, self.new_rows = self.new_rows, []
@@ -274,6 +325,9 @@ class Builder:
         record_keys = getattr(export, "record_keys", None) or export.lines
         out = rows[record.table]
         object_columns = [n for n in record.nested if n.kind == "object-columns"]
+        columnar = [n for n in record.nested if _is_columnar(n)]
+        for order, nested in enumerate(record.nested):
+            nested._order = order  # the column's place in the row, for "first seen" (line, column, position)
         for i in kept:
             sk = record_keys[i]
             row = [sk] + [to_sql_value(vals[i], t) for vals, t in scalar_cols]
@@ -287,11 +341,107 @@ class Builder:
                 row += [to_sql_value(get_path(obj, f.path), f.type) for f in nested.links]
             out.append(tuple(row))
             for nested in record.nested:
+                if nested in columnar:
+                    continue
                 value = columns[nested.column].values[i]
                 if value is None:
                     continue
                 _nested_rows(self.plan, nested, value, sk, export, i, rows, self.entities, self.values, c,
                              self.audit)
+        for nested in columnar:
+            self._list_rows(nested, columns[nested.column].values, kept, record_keys, export, c)
+
+    def _list_rows(self, nested: NestedColumn, values: list, kept: list[int], record_keys: list[int], export,
+                   c: FileCounts) -> None:
+        """Bridge or child rows of one list column for a whole chunk, a column at a time.
+
+        Gives exactly the rows the per-object path gives; objects that need
+        care (not objects, no usable identity, unplanned keys, values of another
+        type) are handled one by one.
+        """
+        items, owners, positions, rows_of = [], [], [], []
+        for i in kept:
+            v = values[i]
+            if v is None:
+                continue
+            if not isinstance(v, (list, tuple)):
+                v = [v]
+            n = len(v)
+            items.extend(v)
+            owners.extend([record_keys[i]] * n)
+            positions.extend(range(1, n + 1))
+            rows_of.extend([i] * n)
+        if not items:
+            return
+        c.elements_decoded += len(items)
+        lines = export.lines
+        audit = self.audit
+        if nested.kind == "value-list":
+            bad = [k for k, x in enumerate(items) if x is None or isinstance(x, (dict, list, tuple))]
+        else:
+            bad = [k for k, x in enumerate(items) if type(x) is not dict]
+        idents = None
+        if nested.kind == "entity-list" and not bad:
+            idents = [o.get(nested.identity) for o in items]
+            if nested.matched:
+                idents = [match_key(v) or None for v in idents]
+            bad = [k for k, v in enumerate(idents) if v is None or type(v) in (dict, list, tuple, bool)]
+        if bad:
+            for k in bad:
+                x = items[k]
+                message = ("null element in a list" if x is None else "nested element in a list of values"
+                           if nested.kind == "value-list" else "expected an object in a list of objects"
+                           if type(x) is not dict else f"object without a usable {nested.identity!r}")
+                _quarantine_element(audit.quarantine, export, rows_of[k], nested, positions[k], message, c)
+            keep = sorted(set(range(len(items))) - set(bad))
+            items = [items[k] for k in keep]
+            owners = [owners[k] for k in keep]
+            positions = [positions[k] for k in keep]
+            rows_of = [rows_of[k] for k in keep]
+            if idents is not None:
+                idents = [idents[k] for k in keep]
+        if not items:
+            return
+        if max(owners) < _RECORD_KEY_LIMIT and max(positions) < (1 << _POSITION_BITS):
+            keys = [(o << _POSITION_BITS) | p for o, p in zip(owners, positions)]
+        else:
+            where = f"{nested.file}:{nested.column}"
+            keys = [row_key(where, o, p) for o, p in zip(owners, positions)]
+        table = self.rows[nested.table]
+        if nested.kind == "value-list":
+            found = self.values.get(nested.entity)
+            if found is None:
+                found = self.values[nested.entity] = _ValueTable()
+            texts = ["text:" + x if type(x) is str else canonical(x, "text") for x in items]
+            for text, x in zip(texts, items):
+                if text not in found.rows:
+                    entry = found.rows[text] = (key_of(text), to_sql_value(x, "text"))
+                    found.new.append(entry)
+            table.extend(zip(keys, owners, [found.rows[t][0] for t in texts], positions))
+            c.elements_written += len(keys)
+            return
+        known = audit.known(nested, self.entities)
+        if not set(chain.from_iterable(items)) <= known:
+            for o, i in zip(items, rows_of):
+                if not o.keys() <= known:
+                    audit.note_keys(nested, o.keys() - known, export.path, lines[i])
+        links = []
+        for f in nested.links:
+            col = [o.get(f.path[0]) for o in items] if len(f.path) == 1 else [get_path(o, f.path) for o in items]
+            if not set(map(type, col)) <= _STORED_AS_IS[f.type]:
+                converted = [to_sql_value(v, f.type) for v in col]
+                for v, stored, i in zip(col, converted, rows_of):
+                    if stored is None and v is not None:
+                        audit.note_type(export.path, f"{nested.column}.{f.column}", f.type, v, lines[i])
+                col = converted
+            links.append(col)
+        if nested.kind == "entity-list":
+            places = [(lines[i], nested._order, p) for i, p in zip(rows_of, positions)]
+            entity_keys = self.entities[nested.entity].add_column(idents, items, places)
+            table.extend(zip(keys, owners, entity_keys, positions, *links))
+        else:
+            table.extend(zip(keys, owners, positions, *links))
+        c.elements_written += len(keys)
 
     def take_rows(self) -> dict[str, list[tuple]]:
         """Rows made since the last call: records, bridges, children, and entities and values first seen."""
@@ -314,35 +464,48 @@ class Builder:
         merges: list[dict] = []
         updates: dict[str, list[tuple]] = {}
         for table, acc in self.entities.items():
-            for text in sorted(acc.first):
+            for text, chosen_values, per_attribute in acc.choose():
                 first = acc.first[text]
                 sk, natural = first[0], first[1]
                 chosen = []
-                for (column, _, type_), counter in zip(acc.keys, acc.values[text].values()):
-                    if not counter:
-                        chosen.append(None)
-                        continue
-                    best = counter.most_common(1)[0][0]  # ties go to the first seen: most_common is stable
-                    chosen.append(to_sql_value(best, type_))
-                    if len(counter) > 1:
+                for (column, _, type_), best, found in zip(acc.keys, chosen_values, per_attribute):
+                    chosen.append(None if best is None else to_sql_value(best, type_))
+                    if len(found) > 1:
                         conflicts += 1
-                        for v, n in counter.items():
+                        for v, n, _ in found:
                             self.meta["attribute_variants"].append(
                                 (table, sk, str(natural), column,
                                  None if v is None else str(to_sql_value(v, "text")), n, v == best))
-                if acc.group.matched:
-                    spellings = acc.values[text][acc.keys[0][0]]
-                    if len(spellings) > 1:
-                        merges.append({"table": table, "key": natural, "spellings": dict(spellings)})
+                if acc.group.matched and len(per_attribute[0]) > 1:
+                    merges.append({"table": table, "key": natural,
+                                   "spellings": {v: n for v, n, _ in per_attribute[0]}})
                 row = (sk, natural, *chosen)
                 if row != first:
                     updates.setdefault(table, []).append(row)
         for name in META_TABLES:
+            if name != "attribute_variants":  # variants are already in a fixed order
+                self.meta[name].sort(key=_meta_order)
             rows[name] = [(n, *r) for n, r in enumerate(self.meta[name], start=1)]
         counts = [self.counts[r.path] if r.path in self.counts else FileCounts(r.file, r.path)
                   for r in self.plan.records]
         return Built(rows, counts, conflicts, merges=merges,
                      cells_quarantined_by_file=dict(self.quarantined_by_file), updates=updates)
+
+
+_STORED_AS_IS = {  # Python types a column stores without conversion (None is NULL)
+    "integer": {int, type(None)}, "real": {float, type(None)}, "text": {str, type(None)},
+    "boolean": {bool, type(None)}, "date": {str, type(None)}, "timestamp": {str, type(None)},
+}
+
+
+def _is_columnar(nested: NestedColumn) -> bool:
+    """A top-level list without lists inside its objects takes the columnar path."""
+    return nested.kind in ("entity-list", "child-list", "value-list") and not nested.children and not nested.path
+
+
+def _meta_order(row: tuple):
+    """Bookkeeping rows in file and line order, whatever order the chunks found them in."""
+    return tuple((0, "") if v is None else (1, v) if isinstance(v, str) else (2, v) for v in row[:4])
 
 
 def build(plan: Plan, exports: list, decoded: dict, extra: dict | None = None) -> Built:
@@ -476,7 +639,8 @@ def _nested_rows(plan, nested: NestedColumn, value, owner_sk: int, export, i: in
                 _quarantine_element(audit.quarantine, export, i, nested, position,
                                     f"object without a usable {nested.identity!r}", c)
                 continue
-            entity_sk = entities[nested.entity].add(ident, item)
+            entity_sk = entities[nested.entity].add(ident, item, (export.lines[i], getattr(nested, "_order", 0),
+                                                                  position))
             table.append((sk, owner_sk, entity_sk, position, *links))
         else:
             table.append((sk, owner_sk, position, *links))
