@@ -235,7 +235,7 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--report", metavar="PATH.html",
                    help="also write a self-contained HTML report: schema diagram, counts, checks, problems, charts")
     p.add_argument("--dictionary", metavar="PATH.md", help="also write a data dictionary (Markdown)")
-    p.add_argument("--chunk-rows", type=int, default=20000, metavar="N",
+    p.add_argument("--chunk-rows", type=int, default=5000, metavar="N",
                    help="records read at a time when one CSV/TSV file is built (bounded memory; 0: all at once)")
     p.add_argument("--quiet", action="store_true", help="print nothing but errors (no progress)")
     p.set_defaults(func=cmd_build)
