@@ -30,6 +30,33 @@ class DuplicateNaturalKey(NormaliseError):
     """Records share a natural key and the policy is to refuse."""
 
 
+class TooManyColumns(NormaliseError):
+    """A planned table has more columns than SQLite allows in one table."""
+
+
+def _max_columns() -> int:
+    import sqlite3
+    try:
+        return sqlite3.connect(":memory:").getlimit(sqlite3.SQLITE_LIMIT_COLUMN)
+    except (AttributeError, sqlite3.Error):  # pragma: no cover - before Python 3.11
+        return 2000  # SQLITE_MAX_COLUMN's default (sqlite.org/limits.html)
+
+
+def check_width(plan: Plan) -> None:
+    """Refuse, before anything is written, a table wider than SQLite allows (it would fail half-way)."""
+    if max((len(t.columns) for t in plan.tables), default=0) <= 999:  # below any SQLite build's limit
+        return
+    limit = _max_columns()
+    for t in plan.tables:
+        if len(t.columns) > limit:
+            where = ", ".join(f"{s['file']}" + (f" column {s['column']}" if s.get("column") else "")
+                              for s in t.sources) or t.name
+            raise TooManyColumns(
+                f"{where}: table {t.name!r} would have {len(t.columns):,} columns, more than the {limit:,} SQLite "
+                f"allows in one table; nothing was written. Split the export's columns into files that share the "
+                f"key column (they are joined by key), or keep a wide nested column as text (--decode COLUMN=text)")
+
+
 def key_of(text: str) -> int:
     """A deterministic 63-bit surrogate key for a text.
 
@@ -61,6 +88,21 @@ def row_key(source: str, owner_sk: int, position: int) -> int:
     return key_of(f"{source}:{owner_sk}:{position}")
 
 
+_INT64_MIN, _INT64_MAX = -(1 << 63), (1 << 63) - 1
+
+
+def usable_identity(value, type_: str) -> bool:
+    """Whether a value can be an entity's identity of that type (stored in a NOT NULL UNIQUE column).
+
+    Example:
+        >>> usable_identity(7, "integer"), usable_identity("7", "integer"), usable_identity(2**64, "integer")
+        (True, False, False)
+    """
+    if value is None or type(value) in (dict, list, tuple, bool):
+        return False
+    return type_ != "integer" or (type(value) is int and _INT64_MIN <= value <= _INT64_MAX)
+
+
 def to_sql_value(value, type_: str):
     """A decoded value as the column type stores it (None stays None)."""
     if value is None:
@@ -68,16 +110,18 @@ def to_sql_value(value, type_: str):
     if type_ == "integer":
         if isinstance(value, bool):
             return int(value)
-        if isinstance(value, int):
-            return value
-        try:
-            return int(value)
-        except (TypeError, ValueError):
-            return None
+        if not isinstance(value, int):
+            try:
+                value = int(value)
+            except (TypeError, ValueError, OverflowError):  # OverflowError: int(inf)
+                return None
+        # SQLite's INTEGER holds 64 bits; a bigger value is not an integer of the column
+        # (stored as NULL and reported, like any value of another type)
+        return value if _INT64_MIN <= value <= _INT64_MAX else None
     if type_ == "real":
         try:
             return float(value)
-        except (TypeError, ValueError):
+        except (TypeError, ValueError, OverflowError):  # OverflowError: float(10**400)
             return None
     if type_ == "boolean":
         if isinstance(value, str):
@@ -171,6 +215,9 @@ class _Audit:
                                     f"(inferred from the first records); they were stored as NULL"))
 
 
+_ABSENT = object()  # a key an object does not have (None is a value: null)
+
+
 class _ValueTable:
     """The distinct values of a list of scalars, and those first seen since they were last taken."""
 
@@ -227,26 +274,37 @@ class _Entities:
 
     def add_column(self, idents: list, objects: list[dict], places: list[tuple]) -> list[int]:
         """Many occurrences at once (the columnar path); returns their entity keys."""
-        found = {}
-        for ident, where in zip(reversed(idents), reversed(range(len(idents)))):
-            found[(type(ident), ident)] = where  # ends on each identity's first occurrence
-        texts = {}
-        for (kind, ident), where in found.items():
-            text, sk = self.lookup(ident)
-            texts[(kind, ident)] = (text, sk)
-            self.new_entity(text, sk, ident, objects[where])
-        keyed = [texts[(type(i), i)] for i in idents]
+        kinds = set(map(type, idents))
+        if len(kinds) == 1:  # one type of identity: the values themselves are the lookup keys
+            found = dict(zip(reversed(idents), reversed(range(len(idents)))))  # each one's first occurrence
+            sks = {}
+            for ident, where in found.items():
+                text, sk = self.lookup(ident)
+                sks[ident] = (text, sk)
+                self.new_entity(text, sk, ident, objects[where])
+            keyed = list(map(sks.__getitem__, idents))
+        else:
+            keyed = []
+            for ident, obj in zip(idents, objects):
+                text, sk = self.lookup(ident)
+                self.new_entity(text, sk, ident, obj)
+                keyed.append((text, sk))
         text_col = [t for t, _ in keyed]
         for k, (_, key, _) in enumerate(self.keys):
-            carrying = [(t, o[key]) for t, o in zip(text_col, objects) if key in o]
-            if carrying and any(isinstance(v, (list, dict)) for _, v in carrying):
+            values = [o.get(key, _ABSENT) for o in objects]
+            if _ABSENT in values:
+                carrying = [(t, v) for t, v in zip(text_col, values) if v is not _ABSENT]
+                where = [p for v, p in zip(values, places) if v is not _ABSENT]
+            else:
+                carrying, where = list(zip(text_col, values)), places
+            if set(map(type, values)) & {list, dict}:
                 carrying = [(t, v if not isinstance(v, (list, dict)) else json.dumps(v)) for t, v in carrying]
             self.counts[k].update(carrying)
-            where = [p for o, p in zip(objects, places) if key in o]
             first_here = dict(zip(reversed(carrying), reversed(where)))
             first_at = self.first_at[k]
             for pair, place in first_here.items():
-                if pair not in first_at or place < first_at[pair]:
+                seen = first_at.get(pair)
+                if seen is None or place < seen:
                     first_at[pair] = place
         return [sk for _, sk in keyed]
 
@@ -285,6 +343,7 @@ class Builder:
     """
 
     def __init__(self, plan: Plan, extra: dict | None = None):
+        check_width(plan)
         self.plan = plan
         self.meta: dict[str, list[tuple]] = {name: list((extra or {}).get(name, [])) for name in META_TABLES}
         self.rows: dict[str, list[tuple]] = {t.name: [] for t in plan.tables if t.name not in self.meta}
@@ -385,7 +444,8 @@ class Builder:
             idents = [o.get(nested.identity) for o in items]
             if nested.matched:
                 idents = [match_key(v) or None for v in idents]
-            bad = [k for k, v in enumerate(idents) if v is None or type(v) in (dict, list, tuple, bool)]
+            identity_type = self.entities[nested.entity].group.identity_type
+            bad = [k for k, v in enumerate(idents) if not usable_identity(v, identity_type)]
         if bad:
             for k in bad:
                 x = items[k]
@@ -428,7 +488,7 @@ class Builder:
         links = []
         for f in nested.links:
             col = [o.get(f.path[0]) for o in items] if len(f.path) == 1 else [get_path(o, f.path) for o in items]
-            if not set(map(type, col)) <= _STORED_AS_IS[f.type]:
+            if not (set(map(type, col)) <= _STORED_AS_IS[f.type] and (f.type != "integer" or _fits_int64(col))):
                 converted = [to_sql_value(v, f.type) for v in col]
                 for v, stored, i in zip(col, converted, rows_of):
                     if stored is None and v is not None:
@@ -490,6 +550,12 @@ class Builder:
                   for r in self.plan.records]
         return Built(rows, counts, conflicts, merges=merges,
                      cells_quarantined_by_file=dict(self.quarantined_by_file), updates=updates)
+
+
+def _fits_int64(col: list) -> bool:
+    """Whether a column of ints (and None) fits SQLite's 64-bit INTEGER."""
+    ints = [v for v in col if v is not None]
+    return not ints or (_INT64_MIN <= min(ints) and max(ints) <= _INT64_MAX)
 
 
 _STORED_AS_IS = {  # Python types a column stores without conversion (None is NULL)
@@ -635,7 +701,7 @@ def _nested_rows(plan, nested: NestedColumn, value, owner_sk: int, export, i: in
             ident = item.get(nested.identity)
             if nested.matched:
                 ident = match_key(ident) or None
-            if ident is None or isinstance(ident, (dict, list, tuple, bool)):
+            if not usable_identity(ident, entities[nested.entity].group.identity_type):
                 _quarantine_element(audit.quarantine, export, i, nested, position,
                                     f"object without a usable {nested.identity!r}", c)
                 continue
