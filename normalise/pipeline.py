@@ -198,6 +198,7 @@ def _build_streaming(path: str, database: str, *, options: Options | None, limit
     order = check_plan(plan)
     builder = Builder(plan)
     writer = SqliteWriter(plan, order, database, replace)
+    writer.start_background()
     try:
         builder.add(start, start_decoded)
         _flush(builder, writer)

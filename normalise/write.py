@@ -97,7 +97,8 @@ def _loading_pragmas(dbapi_connection, _record) -> None:
 
 
 def sqlite_engine(path: str) -> sa.Engine:
-    engine = sa.create_engine(f"sqlite:///{path}")
+    # one connection is handed from the main thread to the writer thread, never used by both at once
+    engine = sa.create_engine(f"sqlite:///{path}", connect_args={"check_same_thread": False})
     event.listen(engine, "connect", _foreign_keys_on)
     return engine
 
@@ -118,6 +119,9 @@ class SqliteWriter:
             raise DestinationExists(f"{destination} exists; use --replace to overwrite it")
         Path(destination).parent.mkdir(parents=True, exist_ok=True)
         self.plan, self.order, self.destination = plan, order, destination
+        self._queue = None  # the writer thread's batches, once start_background is called
+        self._thread = None
+        self._failure: BaseException | None = None
         self.temporary = f"{destination}.partial-{os.getpid()}"
         if os.path.exists(self.temporary):
             os.remove(self.temporary)
@@ -146,8 +150,18 @@ class SqliteWriter:
             raise
 
     def insert(self, name: str, rows: list[tuple]) -> None:
+        """Add rows to a table; with ``start_background`` they are written by the writer thread."""
         if not rows:
             return
+        self.row_counts[name] = self.row_counts.get(name, 0) + len(rows)
+        if self._queue is not None:
+            if self._failure is not None:
+                raise self._failure
+            self._queue.put((name, rows))
+        else:
+            self._insert(name, rows)
+
+    def _insert(self, name: str, rows: list[tuple]) -> None:
         try:
             self.cursor.executemany(self.statements[name], rows)
         except UnicodeEncodeError:
@@ -156,10 +170,41 @@ class SqliteWriter:
             if self.plan.table(name).role not in META_ROLES:
                 raise
             self.cursor.executemany(self.statements[name], [tuple(map(printable, row)) for row in rows])
-        self.row_counts[name] = self.row_counts.get(name, 0) + len(rows)
+
+    def start_background(self, depth: int = 4) -> None:
+        """Write inserted rows from a second thread, so SQLite's work (which releases the GIL) runs
+        beside the decoding and building; at most ``depth`` batches wait, which bounds memory."""
+        import queue
+        import threading
+
+        self._queue = queue.Queue(maxsize=depth)
+
+        def work():
+            while True:
+                item = self._queue.get()
+                if item is None:
+                    return
+                if self._failure is None:
+                    try:
+                        self._insert(*item)
+                    except BaseException as exc:  # handed to the main thread on its next call
+                        self._failure = exc
+
+        self._thread = threading.Thread(target=work, name="normalise-sqlite-writer", daemon=True)
+        self._thread.start()
+
+    def _drain(self) -> None:
+        """Wait for the writer thread to finish what it was given; raise what it met."""
+        if self._queue is not None:
+            self._queue.put(None)
+            self._thread.join()
+            self._queue = None
+        if self._failure is not None:
+            raise self._failure
 
     def update(self, name: str, rows: list[tuple]) -> None:
         """Rewrite rows (whole, matched on their first column, the primary key)."""
+        self._drain()
         if rows:
             table = self.md.tables[name]
             key, *rest = [c.name for c in table.columns]
@@ -174,6 +219,7 @@ class SqliteWriter:
         database itself (table ``run_manifest``) within the same transaction.
         """
         try:
+            self._drain()
             for name in self.order:
                 for index in self.md.tables[name].indexes:
                     self.cursor.execute(str(sa.schema.CreateIndex(index).compile(dialect=self.dialect)))
@@ -203,6 +249,11 @@ class SqliteWriter:
         return checks
 
     def abort(self) -> None:
+        if self._queue is not None:  # stop the writer thread before closing its connection
+            self._failure = self._failure or RuntimeError("aborted")
+            self._queue.put(None)
+            self._thread.join()
+            self._queue = None
         try:
             self.raw.close()
         except Exception:  # pragma: no cover - closing a broken connection
