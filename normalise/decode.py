@@ -25,6 +25,7 @@ from __future__ import annotations
 import csv
 import json
 import re
+import sys
 from collections import Counter
 from dataclasses import dataclass, field
 
@@ -163,6 +164,43 @@ def rewrite_as_json(texts: list[str]) -> list[str | None]:
     return python_literals_as_json(texts)
 
 
+class _NestingGuard:
+    """Enforce the depth limit through the recursion limit while a column is decoded.
+
+    ``json``'s C scanner enters one recursion level per nested array or object,
+    so with the interpreter's recursion limit set to the current depth plus
+    ``max_depth`` a deeper cell raises RecursionError, and then takes the exact
+    path, which measures its depth and says so. This costs nothing per cell,
+    where counting brackets costs a scan of every cell. The limit is never
+    raised above its old value, and always restored; when it cannot be set,
+    ``active`` is False and the caller counts brackets instead.
+    """
+
+    def __init__(self, max_depth: int):
+        self.max_depth = max_depth
+        self.active = False
+
+    def __enter__(self):
+        frames, f = 0, sys._getframe()
+        while f is not None:
+            frames += 1
+            f = f.f_back
+        self.old = sys.getrecursionlimit()
+        wanted = frames + self.max_depth  # the decode call's own frames make it stricter still
+        if wanted < self.old:
+            try:
+                sys.setrecursionlimit(wanted)
+                self.active = True
+            except RecursionError:  # pragma: no cover - deeper in C than in Python frames
+                pass
+        return self
+
+    def __exit__(self, *exc):
+        if self.active:
+            sys.setrecursionlimit(self.old)
+        return False
+
+
 def _decode_python_column(texts: list[str], limits: Limits) -> list:
     """Decode Python-literal cells; a CellError instance marks a failed cell."""
     values = []
@@ -172,22 +210,28 @@ def _decode_python_column(texts: list[str], limits: Limits) -> list:
     # no NaN guard here, and its shared default decoder is the fastest call.
     loads = json.loads
     max_chars, max_depth = limits.max_cell_chars, limits.max_depth
-    for text, js in zip(texts, as_json):
-        if js is not None:
-            try:
-                if len(text) > max_chars or text.count("[") + text.count("{") > max_depth:
-                    check_limits(text, limits)
-                append(loads(js))
-                continue
-            except CellError as exc:
-                append(exc)
-                continue
-            except (ValueError, RecursionError):
-                pass
+    fast = []
+    with _NestingGuard(max_depth) as guard:
+        for text, js in zip(texts, as_json):
+            if js is not None:
+                try:
+                    if len(text) > max_chars or (not guard.active
+                                                 and text.count("[") + text.count("{") > max_depth):
+                        check_limits(text, limits)
+                    append(loads(js))
+                    continue
+                except CellError as exc:
+                    append(exc)
+                    continue
+                except (ValueError, RecursionError):
+                    pass
+            fast.append(len(values))
+            append(None)
+    for k in fast:  # the exact path, outside the guard: it measures depth itself
         try:
-            append(decode_python_literal(text, limits))
+            values[k] = decode_python_literal(texts[k], limits)
         except CellError as exc:
-            append(exc)
+            values[k] = exc
     return values
 
 
@@ -211,22 +255,28 @@ def _decode_json_column(texts: list[str], limits: Limits, raw_surrogates: bool =
     append = values.append
     decode_one = _STRICT_JSON.decode
     max_chars, max_depth = limits.max_cell_chars, limits.max_depth
-    for text in texts:
-        try:
-            if (len(text) > max_chars or text.count("[") + text.count("{") > max_depth
-                    or (raw_surrogates and not text.isascii() and _SURROGATE.search(text))):
-                check_limits(text, limits)
-            value = decode_one(text)
-            if "\\u" in text:
-                check_escapes(text, value)
-            append(value)
-        except CellError as exc:
-            append(exc)
-        except (ValueError, RecursionError):
+    retry = []
+    with _NestingGuard(max_depth) as guard:
+        for text in texts:
             try:
-                append(decode_json(text, limits))
+                if (len(text) > max_chars
+                        or (not guard.active and text.count("[") + text.count("{") > max_depth)
+                        or (raw_surrogates and not text.isascii() and _SURROGATE.search(text))):
+                    check_limits(text, limits)
+                value = decode_one(text)
+                if "\\" in text and "\\u" in text:
+                    check_escapes(text, value)
+                append(value)
             except CellError as exc:
                 append(exc)
+            except (ValueError, RecursionError):
+                retry.append(len(values))
+                append(None)
+    for k in retry:  # the exact path, outside the guard: it measures depth itself
+        try:
+            values[k] = decode_json(texts[k], limits)
+        except CellError as exc:
+            values[k] = exc
     return values
 
 
