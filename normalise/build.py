@@ -147,6 +147,7 @@ class FileCounts:
     records_loaded: int = 0
     rows_set_aside: int = 0
     rows_rejected: int = 0
+    rows_unmatched: int = 0  # one-to-many: rows naming no main record, kept in unmatched_rows
     elements_decoded: int = 0
     elements_written: int = 0
     elements_quarantined: int = 0
@@ -154,7 +155,8 @@ class FileCounts:
 
     @property
     def reconciled(self) -> bool:
-        rows = self.rows_read == self.records_loaded + self.rows_set_aside + self.rows_rejected
+        rows = self.rows_read == (self.records_loaded + self.rows_set_aside + self.rows_rejected
+                                  + self.rows_unmatched)
         elements = self.elements_decoded == self.elements_written + self.elements_quarantined
         return rows and elements
 
@@ -368,6 +370,7 @@ class Builder:
             c = self.counts[export.path] = FileCounts(record.file, export.path)
         c.rows_read += getattr(export, "main_rows_read", export.rows_read)
         c.rows_rejected += len(export.rejected)
+        c.rows_unmatched += getattr(export, "rows_unmatched", 0)
         for r in export.rejected:
             meta["rejected_rows"].append((r.file, r.line, r.reason, r.raw))
         for col in columns.values():

@@ -68,5 +68,7 @@ def check_rows(plan: Plan, rows: dict[str, list[tuple]]) -> int:
             pidx = [pnames.index(c) for c in fk.ref_columns]
             present = {tuple(r[k] for k in pidx) for r in rows[parent.name]}
             idx = [names.index(c) for c in fk.columns]
-            missing += sum(tuple(r[k] for k in idx) not in present for r in rows[t.name])
+            # a NULL foreign key names no row and needs none (SQL's MATCH SIMPLE)
+            missing += sum(tuple(r[k] for k in idx) not in present for r in rows[t.name]
+                           if all(r[k] is not None for k in idx))
     return missing

@@ -265,7 +265,7 @@ def _decode_json_column(texts: list[str], limits: Limits, raw_surrogates: bool =
                     check_limits(text, limits)
                 value = decode_one(text)
                 if "\\" in text and "\\u" in text:
-                    check_escapes(text, value)
+                    check_escapes(text, value, pairs=True)
                 append(value)
             except CellError as exc:
                 append(exc)

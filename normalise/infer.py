@@ -279,7 +279,16 @@ def scalar_column_type(values: list) -> str:
     if present and not all(isinstance(v, str) for v in present):
         return value_type(present)
     t = scalar_type(present)
+    if t == "real" and any(len(v) > 15 and _INTEGER_TEXT.fullmatch(v) for v in present):
+        # integers of more digits than a float holds exactly: as integers when they all fit 64 bits, else
+        # as text, never rounded to a float
+        ints = [v for v in present if _INTEGER_TEXT.fullmatch(v)]
+        fits = len(ints) == len(present) and all(len(v) <= 20 and -(1 << 63) <= int(v) < (1 << 63) for v in ints)
+        return "integer" if fits else "text"
     return "text" if t == "empty" else t
+
+
+_INTEGER_TEXT = re.compile(r"[-+]?[1-9][0-9]*")
 
 
 def detect_natural_key(columns: list[str], values: dict[str, list], types: dict[str, str]) -> str | None:
@@ -550,6 +559,8 @@ def infer_plan(exports: list, decoded: dict, options: Options | None = None) -> 
                 from .errors import UsageError
                 raise UsageError(f"--key {export.name}={chosen}: {export.path} has no scalar column {chosen!r}")
             record.natural_key = [next(f.column for f in record.scalars if f.path == [chosen])]
+        record.parent_path = getattr(export, "parent_path", "")
+        record.parent_column = getattr(export, "parent_column", "")
         plan.records.append(record)
 
     _group_entities(plan, entity_lists, options, tables)

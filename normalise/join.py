@@ -53,6 +53,7 @@ class Joined:
     set_aside: list[tuple] = field(default_factory=list)  # rows of set_aside_rows
     unmatched: list[tuple] = field(default_factory=list)  # rows of unmatched_rows
     inputs: list[dict] = field(default_factory=list)  # counts of the joined files
+    inner_unmatched: dict = field(default_factory=dict)  # main row -> why an inner one-to-many join sets it aside
     settings: "JoinOptions | None" = None
 
 
@@ -131,6 +132,9 @@ def join(exports: list[Export], decoded: dict, options: JoinOptions, natural_key
             right_col = find_relation(main, main_key, other, decoded)
         if right_col is None:
             continue
+        if options.cardinality == "one-to-many":
+            _link_many(result, main, main_key, other, right_col, decoded, options)
+            continue
         joined_any = True
         _join_one(result, combined, combined_cols, main, main_key, other, right_col, decoded, options)
         result.exports.remove(other)
@@ -138,14 +142,17 @@ def join(exports: list[Export], decoded: dict, options: JoinOptions, natural_key
     if joined_any:
         result.exports[0] = combined
         result.decoded[main.path] = combined_cols
+    if result.inner_unmatched:  # main records an inner one-to-many join sets aside
+        target = result.exports[0]
+        if getattr(target, "inner_unmatched", None) is None:
+            target.inner_unmatched = {}
+        for i, reason in result.inner_unmatched.items():
+            target.inner_unmatched.setdefault(i, reason)
     return result
 
 
 def _join_one(result: Joined, combined: JoinedExport, combined_cols: dict, main: Export, main_key: str,
               other: Export, right_col: str, decoded: dict, options: JoinOptions) -> None:
-    if options.cardinality != "one-to-one":
-        raise UsageError("--cardinality one-to-many is not supported yet: give the file as its own "
-                         "export with --separate, or join it one-to-one")
     right_keys = _key_values(other, decoded, right_col)
     left_keys = _key_values(main, decoded, main_key)
     first: dict[str, int] = {}
@@ -232,6 +239,71 @@ def _join_one(result: Joined, combined: JoinedExport, combined_cols: dict, main:
         for i, j in enumerate(index):
             if j is None and i < combined.main_rows:
                 combined.inner_unmatched.setdefault(i, f"no match in {other.name} (inner join)")
+
+
+@dataclass
+class LinkedExport(Export):
+    """A further export whose rows each belong to one record of the main export (one-to-many)."""
+
+    parent_path: str = ""  # the main export
+    parent_column: str = ""  # the column holding the main record's key
+    main_rows_read: int = 0
+    rows_unmatched: int = 0
+
+
+def _link_many(result: Joined, main: Export, main_key: str, other: Export, right_col: str, decoded: dict,
+               options: JoinOptions) -> None:
+    """One-to-many: the further file stays a record table of its own, each row keyed to its main record.
+
+    Its rows whose key names no main record are kept in ``unmatched_rows`` (a full
+    join loads them with no main record instead); main records without rows are
+    counted, and set aside by an inner join.
+    """
+    from .names import singular, sql_name
+
+    left_keys = _key_values(main, decoded, main_key)
+    right_keys = _key_values(other, decoded, right_col)
+    owner: dict[str, int] = {}
+    order = range(len(left_keys)) if options.duplicates != "last" else range(len(left_keys) - 1, -1, -1)
+    for i in order:  # the main record that keeps each key (its duplicates are set aside by the build)
+        if left_keys[i] is not None:
+            owner.setdefault(left_keys[i], main.lines[i])
+    keep, unmatched = [], []
+    for j, k in enumerate(right_keys):
+        (keep if k in owner or (options.how == "full" and k is not None) else unmatched).append(j)
+    for j in unmatched:
+        reason = "no join key" if right_keys[j] is None else f"key {right_keys[j]!r} not in {main.name}"
+        result.unmatched.append((other.path, other.lines[j], right_keys[j], reason, _cells_json(other, j)))
+    column = sql_name(f"{singular(sql_name(main.name))}_sk")
+    while column in other.columns:
+        column += "_"
+    cells = {c: [other.cells[c][j] for j in keep] for c in other.columns}
+    cells[column] = [owner.get(right_keys[j]) for j in keep]
+    linked = LinkedExport(other.path, other.kind, list(other.columns) + [column], cells,
+                          [other.lines[j] for j in keep], list(other.rejected), list(other.warnings),
+                          {**other.header_names, column: column}, other.delimiter, other.encoding,
+                          parent_path=main.path, parent_column=column, main_rows_read=other.rows_read,
+                          rows_unmatched=len(unmatched))
+    columns = {}
+    for name, col in decoded[other.path].items():
+        columns[name] = DecodedColumn(name, col.encoding, [col.values[j] for j in keep], col.quarantined,
+                                      col.format_counts, col.separator, col.ambiguity, col.forced)
+    columns[column] = DecodedColumn(column, "scalar", cells[column])
+    result.exports[result.exports.index(other)] = linked
+    result.decoded[other.path] = columns
+    right_set = {k for k in right_keys if k is not None}
+    left_only = sorted(set(owner) - right_set)
+    right_only = sorted(right_set - set(owner))
+    if options.how == "inner":
+        main_index = {line: i for i, line in enumerate(main.lines)}
+        result.inner_unmatched.update({main_index[owner[k]]: f"no row in {other.name} (inner join)"
+                                       for k in left_only})
+    result.joins.append({"left": main.path, "right": other.path, "on": [[main_key, right_col]],
+                         "how": options.how, "cardinality": options.cardinality,
+                         "left_only": len(left_only), "right_only": len(right_only),
+                         "right_duplicates_set_aside": 0,
+                         "left_only_examples": left_only[:EXAMPLES], "right_only_examples": right_only[:EXAMPLES],
+                         "columns": {column: column}})
 
 
 def _cells_json(export: Export, j: int) -> str:

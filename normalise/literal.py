@@ -83,13 +83,37 @@ def lone_surrogate_in(value) -> bool:
     return False
 
 
-def check_escapes(text: str, value) -> None:
+# A surrogate escape that starts an escape (not the "\\ud800" of an escaped backslash).
+_SURROGATE_ESCAPE_AT = re.compile(r"(?<!\\)(?:\\\\)*(\\(?:u[dD][89a-fA-F][0-9a-fA-F]{2}|U0000[dD][89a-fA-F][0-9a-fA-F]{2}))")
+
+
+def _lone_escape_position(text: str, pairs: bool) -> int:
+    """1-based place of the first escape that gives a lone surrogate.
+
+    In JSON (``pairs``) a high surrogate escape directly followed by a low one is
+    one character (RFC 8259, section 7); in Python every surrogate escape is lone.
+    """
+    found = list(_SURROGATE_ESCAPE_AT.finditer(text))
+    k = 0
+    while k < len(found):
+        here = found[k]
+        if (pairs and k + 1 < len(found) and here.group(1)[2] in "dD" and here.group(1)[3] in "89abAB"
+                and found[k + 1].start(1) == here.end(1) and found[k + 1].group(1)[3] in "cdefCDEF"):
+            k += 2
+            continue
+        return here.start(1) + 1
+    match = _SURROGATE_ESCAPE.search(text)
+    return match.start() + 1 if match else 1
+
+
+def check_escapes(text: str, value, pairs: bool = False) -> None:
     """Refuse a value whose escapes (\\ud800...) made a lone surrogate: RFC 8259 section 8.2 calls such
-    strings unpredictable, and no database stores them as text."""
+    strings unpredictable, and no database stores them as text. ``pairs``: JSON text, where a
+    high and a low surrogate escape in a row make one character."""
     if "\\" in text and _SURROGATE_ESCAPE.search(text) and lone_surrogate_in(value):
-        found = _SURROGATE_ESCAPE.search(text)
         raise CellError("an escape gives a lone surrogate, which is not a character "
-                        "(RFC 8259, section 8.2); it cannot be stored as text", found.start() + 1)
+                        "(RFC 8259, section 8.2); it cannot be stored as text",
+                        _lone_escape_position(text, pairs))
 
 
 def check_limits(text: str, limits: Limits) -> None:
@@ -142,7 +166,7 @@ def decode_json(text: str, limits: Limits = Limits()):
         raise CellError("too deeply nested to decode", 1) from None
     except ValueError as exc:  # e.g. an integer beyond the interpreter's digit limit
         raise CellError(f"not valid JSON: {exc}", None) from None
-    check_escapes(text, value)
+    check_escapes(text, value, pairs=True)
     return value
 
 

@@ -99,6 +99,8 @@ class RecordSource:
     scalars: list[FieldMap] = field(default_factory=list)
     nested: list[NestedColumn] = field(default_factory=list)
     duplicates: str = "first"  # first | last | refuse
+    parent_path: str = ""  # one-to-many: the main export whose records own these
+    parent_column: str = ""  # ... and the column holding the owning record's key
 
 
 @dataclass

@@ -232,6 +232,8 @@ def _iter_delimited(path: str, encoding: str, delimiter: str | None, chunk_rows:
         reader = csv.reader(tap, delimiter=delimiter)
         kind = "tsv" if delimiter == "\t" else "csv"
         header = next(reader, None)
+        while header == []:  # blank lines before the header (a file of blank lines is empty)
+            header = next(reader, None)
         if header is None:
             yield Export(path, kind, [], {}, [], warnings=[f"{path}: empty file"],
                          delimiter=delimiter, encoding=encoding)
@@ -239,7 +241,9 @@ def _iter_delimited(path: str, encoding: str, delimiter: str | None, chunk_rows:
         if _quote_left_open("".join(tap.taken), delimiter):
             raise UnreadableFile(f"{path}: a quote opened in the header (line 1) is never closed, "
                                  "so the whole file reads as the header; close or remove the quote")
+        header, named = _printable_names(header)
         columns, warnings = unique_header(header)
+        warnings = named + warnings
         header_names = dict(zip(columns, header))
         width = len(columns)
 
@@ -329,6 +333,34 @@ def _quote_left_open(raw: str, delimiter: str) -> bool:
     return rows[-1] != [sentinel]
 
 
+def printable_name(name: str) -> str:
+    """A name with bytes the encoding could not read (lone surrogates) written as ``\\xNN`` escapes.
+
+    Names become column names and manifest entries, which must be text.
+
+    Example:
+        >>> printable_name("na\\udcffme"), printable_name("\\ud800"), printable_name("name")
+        ('na\\\\xffme', '\\\\ud800', 'name')
+    """
+    if name.isascii() or not any("\ud800" <= ch <= "\udfff" for ch in name):
+        return name
+    try:
+        return name.encode("utf-8", "surrogateescape").decode("utf-8", "backslashreplace")
+    except UnicodeEncodeError:  # a surrogate from a JSON escape, not from an undecodable byte
+        return name.encode("utf-8", "backslashreplace").decode("utf-8")
+
+
+def _printable_names(header: list[str]) -> tuple[list[str], list[str]]:
+    out, warnings = [], []
+    for i, name in enumerate(header, start=1):
+        shown = printable_name(name)
+        if shown != name:
+            warnings.append(f"header: column {i}'s name holds bytes that are not valid in the file's "
+                            f"encoding; named {shown!r} (try --encoding)")
+        out.append(shown)
+    return out, warnings
+
+
 def _refuse_constant(name: str):
     raise ValueError(f"{name} is not a JSON number (RFC 8259 section 6)")
 
@@ -353,6 +385,8 @@ def _read_json_lines(path: str, encoding: str) -> Export:
                 rejected.append(RejectedRow(path, line_no, line,
                                             f"expected a JSON object, got {type(obj).__name__}"))
                 continue
+            if not all(key.isascii() for key in obj):  # keys with undecodable bytes or lone surrogates
+                obj = {printable_name(key): value for key, value in obj.items()}
             for key in obj:
                 if key not in cells:
                     columns.append(key)

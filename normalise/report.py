@@ -46,6 +46,7 @@ def manifest(plan: Plan, built: Built, database: str, integrity: dict, joined=No
         "database": mask_password(database),
         "inputs": [{"path": c.path, "rows_read": c.rows_read, "records_loaded": c.records_loaded,
                     "rows_set_aside": c.rows_set_aside, "rows_rejected": c.rows_rejected,
+                    "rows_unmatched": c.rows_unmatched,
                     "cells_quarantined": c.cells_quarantined, "elements_decoded": c.elements_decoded,
                     "elements_written": c.elements_written, "elements_quarantined": c.elements_quarantined}
                    for c in built.counts] + joined_inputs,
@@ -75,9 +76,12 @@ def summary(m: dict) -> str:
                        f"{i['joined_into']} + {i['rows_set_aside']} set aside + {i['rows_rejected']} rejected "
                        f"+ {i['rows_unmatched']} unmatched (kept in unmatched_rows)")
             continue
-        ok = "=" if i["rows_read"] == i["records_loaded"] + i["rows_set_aside"] + i["rows_rejected"] else "!="
+        unmatched = i.get("rows_unmatched", 0)
+        ok = "=" if i["rows_read"] == (i["records_loaded"] + i["rows_set_aside"] + i["rows_rejected"]
+                                       + unmatched) else "!="
         out.append(f"  {i['path']}: {i['rows_read']} rows read {ok} {i['records_loaded']} loaded "
-                   f"+ {i['rows_set_aside']} set aside + {i['rows_rejected']} rejected; "
+                   f"+ {i['rows_set_aside']} set aside + {i['rows_rejected']} rejected"
+                   + (f" + {unmatched} unmatched (kept in unmatched_rows)" if unmatched else "") + "; "
                    f"{i['elements_decoded']} nested elements = {i['elements_written']} written "
                    f"+ {i['elements_quarantined']} quarantined; {i['cells_quarantined']} cells quarantined")
     width = max(len(t["name"]) for t in m["tables"])

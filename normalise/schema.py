@@ -29,8 +29,13 @@ def add_tables(plan: Plan) -> None:
             if nested.kind == "object-columns":
                 cols += [Column(f.column, f.type, source=nested.column + "." + ".".join(f.path))
                          for f in nested.links]
+        fks = []
+        if record.parent_path:  # one-to-many: each record belongs to a record of the main export
+            parent = next(r for r in plan.records if r.path == record.parent_path)
+            column = next(f.column for f in record.scalars if f.path == [record.parent_column])
+            fks.append(ForeignKey([column], parent.table, [parent.key_column]))
         plan.tables.append(Table(record.table, "record", cols, [record.key_column],
-                                 natural_key=list(record.natural_key),
+                                 natural_key=list(record.natural_key), foreign_keys=fks,
                                  sources=[{"file": record.file, "column": None}]))
         for nested in record.nested:
             _nested_tables(plan, nested, record.table, record.key_column)
