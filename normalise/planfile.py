@@ -232,7 +232,9 @@ def plan_from_doc(doc: dict, text: str, exports: list, decoded: dict) -> Plan:
         record = RecordSource(file=file, path=export.path, table=r["table"], key_column=r["key"],
                               natural_key=[r["natural_key"]] if r.get("natural_key") else [],
                               duplicates=r.get("duplicates", "first"),
-                              scalars=_maps(text, r.get("columns"), f"record {file}.columns"))
+                              scalars=_maps(text, r.get("columns"), f"record {file}.columns"),
+                              parent_path=getattr(export, "parent_path", ""),
+                              parent_column=getattr(export, "parent_column", ""))
         planned = {f.path[0] for f in record.scalars}
         for nested in r.get("nested", []):
             record.nested.append(_nested_from(text, nested, columns, handles, plan))
