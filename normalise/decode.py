@@ -339,8 +339,9 @@ def detect_separator(texts: list[str]) -> str | None:
 def _pieces_stand_alone(texts: list[str], sep: str) -> bool:
     """Whether the values found between separators also fill cells on their own, as list items do.
 
-    A comma inside prose or a title ("The Orchard, Revisited") splits off pieces
-    that never stand alone; the items of a list ("poetry, essays") do.
+    A comma inside prose or a title ("The Orchard, Revisited") splits off
+    phrases that never stand alone; the items of a list are codes or tags
+    ("AE,OM", "poetry, essays") or values that also fill cells alone.
     """
     alone = {t.strip() for t in texts if sep not in t}
     pieces = [p for t in texts if sep in t for p in split_delimited(t, sep)]
@@ -348,6 +349,8 @@ def _pieces_stand_alone(texts: list[str], sep: str) -> bool:
         return True  # every cell holds several values: nothing to compare with
     if not pieces:
         return False
+    if sum(not any(ch.isspace() for ch in p) and len(p) <= 24 for p in pieces) >= 0.9 * len(pieces):
+        return True  # codes and tags ("AE,OM", "poetry, essays"), not phrases
     return sum(p in alone for p in pieces) / len(pieces) >= 0.2
 
 

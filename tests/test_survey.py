@@ -372,7 +372,8 @@ def test_undecodable_bytes_are_reported_not_crashed_on(tmp_path, capsys):
     result = cli_json(capsys, str(path))
     [entry] = result["files"]
     name = entry["columns"][1]["name"]
-    assert name == "caf\udce9"  # the escape \udce9 in the JSON text, read back
+    assert name == "caf\\xe9"  # an undecodable byte in a name is written as an escape (a name must be text)
+    assert any("not valid in the file's encoding" in w for w in entry["warnings"])
     assert entry["columns"][1]["quarantined"] == 1
     assert entry["columns"][1]["quarantine"][0]["line"] == 2
     assert "encoding" in entry["columns"][1]["quarantine"][0]["message"]
