@@ -187,7 +187,9 @@ class _NestingGuard:
             f = f.f_back
         self.old = sys.getrecursionlimit()
         wanted = frames + self.max_depth  # the decode call's own frames make it stricter still
-        if wanted < self.old:
+        # From Python 3.12 the recursion limit no longer bounds C code such as json's scanner
+        # (What's New in Python 3.12), so there the caller counts brackets instead.
+        if wanted < self.old and sys.version_info < (3, 12):
             try:
                 sys.setrecursionlimit(wanted)
                 self.active = True
@@ -434,6 +436,9 @@ def decode_column(name: str, cells: list, lines: list[int], file: str,
                 counts["empty"] += 1
             elif raw_surrogates and lone_surrogate_in(cell):
                 pending_bad.append(i)
+            elif forced and forced[0] == "scalar":  # --decode COLUMN=text: the value as its JSON text
+                counts["scalar"] += 1
+                values[i] = json.dumps(cell, ensure_ascii=False)
             else:
                 counts["json"] += 1
                 values[i] = cell

@@ -189,6 +189,8 @@ _NOT_LITERAL = {
     ast.Await: "an await",
     ast.Yield: "a yield",
     ast.YieldFrom: "a yield",
+    ast.BinOp: "arithmetic",
+    ast.UnaryOp: "an operator",
 }
 
 

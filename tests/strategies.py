@@ -239,3 +239,19 @@ def people_exports(draw, max_records: int = 6, text: st.SearchStrategy[str] | No
         tags = draw(st.lists(text, max_size=3))
         records.append({"key": f"K{k}", "people": people, "tags": tags})
     return records
+
+
+def has_lone_surrogate(value) -> bool:
+    """Whether any string in the value (keys and members too) holds a lone surrogate.
+
+    The tool refuses such values (RFC 8259, section 8.2: not characters; no
+    database stores them as text), though json.loads and ast.literal_eval
+    return them.
+    """
+    if isinstance(value, str):
+        return any("\ud800" <= ch <= "\udfff" for ch in value)
+    if isinstance(value, dict):
+        return any(has_lone_surrogate(k) or has_lone_surrogate(v) for k, v in value.items())
+    if isinstance(value, (list, tuple, set, frozenset)):
+        return any(has_lone_surrogate(v) for v in value)
+    return False
