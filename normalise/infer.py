@@ -155,6 +155,11 @@ class IdentityCandidate:
                 "determines": self.determines, "named_like_identity": self.named_like_identity}
 
 
+# Objects with more fields than this are weighed on their fields named like identifiers and then their first
+# fields, so that a wide object (thousands of keys) costs thousands of dependency measures, not millions.
+MAX_WEIGHED_FIELDS = 64
+
+
 def identity_candidates(objects: list[dict], owners: list[int],
                         threshold: float = DEFAULT_VIOLATION_THRESHOLD) -> list[IdentityCandidate]:
     """Fields that could identify the objects of a nested column, best first.
@@ -182,6 +187,9 @@ def identity_candidates(objects: list[dict], owners: list[int],
     n = len(objects)
     table = ObjectTable(objects)
     owner_codes = np.asarray(owners, dtype=np.int64)
+    if len(keys) > MAX_WEIGHED_FIELDS:  # pairs of fields grow with the square: weigh the likeliest only
+        keys = ([k for k in keys if _ID_NAME.search(k)] + [k for k in keys if not _ID_NAME.search(k)])
+        keys = keys[:MAX_WEIGHED_FIELDS]
     for key in keys:
         col = table.column(key)
         kinds = set(map(type, col)) - {type(None), type(_MISSING)}
