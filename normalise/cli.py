@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import argparse
 import json
+import sqlite3
 import re
 import sys
 
@@ -265,9 +266,15 @@ def main(argv: list[str] | None = None) -> int:
     except NormaliseError as exc:
         print(f"normalise: {exc}", file=sys.stderr)
         return 2
+    except sqlite3.DatabaseError as exc:  # e.g. "database or disk is full"; nothing was moved into place
+        print(f"normalise: the database could not be written: {exc}", file=sys.stderr)
+        return 2
     except BrokenPipeError:  # output piped into a pager or head that closed early
         sys.stderr.close()
         return 0
+    except OSError as exc:  # a full disk, a missing directory, a file that cannot be opened
+        print(f"normalise: {exc.strerror or exc}: {exc.filename or ''}".rstrip(": "), file=sys.stderr)
+        return 2
     except KeyboardInterrupt:
         print("normalise: interrupted", file=sys.stderr)
         return 130

@@ -137,10 +137,11 @@ def _record_summary(view: View, plan: Plan, dialect: str) -> str:
         bridge = plan.table(name)
         entity = _bridge_entity(plan, bridge)
         owner_col = bridge.foreign_keys[0].columns[0]
-        entity_col = bridge.foreign_keys[1].columns[0]
+        entity_col = bridge.foreign_keys[1].columns[0]  # the bridge's column; it may be named apart
+        entity_key = bridge.foreign_keys[1].ref_columns[0]
         shown = display_column(entity)
         label = name[len(singular_prefix(record.name)):] if name.startswith(singular_prefix(record.name)) else name
-        source = (f"{_q(name)} b JOIN {_q(entity.name)} e ON e.{_q(entity_col)} = b.{_q(entity_col)} "
+        source = (f"{_q(name)} b JOIN {_q(entity.name)} e ON e.{_q(entity_key)} = b.{_q(entity_col)} "
                   f"WHERE b.{_q(owner_col)} = r.{_q(key)}")
         cols.append(f"(SELECT count(*) FROM {_q(name)} b WHERE b.{_q(owner_col)} = r.{_q(key)}) "
                     f"AS {_q('number_of_' + label)}")
@@ -151,8 +152,9 @@ def _record_summary(view: View, plan: Plan, dialect: str) -> str:
         entity = _bridge_entity(plan, bridge)
         owner_col = bridge.foreign_keys[0].columns[0]
         entity_col = bridge.foreign_keys[1].columns[0]
+        entity_key = bridge.foreign_keys[1].ref_columns[0]
         cols.append(f"(SELECT e.{_q(display_column(entity))} FROM {_q(pick.bridge)} b JOIN {_q(entity.name)} e "
-                    f"ON e.{_q(entity_col)} = b.{_q(entity_col)} WHERE b.{_q(owner_col)} = r.{_q(key)} "
+                    f"ON e.{_q(entity_key)} = b.{_q(entity_col)} WHERE b.{_q(owner_col)} = r.{_q(key)} "
                     f"AND CAST(b.{_q(pick.attribute)} AS TEXT) = {_lit(pick.value)} "
                     f"ORDER BY b.list_position LIMIT 1) AS {_q(pick.name)}")
     return f"SELECT {', '.join(cols)} FROM {_q(record.name)} r"
@@ -208,18 +210,20 @@ def _entity_summary(view: View, plan: Plan, dialect: str) -> str:
     for name in view.lists:
         bridge = plan.table(name)
         owner_col = bridge.foreign_keys[0].columns[0]
-        cols.append(f"(SELECT count(DISTINCT b.{_q(owner_col)}) FROM {_q(name)} b WHERE b.{_q(key)} = e.{_q(key)}) "
+        link = bridge.foreign_keys[1].columns[0]  # the bridge's column for this entity
+        cols.append(f"(SELECT count(DISTINCT b.{_q(owner_col)}) FROM {_q(name)} b WHERE b.{_q(link)} = e.{_q(key)}) "
                     f"AS {_q('records_in_' + name)}")
         owner = bridge.foreign_keys[0].references
         unions.append(f"SELECT {_lit(owner)} AS t, b.{_q(owner_col)} AS k FROM {_q(name)} b "
-                      f"WHERE b.{_q(key)} = e.{_q(key)}")
+                      f"WHERE b.{_q(link)} = e.{_q(key)}")
     cols.append(f"(SELECT count(*) FROM ({' UNION '.join(unions)}) u) AS {_q('records_in_total')}")
     if view.date_column:
         owner = plan.table(plan.table(view.lists[0]).foreign_keys[0].references)
         owner_key = owner.primary_key[0]
         label = owner.natural_key[0] if owner.natural_key else owner_key
         inner = " UNION ".join(f"SELECT b.{_q(plan.table(n).foreign_keys[0].columns[0])} AS k FROM {_q(n)} b "
-                               f"WHERE b.{_q(key)} = e.{_q(key)}" for n in view.lists)
+                               f"WHERE b.{_q(plan.table(n).foreign_keys[1].columns[0])} = e.{_q(key)}"
+                               for n in view.lists)
         date = _bytewise(dialect, f"r.{_q(view.date_column)}", owner.column(view.date_column).type)
         shown_label = _bytewise(dialect, f"r.{_q(label)}", owner.column(label).type)
         for which, direction in (("first", "ASC"), ("last", "DESC")):

@@ -162,14 +162,11 @@ class SqliteWriter:
             self._insert(name, rows)
 
     def _insert(self, name: str, rows: list[tuple]) -> None:
-        try:
-            self.cursor.executemany(self.statements[name], rows)
-        except UnicodeEncodeError:
-            # Only the bookkeeping tables quote raw input (excerpts, rejected rows), which may hold
-            # bytes the file's encoding could not read; they are written as \xNN escapes there.
-            if self.plan.table(name).role not in META_ROLES:
-                raise
-            self.cursor.executemany(self.statements[name], [tuple(map(printable, row)) for row in rows])
+        if self.plan.table(name).role in META_ROLES:
+            # The bookkeeping tables quote raw input (excerpts, rejected rows), which may hold bytes
+            # the file's encoding could not read; they are written as \xNN escapes there.
+            rows = [tuple(map(printable, row)) for row in rows]
+        self.cursor.executemany(self.statements[name], rows)
 
     def start_background(self, depth: int = 4) -> None:
         """Write inserted rows from a second thread, so SQLite's work (which releases the GIL) runs

@@ -209,8 +209,6 @@ def test_full_disk_leaves_destination_untouched(demo, tmp_path, monkeypatch, cap
     assert partials(tmp_path) == [], "a temporary file was left behind"
 
 
-@pytest.mark.xfail(reason="cli.main lets an OSError (ENOSPC) out as a traceback; it catches NormaliseError only",
-                   strict=False)
 def test_full_disk_gives_a_one_line_message(demo, tmp_path, monkeypatch, capsys):
     from normalise.cli import main
 
