@@ -11,7 +11,7 @@ from dataclasses import dataclass, field
 from statistics import median
 
 from .decode import DecodedColumn, decode
-from .infer import identity_candidates
+from .infer import identity_candidates, objects_of
 from .literal import Limits
 from .profile import profile_values
 from .read import Export, read
@@ -45,16 +45,7 @@ def survey_column(export: Export, column: DecodedColumn) -> dict:
         entry["shape"] = profile.shape
         entry.update({k: v for k, v in profile.to_json().items() if k not in ("path", "shape")})
         if profile.shape in ("object-list", "object"):
-            objects, owners = [], []
-            for row, v in enumerate(values):
-                if isinstance(v, dict):
-                    objects.append(v)
-                    owners.append(row)
-                elif isinstance(v, (list, tuple)):
-                    for item in v:
-                        if isinstance(item, dict):
-                            objects.append(item)
-                            owners.append(row)
+            objects, owners = objects_of(values)
             entry["identity_candidates"] = [c.to_json() for c in identity_candidates(objects, owners)]
     if column.separator is not None:
         entry["separator"] = column.separator
