@@ -506,6 +506,14 @@ class Builder:
             table.extend(zip(keys, owners, positions, *links))
         c.elements_written += len(keys)
 
+    def _entity_path(self, group) -> str:
+        """The input file an entity group's first member column comes from."""
+        stem = group.members[0].split(":", 1)[0] if group.members else ""
+        for record in self.plan.records:
+            if record.file == stem:
+                return record.path
+        return self.plan.records[0].path if self.plan.records else ""
+
     def take_rows(self) -> dict[str, list[tuple]]:
         """Rows made since the last call: records, bridges, children, and entities and values first seen."""
         taken = self.rows
@@ -533,6 +541,12 @@ class Builder:
                 chosen = []
                 for (column, _, type_), best, found in zip(acc.keys, chosen_values, per_attribute):
                     chosen.append(None if best is None else to_sql_value(best, type_))
+                    for v, n, place in found:  # values the attribute's type (from the first records) cannot hold
+                        if v is not None and to_sql_value(v, type_) is None:
+                            self.audit.quarantine.append(
+                                (self._entity_path(acc.group), place[0], f"{table}.{column}", None, repr(v)[:40],
+                                 f"{n} value(s) of {column!r} for {table} {natural!r} are not {type_}, the "
+                                 f"attribute's type (inferred from the first records); they were stored as NULL"))
                     if len(found) > 1:
                         conflicts += 1
                         for v, n, _ in found:
