@@ -47,6 +47,36 @@ def printable(value):
         return value.encode("utf-8", "backslashreplace").decode("utf-8")
 
 
+class DestinationLocked(NormaliseError):
+    """Another program is writing to the destination database."""
+
+
+def refuse_if_locked(destination: str) -> None:
+    """Refuse to replace a SQLite database another connection is writing to (it holds a write lock).
+
+    A program still writing to the old file would otherwise keep writing to a file no longer at that path.
+    """
+    import sqlite3
+
+    if not os.path.exists(destination):
+        return
+    try:
+        con = sqlite3.connect(destination, timeout=0)
+    except sqlite3.Error:
+        return
+    try:
+        con.execute("BEGIN IMMEDIATE")  # takes the write lock, or fails at once if another holds it
+        con.rollback()
+    except sqlite3.OperationalError as exc:
+        if "locked" in str(exc) or "busy" in str(exc):
+            raise DestinationLocked(f"{destination} is locked by another program writing to it; "
+                                    "nothing was replaced: try again when it is done") from None
+    except sqlite3.DatabaseError:
+        pass  # not a SQLite database: nothing can be writing to it through SQLite
+    finally:
+        con.close()
+
+
 class DestinationExists(NormaliseError):
     """The destination database exists and --replace was not given."""
 
@@ -239,6 +269,7 @@ class SqliteWriter:
             self.engine.dispose()
             with open(self.temporary, "rb") as f:
                 os.fsync(f.fileno())
+            refuse_if_locked(self.destination)
             os.replace(self.temporary, self.destination)
         except BaseException:
             self.abort()

@@ -275,9 +275,6 @@ def test_locked_destination_is_not_a_traceback(demo, tmp_path):
     check_complete(dest)
 
 
-@pytest.mark.xfail(reason="write.py moves the new database into place (os.replace) whatever locks the old one: "
-                          "a build under another connection's exclusive lock replaces the file silently",
-                   strict=False)
 def test_locked_destination_gives_a_message_and_stays_as_it_was(demo, tmp_path):
     ref = demo["sets"]["joined"]
     dest = tmp_path / "out.db"
