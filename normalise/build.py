@@ -330,7 +330,8 @@ class _Entities:
         return rows
 
 
-META_TABLES = ("rejected_rows", "set_aside_rows", "unmatched_rows", "quarantined_cells", "attribute_variants")
+META_TABLES = ("rejected_rows", "set_aside_rows", "unmatched_rows", "quarantined_cells", "attribute_variants",
+               "name_map")
 
 
 class Builder:
@@ -559,6 +560,7 @@ class Builder:
                 row = (sk, natural, *chosen)
                 if row != first:
                     updates.setdefault(table, []).append(row)
+        self.meta["name_map"] = name_map(self.plan)
         for name in META_TABLES:
             if name != "attribute_variants":  # variants are already in a fixed order
                 self.meta[name].sort(key=_meta_order)
@@ -584,6 +586,35 @@ _STORED_AS_IS = {  # Python types a column stores without conversion (None is NU
 def _is_columnar(nested: NestedColumn) -> bool:
     """A top-level list without lists inside its objects takes the columnar path."""
     return nested.kind in ("entity-list", "child-list", "value-list") and not nested.children and not nested.path
+
+
+def name_map(plan: Plan) -> list[tuple]:
+    """Every name taken from the data and the SQL name it became: (table, column, name in the input, where).
+
+    Names are mapped to ``[a-z0-9_]`` (``names.sql_name``) and quoted in every
+    statement, so none can change the SQL that runs; this table says which is which.
+    """
+    rows = []
+    for record in plan.records:
+        rows.append((record.table, None, record.file, f"file {record.path}"))
+        for f in record.scalars:
+            rows.append((record.table, f.column, f.path[0], f"column of {record.file}"))
+        stack = [(record, n) for n in record.nested]
+        while stack:
+            owner, nested = stack.pop()
+            where = f"column {nested.column!r} of {nested.file}"
+            if nested.table:
+                rows.append((nested.table, None, nested.column + (f".{nested.path}" if nested.path else ""), where))
+            table = nested.table or record.table
+            for f in nested.links:
+                rows.append((table, f.column, ".".join(f.path), f"key in the objects of {where}"))
+            stack.extend((nested, child) for child in nested.children)
+    for group in plan.entities:
+        rows.append((group.table, group.identity_column, group.identity,
+                     f"identity key in {', '.join(group.members)}"))
+        for f in group.attributes:
+            rows.append((group.table, f.column, ".".join(f.path), f"key in {', '.join(group.members)}"))
+    return rows
 
 
 def _meta_order(row: tuple):

@@ -422,7 +422,8 @@ def get_path(obj, path: list[str]):
     return obj
 
 
-META_TABLES = ("rejected_rows", "set_aside_rows", "unmatched_rows", "quarantined_cells", "attribute_variants")
+META_TABLES = ("rejected_rows", "set_aside_rows", "unmatched_rows", "quarantined_cells", "attribute_variants",
+               "name_map")
 _GENERIC_IDENTITY = frozenset(["id", "key", "code", "uuid", "guid", "slug"])
 
 

@@ -101,7 +101,7 @@ def build_database(paths: list[str], database: str, *, options: Options | None =
         >>> _ = open(p, "w").write('key,people\\nb1,"[{\\'id\\': 7, \\'name\\': \\'Ann\\'}]"\\n')
         >>> m = build_database([p], os.path.join(d, "out.db"))
         >>> [(t["name"], t["role"], t["rows"]) for t in m["tables"] if t["rows"]]
-        [('person', 'entity', 1), ('books', 'record', 1), ('book_people', 'bridge', 1)]
+        [('person', 'entity', 1), ('books', 'record', 1), ('book_people', 'bridge', 1), ('name_map', 'names', 5)]
     """
     postgresql = is_postgresql(database)
     if schema is not None and not postgresql:

@@ -10,7 +10,8 @@ from __future__ import annotations
 
 from dataclasses import asdict, dataclass, field
 
-ROLES = ("record", "entity", "bridge", "child", "set_aside", "quarantine", "variants", "rejected", "unmatched")
+ROLES = ("record", "entity", "bridge", "child", "set_aside", "quarantine", "variants", "rejected", "unmatched",
+         "names")
 
 
 @dataclass

@@ -57,9 +57,12 @@ _META = {
     "attribute_variants": [("entity_table", "text", False), ("entity_sk", "integer", False),
                            ("natural_key", "text", False), ("attribute", "text", False), ("value", "text", True),
                            ("occurrences", "integer", False), ("chosen", "boolean", False)],
+    # every name taken from the data (file, header, object key) and the SQL name it was given
+    "name_map": [("table_name", "text", False), ("column_name", "text", True), ("name_in_input", "text", False),
+                 ("found_in", "text", False)],
 }
 _META_ROLE = {"rejected_rows": "rejected", "set_aside_rows": "set_aside", "unmatched_rows": "unmatched",
-              "quarantined_cells": "quarantine", "attribute_variants": "variants"}
+              "quarantined_cells": "quarantine", "attribute_variants": "variants", "name_map": "names"}
 
 
 def _source(member: str, path: str = "") -> dict:

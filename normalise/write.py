@@ -29,7 +29,7 @@ TYPES = {
 }
 
 
-META_ROLES = ("rejected", "set_aside", "unmatched", "quarantine", "variants")
+META_ROLES = ("rejected", "set_aside", "unmatched", "quarantine", "variants", "names")
 
 
 def printable(value):

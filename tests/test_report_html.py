@@ -200,7 +200,7 @@ def test_self_contained(demo):
 def test_one_box_per_table_and_one_line_per_foreign_key(demo):
     db, page = demo["db"], demo["html"]
     names = tables_of(db)
-    assert len(BOX.findall(page)) == len(names) == 13
+    assert len(BOX.findall(page)) == len(names) == 14  # 8 data tables, 6 bookkeeping tables
     boxed = [a["data-table"] for t, a in parse(page) if t == "g" and "table-box" in a.get("class", "").split()]
     assert sorted(boxed) == sorted(names)
     with sqlite3.connect(db) as con:
@@ -326,7 +326,7 @@ def test_postgresql_destination_refuses_the_report_before_writing():
 # --- the diagram at 5 and at 50 tables --------------------------------------------------------------
 
 @pytest.mark.parametrize("size, shape", [(5, dict(records=1, entities=1, lists=1, meta=False)),
-                                         (50, dict(records=6, entities=9, lists=3))])
+                                         (50, dict(records=6, entities=8, lists=3))])
 @pytest.mark.parametrize("with_manifest", [True, False])
 def test_layout_has_one_box_per_table_and_no_overlap(tmp_path, size, shape, with_manifest):
     db = tmp_path / f"s{size}.db"
@@ -365,7 +365,7 @@ def test_layout_has_one_box_per_table_and_no_overlap(tmp_path, size, shape, with
 
 def test_fifty_tables_grouped_by_export(tmp_path):
     db = tmp_path / "s50.db"
-    _, manifest = synthetic_database(db, records=6, entities=9, lists=3)
+    _, manifest = synthetic_database(db, records=6, entities=8, lists=3)
     layout = layout_schema(read_database(db, manifest))
     exports = [b for b in layout.bands if b["kind"] == "export"]
     assert [b["label"] for b in exports] == [f"export export_{r}" for r in range(6)]
@@ -478,7 +478,7 @@ def test_report_renders_in_chromium(demo, tmp_path):
     assert dumped.returncode == 0, dumped.stderr[-2000:]
     assert console_messages(dumped.stderr) == []
     dom = dumped.stdout
-    assert len(BOX.findall(dom)) == len(tables_of(demo["db"])) == 13
+    assert len(BOX.findall(dom)) == len(tables_of(demo["db"])) == 14
     assert len(re.findall(r'<svg class="chart', dom)) >= 7  # 3 entity charts and 4 list-length charts
     shot = tmp_path / "report.png"
     taken = run_chromium(page, tmp_path / "profile", f"--screenshot={shot}", "--window-size=1600,2400",
@@ -494,7 +494,7 @@ def test_report_renders_in_chromium(demo, tmp_path):
 
 def test_fifty_table_report_renders_in_chromium(tmp_path):
     db = tmp_path / "s50.db"
-    _, manifest = synthetic_database(db, records=6, entities=9, lists=3)
+    _, manifest = synthetic_database(db, records=6, entities=8, lists=3)
     page = tmp_path / "s50.html"
     write_outputs(db, manifest, report_path=page)
     dumped = run_chromium(page, tmp_path / "profile", "--dump-dom")
