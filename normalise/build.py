@@ -245,6 +245,7 @@ class _Entities:
         self.new_rows: list[tuple] = []
         self.keys = [(f.column, f.path[0], f.type) for f in group.attributes]
         self.counts = [Counter() for _ in self.keys]  # per attribute: (canonical, value) -> occurrences
+        self.preexisting: set = set()  # entities already in the database (build --append)
         self.first_at = [{} for _ in self.keys]  # per attribute: (canonical, value) -> first place
 
     def lookup(self, ident) -> tuple[str, int]:
@@ -345,9 +346,10 @@ class Builder:
     attributes are chosen from counts over all chunks.
     """
 
-    def __init__(self, plan: Plan, extra: dict | None = None):
+    def __init__(self, plan: Plan, extra: dict | None = None, state: dict | None = None):
         check_width(plan)
         self.plan = plan
+        self.state = state  # what an existing database holds (build --append), else None
         self.meta: dict[str, list[tuple]] = {name: list((extra or {}).get(name, [])) for name in META_TABLES}
         self.rows: dict[str, list[tuple]] = {t.name: [] for t in plan.tables if t.name not in self.meta}
         self.entities = {g.table: _Entities(g) for g in plan.entities}
@@ -356,6 +358,16 @@ class Builder:
         self.quarantined_by_file: Counter = Counter()
         self.first_seen: dict[str, dict] = {}  # record table -> {natural key: line kept}
         self.audit = _Audit(self.meta["quarantined_cells"])
+        if state:
+            for table, keys in state["natural_keys"].items():
+                self.first_seen[table] = dict(keys)
+            for table, rows in state["entities"].items():
+                acc = self.entities[table]
+                acc.first.update(rows)
+                acc.preexisting = set(rows)
+            for table, rows in state["values"].items():
+                found = self.values[table] = _ValueTable()
+                found.rows.update(rows)
 
     def add(self, export, columns: dict) -> None:
         """Rows of one chunk of one export (``columns`` is its decoded columns)."""
@@ -558,13 +570,14 @@ class Builder:
                     merges.append({"table": table, "key": natural,
                                    "spellings": {v: n for v, n, _ in per_attribute[0]}})
                 row = (sk, natural, *chosen)
-                if row != first:
+                if row != first and text not in acc.preexisting:  # appended: existing rows stay as they are
                     updates.setdefault(table, []).append(row)
-        self.meta["name_map"] = name_map(self.plan)
+        self.meta["name_map"] = name_map(self.plan) if not self.state else []  # appended: the map is there
+        offsets = self.state["meta_offset"] if self.state else {}
         for name in META_TABLES:
             if name != "attribute_variants":  # variants are already in a fixed order
                 self.meta[name].sort(key=_meta_order)
-            rows[name] = [(n, *r) for n, r in enumerate(self.meta[name], start=1)]
+            rows[name] = [(n, *r) for n, r in enumerate(self.meta[name], start=offsets.get(name, 0) + 1)]
         counts = [self.counts[r.path] if r.path in self.counts else FileCounts(r.file, r.path)
                   for r in self.plan.records]
         return Built(rows, counts, conflicts, merges=merges,
@@ -622,12 +635,12 @@ def _meta_order(row: tuple):
     return tuple((0, "") if v is None else (1, v) if isinstance(v, str) else (2, v) for v in row[:4])
 
 
-def build(plan: Plan, exports: list, decoded: dict, extra: dict | None = None) -> Built:
+def build(plan: Plan, exports: list, decoded: dict, extra: dict | None = None, state: dict | None = None) -> Built:
     """Rows for every table of the plan, and the counts that reconcile them, all in memory.
 
     ``extra`` holds rows made by earlier passes (the join's set-aside and unmatched rows).
     """
-    builder = Builder(plan, extra)
+    builder = Builder(plan, extra, state)
     for export in exports:
         builder.add(export, decoded[export.path])
     made = builder.take_rows()

@@ -145,7 +145,7 @@ def _run_build(args, options, join_options, progress):
                             replace=args.replace, manifest_path=args.manifest, picks=args.pick,
                             parquet_dir=args.parquet, plan_path=args.plan, chunk_rows=args.chunk_rows or None,
                             progress=progress, schema=args.schema,
-                            report_path=args.report, dictionary_path=args.dictionary)
+                            append=args.append, report_path=args.report, dictionary_path=args.dictionary)
 
 
 def cmd_plan(args) -> int:
@@ -230,6 +230,8 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--manifest", metavar="PATH", help="also write the manifest (JSON) here")
     p.add_argument("--replace", action="store_true",
                    help="overwrite an existing database (PostgreSQL: drop the tables and views of the schema)")
+    p.add_argument("--append", action="store_true",
+                   help="add the records to an existing database built from the same plan (keys stay as they are)")
     _inference_options(p)
     _join_arguments(p)
     p.add_argument("--parquet", metavar="DIR", help="also write every table and view as a Parquet file")

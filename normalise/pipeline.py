@@ -89,7 +89,8 @@ def build_database(paths: list[str], database: str, *, options: Options | None =
                    manifest_path: str | None = None, picks: list[str] | None = None,
                    parquet_dir: str | None = None, plan_path: str | None = None,
                    schema: str | None = None, chunk_rows: int | None = None, progress=None,
-                   report_path: str | None = None, dictionary_path: str | None = None) -> dict:
+                   report_path: str | None = None, dictionary_path: str | None = None,
+                   append: bool = False) -> dict:
     """Run every pass on the exports and write a SQLite database; returns the manifest.
 
     ``database`` may instead be a ``postgresql+psycopg://`` URL: the tables then go into
@@ -114,7 +115,11 @@ def build_database(paths: list[str], database: str, *, options: Options | None =
         from .errors import UsageError
         raise UsageError("--report and --dictionary read a SQLite database; they are not available with a "
                          "PostgreSQL --db")
-    if chunk_rows and not postgresql and _can_stream(paths, options, join_options):
+    if append and (postgresql or replace):
+        from .errors import UsageError
+        raise UsageError("--append adds to an existing SQLite database; it goes with neither --replace nor a "
+                         "PostgreSQL --db")
+    if chunk_rows and not postgresql and not append and _can_stream(paths, options, join_options):
         result = _build_streaming(paths[0], database, options=options, limits=limits, formats=formats,
                                   encoding=encoding, delimiter=delimiter, replace=replace, picks=picks,
                                   plan_path=plan_path, chunk_rows=chunk_rows, progress=progress)
@@ -130,9 +135,19 @@ def build_database(paths: list[str], database: str, *, options: Options | None =
                                              encoding=encoding, delimiter=delimiter, join_options=join_options,
                                              picks=picks, plan_path=plan_path)
     order = check_plan(plan)
+    state = None
+    if append:
+        from .append import offset_record_keys, read_state
+
+        if not os.path.exists(database):
+            from .errors import UsageError
+            raise UsageError(f"--append: {database} does not exist; build it first")
+        state = read_state(os.fspath(database), plan)
+        offset_record_keys(plan, exports, state)
     built = build(plan, exports, decoded,
-                  extra={"set_aside_rows": joined.set_aside, "unmatched_rows": joined.unmatched})
-    missing = check_rows(plan, built.rows)
+                  extra={"set_aside_rows": joined.set_aside, "unmatched_rows": joined.unmatched}, state=state)
+    # appended rows may name rows already in the database: SQLite checks those as they are written
+    missing = check_rows(plan, built.rows) if not append else 0
     if missing:
         from .check import IntegrityError
         raise IntegrityError(f"{missing} foreign-key values name no row; nothing was written")
@@ -142,8 +157,15 @@ def build_database(paths: list[str], database: str, *, options: Options | None =
         result = manifest(plan, built, display_url(database), integrity, joined)
         result["schema"] = integrity["schema"]
     else:
-        integrity = write_sqlite(plan, built.rows, order, database, replace=replace)
+        integrity = write_sqlite(plan, built.rows, order, database, replace=replace, append=append)
         result = manifest(plan, built, os.fspath(database), integrity, joined)
+        if append:  # the manifest counts what the database now holds
+            import sqlite3
+
+            with sqlite3.connect(database) as con:
+                for t in result["tables"]:
+                    t["rows"] = con.execute(f'SELECT count(*) FROM "{t["name"]}"').fetchone()[0]
+            result["appended"] = True
     if parquet_dir:
         result["parquet"] = write_parquet(database, plan, parquet_dir)
     if manifest_path:

@@ -143,10 +143,14 @@ class SqliteWriter:
     synced once before it is moved into place.
     """
 
-    def __init__(self, plan: Plan, order: list[str], destination: str, replace: bool = False):
+    def __init__(self, plan: Plan, order: list[str], destination: str, replace: bool = False,
+                 append: bool = False):
         destination = os.fspath(destination)
-        if os.path.exists(destination) and not replace:
-            raise DestinationExists(f"{destination} exists; use --replace to overwrite it")
+        if append and not os.path.exists(destination):
+            raise DestinationExists(f"{destination} does not exist; --append adds to an existing database")
+        if os.path.exists(destination) and not replace and not append:
+            raise DestinationExists(f"{destination} exists; use --replace to overwrite it, or --append to add to it")
+        self.append = append
         Path(destination).parent.mkdir(parents=True, exist_ok=True)
         self.plan, self.order, self.destination = plan, order, destination
         self._queue = None  # the writer thread's batches, once start_background is called
@@ -155,6 +159,10 @@ class SqliteWriter:
         self.temporary = f"{destination}.partial-{os.getpid()}"
         if os.path.exists(self.temporary):
             os.remove(self.temporary)
+        if append:  # work on a copy; the original stays as it is until the copy is complete
+            import shutil
+
+            shutil.copyfile(destination, self.temporary)
         self.engine = sqlite_engine(self.temporary)
         event.listen(self.engine, "connect", _loading_pragmas)
         self.md = metadata_for(plan)
@@ -171,7 +179,8 @@ class SqliteWriter:
             self.row_counts: dict[str, int] = {}
             for name in order:  # indexes come after the rows: building them once is faster
                 table = self.md.tables[name]
-                self.cursor.execute(str(sa.schema.CreateTable(table).compile(dialect=self.dialect)))
+                if not append:
+                    self.cursor.execute(str(sa.schema.CreateTable(table).compile(dialect=self.dialect)))
                 quoted = ", ".join(_quote(c.name) for c in table.columns)
                 self.statements[name] = (f"INSERT INTO {_quote(name)} ({quoted}) "
                                          f"VALUES ({', '.join('?' * len(table.columns))})")
@@ -247,10 +256,10 @@ class SqliteWriter:
         """
         try:
             self._drain()
-            for name in self.order:
+            for name in self.order if not self.append else ():  # appended: indexes and views are there
                 for index in self.md.tables[name].indexes:
                     self.cursor.execute(str(sa.schema.CreateIndex(index).compile(dialect=self.dialect)))
-            for view in self.plan.views:
+            for view in self.plan.views if not self.append else ():
                 self.cursor.execute(f"CREATE VIEW {_quote(view.name)} AS {view_sql(view, self.plan, 'sqlite')}")
             violations = self.cursor.execute("PRAGMA foreign_key_check").fetchall()
             if violations:
@@ -292,9 +301,9 @@ class SqliteWriter:
 
 
 def write_sqlite(plan: Plan, rows: dict[str, list[tuple]], order: list[str], destination: str,
-                 replace: bool = False, describe=None) -> dict:
+                 replace: bool = False, describe=None, append: bool = False, updates: dict | None = None) -> dict:
     """Write a complete SQLite database at ``destination``; returns SQLite's own integrity checks."""
-    writer = SqliteWriter(plan, order, destination, replace)
+    writer = SqliteWriter(plan, order, destination, replace, append=append)
     try:
         for name in order:
             writer.insert(name, rows[name])

@@ -1,0 +1,75 @@
+"""Appending to a database built from the same plan (``build --append``).
+
+The new records get keys after the existing ones (record key = the largest
+key already there + the line), entities and values already in the database
+keep their rows and keys (keys are hashes of natural keys, so a shared entity
+gets the same key), natural keys already there are set aside as duplicates,
+and the bookkeeping tables go on numbering. The database must have exactly the
+tables and columns the plan makes; otherwise nothing is written.
+"""
+
+from __future__ import annotations
+
+import sqlite3
+
+from .build import canonical
+from .errors import NormaliseError
+from .plan import Plan
+
+
+class SchemaMismatch(NormaliseError):
+    """The database was not built from this plan: --append would mix two models."""
+
+
+def _q(name: str) -> str:
+    return '"' + name.replace('"', '""') + '"'
+
+
+def read_state(database: str, plan: Plan) -> dict:
+    """What the existing database already holds, after checking that its tables are the plan's."""
+    con = sqlite3.connect(database)
+    try:
+        problems = []
+        for t in plan.tables:
+            found = [r[1] for r in con.execute(f"PRAGMA table_info({_q(t.name)})")]
+            wanted = [c.name for c in t.columns]
+            if not found:
+                problems.append(f"table {t.name} is missing")
+            elif found != wanted:
+                problems.append(f"table {t.name} has columns {', '.join(found)}; the plan makes {', '.join(wanted)}")
+        if problems:
+            raise SchemaMismatch(f"{database} was not built from this plan, so nothing was appended: "
+                                 + "; ".join(problems[:5]) + ("; ..." if len(problems) > 5 else "")
+                                 + ". Append with the plan it was built from (--plan), or rebuild with --replace")
+        state = {"record_offset": {}, "natural_keys": {}, "entities": {}, "values": {}, "meta_offset": {}}
+        for record in plan.records:
+            key = record.key_column
+            state["record_offset"][record.table] = con.execute(
+                f"SELECT coalesce(max({_q(key)}), 0) FROM {_q(record.table)}").fetchone()[0]
+            if record.natural_key:
+                state["natural_keys"][record.table] = {
+                    (str(v) if isinstance(v, (int, float)) else v): sk for sk, v in con.execute(
+                        f"SELECT {_q(key)}, {_q(record.natural_key[0])} FROM {_q(record.table)}")}
+        for group in plan.entities:
+            rows = con.execute(f"SELECT * FROM {_q(group.table)}").fetchall()
+            state["entities"][group.table] = {canonical(r[1], group.identity_type): r for r in rows}
+        for t in plan.tables:
+            if t.role == "entity" and t.name not in state["entities"]:  # tables of scalar values
+                state["values"][t.name] = {canonical(v, "text") if not isinstance(v, str) else "text:" + v: (sk, v)
+                                           for sk, v in con.execute(f"SELECT * FROM {_q(t.name)}")}
+            if t.role in ("rejected", "set_aside", "unmatched", "quarantine", "variants", "names"):
+                state["meta_offset"][t.name] = con.execute(
+                    f"SELECT coalesce(max({_q(t.primary_key[0])}), 0) FROM {_q(t.name)}").fetchone()[0]
+        return state
+    finally:
+        con.close()
+
+
+def offset_record_keys(plan: Plan, exports: list, state: dict) -> None:
+    """New records get keys after the existing ones: the largest key there plus the line."""
+    for record in plan.records:
+        offset = state["record_offset"].get(record.table, 0)
+        for export in exports:
+            if export.path == record.path:
+                keys = getattr(export, "record_keys", None) or export.lines
+                export.record_keys = [offset + k for k in keys]
