@@ -47,6 +47,30 @@ def printable(value):
         return value.encode("utf-8", "backslashreplace").decode("utf-8")
 
 
+def remove_stale_partials(destination: str) -> list[str]:
+    """Remove temporary files that killed runs left beside the destination (their process is gone)."""
+    import glob
+
+    removed = []
+    for path in glob.glob(glob.escape(destination) + ".partial-*"):
+        pid = path.rsplit("-", 1)[-1]
+        if not pid.isdigit():
+            continue
+        try:
+            os.kill(int(pid), 0)  # signal 0: is that process still there?
+            continue
+        except ProcessLookupError:
+            pass
+        except PermissionError:  # alive, another user's
+            continue
+        try:
+            os.remove(path)
+            removed.append(path)
+        except OSError:
+            pass
+    return removed
+
+
 class DestinationLocked(NormaliseError):
     """Another program is writing to the destination database."""
 
@@ -157,6 +181,7 @@ class SqliteWriter:
         self._thread = None
         self._failure: BaseException | None = None
         self.temporary = f"{destination}.partial-{os.getpid()}"
+        remove_stale_partials(destination)
         if os.path.exists(self.temporary):
             os.remove(self.temporary)
         if append:  # work on a copy; the original stays as it is until the copy is complete
