@@ -7,6 +7,7 @@ The survey is the read, decode and infer passes run for information only;
 from __future__ import annotations
 
 import os
+import re
 from dataclasses import dataclass, field
 from statistics import median
 
@@ -58,10 +59,10 @@ def survey_column(export: Export, column: DecodedColumn) -> dict:
     return entry
 
 
-_INTEGER = __import__("re").compile(r"[-+]?(0|[1-9]\d{0,17})")  # leading zeros are codes, not numbers
-_REAL = __import__("re").compile(r"[-+]?((0|[1-9]\d*)(\.\d*)?|\.\d+)([eE][-+]?\d+)?")
-_DATE = __import__("re").compile(r"\d{4}-\d{2}-\d{2}")
-_TIMESTAMP = __import__("re").compile(r"\d{4}-\d{2}-\d{2}[T ]\d{2}:\d{2}(:\d{2}(\.\d+)?)?(Z|[+-]\d{2}:?\d{2})?")
+_INTEGER = re.compile(r"[-+]?(0|[1-9]\d{0,17})")  # leading zeros are codes, not numbers
+_REAL = re.compile(r"[-+]?((0|[1-9]\d*)(\.\d*)?|\.\d+)([eE][-+]?\d+)?")
+_DATE = re.compile(r"\d{4}-\d{2}-\d{2}")
+_TIMESTAMP = re.compile(r"\d{4}-\d{2}-\d{2}[T ]\d{2}:\d{2}(:\d{2}(\.\d+)?)?(Z|[+-]\d{2}:?\d{2})?")
 
 
 def _is_calendar_date(text: str) -> bool:
