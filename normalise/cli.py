@@ -84,10 +84,7 @@ def _pairs(specs: list[str], option: str) -> dict:
 
 
 def cmd_build(args) -> int:
-    from .errors import UsageError
     from .infer import Options
-    from .join import JoinOptions
-    from .pipeline import build_database
     from .report import summary
 
     options = Options(natural_keys=_pairs(args.key, "--key"), duplicates=args.duplicates,

@@ -17,7 +17,6 @@ from collections import Counter, defaultdict
 from dataclasses import dataclass
 
 from .names import Namer, singular, sql_name
-from .profile import profile_values
 
 DEFAULT_VIOLATION_THRESHOLD = 0.05
 _ID_NAME = re.compile(r"(?i)^(id|key|code|uuid|guid|slug)$|(_id|_key|_code|_uuid|Id|ID|_no|_number)$")
@@ -253,6 +252,44 @@ class Options:
         self.no_merge = self.no_merge or []
 
 
+_INTEGER = re.compile(r"[-+]?(0|[1-9]\d{0,17})")  # leading zeros are codes, not numbers
+_REAL = re.compile(r"[-+]?((0|[1-9]\d*)(\.\d*)?|\.\d+)([eE][-+]?\d+)?")
+_DATE = re.compile(r"\d{4}-\d{2}-\d{2}")
+_TIMESTAMP = re.compile(r"\d{4}-\d{2}-\d{2}[T ]\d{2}:\d{2}(:\d{2}(\.\d+)?)?(Z|[+-]\d{2}:?\d{2})?")
+
+
+def _is_calendar_date(text: str) -> bool:
+    from datetime import date
+
+    try:
+        date.fromisoformat(text)
+    except ValueError:
+        return False
+    return True
+
+
+def scalar_type(values: list) -> str:
+    """The narrowest type that holds every value: integer, real, date, timestamp, boolean or text.
+
+    Example:
+        >>> scalar_type(["1", "2"]), scalar_type(["1", "2.5"]), scalar_type(["2024-01-31"]), scalar_type(["x", "1"])
+        ('integer', 'real', 'date', 'text')
+        >>> scalar_type(["007", "12"]), scalar_type(["2024-13-45"])
+        ('text', 'text')
+    """
+    if not values:
+        return "empty"
+    if all(isinstance(v, bool) for v in values):
+        return "boolean"
+    texts = [v if isinstance(v, str) else repr(v) for v in values]
+    for name, pattern in (("integer", _INTEGER), ("real", _REAL), ("date", _DATE), ("timestamp", _TIMESTAMP)):
+        if all(pattern.fullmatch(t) for t in texts):
+            if name in ("date", "timestamp") and not all(_is_calendar_date(t[:10]) for t in texts):
+                continue
+            return name
+    return "text"
+
+
 def value_type(values) -> str:
     """The SQL-side type of decoded scalar values: integer, real, boolean, date, timestamp or text.
 
@@ -260,8 +297,6 @@ def value_type(values) -> str:
         >>> value_type([1, 2]), value_type([1, 2.5]), value_type([True]), value_type(["2024-01-02"]), value_type([1, "a"])
         ('integer', 'real', 'boolean', 'date', 'text')
     """
-    from .survey import scalar_type
-
     kinds = set(map(type, values)) - {type(None)}
     if not kinds:
         return "text"
@@ -281,8 +316,6 @@ def value_type(values) -> str:
 
 def scalar_column_type(values: list) -> str:
     """Type of a plain-text column (cells are strings)."""
-    from .survey import scalar_type
-
     present = [v for v in values if v is not None]
     if present and not all(isinstance(v, str) for v in present):
         return value_type(present)
@@ -493,12 +526,12 @@ def _most_frequent(keys, values) -> dict:
     return dict(zip(k_sorted[first].tolist(), (pairs % width)[order][first].tolist()))
 
 
-def infer_plan(exports: list, decoded: dict, options: Options | None = None) -> "Plan":
+def infer_plan(exports: list, decoded: dict, options: Options | None = None):
     """Infer the relational model of decoded exports.
 
     ``decoded`` maps each export's path to its ``{column: DecodedColumn}``.
     """
-    from .plan import EntityGroup, FieldMap, NestedColumn, Plan, RecordSource
+    from .plan import FieldMap, NestedColumn, Plan, RecordSource
 
     options = options or Options()
     plan = Plan(violation_threshold=options.violation_threshold)

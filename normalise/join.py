@@ -19,7 +19,7 @@ from pathlib import Path
 
 from .decode import DecodedColumn
 from .errors import NormaliseError, UsageError
-from .infer import NATURAL_KEY_MIN_DISTINCT, detect_natural_key, scalar_column_type
+from .infer import detect_natural_key, scalar_column_type
 from .read import Export
 
 HOWS = ("left", "inner", "full")

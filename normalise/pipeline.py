@@ -195,7 +195,7 @@ def _build_streaming(path: str, database: str, *, options: Options | None, limit
     """Build one export in chunks with bounded memory: infer on the first records, then stream."""
     options = options or Options()
     chunks = iter_chunks(path, chunk_rows, encoding=encoding, delimiter=delimiter)
-    sample, first = [], []
+    first = []
     taken = 0
     for chunk in chunks:
         first.append(chunk)

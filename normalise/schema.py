@@ -3,7 +3,7 @@
 from __future__ import annotations
 
 from .names import Namer, singular
-from .plan import Column, FieldMap, ForeignKey, NestedColumn, Plan, Table
+from .plan import Column, ForeignKey, NestedColumn, Plan, Table
 
 POSITION = "list_position"
 

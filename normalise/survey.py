@@ -7,12 +7,10 @@ The survey is the read, decode and infer passes run for information only;
 from __future__ import annotations
 
 import os
-import re
 from dataclasses import dataclass, field
-from statistics import median
 
 from .decode import DecodedColumn, decode
-from .infer import identity_candidates, objects_of
+from .infer import identity_candidates, objects_of, scalar_type
 from .literal import Limits
 from .profile import profile_values
 from .read import Export, read
@@ -57,44 +55,6 @@ def survey_column(export: Export, column: DecodedColumn) -> dict:
         entry["quarantine"] = [{"line": q.line, "position": q.position, "message": q.message,
                                 "excerpt": q.excerpt} for q in column.quarantined[:SHOWN_MESSAGES]]
     return entry
-
-
-_INTEGER = re.compile(r"[-+]?(0|[1-9]\d{0,17})")  # leading zeros are codes, not numbers
-_REAL = re.compile(r"[-+]?((0|[1-9]\d*)(\.\d*)?|\.\d+)([eE][-+]?\d+)?")
-_DATE = re.compile(r"\d{4}-\d{2}-\d{2}")
-_TIMESTAMP = re.compile(r"\d{4}-\d{2}-\d{2}[T ]\d{2}:\d{2}(:\d{2}(\.\d+)?)?(Z|[+-]\d{2}:?\d{2})?")
-
-
-def _is_calendar_date(text: str) -> bool:
-    from datetime import date
-
-    try:
-        date.fromisoformat(text)
-    except ValueError:
-        return False
-    return True
-
-
-def scalar_type(values: list) -> str:
-    """The narrowest type that holds every value: integer, real, date, timestamp, boolean or text.
-
-    Example:
-        >>> scalar_type(["1", "2"]), scalar_type(["1", "2.5"]), scalar_type(["2024-01-31"]), scalar_type(["x", "1"])
-        ('integer', 'real', 'date', 'text')
-        >>> scalar_type(["007", "12"]), scalar_type(["2024-13-45"])
-        ('text', 'text')
-    """
-    if not values:
-        return "empty"
-    if all(isinstance(v, bool) for v in values):
-        return "boolean"
-    texts = [v if isinstance(v, str) else repr(v) for v in values]
-    for name, pattern in (("integer", _INTEGER), ("real", _REAL), ("date", _DATE), ("timestamp", _TIMESTAMP)):
-        if all(pattern.fullmatch(t) for t in texts):
-            if name in ("date", "timestamp") and not all(_is_calendar_date(t[:10]) for t in texts):
-                continue
-            return name
-    return "text"
 
 
 def survey(paths: list[str], *, limits: Limits = Limits(), formats: dict | None = None,
