@@ -27,7 +27,7 @@ def normalised(text: str) -> str:
 
 
 def test_match_merges_spellings_and_reports_them(tmp_path):
-    path = tmp_path / "credits.csv"
+    path = tmp_path / "contributors.csv"
     with open(path, "w", newline="", encoding="utf-8") as f:
         w = csv.writer(f)
         w.writerow(["key", "people"])
