@@ -229,9 +229,15 @@ def _decode_python_column(texts: list[str], limits: Limits) -> list:
                     pass
             fast.append(len(values))
             append(None)
-    for k in fast:  # the exact path, outside the guard: it measures depth itself
+    return _decode_exactly(values, fast, texts, decode_python_literal, limits)
+
+
+def _decode_exactly(values: list, rows: list[int], texts: list[str], exact, limits: Limits) -> list:
+    """Fill ``values[k]`` for each row the fast route left by the exact per-cell path (run outside the
+    nesting guard: it measures depth itself); a CellError marks a failed cell."""
+    for k in rows:
         try:
-            values[k] = decode_python_literal(texts[k], limits)
+            values[k] = exact(texts[k], limits)
         except CellError as exc:
             values[k] = exc
     return values
@@ -274,12 +280,7 @@ def _decode_json_column(texts: list[str], limits: Limits, raw_surrogates: bool =
             except (ValueError, RecursionError):
                 retry.append(len(values))
                 append(None)
-    for k in retry:  # the exact path, outside the guard: it measures depth itself
-        try:
-            values[k] = decode_json(texts[k], limits)
-        except CellError as exc:
-            values[k] = exc
-    return values
+    return _decode_exactly(values, retry, texts, decode_json, limits)
 
 
 # --- delimited lists ----------------------------------------------------------
