@@ -64,7 +64,16 @@ REFERENCES = {"json": json_reference, "python-literal": literal_reference}
 
 
 def strict_equal(a, b) -> bool:
-    """Equal and of the same types all the way down (dict key order too; -0.0 is not 0.0)."""
+    """Equal, and of the same types all the way down, with dict keys in the same order.
+
+    True is not 1, 1 is not 1.0, a tuple is not a list, -0.0 is not 0.0; a set matches member by member.
+
+    Example:
+        >>> strict_equal({"a": [1, (2.0,)]}, {"a": [1, (2.0,)]})
+        True
+        >>> strict_equal([1], [True]), strict_equal([0.0], [-0.0]), strict_equal({1: 0, 2: 0}, {2: 0, 1: 0})
+        (False, False, False)
+    """
     if type(a) is not type(b):
         return False
     if isinstance(a, float):

@@ -14,10 +14,12 @@ types, dict keys in the same order, -0.0 distinct from 0.0.
 
 from __future__ import annotations
 
-import math
 import string
 
 from hypothesis import strategies as st
+
+# the comparison of decoded values, one definition shared with the fuzz harnesses (which run outside pytest)
+from fuzz.checks import stored as cell_value, strict_equal  # noqa: F401  (re-exported for the tests)
 
 # --- text ---------------------------------------------------------------------
 
@@ -166,52 +168,6 @@ def json_cells() -> st.SearchStrategy[str]:
 def _json_dumps(value, ensure_ascii: bool = True) -> str:
     import json
     return json.dumps(value, ensure_ascii=ensure_ascii)
-
-
-# --- comparison -------------------------------------------------------------------
-
-def strict_equal(a, b) -> bool:
-    """Equal, and of the same types all the way down, with dict keys in the same order.
-
-    True is not 1, 1 is not 1.0, a tuple is not a list, -0.0 is not 0.0.
-
-    Example:
-        >>> strict_equal({"a": [1, (2.0,)]}, {"a": [1, (2.0,)]})
-        True
-        >>> strict_equal([1], [True]), strict_equal([0.0], [-0.0]), strict_equal({1: 0, 2: 0}, {2: 0, 1: 0})
-        (False, False, False)
-    """
-    if type(a) is not type(b):
-        return False
-    if isinstance(a, float):
-        if math.isnan(a):
-            return math.isnan(b)
-        return a == b and math.copysign(1.0, a) == math.copysign(1.0, b)
-    if isinstance(a, (list, tuple)):
-        return len(a) == len(b) and all(strict_equal(x, y) for x, y in zip(a, b))
-    if isinstance(a, dict):
-        return (len(a) == len(b)
-                and all(strict_equal(ka, kb) and strict_equal(va, vb)
-                        for (ka, va), (kb, vb) in zip(a.items(), b.items())))
-    if isinstance(a, (set, frozenset)):
-        # Iteration order of equal sets can differ; match members one to one.
-        rest = list(b)
-        for x in a:
-            for k, y in enumerate(rest):
-                if strict_equal(x, y):
-                    del rest[k]
-                    break
-            else:
-                return False
-        return not rest
-    return a == b
-
-
-def cell_value(value):
-    """What decode_column stores for a decoded value: empty containers and None become None."""
-    if value is None or (isinstance(value, (list, dict, tuple, set)) and not value):
-        return None
-    return value
 
 
 # --- exports for the build round trips (tests/test_build.py) -----------------------
