@@ -706,10 +706,7 @@ def _nested_rows(plan, nested: NestedColumn, value, owner_sk: int, export, i: in
         if isinstance(value, dict):
             c.elements_decoded += 1
             c.elements_written += 1
-            for child in nested.children:
-                inner = get_path(value, child.path.split("."))
-                if inner:
-                    _nested_rows(plan, child, inner, owner_sk, export, i, rows, entities, values, c, audit)
+            _lists_inside(plan, nested, value, owner_sk, export, i, rows, entities, values, c, audit)
         return
     if nested.kind == "object-child":
         c.elements_decoded += 1
@@ -720,10 +717,7 @@ def _nested_rows(plan, nested: NestedColumn, value, owner_sk: int, export, i: in
         rows[nested.table].append((sk, owner_sk, *[to_sql_value(get_path(value, f.path), f.type)
                                                     for f in nested.links]))
         c.elements_written += 1
-        for child in nested.children:
-            inner = get_path(value, child.path.split("."))
-            if inner:
-                _nested_rows(plan, child, inner, sk, export, i, rows, entities, values, c, audit)
+        _lists_inside(plan, nested, value, sk, export, i, rows, entities, values, c, audit)
         return
     items = value if isinstance(value, (list, tuple)) else [value]
     table = rows[nested.table]
@@ -772,10 +766,16 @@ def _nested_rows(plan, nested: NestedColumn, value, owner_sk: int, export, i: in
         else:
             table.append((sk, owner_sk, position, *links))
         c.elements_written += 1
-        for child in nested.children:
-            inner = get_path(item, child.path.split("."))
-            if inner:
-                _nested_rows(plan, child, inner, sk, export, i, rows, entities, values, c, audit)
+        _lists_inside(plan, nested, item, sk, export, i, rows, entities, values, c, audit)
+
+
+def _lists_inside(plan, nested: NestedColumn, obj: dict, owner_sk: int, export, i: int, rows, entities,
+                  values, c: FileCounts, audit: _Audit) -> None:
+    """Rows of the lists inside one object (grandchild tables), owned by ``owner_sk``."""
+    for child in nested.children:
+        inner = get_path(obj, child.path.split("."))
+        if inner:
+            _nested_rows(plan, child, inner, owner_sk, export, i, rows, entities, values, c, audit)
 
 
 def _quarantine_element(quarantine: list, export, i, nested, position, message, c: FileCounts) -> None:
