@@ -258,17 +258,23 @@ def _hold_exclusive_lock(path: Path) -> subprocess.Popen:
     return holder
 
 
-def test_locked_destination_is_not_a_traceback(demo, tmp_path):
-    """Locked by another process: no traceback, no temporary file left, the older database intact or replaced whole."""
-    ref = demo["sets"]["joined"]
+def _build_over_locked(demo, tmp_path):
+    """Build with --replace onto an older database that another process holds an exclusive lock on."""
     dest = tmp_path / "out.db"
     shutil.copyfile(demo["older"], dest)
+    before = dest.read_bytes()
     holder = _hold_exclusive_lock(dest)
     try:
-        result = run_build(ref["inputs"], dest, "--replace")
+        result = run_build(demo["sets"]["joined"]["inputs"], dest, "--replace")
     finally:
         holder.stdin.close()
         holder.wait(timeout=30)
+    return result, dest, before
+
+
+def test_locked_destination_is_not_a_traceback(demo, tmp_path):
+    """Locked by another process: no traceback, no temporary file left, the older database intact or replaced whole."""
+    result, dest, _ = _build_over_locked(demo, tmp_path)
     assert "Traceback" not in result.stderr, result.stderr
     assert result.returncode in (0, 2), result.stderr
     assert partials(tmp_path) == []
@@ -276,16 +282,7 @@ def test_locked_destination_is_not_a_traceback(demo, tmp_path):
 
 
 def test_locked_destination_gives_a_message_and_stays_as_it_was(demo, tmp_path):
-    ref = demo["sets"]["joined"]
-    dest = tmp_path / "out.db"
-    shutil.copyfile(demo["older"], dest)
-    before = dest.read_bytes()
-    holder = _hold_exclusive_lock(dest)
-    try:
-        result = run_build(ref["inputs"], dest, "--replace")
-    finally:
-        holder.stdin.close()
-        holder.wait(timeout=30)
+    result, dest, before = _build_over_locked(demo, tmp_path)
     lines = result.stderr.strip().splitlines()
     assert result.returncode == 2 and len(lines) == 1 and "lock" in lines[0], result.stderr
     assert dest.read_bytes() == before
