@@ -120,17 +120,10 @@ def build_database(paths: list[str], database: str, *, options: Options | None =
         raise UsageError("--append adds to an existing SQLite database; it goes with neither --replace nor a "
                          "PostgreSQL --db")
     if chunk_rows and not postgresql and not append and _can_stream(paths, options, join_options):
-        result = _build_streaming(paths[0], database, options=options, limits=limits, formats=formats,
-                                  encoding=encoding, delimiter=delimiter, replace=replace, picks=picks,
-                                  plan_path=plan_path, chunk_rows=chunk_rows, progress=progress)
-        if parquet_dir:
-            result["parquet"] = write_parquet(database, result.pop("_plan"), parquet_dir)
-        result.pop("_plan", None)
-        if manifest_path:
-            with open(manifest_path, "w", encoding="utf-8") as f:
-                json.dump(result, f, indent=2, ensure_ascii=False)
-        _write_reports(database, result, report_path, dictionary_path)
-        return result
+        plan, result = _build_streaming(paths[0], database, options=options, limits=limits, formats=formats,
+                                        encoding=encoding, delimiter=delimiter, replace=replace, picks=picks,
+                                        plan_path=plan_path, chunk_rows=chunk_rows, progress=progress)
+        return _outputs(database, plan, result, parquet_dir, manifest_path, report_path, dictionary_path)
     plan, exports, decoded, joined = prepare(paths, options=options, limits=limits, formats=formats,
                                              encoding=encoding, delimiter=delimiter, join_options=join_options,
                                              picks=picks, plan_path=plan_path)
@@ -166,6 +159,11 @@ def build_database(paths: list[str], database: str, *, options: Options | None =
                 for t in result["tables"]:
                     t["rows"] = con.execute(f'SELECT count(*) FROM "{t["name"]}"').fetchone()[0]
             result["appended"] = True
+    return _outputs(database, plan, result, parquet_dir, manifest_path, report_path, dictionary_path)
+
+
+def _outputs(database, plan, result: dict, parquet_dir, manifest_path, report_path, dictionary_path) -> dict:
+    """What a build writes beside the database: Parquet files, the manifest, the report and the dictionary."""
     if parquet_dir:
         result["parquet"] = write_parquet(database, plan, parquet_dir)
     if manifest_path:
@@ -191,7 +189,7 @@ def _can_stream(paths: list[str], options: Options | None, join_options: JoinOpt
 
 def _build_streaming(path: str, database: str, *, options: Options | None, limits: Limits, formats: dict | None,
                      encoding: str | None, delimiter: str | None, replace: bool, picks: list[str] | None,
-                     plan_path: str | None, chunk_rows: int, progress) -> dict:
+                     plan_path: str | None, chunk_rows: int, progress) -> tuple:
     """Build one export in chunks with bounded memory: infer on the first records, then stream."""
     options = options or Options()
     chunks = iter_chunks(path, chunk_rows, encoding=encoding, delimiter=delimiter)
@@ -242,13 +240,8 @@ def _build_streaming(path: str, database: str, *, options: Options | None, limit
     except BaseException:
         writer.abort()
         raise
-    def describe(checks):
-        return manifest(plan, built, os.fspath(database), checks, None, row_counts=writer.row_counts)
-
     integrity = writer.finish()
-    result = describe(integrity)
-    result["_plan"] = plan
-    return result
+    return plan, manifest(plan, built, os.fspath(database), integrity, None, row_counts=writer.row_counts)
 
 
 def _flush(builder: Builder, writer: SqliteWriter) -> None:

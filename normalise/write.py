@@ -7,7 +7,6 @@ as it was. Every connection has ``PRAGMA foreign_keys=ON``.
 
 from __future__ import annotations
 
-import json
 import os
 import re
 from pathlib import Path
@@ -273,12 +272,8 @@ class SqliteWriter:
             self.cursor.executemany(f"UPDATE {_quote(name)} SET {sets} WHERE {_quote(key)} = ?",
                                     [(*row[1:], row[0]) for row in rows])
 
-    def finish(self, describe=None) -> dict:
-        """Indexes, views, SQLite's own checks, commit, and the move into place.
-
-        ``describe(checks)`` may return the run's manifest; it is stored in the
-        database itself (table ``run_manifest``) within the same transaction.
-        """
+    def finish(self) -> dict:
+        """Indexes, views, SQLite's own checks, commit, and the move into place."""
         try:
             self._drain()
             for name in self.order if not self.append else ():  # appended: indexes and views are there
@@ -294,10 +289,6 @@ class SqliteWriter:
                                      "nothing was written")
             integrity = self.cursor.execute("PRAGMA integrity_check").fetchone()[0]
             checks = {"foreign_key_violations": len(violations), "integrity_check": integrity}
-            if describe is not None:
-                self.cursor.execute("CREATE TABLE run_manifest (manifest TEXT NOT NULL)")
-                self.cursor.execute("INSERT INTO run_manifest VALUES (?)",
-                                    (json.dumps(describe(checks), ensure_ascii=False, default=str),))
             self.cursor.execute("COMMIT")
             self.raw.close()
             self.engine.dispose()
@@ -326,7 +317,7 @@ class SqliteWriter:
 
 
 def write_sqlite(plan: Plan, rows: dict[str, list[tuple]], order: list[str], destination: str,
-                 replace: bool = False, describe=None, append: bool = False, updates: dict | None = None) -> dict:
+                 replace: bool = False, append: bool = False) -> dict:
     """Write a complete SQLite database at ``destination``; returns SQLite's own integrity checks."""
     writer = SqliteWriter(plan, order, destination, replace, append=append)
     try:
@@ -335,7 +326,7 @@ def write_sqlite(plan: Plan, rows: dict[str, list[tuple]], order: list[str], des
     except BaseException:
         writer.abort()
         raise
-    return writer.finish(describe)
+    return writer.finish()
 
 
 def write_parquet(database: str, plan: Plan, directory: str) -> list[str]:
