@@ -139,7 +139,7 @@ def build_database(paths: list[str], database: str, *, options: Options | None =
         offset_record_keys(plan, exports, state)
     built = build(plan, exports, decoded,
                   extra={"set_aside_rows": joined.set_aside, "unmatched_rows": joined.unmatched}, state=state)
-    # appended rows may name rows already in the database: SQLite checks those as they are written
+    # appended rows may name rows already in the database: foreign_key_check checks those before the commit
     missing = check_rows(plan, built.rows) if not append else 0
     if missing:
         from .check import IntegrityError
@@ -246,7 +246,7 @@ def _build_streaming(path: str, database: str, *, options: Options | None, limit
 
 def _flush(builder: Builder, writer: SqliteWriter) -> None:
     rows = builder.take_rows()
-    for name in writer.order:  # referenced tables first: foreign keys are enforced as rows arrive
+    for name in writer.order:  # referenced tables first, as a reader of the load order would expect
         writer.insert(name, rows.get(name, []))
 
 

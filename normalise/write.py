@@ -2,7 +2,9 @@
 
 SQLite databases are written to a temporary file beside the destination and
 moved into place only when complete, so a failed run leaves the destination
-as it was. Every connection has ``PRAGMA foreign_keys=ON``.
+as it was. Every connection has ``PRAGMA foreign_keys=ON`` except the loading
+one, which checks every foreign key at once with ``PRAGMA foreign_key_check``
+before it commits (the same proof, without a lookup per inserted row).
 """
 
 from __future__ import annotations
@@ -144,7 +146,9 @@ def _foreign_keys_on(dbapi_connection, _record) -> None:
 
 def _loading_pragmas(dbapi_connection, _record) -> None:
     cursor = dbapi_connection.cursor()
-    for pragma in ("journal_mode=OFF", "synchronous=OFF", "cache_size=-65536"):
+    # foreign_keys=OFF: a per-row parent lookup costs a third of the inserts; SqliteWriter.finish
+    # runs foreign_key_check over the whole database instead, and a violation commits nothing.
+    for pragma in ("journal_mode=OFF", "synchronous=OFF", "cache_size=-65536", "foreign_keys=OFF"):
         cursor.execute(f"PRAGMA {pragma}")
     cursor.close()
 
@@ -159,9 +163,9 @@ def sqlite_engine(path: str) -> sa.Engine:
 class SqliteWriter:
     """A SQLite database written in one transaction into a temporary file, moved into place when complete.
 
-    ``insert`` may be called many times per table; referenced rows must come
-    first (foreign keys are enforced as rows arrive, and checked once more with
-    ``PRAGMA foreign_key_check`` before the commit), so a violation writes nothing. Journaling and syncing are off while loading: a
+    ``insert`` may be called many times per table, in any order; every foreign key
+    is checked once, with ``PRAGMA foreign_key_check`` before the commit, so a
+    violation writes nothing. Journaling and syncing are off while loading: a
     failed load is thrown away whole, never repaired, and the finished file is
     synced once before it is moved into place.
     """
@@ -191,7 +195,7 @@ class SqliteWriter:
         event.listen(self.engine, "connect", _loading_pragmas)
         self.md = metadata_for(plan)
         # The DDL is SQLAlchemy's; the transaction is driven by hand so that BEGIN,
-        # PRAGMA defer_foreign_keys and COMMIT are exactly where they must be.
+        # the checks and COMMIT are exactly where they must be.
         self.raw = self.engine.raw_connection()
         self.dialect = self.engine.dialect
         try:
