@@ -19,6 +19,8 @@ from dataclasses import dataclass, field
 from hashlib import blake2b
 from itertools import chain
 
+import numpy as np
+
 from .errors import NormaliseError
 from .infer import get_path, match_key
 from .plan import NestedColumn, Plan, RecordSource
@@ -293,23 +295,43 @@ class _Entities:
                 self.new_entity(text, sk, ident, obj)
                 keyed.append((text, sk))
         text_col = [t for t, _ in keyed]
+        if self.keys:
+            numbered: dict[str, int] = {}
+            entity_codes = np.array([numbered.setdefault(t, len(numbered)) for t in text_col], dtype=np.int64)
         for k, (_, key, _) in enumerate(self.keys):
             values = [o.get(key, _ABSENT) for o in objects]
-            if _ABSENT in values:
-                carrying = [(t, v) for t, v in zip(text_col, values) if v is not _ABSENT]
-                where = [p for v, p in zip(values, places) if v is not _ABSENT]
-            else:
-                carrying, where = list(zip(text_col, values)), places
             if set(map(type, values)) & {list, dict}:
-                carrying = [(t, v if not isinstance(v, (list, dict)) else json.dumps(v)) for t, v in carrying]
-            self.counts[k].update(carrying)
-            first_here = dict(zip(reversed(carrying), reversed(where)))
-            first_at = self.first_at[k]
-            for pair, place in first_here.items():
-                seen = first_at.get(pair)
-                if seen is None or place < seen:
-                    first_at[pair] = place
+                values = [v if not isinstance(v, (list, dict)) else json.dumps(v) for v in values]
+            self._count(k, text_col, entity_codes, values, places)
         return [sk for _, sk in keyed]
+
+    def _count(self, k: int, text_col: list, entity_codes, values: list, places: list) -> None:
+        """Count attribute ``k``'s (entity, value) pairs of one column and keep where each was first seen.
+
+        The same as ``Counter.update`` on the pairs, with Python's own equality
+        (a dict numbers the values), but Python touches only the distinct pairs:
+        numpy finds them, their counts and their first occurrences (places come
+        in file order, so the first occurrence is the first place).
+        """
+        numbered: dict = {}
+        codes = np.array([numbered.setdefault(v, len(numbered)) if v is not _ABSENT else -1 for v in values],
+                         dtype=np.int64)
+        pairs = entity_codes * len(numbered) + codes
+        present = None
+        if (codes < 0).any():  # objects without the key: not counted
+            present = np.flatnonzero(codes >= 0)
+            pairs = pairs[present]
+        _, first, n = np.unique(pairs, return_index=True, return_counts=True)
+        if present is not None:
+            first = present[first]
+        counts, first_at = self.counts[k], self.first_at[k]
+        for i, c in zip(first.tolist(), n.tolist()):
+            pair = (text_col[i], values[i])
+            counts[pair] += c
+            place, seen = places[i], first_at.get(pair)
+            if seen is None or place < seen:
+                first_at[pair] = place
+
 
     def choose(self):
         """Per entity: its chosen attribute values, and per attribute the variants (value, count, first place)."""
@@ -401,6 +423,7 @@ class Builder:
         out = rows[record.table]
         object_columns = [n for n in record.nested if n.kind == "object-columns"]
         columnar = [n for n in record.nested if _is_columnar(n)]
+        per_record = [n for n in record.nested if not _is_columnar(n)]
         for order, nested in enumerate(record.nested):
             nested._order = order  # the column's place in the row, for "first seen" (line, column, position)
         for i in kept:
@@ -415,9 +438,7 @@ class Builder:
                 obj = obj if isinstance(obj, dict) else {}
                 row += [to_sql_value(get_path(obj, f.path), f.type) for f in nested.links]
             out.append(tuple(row))
-            for nested in record.nested:
-                if nested in columnar:
-                    continue
+            for nested in per_record:
                 value = columns[nested.column].values[i]
                 if value is None:
                     continue
@@ -461,7 +482,8 @@ class Builder:
             if nested.matched:
                 idents = [match_key(v) or None for v in idents]
             identity_type = self.entities[nested.entity].group.identity_type
-            bad = [k for k, v in enumerate(idents) if not usable_identity(v, identity_type)]
+            bad = [] if _all_usable(idents, identity_type) else [
+                k for k, v in enumerate(idents) if not usable_identity(v, identity_type)]
         if bad:
             for k in bad:
                 x = items[k]
@@ -582,6 +604,14 @@ class Builder:
                   for r in self.plan.records]
         return Built(rows, counts, conflicts, merges=merges,
                      cells_quarantined_by_file=dict(self.quarantined_by_file), updates=updates)
+
+
+def _all_usable(idents: list, type_: str) -> bool:
+    """Whether every value is a usable identity (``usable_identity``), judged on the column at once."""
+    kinds = set(map(type, idents))
+    if type_ == "integer":
+        return kinds == {int} and _INT64_MIN <= min(idents) and max(idents) <= _INT64_MAX
+    return not kinds & {type(None), dict, list, tuple, bool}
 
 
 def _fits_int64(col: list) -> bool:
