@@ -12,11 +12,16 @@ With ``--scale N`` it also builds an export N times larger (once) and reports
 its peak memory and its time against N times the 1x median.
 Targets: >= 5x faster and <= 0.5x the memory of the baseline; at 10x, peak
 memory under 2 GiB and time within 12x of the 1x run.
+
+It also runs ``benchmarks/sqlite_floor.py`` on the 1x export: the time SQLite
+alone takes to load and check the same rows (``--skip-floor`` to leave it out),
+set beside the time the 5x target allows.
 """
 
 from __future__ import annotations
 
 import argparse
+import json
 import os
 import sqlite3
 import statistics
@@ -59,6 +64,7 @@ def main() -> None:
     p.add_argument("--scale", type=int, default=0, help="also build an export this many times larger (0: skip)")
     p.add_argument("--dir", default="/tmp/normalise-bench")
     p.add_argument("--skip-baseline", action="store_true")
+    p.add_argument("--skip-floor", action="store_true")
     a = p.parse_args()
     work = Path(a.dir)
     work.mkdir(parents=True, exist_ok=True)
@@ -94,6 +100,16 @@ def main() -> None:
         print(f"{'hand-written baseline':<26}{t_base:9.1f}s{m_base / 2**20:11,.0f} MiB")
         print(f"normalise: {t_base / t_ours:.1f}x faster (target >= 5x), {m_ours / m_base:.2f}x the memory "
               f"(target <= 0.5x)")
+    if not a.skip_floor:
+        out = subprocess.run([sys.executable, str(HERE / "sqlite_floor.py"), str(export), "--runs", str(a.runs),
+                              "--json"], check=True, capture_output=True, text=True).stdout
+        floor = json.loads(out.strip().splitlines()[-1])
+        print(f"{'SQLite alone, same rows':<26}{floor['total']:9.1f}s   (inserts {floor['insert']:.1f}s; indexes, "
+              f"views, checks, commit {floor['finish']:.1f}s, of which integrity_check "
+              f"{floor['integrity_check']:.1f}s, foreign_key_check {floor['foreign_key_check']:.1f}s)")
+        if theirs:
+            print(f"the 5x target allows {t_base / 5:.1f}s for the whole build; SQLite alone takes "
+                  f"{floor['total'] / (t_base / 5):.0%} of that")
     if a.scale:
         big = work / f"export_{a.records * a.scale}.csv"
         ensure_export(big, a.records * a.scale)
