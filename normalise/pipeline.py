@@ -160,7 +160,7 @@ def build_database(paths: list[str], database: str, *, options: Options | None =
         offset_record_keys(plan, exports, state)
     built = build(plan, exports, decoded,
                   extra={"set_aside_rows": joined.set_aside, "unmatched_rows": joined.unmatched}, state=state)
-    # appended rows may name rows already in the database: foreign_key_check checks those before the commit
+    # appended rows may name rows already in the database: foreign_key_check checks those before the move
     missing = check_rows(plan, built.rows) if not append else 0
     if missing:
         from .check import IntegrityError

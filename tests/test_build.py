@@ -746,6 +746,31 @@ def test_failed_write_leaves_nothing(demo, tmp_path, monkeypatch):
     assert os.listdir(tmp_path) == ["old.db"] and old.read_bytes() == b"previous database"
 
 
+def test_dangling_foreign_key_never_reaches_the_destination(tmp_path, monkeypatch):
+    """Rows are loaded without per-row lookups; SQLite's PRAGMA foreign_key_check (sqlite.org/pragma.html)
+    over the whole file still refuses a bridge row naming no entity, and the destination keeps its old bytes."""
+    from normalise import write
+    from normalise.check import IntegrityError
+
+    src = tmp_path / "books.csv"
+    src.write_text("key,people\n" + "".join(f'b{n},"[{{\'id\': {n}, \'name\': \'P{n}\'}}]"\n' for n in range(9)))
+    real_insert = write.SqliteWriter.insert
+
+    def dangling(self, name, rows):
+        table = self.plan.table(name)
+        if table.role == "bridge" and rows:
+            column = [c.name for c in self.md.tables[name].columns].index(table.foreign_keys[1].columns[0])
+            rows = [tuple(-1 if k == column else v for k, v in enumerate(rows[0]))] + rows[1:]
+        return real_insert(self, name, rows)
+
+    monkeypatch.setattr(write.SqliteWriter, "insert", dangling)
+    old = tmp_path / "old.db"
+    old.write_bytes(b"previous database")
+    with pytest.raises(IntegrityError, match="name no row"):  # the streaming path checks nothing before SQLite
+        build_database([str(src)], str(old), replace=True, chunk_rows=4)
+    assert sorted(os.listdir(tmp_path)) == ["books.csv", "old.db"] and old.read_bytes() == b"previous database"
+
+
 # --- nested shapes --------------------------------------------------------------------------
 
 ORDERS = [
