@@ -103,6 +103,7 @@ class ObjectTable:
         self._values: dict = {}
         self._kinds: dict = {}
         self._codes: dict = {}
+        self._uniques: dict = {}
         self._held = 0  # values held in _columns and _values
         self._all_read = False  # _columns holds every key's column
 
@@ -191,22 +192,62 @@ class ObjectTable:
 
         A missing key reads as None, as in ``measure_dependency``'s ``obj.get(field)``.
         """
+        found = self._codes.get(field)
+        if found is None:
+            found = self._codes[field] = self._joined_codes(field) if self._parts else self._factorise(field)
+        return found
+
+    def _factorise(self, field):
         import numpy as np
         import pandas as pd
 
-        found = self._codes.get(field)
-        if found is None:
-            col, values = self.column(field), self.values(field)
-            present = (np.ones(len(col), dtype=bool) if values is col
-                       else np.array([v is not _MISSING for v in col], dtype=bool))
-            if self.kinds(field) & {list, dict, set}:
+        n = len(self.objects)
+        if self._all_read and n and field not in self._columns:  # no object has the key: every value None
+            _, self._uniques[field] = pd.factorize(np.array([None], dtype=object), use_na_sentinel=False)
+            return np.zeros(n, dtype=np.int64), np.zeros(n, dtype=bool), np.ones(n, dtype=bool)
+        col, values = self.column(field), self.values(field)
+        present = (np.ones(n, dtype=bool) if values is col
+                   else np.array([v is not _MISSING for v in col], dtype=bool))
+        kinds = self.kinds(field)
+        if kinds <= {str, type(None)}:
+            # text hashes far faster in a dict (str caches its hash) than in pandas' table, and text and None
+            # compare alike in both, so the codes (first-seen order) are the same
+            seen: dict = {}
+            codes = np.fromiter((seen.setdefault(v, len(seen)) for v in values), dtype=np.int64, count=n)
+            self._uniques[field] = np.array(list(seen), dtype=object)
+            isnull = codes == seen[None] if None in seen else np.zeros(n, dtype=bool)
+            return codes, present, isnull
+        array = None
+        if kinds == {int}:  # plain integers factorise as int64, far faster than as objects, in the same order
+            try:
+                array = np.array(values, dtype=np.int64)
+            except OverflowError:  # beyond 64 bits
+                pass
+        if array is None:
+            if kinds & {list, dict, set}:
                 values = [_hashable(v) for v in values]
-            values = np.array(values, dtype=object)
-            # == None compares elementwise; for decoded values it is exactly ``is None``
-            isnull = np.asarray(values == None, dtype=bool)  # noqa: E711
-            codes, _ = pd.factorize(values, use_na_sentinel=False)
-            found = self._codes[field] = (codes.astype(np.int64), present, isnull)
-        return found
+            array = np.array(values, dtype=object)
+        # == None compares elementwise; for decoded values it is exactly ``is None``
+        isnull = np.asarray(array == None, dtype=bool)  # noqa: E711
+        codes, self._uniques[field] = pd.factorize(array, use_na_sentinel=False)
+        return codes.astype(np.int64), present, isnull
+
+    def _joined_codes(self, field):
+        """Codes of a concatenation from its parts' codes: the parts' distinct values, one part after another,
+        meet the joined values' distinct values in the same first-seen order."""
+        import numpy as np
+        import pandas as pd
+
+        coded = [t.codes(field) for t in self._parts]
+        uniques = [t._uniques[field] for t in self._parts]
+        remap, self._uniques[field] = pd.factorize(np.concatenate(uniques), use_na_sentinel=False)
+        remap = remap.astype(np.int64)
+        codes, start = [], 0
+        for (part_codes, _, _), part_uniques in zip(coded, uniques):
+            codes.append(remap[start:start + len(part_uniques)][part_codes])
+            start += len(part_uniques)
+        return (np.concatenate(codes), np.concatenate([c[1] for c in coded]),
+                np.concatenate([c[2] for c in coded]))
 
     def measure(self, key: str, field: str, carrying_only: bool = False) -> Dependency:
         import numpy as np
