@@ -262,10 +262,10 @@ class ObjectTable:
             return Dependency(key, field, 0, 0)
         width = int(vc.max()) + 1
         pairs, counts = np.unique(kc * width + vc, return_counts=True)
-        owner = pairs // width
-        total = np.bincount(owner, weights=counts)
-        top = np.zeros_like(total)
-        np.maximum.at(top, owner, counts)
+        owner = pairs // width  # sorted, as pairs are: each key's pairs are one run
+        starts = np.flatnonzero(np.concatenate(([True], owner[1:] != owner[:-1])))
+        total = np.add.reduceat(counts, starts)
+        top = np.maximum.reduceat(counts, starts)
         repeated = total >= 2
         occurrences = int(total[repeated].sum())
         return Dependency(key, field, occurrences, int(occurrences - top[repeated].sum()))
