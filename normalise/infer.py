@@ -418,25 +418,28 @@ def scalar_type(values: list) -> str:
     return "text"
 
 
-def value_type(values) -> str:
+def value_type(values, types: set | None = None) -> str:
     """The SQL-side type of decoded scalar values: integer, real, boolean, date, timestamp or text.
+
+    ``types``, when given, is ``set(map(type, values))``, already known.
 
     Example:
         >>> value_type([1, 2]), value_type([1, 2.5]), value_type([True]), value_type(["2024-01-02"]), value_type([1, "a"])
         ('integer', 'real', 'boolean', 'date', 'text')
     """
-    kinds = set(map(type, values)) - {type(None)}
+    types = set(map(type, values)) if types is None else types
+    kinds = types - {type(None)}
     if not kinds:
         return "text"
     if kinds == {bool}:
         return "boolean"
     if kinds <= {int, float}:
-        ints = [v for v in values if type(v) is int] if int in kinds else []
+        ints = values if types == {int} else [v for v in values if type(v) is int] if int in kinds else []
         if ints and not (-(1 << 63) <= min(ints) and max(ints) < (1 << 63)):
             return "text"  # beyond 64 bits: kept exactly as text
         return "integer" if kinds == {int} else "real"
     if kinds == {str}:
-        texts = [v for v in values if v is not None]
+        texts = values if types == {str} else [v for v in values if v is not None]
         t = scalar_type(texts[:10000])
         return t if t in ("date", "timestamp") else "text"
     return "text"
@@ -762,7 +765,9 @@ def _name_children(nested, owner_table: str, tables: Namer) -> None:
 def _type_at(objects: list[dict], path: list[str], table: ObjectTable | None = None) -> str:
     if len(path) == 1:
         key = path[0]
-        return value_type(table.values(key) if table is not None else [o.get(key) for o in objects])
+        if table is not None:
+            return value_type(table.values(key), table.kinds(key))
+        return value_type([o.get(key) for o in objects])
     return value_type([get_path(o, path) for o in objects])
 
 
@@ -883,5 +888,5 @@ def match_key(value):
 
 
 def _identity_type(table: ObjectTable, identity: str) -> str:
-    t = value_type(table.values(identity))
+    t = value_type(table.values(identity), table.kinds(identity))
     return t if t in ("integer", "text") else "text"
