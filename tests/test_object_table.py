@@ -52,13 +52,14 @@ def first_seen_codes(values: list) -> list[int]:
 
 def check_table(table: ObjectTable, objects: list[dict]) -> None:
     import numpy as np
-    from normalise.infer import _hashable
+    from normalise.infer import _hashable, value_type
 
     assert table.keys() == list(dict.fromkeys(k for o in objects for k in o))  # every key, first seen first
     for field in "abcde":  # e: a key no object has
         values = [o.get(field) for o in objects]
         assert table.values(field) == values
         assert table.kinds(field) == set(map(type, values))
+        assert value_type(table.values(field), table.kinds(field)) == value_type(values)
         codes, present, isnull = table.codes(field)
         assert codes.tolist() == first_seen_codes([_hashable(v) for v in values])
         assert present.tolist() == [field in o for o in objects]
