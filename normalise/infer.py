@@ -80,41 +80,174 @@ def measure_dependency(objects: list[dict], key: str, field: str) -> Dependency:
 
 _MISSING = object()
 
+# A table keeps the columns it has read while they hold at most this many values in all; beyond that (thousands
+# of sparse keys) a column is read again whenever it is asked for, as it would be without a table.
+CACHED_VALUES = 1 << 22
+
 
 class ObjectTable:
-    """Objects as factorised columns, so that many dependencies are measured quickly.
+    """Objects as columns, read once and factorised, so that many questions about them are answered quickly.
 
-    ``measure`` gives what ``measure_dependency`` gives (the pure-Python
-    definition, kept as the reference), with the counting done by numpy.
+    The inference asks many questions of one list of objects (its keys, each field's types and values,
+    dependencies between fields); a table answers them from columns read in one pass over the objects, and
+    ``concat`` joins tables without reading their objects again. ``measure`` gives what
+    ``measure_dependency`` gives (the pure-Python definition, kept as the reference), with the counting
+    done by numpy.
     """
 
-    def __init__(self, objects: list[dict]):
+    def __init__(self, objects: list[dict], parts: tuple = ()):
         self.objects = objects
+        self._parts = parts  # tables whose objects, one table after another, these are
+        self._keys = None
         self._columns: dict = {}
+        self._values: dict = {}
+        self._kinds: dict = {}
         self._codes: dict = {}
+        self._uniques: dict = {}
+        self._held = 0  # values held in _columns and _values
+        self._all_read = False  # _columns holds every key's column
 
-    def column(self, field: str) -> list:
+    @classmethod
+    def concat(cls, tables: list["ObjectTable"]) -> "ObjectTable":
+        """The table of the tables' objects, one table after another."""
+        if len(tables) == 1:
+            return tables[0]
+        return cls([o for t in tables for o in t.objects], tuple(tables))
+
+    def _read_all(self) -> bool:
+        """Every column in one pass: each object is visited once, which costs far fewer cache misses than a
+        pass per key. False (nothing kept) when the columns would hold more than ``CACHED_VALUES`` values."""
+        n = len(self.objects)
+        room = CACHED_VALUES // max(n, 1)
+        columns: dict = {}
+        for i, obj in enumerate(self.objects):
+            for k, v in obj.items():
+                col = columns.get(k)
+                if col is None:
+                    if len(columns) >= room:
+                        return False
+                    col = columns[k] = [_MISSING] * n
+                col[i] = v
+        self._keys, self._columns, self._held = list(columns), columns, n * len(columns)
+        self._all_read = True
+        return True
+
+    def _keep(self, cache: dict, field, found: list) -> None:
+        if self._held + len(found) <= CACHED_VALUES:
+            cache[field] = found
+            self._held += len(found)
+
+    def keys(self) -> list:
+        """Every key of the objects, in first-seen order."""
+        if self._keys is None:
+            if self._parts:
+                self._keys = list(dict.fromkeys(chain.from_iterable(t.keys() for t in self._parts)))
+            elif not self._read_all():
+                self._keys = list(dict.fromkeys(chain.from_iterable(self.objects)))
+        return self._keys
+
+    def column(self, field) -> list:
+        """Each object's value of ``field``; ``_MISSING`` where the object lacks the key."""
+        self.keys()  # reads every column at once when they fit
         found = self._columns.get(field)
         if found is None:
-            found = self._columns[field] = [o.get(field, _MISSING) for o in self.objects]
+            if self._parts:
+                found = list(chain.from_iterable(t.column(field) for t in self._parts))
+            elif self._all_read:  # a key no object has (another list's field)
+                found = [_MISSING] * len(self.objects)
+            else:
+                found = [o.get(field, _MISSING) for o in self.objects]
+            self._keep(self._columns, field, found)
         return found
 
-    def codes(self, field: str):
+    def values(self, field) -> list:
+        """Each object's ``obj.get(field)``: None where the object lacks the key."""
+        found = self._values.get(field)
+        if found is None:
+            if self._parts:
+                found = list(chain.from_iterable(t.values(field) for t in self._parts))
+                self._keep(self._values, field, found)
+                return found
+            col = self.column(field)
+            if _MISSING not in col:
+                found = self._values[field] = col  # the same list: nothing more to hold
+            else:
+                found = [None if v is _MISSING else v for v in col]
+                self._keep(self._values, field, found)
+        return found
+
+    def kinds(self, field) -> set:
+        """The types of ``values(field)``."""
+        found = self._kinds.get(field)
+        if found is None:
+            if self._parts:
+                found = set().union(*(t.kinds(field) for t in self._parts))
+            else:
+                found = set(map(type, self.values(field)))
+            self._kinds[field] = found
+        return found
+
+    def codes(self, field):
+        """The values of ``field`` factorised (codes in first-seen order), with masks: key present, value null.
+
+        A missing key reads as None, as in ``measure_dependency``'s ``obj.get(field)``.
+        """
+        found = self._codes.get(field)
+        if found is None:
+            found = self._codes[field] = self._joined_codes(field) if self._parts else self._factorise(field)
+        return found
+
+    def _factorise(self, field):
         import numpy as np
         import pandas as pd
 
-        found = self._codes.get(field)
-        if found is None:
-            col = self.column(field)
-            kinds = set(map(type, col))
-            values = [_hashable(v) for v in col] if kinds & {list, dict, set} else col
-            present = np.array([v is not _MISSING for v in col], dtype=bool)
-            isnull = np.array([v is None or v is _MISSING for v in col], dtype=bool)
-            # a missing key reads as None, as in measure_dependency's obj.get(field)
-            values = [None if v is _MISSING else v for v in values] if not present.all() else values
-            codes, _ = pd.factorize(np.array(values, dtype=object), use_na_sentinel=False)
-            found = self._codes[field] = (codes.astype(np.int64), present, isnull)
-        return found
+        n = len(self.objects)
+        if self._all_read and n and field not in self._columns:  # no object has the key: every value None
+            _, self._uniques[field] = pd.factorize(np.array([None], dtype=object), use_na_sentinel=False)
+            return np.zeros(n, dtype=np.int64), np.zeros(n, dtype=bool), np.ones(n, dtype=bool)
+        col, values = self.column(field), self.values(field)
+        present = (np.ones(n, dtype=bool) if values is col
+                   else np.array([v is not _MISSING for v in col], dtype=bool))
+        kinds = self.kinds(field)
+        if kinds <= {str, type(None)}:
+            # text hashes far faster in a dict (str caches its hash) than in pandas' table, and text and None
+            # compare alike in both, so the codes (first-seen order) are the same
+            seen: dict = {}
+            codes = np.fromiter((seen.setdefault(v, len(seen)) for v in values), dtype=np.int64, count=n)
+            self._uniques[field] = np.array(list(seen), dtype=object)
+            isnull = codes == seen[None] if None in seen else np.zeros(n, dtype=bool)
+            return codes, present, isnull
+        array = None
+        if kinds == {int}:  # plain integers factorise as int64, far faster than as objects, in the same order
+            try:
+                array = np.array(values, dtype=np.int64)
+            except OverflowError:  # beyond 64 bits
+                pass
+        if array is None:
+            if kinds & {list, dict, set}:
+                values = [_hashable(v) for v in values]
+            array = np.array(values, dtype=object)
+        # == None compares elementwise; for decoded values it is exactly ``is None``
+        isnull = np.asarray(array == None, dtype=bool)  # noqa: E711
+        codes, self._uniques[field] = pd.factorize(array, use_na_sentinel=False)
+        return codes.astype(np.int64), present, isnull
+
+    def _joined_codes(self, field):
+        """Codes of a concatenation from its parts' codes: the parts' distinct values, one part after another,
+        meet the joined values' distinct values in the same first-seen order."""
+        import numpy as np
+        import pandas as pd
+
+        coded = [t.codes(field) for t in self._parts]
+        uniques = [t._uniques[field] for t in self._parts]
+        remap, self._uniques[field] = pd.factorize(np.concatenate(uniques), use_na_sentinel=False)
+        remap = remap.astype(np.int64)
+        codes, start = [], 0
+        for (part_codes, _, _), part_uniques in zip(coded, uniques):
+            codes.append(remap[start:start + len(part_uniques)][part_codes])
+            start += len(part_uniques)
+        return (np.concatenate(codes), np.concatenate([c[1] for c in coded]),
+                np.concatenate([c[2] for c in coded]))
 
     def measure(self, key: str, field: str, carrying_only: bool = False) -> Dependency:
         import numpy as np
@@ -129,10 +262,10 @@ class ObjectTable:
             return Dependency(key, field, 0, 0)
         width = int(vc.max()) + 1
         pairs, counts = np.unique(kc * width + vc, return_counts=True)
-        owner = pairs // width
-        total = np.bincount(owner, weights=counts)
-        top = np.zeros_like(total)
-        np.maximum.at(top, owner, counts)
+        owner = pairs // width  # sorted, as pairs are: each key's pairs are one run
+        starts = np.flatnonzero(np.concatenate(([True], owner[1:] != owner[:-1])))
+        total = np.add.reduceat(counts, starts)
+        top = np.maximum.reduceat(counts, starts)
         repeated = total >= 2
         occurrences = int(total[repeated].sum())
         return Dependency(key, field, occurrences, int(occurrences - top[repeated].sum()))
@@ -159,13 +292,14 @@ class IdentityCandidate:
 MAX_WEIGHED_FIELDS = 64
 
 
-def identity_candidates(objects: list[dict], owners: list[int],
-                        threshold: float = DEFAULT_VIOLATION_THRESHOLD) -> list[IdentityCandidate]:
+def identity_candidates(objects: list[dict], owners: list[int], threshold: float = DEFAULT_VIOLATION_THRESHOLD,
+                        table: ObjectTable | None = None) -> list[IdentityCandidate]:
     """Fields that could identify the objects of a nested column, best first.
 
     A candidate is a scalar (integer or text) field present in nearly every
     object, not repeated inside one list, and either named like an identifier
-    or functionally determining another field.
+    or functionally determining another field. ``table``, when given, is
+    the ``ObjectTable`` of these objects (its columns are reused).
 
     Example:
         >>> objs = [{"pid": 1, "name": "A", "role": "x"}, {"pid": 2, "name": "B", "role": "x"},
@@ -175,23 +309,18 @@ def identity_candidates(objects: list[dict], owners: list[int],
     """
     if not objects:
         return []
-    keys: list[str] = []
-    for obj in objects:
-        for k in obj:
-            if k not in keys:
-                keys.append(k)
     import numpy as np
 
     out = []
     n = len(objects)
-    table = ObjectTable(objects)
+    table = table or ObjectTable(objects)
+    keys = table.keys()
     owner_codes = np.asarray(owners, dtype=np.int64)
     if len(keys) > MAX_WEIGHED_FIELDS:  # pairs of fields grow with the square: weigh the likeliest only
         keys = ([k for k in keys if _ID_NAME.search(k)] + [k for k in keys if not _ID_NAME.search(k)])
         keys = keys[:MAX_WEIGHED_FIELDS]
     for key in keys:
-        col = table.column(key)
-        kinds = set(map(type, col)) - {type(None), type(_MISSING)}
+        kinds = table.kinds(key) - {type(None)}
         if not kinds or not kinds <= {int, str}:
             continue
         codes, _, isnull = table.codes(key)
@@ -207,7 +336,6 @@ def identity_candidates(objects: list[dict], owners: list[int],
         distinct = len(np.unique(present_codes))
         if distinct < 2 and n > 1:
             continue
-        present = [v for v in col if v is not None and v is not _MISSING]
         determines = []
         for other in keys:
             if other == key:
@@ -218,8 +346,8 @@ def identity_candidates(objects: list[dict], owners: list[int],
         named = bool(_ID_NAME.search(key))
         if not named and not determines:
             continue
-        integer = all(isinstance(v, int) for v in present)
-        out.append(IdentityCandidate(key, len(present) / n, distinct, unique_within, determines,
+        integer = kinds == {int}  # every present value an int (bool is a kind of its own)
+        out.append(IdentityCandidate(key, present_count / n, distinct, unique_within, determines,
                                      named, integer))
     out.sort(key=lambda c: (-c.named_like_identity, -c.is_integer, -len(c.determines),
                             -c.fill_rate, c.field))
@@ -290,25 +418,28 @@ def scalar_type(values: list) -> str:
     return "text"
 
 
-def value_type(values) -> str:
+def value_type(values, types: set | None = None) -> str:
     """The SQL-side type of decoded scalar values: integer, real, boolean, date, timestamp or text.
+
+    ``types``, when given, is ``set(map(type, values))``, already known.
 
     Example:
         >>> value_type([1, 2]), value_type([1, 2.5]), value_type([True]), value_type(["2024-01-02"]), value_type([1, "a"])
         ('integer', 'real', 'boolean', 'date', 'text')
     """
-    kinds = set(map(type, values)) - {type(None)}
+    types = set(map(type, values)) if types is None else types
+    kinds = types - {type(None)}
     if not kinds:
         return "text"
     if kinds == {bool}:
         return "boolean"
     if kinds <= {int, float}:
-        ints = [v for v in values if type(v) is int] if int in kinds else []
+        ints = values if types == {int} else [v for v in values if type(v) is int] if int in kinds else []
         if ints and not (-(1 << 63) <= min(ints) and max(ints) < (1 << 63)):
             return "text"  # beyond 64 bits: kept exactly as text
         return "integer" if kinds == {int} else "real"
     if kinds == {str}:
-        texts = [v for v in values if v is not None]
+        texts = values if types == {str} else [v for v in values if v is not None]
         t = scalar_type(texts[:10000])
         return t if t in ("date", "timestamp") else "text"
     return "text"
@@ -391,15 +522,16 @@ def objects_of(values: list) -> tuple[list[dict], list[int]]:
 
 
 def entity_attributes(objects: list[dict], identity: str, fields: list[str],
-                      threshold: float) -> list[str]:
+                      threshold: float, table: ObjectTable | None = None) -> list[str]:
     """Fields functionally determined by the identity (X -> A within the tolerated violation rate).
 
     Only objects that carry a field are evidence for it. With no repeated
     identity at all nothing can be measured; such fields count as entity
     attributes unless their name says they are a position in a list.
+    ``table``, when given, is the ``ObjectTable`` of these objects.
     """
     out = []
-    table = ObjectTable(objects)
+    table = table or ObjectTable(objects)
     for f in fields:
         if f == identity:
             continue
@@ -412,33 +544,34 @@ def entity_attributes(objects: list[dict], identity: str, fields: list[str],
     return out
 
 
-def scalar_fields(objects: list[dict], prefix: list[str] | None = None) -> tuple[list[list[str]], list[list[str]]]:
+def scalar_fields(objects: list[dict], prefix: list[str] | None = None,
+                  table: ObjectTable | None = None) -> tuple[list[list[str]], list[list[str]]]:
     """Paths to scalar fields (flattening sub-objects) and to list fields, in first-seen order.
 
     A key that holds a non-empty list anywhere is a list field; one that holds
     only objects (or nulls) is flattened into its sub-keys; any other key is a
     scalar field, even when it is always null. Keys only ever holding empty
-    lists carry nothing and are left out.
+    lists carry nothing and are left out. ``table``, when given, is the
+    ``ObjectTable`` of these objects.
 
     Example:
         >>> scalar_fields([{"id": 1, "tags": ["a"], "place": {"city": "X"}}, {"id": 2, "note": None}])
         ([['id'], ['place', 'city'], ['note']], [['tags']])
     """
     prefix = prefix or []
-    types: dict = {}
-    for k in dict.fromkeys(chain.from_iterable(objects)):  # every key, in first-seen order
-        types[k] = set(map(type, [o.get(k) for o in objects]))
+    table = table or ObjectTable(objects)
     scalars: list[list[str]] = []
     lists: list[list[str]] = []
-    for k, kinds in types.items():
+    for k in table.keys():
+        kinds = table.kinds(k)
         path = prefix + [str(k)]
         if kinds & {list, tuple, set}:
-            if any(isinstance(o.get(k), (list, tuple, set)) and o.get(k) for o in objects):
+            if any(isinstance(v, (list, tuple, set)) and v for v in table.values(k)):
                 lists.append(path)
             elif kinds - {list, tuple, set, type(None)}:
                 scalars.append(path)
         elif dict in kinds and kinds <= {dict, type(None)}:
-            inner = [o[k] for o in objects if isinstance(o.get(k), dict)]
+            inner = [v for v in table.values(k) if isinstance(v, dict)]
             sub_scalars, sub_lists = scalar_fields(inner, path)
             scalars += sub_scalars
             lists += sub_lists
@@ -473,29 +606,29 @@ def _entity_name(identity: str, column: str) -> str:
     return sql_name(base)
 
 
-def _agreement(a: list[dict], b: list[dict], identity: str) -> tuple[int, float]:
+def _agreement(a: ObjectTable, b: ObjectTable, identity: str, table: ObjectTable) -> tuple[int, float]:
     """Common identities of two object sets and the share of shared attributes that agree.
 
     For each identity in both sets and each scalar attribute both carry, the
     most frequent value on each side (ties to the first seen) is compared.
+    ``table`` is ``ObjectTable.concat([a, b])``.
     """
     import numpy as np
 
-    table = ObjectTable(a + b)
-    side = np.zeros(len(a) + len(b), dtype=bool)
-    side[len(a):] = True
+    side = np.zeros(len(a.objects) + len(b.objects), dtype=bool)
+    side[len(a.objects):] = True
     ident, _, inull = table.codes(identity)
     in_a = set(np.unique(ident[~inull & ~side]).tolist())
     in_b = set(np.unique(ident[~inull & side]).tolist())
     common = in_a & in_b
     if not common:
         return 0, 1.0
-    fields = [f for f in _keys_of(a) if f != identity and f in set(_keys_of(b))]
+    in_both = set(b.keys())
+    fields = [f for f in a.keys() if f != identity and f in in_both]
     checks = agree = 0
     mask_common = np.isin(ident, np.fromiter(common, dtype=np.int64)) & ~inull
     for f in fields:
-        col = table.column(f)
-        if set(map(type, col)) & {list, dict, tuple, set}:
+        if table.kinds(f) & {list, dict, tuple, set}:
             continue
         vc, present, _ = table.codes(f)
         tops = []
@@ -506,10 +639,6 @@ def _agreement(a: list[dict], b: list[dict], identity: str) -> tuple[int, float]
         checks += len(shared)
         agree += sum(tops[0][k] == tops[1][k] for k in shared)
     return len(common), (agree / checks if checks else 1.0)
-
-
-def _keys_of(objects: list[dict]) -> list[str]:
-    return list(dict.fromkeys(chain.from_iterable(objects)))
 
 
 def _most_frequent(keys, values) -> dict:
@@ -536,7 +665,7 @@ def infer_plan(exports: list, decoded: dict, options: Options | None = None):
     options = options or Options()
     plan = Plan(violation_threshold=options.violation_threshold)
     tables = Namer(META_TABLES)
-    entity_lists = []  # (NestedColumn, objects)
+    entity_lists = []  # (NestedColumn, ObjectTable of its objects)
 
     for export in exports:
         columns = decoded[export.path]
@@ -562,17 +691,19 @@ def infer_plan(exports: list, decoded: dict, options: Options | None = None):
                 nested.kind = "value-list"
             elif shape == "object":
                 objects, _ = objects_of(col.values)
-                fields, lists = scalar_fields(objects)
+                table = ObjectTable(objects)
+                fields, lists = scalar_fields(objects, table=table)
                 if len(fields) > WIDE_OBJECT_KEYS:
                     nested.kind = "object-child"
-                    nested.links = _field_maps(objects, fields, Namer())
+                    nested.links = _field_maps(objects, fields, Namer(), table)
                 else:
                     nested.kind = "object-columns"
-                    nested.links = [FieldMap(p, names(name + "_" + "_".join(p)), _type_at(objects, p))
+                    nested.links = [FieldMap(p, names(name + "_" + "_".join(p)), _type_at(objects, p, table))
                                     for p in fields]
-                nested.children = _child_lists(export.name, name, objects, lists)
+                nested.children = _child_lists(export.name, name, objects, lists, table)
             else:
                 objects, owners = objects_of(col.values)
+                table = ObjectTable(objects)
                 # FILE:COLUMN names the file the column comes from (a joined file's own name), as
                 # entity members and --no-merge do; the main file's name and the bare column also work
                 wanted = options.identities.get(f"{nested.file}:{name}", options.identities.get(
@@ -582,16 +713,16 @@ def infer_plan(exports: list, decoded: dict, options: Options | None = None):
                 if matched:
                     wanted, nested.matched = matched, True
                 if wanted is None:
-                    candidates = identity_candidates(objects, owners, options.violation_threshold)
+                    candidates = identity_candidates(objects, owners, options.violation_threshold, table)
                     wanted = candidates[0].field if candidates else ""
                 nested.kind = "entity-list" if wanted else "child-list"
                 nested.identity = wanted
                 if wanted:
-                    entity_lists.append((nested, objects))
+                    entity_lists.append((nested, table))
                 else:
-                    fields, lists = scalar_fields(objects)
-                    nested.links = _field_maps(objects, fields, Namer())
-                    nested.children = _child_lists(export.name, name, objects, lists)
+                    fields, lists = scalar_fields(objects, table=table)
+                    nested.links = _field_maps(objects, fields, Namer(), table)
+                    nested.children = _child_lists(export.name, name, objects, lists, table)
             record.nested.append(nested)
         chosen = options.natural_keys.get(export.name)
         if chosen is None:
@@ -631,34 +762,41 @@ def _name_children(nested, owner_table: str, tables: Namer) -> None:
         _name_children(child, nested.table, tables)
 
 
-def _type_at(objects: list[dict], path: list[str]) -> str:
+def _type_at(objects: list[dict], path: list[str], table: ObjectTable | None = None) -> str:
     if len(path) == 1:
         key = path[0]
+        if table is not None:
+            return value_type(table.values(key), table.kinds(key))
         return value_type([o.get(key) for o in objects])
     return value_type([get_path(o, path) for o in objects])
 
 
-def _field_maps(objects: list[dict], paths: list[list[str]], names: Namer) -> list:
+def _field_maps(objects: list[dict], paths: list[list[str]], names: Namer, table: ObjectTable | None = None) -> list:
     from .plan import FieldMap
 
-    return [FieldMap(p, names("_".join(p)), _type_at(objects, p)) for p in paths]
+    return [FieldMap(p, names("_".join(p)), _type_at(objects, p, table)) for p in paths]
 
 
-def _child_lists(file: str, column: str, objects: list[dict], lists: list[list[str]]) -> list:
+def _child_lists(file: str, column: str, objects: list[dict], lists: list[list[str]],
+                 table: ObjectTable | None = None) -> list:
     """Lists inside objects become grandchild tables: value lists or child lists, recursively."""
     from .plan import NestedColumn
 
     out = []
     for path in lists:
-        inner = [get_path(o, path) for o in objects]
+        if table is not None and len(path) == 1:
+            inner = table.values(path[0])
+        else:
+            inner = [get_path(o, path) for o in objects]
         inner = [v for v in inner if isinstance(v, (list, tuple))]
         items = [x for v in inner for x in v if x is not None]
         nested = NestedColumn(file, column, "", path=".".join(path))
         if items and all(isinstance(x, dict) for x in items):
             nested.kind = "child-list"
-            fields, sub = scalar_fields(items)
-            nested.links = _field_maps(items, fields, Namer())
-            nested.children = _child_lists(file, column + "." + ".".join(path), items, sub)
+            sub_table = ObjectTable(items)
+            fields, sub = scalar_fields(items, table=sub_table)
+            nested.links = _field_maps(items, fields, Namer(), sub_table)
+            nested.children = _child_lists(file, column + "." + ".".join(path), items, sub, sub_table)
         else:
             nested.kind = "value-list"
         out.append(nested)
@@ -679,14 +817,17 @@ def _group_entities(plan, entity_lists, options: Options, tables: Namer) -> None
 
     ref = [f"{n.file}:{n.column}" for n, _ in entity_lists]
     forbidden = set(options.no_merge)
+    merged = {}  # (i, j) -> the table of both lists: a group of just those two measures on it again
     for i in range(len(entity_lists)):
         for j in range(i + 1, len(entity_lists)):
-            (a, oa), (b, ob) = entity_lists[i], entity_lists[j]
+            (a, ta), (b, tb) = entity_lists[i], entity_lists[j]
             if a.identity != b.identity or a.matched != b.matched or ref[i] in forbidden or ref[j] in forbidden:
                 continue
-            common, agree = _agreement(oa, ob, a.identity)
+            both = ObjectTable.concat([ta, tb])
+            common, agree = _agreement(ta, tb, a.identity, both)
             if common and agree >= 1 - options.violation_threshold:
                 parent[find(j)] = find(i)
+                merged[(i, j)] = both
     for group in options.merge:
         members = [ref.index(m) for m in group if m in ref]
         for m in members[1:]:
@@ -698,16 +839,18 @@ def _group_entities(plan, entity_lists, options: Options, tables: Namer) -> None
     for members in groups.values():
         first = entity_lists[members[0]][0]
         identity = first.identity
-        objects = [o for m in members for o in entity_lists[m][1]]
+        both = merged.get(tuple(members))
+        objects_table = both if both is not None else ObjectTable.concat([entity_lists[m][1] for m in members])
+        objects = objects_table.objects
         table = tables(_entity_name(identity, first.column))
         names = Namer([f"{table}_sk"])
         matched = first.matched
         identity_column = names(f"{identity}_key" if matched else identity)
         group = EntityGroup(table=table, key_column=f"{table}_sk", identity=identity,
                             identity_column=identity_column,
-                            identity_type="text" if matched else _identity_type(objects, identity),
+                            identity_type="text" if matched else _identity_type(objects_table, identity),
                             members=[ref[m] for m in members], matched=matched)
-        all_fields, _ = scalar_fields(objects)
+        all_fields, _ = scalar_fields(objects, table=objects_table)
         top = [p[0] for p in all_fields if len(p) == 1]
         if matched:
             # the field itself is an attribute (its most frequent spelling); others by dependency on the match key
@@ -715,16 +858,16 @@ def _group_entities(plan, entity_lists, options: Options, tables: Namer) -> None
             attrs = [identity] + [f for f in entity_attributes(keyed, _MATCH_KEY, top, options.violation_threshold)
                                   if f != identity]
         else:
-            attrs = entity_attributes(objects, identity, top, options.violation_threshold)
-        group.attributes = [FieldMap([f], names(f), _type_at(objects, [f])) for f in attrs]
+            attrs = entity_attributes(objects, identity, top, options.violation_threshold, objects_table)
+        group.attributes = [FieldMap([f], names(f), _type_at(objects, [f], objects_table)) for f in attrs]
         plan.entities.append(group)
         for m in members:
             nested, own = entity_lists[m]
             nested.entity = table
-            fields, lists = scalar_fields(own)
+            fields, lists = scalar_fields(own.objects, table=own)
             links = [p for p in fields if p != [identity] and not (len(p) == 1 and p[0] in attrs)]
-            nested.links = _field_maps(own, links, Namer(["list_position"]))
-            nested.children = _child_lists(nested.file, nested.column, own, lists)
+            nested.links = _field_maps(own.objects, links, Namer(["list_position"]), own)
+            nested.children = _child_lists(nested.file, nested.column, own.objects, lists, own)
 
 
 _MATCH_KEY = "\x00match_key"
@@ -744,6 +887,6 @@ def match_key(value):
     return " ".join(unicodedata.normalize("NFKC", value).casefold().split())
 
 
-def _identity_type(objects: list[dict], identity: str) -> str:
-    t = value_type([o.get(identity) for o in objects])
+def _identity_type(table: ObjectTable, identity: str) -> str:
+    t = value_type(table.values(identity), table.kinds(identity))
     return t if t in ("integer", "text") else "text"
