@@ -24,7 +24,7 @@ _POSITION_NAME = re.compile(r"(?i)^(position|pos|order|ordinal|index|idx|rank|se
 
 
 def _hashable(value):
-    if isinstance(value, (list, dict, set)):
+    if isinstance(value, (list, dict, set, tuple)):  # a tuple may hold a list
         return repr(value)
     return value
 
@@ -224,9 +224,10 @@ class ObjectTable:
             except OverflowError:  # beyond 64 bits
                 pass
         if array is None:
-            if kinds & {list, dict, set}:
+            if kinds & {list, dict, set, tuple}:
                 values = [_hashable(v) for v in values]
-            array = np.array(values, dtype=object)
+            # fromiter keeps each value whole (np.array would make equal-length tuples a second dimension)
+            array = np.fromiter(values, dtype=object, count=len(values))
         # == None compares elementwise; for decoded values it is exactly ``is None``
         isnull = np.asarray(array == None, dtype=bool)  # noqa: E711
         codes, self._uniques[field] = pd.factorize(array, use_na_sentinel=False)

@@ -13,7 +13,8 @@ from hypothesis import strategies as st
 
 from normalise.infer import ObjectTable, measure_dependency
 
-VALUES = st.sampled_from([None, 0, 1, 2, True, "x", "y", 1.0, [1], {"k": 1}])
+# Python literals give tuples too (ast.literal_eval); equal-length ones once made numpy add a dimension
+VALUES = st.sampled_from([None, 0, 1, 2, True, "x", "y", 1.0, [1], {"k": 1}, (1, 2), (3, 4), (5, [6])])
 OBJECTS = st.lists(st.dictionaries(st.sampled_from("abc"), VALUES, max_size=3), max_size=40)
 
 
