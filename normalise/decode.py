@@ -32,7 +32,7 @@ from contextlib import contextmanager
 from dataclasses import dataclass, field
 
 from .literal import (CellError, Limits, check_escapes, check_limits, decode_json, decode_python_literal,
-                      lone_surrogate_in)
+                      lone_surrogate_in, surrogate_escape_cells)
 from .read import Export
 
 FORMATS = ("json", "python-literal", "delimited", "text")
@@ -158,6 +158,11 @@ except ImportError:  # pragma: no cover - depends on the installation
 
 ACCELERATED = _many_py_to_json is not None
 
+try:
+    from ._pyliteral import surrogate_escapes
+except ImportError:  # pragma: no cover - depends on the installation
+    surrogate_escapes = surrogate_escape_cells
+
 
 def rewrite_as_json(texts: list[str]) -> list[str | None]:
     """JSON text per Python-literal cell where the grammars agree, else None (C when built, else bulk Python)."""
@@ -214,7 +219,9 @@ class _NestingGuard:
             frames += 1
             f = f.f_back
         self.old = sys.getrecursionlimit()
-        wanted = frames + self.max_depth  # the decode call's own frames make it stricter still
+        # Two levels short of the limit: a cell near it takes the exact path, which measures
+        # its depth, so the limit never rests on how the interpreter counts frames.
+        wanted = frames + self.max_depth - 2
         # From Python 3.12 the recursion limit no longer bounds C code such as json's scanner
         # (What's New in Python 3.12), so there the caller counts brackets instead.
         if wanted < self.old and sys.version_info < (3, 12):
@@ -286,28 +293,42 @@ def _decode_json_column(texts: list[str], limits: Limits, raw_surrogates: bool =
 
     ``raw_surrogates`` says whether the file had bytes its encoding could not
     read (kept as lone surrogates); when it had none, cells need no scan for them.
+    Escapes that may give a lone surrogate are found for the whole column in one
+    pass; only the cells holding one are checked after decoding.
     """
     values = []
     append = values.append
-    decode_one = _STRICT_JSON.decode
+    # The scanner under json.loads, called directly: cells are stripped, so json.loads
+    # would skip no whitespace, and a value that ends early is left to the exact path.
+    scan = _STRICT_JSON.scan_once
     max_chars, max_depth = limits.max_cell_chars, limits.max_depth
     retry = []
     with _NestingGuard(max_depth) as guard:
+        count_brackets = not guard.active
         for text in texts:
             try:
                 if (len(text) > max_chars
-                        or (not guard.active and text.count("[") + text.count("{") > max_depth)
+                        or (count_brackets and text.count("[") + text.count("{") > max_depth)
                         or (raw_surrogates and not text.isascii() and _SURROGATE.search(text))):
                     check_limits(text, limits)
-                value = decode_one(text)
-                if "\\" in text and "\\u" in text:
-                    check_escapes(text, value, pairs=True)
-                append(value)
+                value, end = scan(text, 0)
+                if end == len(text):
+                    append(value)
+                    continue
             except CellError as exc:
                 append(exc)
-            except (ValueError, RecursionError):
-                retry.append(len(values))
-                append(None)
+                continue
+            except (ValueError, RecursionError, StopIteration):  # StopIteration: no value at all
+                pass
+            retry.append(len(values))
+            append(None)
+    retry_set = set(retry)
+    for k in surrogate_escapes(texts):
+        if k not in retry_set and not isinstance(values[k], CellError):
+            try:
+                check_escapes(texts[k], values[k], pairs=True)
+            except CellError as exc:
+                values[k] = exc
     return _decode_exactly(values, retry, texts, decode_json, limits)
 
 

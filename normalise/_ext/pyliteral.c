@@ -11,6 +11,12 @@
  *
  * Escapes follow the Python language reference, "String and Bytes literals";
  * the output follows RFC 8259, section 7.
+ *
+ * surrogate_escapes(texts) lists the texts holding an escape that may give a
+ * lone surrogate (\uD800-\uDFFF, or \U0000D800-\U0000DFFF in Python), so
+ * that the exact check in Python (literal.check_escapes, RFC 8259 section 8.2)
+ * runs on those alone. It finds what literal._SURROGATE_ESCAPE finds, with
+ * memchr over the text's own buffer instead of a scan per cell in Python.
  */
 #define PY_SSIZE_T_CLEAN
 #include <Python.h>
@@ -185,9 +191,81 @@ static PyObject *many_py_to_json(PyObject *self, PyObject *texts) {
     return out;
 }
 
+/* Index of the first backslash at or after i, or -1. memchr looks for the byte 0x5C;
+   in a 2- or 4-byte buffer that byte may be part of another character, so the code
+   unit holding it is checked, and the search goes on after that unit. */
+static Py_ssize_t next_backslash(int kind, const void *data, Py_ssize_t n, Py_ssize_t i) {
+    const char *bytes = (const char *)data;
+    while (i < n) {
+        const char *hit = memchr(bytes + i * kind, '\\', (size_t)((n - i) * kind));
+        if (hit == NULL) return -1;
+        Py_ssize_t unit = (hit - bytes) / kind;
+        if (PyUnicode_READ(kind, data, unit) == '\\') return unit;
+        i = unit + 1;
+    }
+    return -1;
+}
+
+/* Whether the backslash at i starts u + D + 8-F, or U0000 + D + 8-F (a surrogate's first two digits). */
+static int surrogate_escape_at(int kind, const void *data, Py_ssize_t n, Py_ssize_t i) {
+    Py_ssize_t j;
+    Py_UCS4 c;
+    if (i + 3 < n && PyUnicode_READ(kind, data, i + 1) == 'u') {
+        j = i + 2;
+    } else if (i + 7 < n && PyUnicode_READ(kind, data, i + 1) == 'U'
+               && PyUnicode_READ(kind, data, i + 2) == '0' && PyUnicode_READ(kind, data, i + 3) == '0'
+               && PyUnicode_READ(kind, data, i + 4) == '0' && PyUnicode_READ(kind, data, i + 5) == '0') {
+        j = i + 6;
+    } else {
+        return 0;
+    }
+    c = PyUnicode_READ(kind, data, j);
+    if (c != 'd' && c != 'D') return 0;
+    c = PyUnicode_READ(kind, data, j + 1);
+    return (c >= '8' && c <= '9') || (c >= 'a' && c <= 'f') || (c >= 'A' && c <= 'F');
+}
+
+static PyObject *surrogate_escapes(PyObject *self, PyObject *texts) {
+    PyObject *seq = PySequence_Fast(texts, "expected a sequence of str");
+    if (seq == NULL) return NULL;
+    Py_ssize_t count = PySequence_Fast_GET_SIZE(seq);
+    PyObject **items = PySequence_Fast_ITEMS(seq);
+    PyObject *found = PyList_New(0);
+    if (found == NULL) { Py_DECREF(seq); return NULL; }
+    for (Py_ssize_t k = 0; k < count; k++) {
+        PyObject *text = items[k];
+        if (!PyUnicode_Check(text)) {
+            PyErr_Format(PyExc_TypeError, "expected str, got %.80s", Py_TYPE(text)->tp_name);
+            goto fail;
+        }
+#if PY_VERSION_HEX < 0x030C0000
+        if (PyUnicode_READY(text) < 0) goto fail;  /* a no-op from Python 3.12 */
+#endif
+        int kind = PyUnicode_KIND(text);
+        const void *data = PyUnicode_DATA(text);
+        Py_ssize_t n = PyUnicode_GET_LENGTH(text);
+        for (Py_ssize_t i = next_backslash(kind, data, n, 0); i >= 0; i = next_backslash(kind, data, n, i + 1)) {
+            if (surrogate_escape_at(kind, data, n, i)) {
+                PyObject *index = PyLong_FromSsize_t(k);
+                if (index == NULL || PyList_Append(found, index) < 0) { Py_XDECREF(index); goto fail; }
+                Py_DECREF(index);
+                break;
+            }
+        }
+    }
+    Py_DECREF(seq);
+    return found;
+fail:
+    Py_DECREF(found);
+    Py_DECREF(seq);
+    return NULL;
+}
+
 static PyMethodDef methods[] = {
     {"py_to_json", py_to_json, METH_O, "JSON text for a Python literal in the shared subset, else None."},
     {"many_py_to_json", many_py_to_json, METH_O, "py_to_json over a sequence; returns a list."},
+    {"surrogate_escapes", surrogate_escapes, METH_O,
+     "Indices of the texts holding a surrogate escape (\\uD800-\\uDFFF, \\U0000D800-\\U0000DFFF)."},
     {NULL, NULL, 0, NULL},
 };
 
