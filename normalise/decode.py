@@ -424,8 +424,11 @@ def delimited_ambiguity(texts: list[str], lines: list[int], sep: str, limit: int
 
 # --- per column ---------------------------------------------------------------
 
+_LONGEST_MARKER = max(map(len, EMPTY_MARKERS))
+
+
 def _classify(text: str) -> str:
-    if text in EMPTY_MARKERS:
+    if len(text) <= _LONGEST_MARKER and text in EMPTY_MARKERS:  # no hash of every long cell
         return "empty"
     return "nested" if text[0] in _NESTED_START else "text"
 
