@@ -17,7 +17,11 @@ only cells outside the shared subset of the two grammars (escapes, tuples,
 sets, non-string keys, trailing commas...) take the exact per-cell path in
 ``literal.py``. Both routes give what ``ast.literal_eval`` gives: the bulk
 route accepts a cell only when every token is one whose meaning is the same in
-both grammars.
+both grammars. When the C accelerator is built, JSON text (a JSON column's
+cells, or the rewritten Python literals) is read a whole column at a time by
+its reader, which gives what ``json.loads`` gives and leaves every cell it
+cannot settle (invalid, NaN, a lone surrogate, over a limit) to the exact path.
+A column is decoded with the cyclic garbage collector paused (``paused_gc``).
 """
 
 from __future__ import annotations
@@ -152,16 +156,15 @@ def python_literals_as_json(texts: list[str]) -> list[str | None]:
 
 
 try:  # the C accelerator, built when a compiler was there at install time
-    from ._pyliteral import many_py_to_json as _many_py_to_json
+    from . import _pyliteral
 except ImportError:  # pragma: no cover - depends on the installation
-    _many_py_to_json = None
+    _pyliteral = None
 
+# Looked up one by one: an accelerator built from older sources lacks the newer functions.
+_many_py_to_json = getattr(_pyliteral, "many_py_to_json", None)
+_json_values = getattr(_pyliteral, "json_values", None)
 ACCELERATED = _many_py_to_json is not None
-
-try:
-    from ._pyliteral import surrogate_escapes
-except ImportError:  # pragma: no cover - depends on the installation
-    surrogate_escapes = surrogate_escape_cells
+_LEFT = object()  # stands for a cell the C reader leaves to the exact path
 
 
 def rewrite_as_json(texts: list[str]) -> list[str | None]:
@@ -240,13 +243,20 @@ class _NestingGuard:
 
 def _decode_python_column(texts: list[str], limits: Limits) -> list:
     """Decode Python-literal cells; a CellError instance marks a failed cell."""
+    as_json = rewrite_as_json(texts)
+    max_chars, max_depth = limits.max_cell_chars, limits.max_depth
+    if _json_values is not None:
+        # The size limit holds for the cell as written, so a cell over it is not rewritten
+        # ("" is no JSON, so the reader leaves it to the exact path, which says why).
+        as_json = [js if js is not None and len(text) <= max_chars else "" for text, js in zip(texts, as_json)]
+        # raw_surrogates=True: the rewrite never holds one, and if it did, the exact path would say so
+        values, left = _json_values(as_json, max_depth, max_chars, True, _LEFT)
+        return _decode_exactly(values, left, texts, decode_python_literal, limits)
     values = []
     append = values.append
-    as_json = rewrite_as_json(texts)
     # The rewritten text holds no letters but null/true/false, so json.loads needs
     # no NaN guard here, and its shared default decoder is the fastest call.
     loads = json.loads
-    max_chars, max_depth = limits.max_cell_chars, limits.max_depth
     fast = []
     with _NestingGuard(max_depth) as guard:
         for text, js in zip(texts, as_json):
@@ -289,13 +299,17 @@ _SURROGATE = re.compile("[\ud800-\udfff]")
 
 
 def _decode_json_column(texts: list[str], limits: Limits, raw_surrogates: bool = True) -> list:
-    """Decode JSON cells with one shared decoder; failures get the exact path's message.
+    """Decode JSON cells: the whole column in one call to the C reader when it was built, else
+    with json's shared scanner; the cells either one leaves take the exact path and its message.
 
     ``raw_surrogates`` says whether the file had bytes its encoding could not
     read (kept as lone surrogates); when it had none, cells need no scan for them.
-    Escapes that may give a lone surrogate are found for the whole column in one
-    pass; only the cells holding one are checked after decoding.
+    Without the C reader, escapes that may give a lone surrogate are found with
+    one scan per cell, and only the cells holding one are checked after decoding.
     """
+    if _json_values is not None:
+        values, left = _json_values(texts, limits.max_depth, limits.max_cell_chars, raw_surrogates, _LEFT)
+        return _decode_exactly(values, left, texts, decode_json, limits)
     values = []
     append = values.append
     # The scanner under json.loads, called directly: cells are stripped, so json.loads
@@ -323,7 +337,7 @@ def _decode_json_column(texts: list[str], limits: Limits, raw_surrogates: bool =
             retry.append(len(values))
             append(None)
     retry_set = set(retry)
-    for k in surrogate_escapes(texts):
+    for k in surrogate_escape_cells(texts):
         if k not in retry_set and not isinstance(values[k], CellError):
             try:
                 check_escapes(texts[k], values[k], pairs=True)

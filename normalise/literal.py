@@ -107,8 +107,8 @@ def _lone_escape_position(text: str, pairs: bool) -> int:
 
 
 def surrogate_escape_cells(texts: list[str]) -> list[int]:
-    """Indices of the texts holding an escape that may give a lone surrogate; ``check_escapes``
-    decides on these only (the C accelerator's ``surrogate_escapes`` finds the same, faster).
+    """Indices of the texts holding an escape that may give a lone surrogate; without the C
+    reader, a JSON column runs ``check_escapes`` on these only.
 
     Example:
         >>> surrogate_escape_cells(['["\\\\ud800"]', '["\\\\u00e9"]', "['\\\\U0000dfff']"])
