@@ -210,8 +210,8 @@ def test_c_reader_leaves_cells_over_the_size_limit():
 
 @needs_c
 def test_c_reader_shares_keys_across_cells_without_changing_them():
-    # reference: json.loads; more distinct keys than the reader keeps, keys escaped and not, in all widths
-    keys = [f"k{i}" for i in range(5000)] + ["é", "中", "😀", "a" * 65, ""]
+    # reference: json.loads; keys escaped and not, in all three string widths
+    keys = [f"k{i}" for i in range(9000)] + ["é", "中", "😀", "a" * 65, ""]  # more than the reader keeps
     texts = [json.dumps({k: i, "a": [k]}, ensure_ascii=i % 2 == 0) for i, k in enumerate(keys * 2)]
     texts += ['{"\\u0061": 1, "a": 2}', '{"a\\u00e9": 1}', '{"aé": 1}', '{"\\ud83d\\ude00": 1, "😀": 2}']
     values, left = c_json_values(texts, 100, 1 << 20, False, LEFT)
