@@ -17,20 +17,26 @@ only cells outside the shared subset of the two grammars (escapes, tuples,
 sets, non-string keys, trailing commas...) take the exact per-cell path in
 ``literal.py``. Both routes give what ``ast.literal_eval`` gives: the bulk
 route accepts a cell only when every token is one whose meaning is the same in
-both grammars.
+both grammars. When the C accelerator is built, JSON text (a JSON column's
+cells, or the rewritten Python literals) is read a whole column at a time by
+its reader, which gives what ``json.loads`` gives and leaves every cell it
+cannot settle (invalid, NaN, a lone surrogate, over a limit) to the exact path.
+A column is decoded with the cyclic garbage collector paused (``paused_gc``).
 """
 
 from __future__ import annotations
 
 import csv
+import gc
 import json
 import re
 import sys
 from collections import Counter
+from contextlib import contextmanager
 from dataclasses import dataclass, field
 
 from .literal import (CellError, Limits, check_escapes, check_limits, decode_json, decode_python_literal,
-                      lone_surrogate_in)
+                      lone_surrogate_in, surrogate_escape_cells)
 from .read import Export
 
 FORMATS = ("json", "python-literal", "delimited", "text")
@@ -150,11 +156,15 @@ def python_literals_as_json(texts: list[str]) -> list[str | None]:
 
 
 try:  # the C accelerator, built when a compiler was there at install time
-    from ._pyliteral import many_py_to_json as _many_py_to_json
+    from . import _pyliteral
 except ImportError:  # pragma: no cover - depends on the installation
-    _many_py_to_json = None
+    _pyliteral = None
 
+# Looked up one by one: an accelerator built from older sources lacks the newer functions.
+_many_py_to_json = getattr(_pyliteral, "many_py_to_json", None)
+_json_values = getattr(_pyliteral, "json_values", None)
 ACCELERATED = _many_py_to_json is not None
+_LEFT = object()  # stands for a cell the C reader leaves to the exact path
 
 
 def rewrite_as_json(texts: list[str]) -> list[str | None]:
@@ -162,6 +172,32 @@ def rewrite_as_json(texts: list[str]) -> list[str | None]:
     if _many_py_to_json is not None:
         return _many_py_to_json(texts)
     return python_literals_as_json(texts)
+
+
+@contextmanager
+def paused_gc():
+    """Pause the cyclic garbage collector for the block, then restore its previous state.
+
+    Decoding a column makes hundreds of thousands of lists and dicts; every
+    few hundred allocations start a collection, and the collections of the
+    older generations walk every container made so far, yet find nothing to
+    free: decoded values hold no reference cycles. The containers are still
+    examined once, by the first collection after the pause. The collector is
+    enabled again on leaving, even on an error, and only when it was enabled
+    before.
+
+    Example:
+        >>> with paused_gc():
+        ...     gc.isenabled()
+        False
+    """
+    was_enabled = gc.isenabled()
+    gc.disable()
+    try:
+        yield
+    finally:
+        if was_enabled:
+            gc.enable()
 
 
 class _NestingGuard:
@@ -186,7 +222,9 @@ class _NestingGuard:
             frames += 1
             f = f.f_back
         self.old = sys.getrecursionlimit()
-        wanted = frames + self.max_depth  # the decode call's own frames make it stricter still
+        # Two levels short of the limit: a cell near it takes the exact path, which measures
+        # its depth, so the limit never rests on how the interpreter counts frames.
+        wanted = frames + self.max_depth - 2
         # From Python 3.12 the recursion limit no longer bounds C code such as json's scanner
         # (What's New in Python 3.12), so there the caller counts brackets instead.
         if wanted < self.old and sys.version_info < (3, 12):
@@ -205,13 +243,20 @@ class _NestingGuard:
 
 def _decode_python_column(texts: list[str], limits: Limits) -> list:
     """Decode Python-literal cells; a CellError instance marks a failed cell."""
+    as_json = rewrite_as_json(texts)
+    max_chars, max_depth = limits.max_cell_chars, limits.max_depth
+    if _json_values is not None:
+        # The size limit holds for the cell as written, so a cell over it is not rewritten
+        # ("" is no JSON, so the reader leaves it to the exact path, which says why).
+        as_json = [js if js is not None and len(text) <= max_chars else "" for text, js in zip(texts, as_json)]
+        # raw_surrogates=True: the rewrite never holds one, and if it did, the exact path would say so
+        values, left = _json_values(as_json, max_depth, max_chars, True, _LEFT)
+        return _decode_exactly(values, left, texts, decode_python_literal, limits)
     values = []
     append = values.append
-    as_json = rewrite_as_json(texts)
     # The rewritten text holds no letters but null/true/false, so json.loads needs
     # no NaN guard here, and its shared default decoder is the fastest call.
     loads = json.loads
-    max_chars, max_depth = limits.max_cell_chars, limits.max_depth
     fast = []
     with _NestingGuard(max_depth) as guard:
         for text, js in zip(texts, as_json):
@@ -254,32 +299,50 @@ _SURROGATE = re.compile("[\ud800-\udfff]")
 
 
 def _decode_json_column(texts: list[str], limits: Limits, raw_surrogates: bool = True) -> list:
-    """Decode JSON cells with one shared decoder; failures get the exact path's message.
+    """Decode JSON cells: the whole column in one call to the C reader when it was built, else
+    with json's shared scanner; the cells either one leaves take the exact path and its message.
 
     ``raw_surrogates`` says whether the file had bytes its encoding could not
     read (kept as lone surrogates); when it had none, cells need no scan for them.
+    Without the C reader, escapes that may give a lone surrogate are found with
+    one scan per cell, and only the cells holding one are checked after decoding.
     """
+    if _json_values is not None:
+        values, left = _json_values(texts, limits.max_depth, limits.max_cell_chars, raw_surrogates, _LEFT)
+        return _decode_exactly(values, left, texts, decode_json, limits)
     values = []
     append = values.append
-    decode_one = _STRICT_JSON.decode
+    # The scanner under json.loads, called directly: cells are stripped, so json.loads
+    # would skip no whitespace, and a value that ends early is left to the exact path.
+    scan = _STRICT_JSON.scan_once
     max_chars, max_depth = limits.max_cell_chars, limits.max_depth
     retry = []
     with _NestingGuard(max_depth) as guard:
+        count_brackets = not guard.active
         for text in texts:
             try:
                 if (len(text) > max_chars
-                        or (not guard.active and text.count("[") + text.count("{") > max_depth)
+                        or (count_brackets and text.count("[") + text.count("{") > max_depth)
                         or (raw_surrogates and not text.isascii() and _SURROGATE.search(text))):
                     check_limits(text, limits)
-                value = decode_one(text)
-                if "\\" in text and "\\u" in text:
-                    check_escapes(text, value, pairs=True)
-                append(value)
+                value, end = scan(text, 0)
+                if end == len(text):
+                    append(value)
+                    continue
             except CellError as exc:
                 append(exc)
-            except (ValueError, RecursionError):
-                retry.append(len(values))
-                append(None)
+                continue
+            except (ValueError, RecursionError, StopIteration):  # StopIteration: no value at all
+                pass
+            retry.append(len(values))
+            append(None)
+    retry_set = set(retry)
+    for k in surrogate_escape_cells(texts):
+        if k not in retry_set and not isinstance(values[k], CellError):
+            try:
+                check_escapes(texts[k], values[k], pairs=True)
+            except CellError as exc:
+                values[k] = exc
     return _decode_exactly(values, retry, texts, decode_json, limits)
 
 
@@ -375,8 +438,11 @@ def delimited_ambiguity(texts: list[str], lines: list[int], sep: str, limit: int
 
 # --- per column ---------------------------------------------------------------
 
+_LONGEST_MARKER = max(map(len, EMPTY_MARKERS))
+
+
 def _classify(text: str) -> str:
-    if text in EMPTY_MARKERS:
+    if len(text) <= _LONGEST_MARKER and text in EMPTY_MARKERS:  # no hash of every long cell
         return "empty"
     return "nested" if text[0] in _NESTED_START else "text"
 
@@ -412,6 +478,12 @@ def decode_column(name: str, cells: list, lines: list[int], file: str,
         >>> c.encoding, c.values
         ('python-literal', [[{'id': 1}], None, [{'id': 2}, {'id': 3}]])
     """
+    with paused_gc():
+        return _decode_column(name, cells, lines, file, limits, forced, raw_surrogates)
+
+
+def _decode_column(name: str, cells: list, lines: list[int], file: str, limits: Limits,
+                   forced: tuple[str, str | None] | None, raw_surrogates: bool) -> DecodedColumn:
     n = len(cells)
     values: list = [None] * n
     counts: Counter = Counter()

@@ -106,6 +106,18 @@ def _lone_escape_position(text: str, pairs: bool) -> int:
     return match.start() + 1 if match else 1
 
 
+def surrogate_escape_cells(texts: list[str]) -> list[int]:
+    """Indices of the texts holding an escape that may give a lone surrogate; without the C
+    reader, a JSON column runs ``check_escapes`` on these only.
+
+    Example:
+        >>> surrogate_escape_cells(['["\\\\ud800"]', '["\\\\u00e9"]', "['\\\\U0000dfff']"])
+        [0, 2]
+    """
+    search = _SURROGATE_ESCAPE.search
+    return [k for k, text in enumerate(texts) if "\\" in text and search(text)]
+
+
 def check_escapes(text: str, value, pairs: bool = False) -> None:
     """Refuse a value whose escapes (\\ud800...) made a lone surrogate: RFC 8259 section 8.2 calls such
     strings unpredictable, and no database stores them as text. ``pairs``: JSON text, where a
