@@ -5,12 +5,11 @@ from __future__ import annotations
 import gc
 import json
 import os
-from contextlib import contextmanager
 from pathlib import Path
 
 from .build import Builder, build
 from .check import check_plan, check_rows
-from .decode import decode
+from .decode import decode, paused_gc
 from .infer import Options, infer_plan
 from .join import JoinOptions, join
 from .literal import Limits
@@ -42,24 +41,6 @@ def head(exports: list, decoded: dict, n: int) -> tuple[list, dict]:
         out_decoded[export.path] = {name: copy_with(col, values=col.values[:n])
                                     for name, col in decoded[export.path].items()}
     return out_exports, out_decoded
-
-
-@contextmanager
-def paused_gc():
-    """Pause the cyclic garbage collector while a build makes millions of small objects.
-
-    Decoded values and built rows hold no reference cycles, so the collector
-    finds nothing in them, yet its passes over the growing heap cost about a
-    third of decoding. Reference counting still frees everything; the previous
-    state is restored however the block ends.
-    """
-    was_enabled = gc.isenabled()
-    gc.disable()
-    try:
-        yield
-    finally:
-        if was_enabled:
-            gc.enable()
 
 
 def prepare(paths: list[str], *, options: Options | None = None, limits: Limits = Limits(),
