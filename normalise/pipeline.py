@@ -221,7 +221,6 @@ def _build_streaming(path: str, database: str, *, options: Options | None, limit
     gc.collect()  # once, while the heap is small: format detection leaves exceptions (and the frames they hold)
     builder = Builder(plan)
     writer = SqliteWriter(plan, order, database, replace)
-    writer.start_background()
     try:
         builder.add(start, start_decoded)
         _flush(builder, writer)

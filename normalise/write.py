@@ -155,8 +155,7 @@ def _loading_pragmas(dbapi_connection, _record) -> None:
 
 
 def sqlite_engine(path: str) -> sa.Engine:
-    # one connection is handed from the main thread to the writer thread, never used by both at once
-    engine = sa.create_engine(f"sqlite:///{path}", connect_args={"check_same_thread": False})
+    engine = sa.create_engine(f"sqlite:///{path}")
     event.listen(engine, "connect", _foreign_keys_on)
     return engine
 
@@ -181,9 +180,6 @@ class SqliteWriter:
         self.append = append
         Path(destination).parent.mkdir(parents=True, exist_ok=True)
         self.plan, self.order, self.destination = plan, order, destination
-        self._queue = None  # the writer thread's batches, once start_background is called
-        self._thread = None
-        self._failure: BaseException | None = None
         self.temporary = f"{destination}.partial-{os.getpid()}"
         remove_stale_partials(destination)
         if os.path.exists(self.temporary):
@@ -218,58 +214,23 @@ class SqliteWriter:
             raise
 
     def insert(self, name: str, rows: list[tuple]) -> None:
-        """Add rows to a table; with ``start_background`` they are written by the writer thread."""
+        """Add rows to a table.
+
+        In this thread: a writer thread was measured slower, not faster, because
+        the sqlite3 module releases and retakes the GIL around every row, so a
+        busy main thread starves it.
+        """
         if not rows:
             return
         self.row_counts[name] = self.row_counts.get(name, 0) + len(rows)
-        if self._queue is not None:
-            if self._failure is not None:
-                raise self._failure
-            self._queue.put((name, rows))
-        else:
-            self._insert(name, rows)
-
-    def _insert(self, name: str, rows: list[tuple]) -> None:
         if self.plan.table(name).role in META_ROLES:
             # The bookkeeping tables quote raw input (excerpts, rejected rows), which may hold bytes
             # the file's encoding could not read; they are written as \xNN escapes there.
             rows = [tuple(map(printable, row)) for row in rows]
         self.cursor.executemany(self.statements[name], rows)
 
-    def start_background(self, depth: int = 4) -> None:
-        """Write inserted rows from a second thread, so SQLite's work (which releases the GIL) runs
-        beside the decoding and building; at most ``depth`` batches wait, which bounds memory."""
-        import queue
-        import threading
-
-        self._queue = queue.Queue(maxsize=depth)
-
-        def work():
-            while True:
-                item = self._queue.get()
-                if item is None:
-                    return
-                if self._failure is None:
-                    try:
-                        self._insert(*item)
-                    except BaseException as exc:  # handed to the main thread on its next call
-                        self._failure = exc
-
-        self._thread = threading.Thread(target=work, name="normalise-sqlite-writer", daemon=True)
-        self._thread.start()
-
-    def _drain(self) -> None:
-        """Wait for the writer thread to finish what it was given; raise what it met."""
-        if self._queue is not None:
-            self._queue.put(None)
-            self._thread.join()
-            self._queue = None
-        if self._failure is not None:
-            raise self._failure
-
     def update(self, name: str, rows: list[tuple]) -> None:
         """Rewrite rows (whole, matched on their first column, the primary key)."""
-        self._drain()
         if rows:
             table = self.md.tables[name]
             key, *rest = [c.name for c in table.columns]
@@ -280,7 +241,6 @@ class SqliteWriter:
     def finish(self) -> dict:
         """Indexes, views, commit into the temporary file, SQLite's own checks, and the move into place."""
         try:
-            self._drain()
             for name in self.order if not self.append else ():  # appended: indexes and views are there
                 for index in self.md.tables[name].indexes:
                     self.cursor.execute(str(sa.schema.CreateIndex(index).compile(dialect=self.dialect)))
@@ -306,11 +266,6 @@ class SqliteWriter:
         return checks
 
     def abort(self) -> None:
-        if self._queue is not None:  # stop the writer thread before closing its connection
-            self._failure = self._failure or RuntimeError("aborted")
-            self._queue.put(None)
-            self._thread.join()
-            self._queue = None
         try:
             self.raw.close()
         except Exception:  # pragma: no cover - closing a broken connection

@@ -173,7 +173,7 @@ def _fail_with_enospc(monkeypatch, after: int) -> None:
     from normalise import write
 
     calls = {"n": 0}
-    insert = write.SqliteWriter._insert
+    insert = write.SqliteWriter.insert
 
     def full(self, name, rows):
         calls["n"] += 1
@@ -181,7 +181,7 @@ def _fail_with_enospc(monkeypatch, after: int) -> None:
             raise OSError(errno.ENOSPC, os.strerror(errno.ENOSPC))
         return insert(self, name, rows)
 
-    monkeypatch.setattr(write.SqliteWriter, "_insert", full)
+    monkeypatch.setattr(write.SqliteWriter, "insert", full)
 
 
 @pytest.mark.parametrize("name", ["chunks", "joined"])
