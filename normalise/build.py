@@ -242,7 +242,7 @@ class _Entities:
 
     def __init__(self, group):
         self.group = group
-        self.seen: dict = {}  # (type, natural key value) -> (canonical text, sk)
+        self.seen: dict = {}  # type of natural key -> {natural key value: (canonical text, sk)}
         self.first: dict[str, tuple] = {}  # canonical -> the row as first written
         self.new_rows: list[tuple] = []
         self.keys = [(f.column, f.path[0], f.type) for f in group.attributes]
@@ -251,10 +251,13 @@ class _Entities:
         self.first_at = [{} for _ in self.keys]  # per attribute: (canonical, value) -> first place
 
     def lookup(self, ident) -> tuple[str, int]:
-        hit = self.seen.get((type(ident), ident))
+        seen = self.seen.get(type(ident))
+        if seen is None:
+            seen = self.seen[type(ident)] = {}
+        hit = seen.get(ident)
         if hit is None:
             text = canonical(ident, self.group.identity_type)
-            hit = self.seen[(type(ident), ident)] = (text, key_of(text))
+            hit = seen[ident] = (text, key_of(text))
         return hit
 
     def new_entity(self, text: str, sk: int, ident, obj: dict) -> None:
@@ -282,12 +285,13 @@ class _Entities:
         kinds = set(map(type, idents))
         if len(kinds) == 1:  # one type of identity: the values themselves are the lookup keys
             found = dict(zip(reversed(idents), reversed(range(len(idents)))))  # each one's first occurrence
-            sks = {}
-            for ident, where in found.items():
-                text, sk = self.lookup(ident)
-                sks[ident] = (text, sk)
-                self.new_entity(text, sk, ident, objects[where])
-            keyed = list(map(sks.__getitem__, idents))
+            seen = self.seen.setdefault(kinds.pop(), {})
+            # an entity looked up before has its row already: only those never seen need Python here
+            for ident, hit in zip(list(found), list(map(seen.get, found))):
+                if hit is None:
+                    text, sk = self.lookup(ident)
+                    self.new_entity(text, sk, ident, objects[found[ident]])
+            keyed = list(map(seen.__getitem__, idents))
         else:
             keyed = []
             for ident, obj in zip(idents, objects):
@@ -324,13 +328,14 @@ class _Entities:
         _, first, n = np.unique(pairs, return_index=True, return_counts=True)
         if present is not None:
             first = present[first]
-        counts, first_at = self.counts[k], self.first_at[k]
-        for i, c in zip(first.tolist(), n.tolist()):
-            pair = (text_col[i], values[i])
-            counts[pair] += c
-            place, seen = places[i], first_at.get(pair)
-            if seen is None or place < seen:
-                first_at[pair] = place
+        first = first.tolist()
+        pairs = list(zip(map(text_col.__getitem__, first), map(values.__getitem__, first)))  # all distinct
+        where = list(map(places.__getitem__, first))
+        self.counts[k].update(dict(zip(pairs, n.tolist())))
+        first_at = self.first_at[k]
+        before = list(map(first_at.setdefault, pairs, where))  # a pair seen before keeps its place...
+        for j in [j for j, (old, new) in enumerate(zip(before, where)) if new < old]:
+            first_at[pairs[j]] = where[j]  # ...unless this one comes earlier in the file
 
 
     def choose(self):
