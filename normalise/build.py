@@ -337,7 +337,6 @@ class _Entities:
         for j in [j for j, (old, new) in enumerate(zip(before, where)) if new < old]:
             first_at[pairs[j]] = where[j]  # ...unless this one comes earlier in the file
 
-
     def choose(self):
         """Per entity: its chosen attribute values, and per attribute the variants (value, count, first place)."""
         variants: dict[str, list[list]] = {text: [[] for _ in self.keys] for text in self.first}

@@ -248,7 +248,7 @@ def _build_streaming(path: str, database: str, *, options: Options | None, limit
 
 def _flush(builder: Builder, writer: SqliteWriter) -> None:
     rows = builder.take_rows()
-    for name in writer.order:  # referenced tables first, as a reader of the load order would expect
+    for name in writer.order:  # the load order: referenced tables first
         writer.insert(name, rows.get(name, []))
 
 

@@ -2,7 +2,7 @@
 
 SQLite databases are written to a temporary file beside the destination and
 moved into place only when complete, so a failed run leaves the destination
-as it was. Every connection has ``PRAGMA foreign_keys=ON`` except the loading
+as it was. Every connection the engine opens has ``PRAGMA foreign_keys=ON`` except the loading
 one: every foreign key is checked at once with ``PRAGMA foreign_key_check``
 before the file is moved into place (the same proof, without a lookup per
 inserted row).
