@@ -24,21 +24,16 @@ import time
 
 from normalise.build import Builder
 from normalise.check import check_plan
-from normalise.decode import decode
-from normalise.infer import Options, infer_plan
-from normalise.literal import Limits
-from normalise.pipeline import SAMPLE_ROWS, head
-from normalise.read import read
+from normalise.pipeline import prepare
 from normalise.write import SqliteWriter
 
 
 def built_rows(path: str):
-    export = read(path)
-    decoded = decode(export, Limits())
-    plan = infer_plan(*head([export], {export.path: decoded}, SAMPLE_ROWS), Options())
+    plan, exports, decoded, _ = prepare([path])  # read, decode and infer as a build does
     order = check_plan(plan)
     builder = Builder(plan)
-    builder.add(export, decoded)
+    for export in exports:
+        builder.add(export, decoded[export.path])
     rows = builder.take_rows()
     built = builder.finish()
     for name, more in built.rows.items():
