@@ -22,8 +22,10 @@ from itertools import chain
 import numpy as np
 
 from .errors import NormaliseError
+from .exact import ABSENT, expect_cell, get, literal, pointer, same, store, stored_back, value_key
 from .infer import get_path, match_key
 from .plan import NestedColumn, Plan, RecordSource
+from .prove import InputDigests
 
 _MASK = (1 << 63) - 1
 
@@ -171,6 +173,9 @@ class Built:
     merges: list[dict] = field(default_factory=list)  # entities matched from several spellings
     cells_quarantined_by_file: dict = field(default_factory=dict)  # every input file, joined ones too
     updates: dict = field(default_factory=dict)  # entity table -> rows to rewrite with their chosen values
+    inputs: object = None  # prove.InputDigests of the loaded cells
+    trace_reasons: dict = field(default_factory=dict)  # why values were kept in value_traces, and how many
+    kept: dict = field(default_factory=dict)  # export path -> indices of its loaded records
 
 
 class _Audit:
@@ -246,9 +251,16 @@ class _Entities:
         self.first: dict[str, tuple] = {}  # canonical -> the row as first written
         self.new_rows: list[tuple] = []
         self.keys = [(f.column, f.path[0], f.type) for f in group.attributes]
-        self.counts = [Counter() for _ in self.keys]  # per attribute: (canonical, value) -> occurrences
+        self.counts = [Counter() for _ in self.keys]  # per attribute: (canonical, value key) -> occurrences
         self.preexisting: set = set()  # entities already in the database (build --append)
-        self.first_at = [{} for _ in self.keys]  # per attribute: (canonical, value) -> first place
+        self.first_at = [{} for _ in self.keys]  # per attribute: (canonical, value key) -> first place
+        self.values = [{} for _ in self.keys]  # per attribute: value key -> the value itself
+        # Each occurrence's own value must come back (value_traces keeps those the entity row does not
+        # hold). Per attribute: a reference value key per entity (the first one met), and every occurrence
+        # whose value differs from it, with its place; the occurrences holding the reference value are
+        # found in the bridges at the end, when the reference is not the value the entity row holds.
+        self.reference = [{} for _ in self.keys]  # per attribute: canonical -> value key
+        self.differing = [[] for _ in self.keys]  # per attribute: (canonical, value key, value, place)
 
     def lookup(self, ident) -> tuple[str, int]:
         seen = self.seen.get(type(ident))
@@ -263,25 +275,34 @@ class _Entities:
     def new_entity(self, text: str, sk: int, ident, obj: dict) -> None:
         if text not in self.first:
             row = (sk, to_sql_value(ident, self.group.identity_type),
-                   *[to_sql_value(obj.get(key), t) for _, key, t in self.keys])
+                   *[store(obj.get(f.path[0]), f.type, f.as_text)[0] for f in self.group.attributes])
             self.first[text] = row
             self.new_rows.append(row)
 
-    def add(self, ident, obj: dict, place: tuple) -> int:
-        """One occurrence (the per-object path)."""
+    def add(self, ident, obj: dict, place: tuple, where: tuple) -> int:
+        """One occurrence (the per-object path); ``where`` is its row: (table, row_sk, owner_sk, position,
+        column, file, line)."""
         text, sk = self.lookup(ident)
         self.new_entity(text, sk, ident, obj)
         for k, (_, key, _) in enumerate(self.keys):
-            if key in obj:
-                v = obj[key]
-                pair = (text, v if not isinstance(v, (list, dict)) else json.dumps(v))
+            v = obj.get(key, ABSENT)
+            h = value_key(v)
+            ref = self.reference[k].setdefault(text, h)
+            if h != ref:
+                self.differing[k].append((text, h, v, where))
+            if v is not ABSENT:
+                pair = (text, h)
+                self.values[k].setdefault(h, v)
                 self.counts[k][pair] += 1
                 if pair not in self.first_at[k] or place < self.first_at[k][pair]:
                     self.first_at[k][pair] = place
         return sk
 
-    def add_column(self, idents: list, objects: list[dict], places: list[tuple]) -> list[int]:
-        """Many occurrences at once (the columnar path); returns their entity keys."""
+    def add_column(self, idents: list, objects: list[dict], places: list[tuple], where) -> list[int]:
+        """Many occurrences at once (the columnar path); returns their entity keys.
+
+        ``where(j)`` gives occurrence ``j``'s row, as ``add`` takes it.
+        """
         kinds = set(map(type, idents))
         if len(kinds) == 1:  # one type of identity: the values themselves are the lookup keys
             found = dict(zip(reversed(idents), reversed(range(len(idents)))))  # each one's first occurrence
@@ -303,28 +324,36 @@ class _Entities:
             numbered: dict[str, int] = {}
             entity_codes = np.array([numbered.setdefault(t, len(numbered)) for t in text_col], dtype=np.int64)
         for k, (_, key, _) in enumerate(self.keys):
-            values = [o.get(key, _ABSENT) for o in objects]
-            if set(map(type, values)) & {list, dict}:
-                values = [v if not isinstance(v, (list, dict)) else json.dumps(v) for v in values]
-            self._count(k, text_col, entity_codes, values, places)
+            values = [o.get(key, ABSENT) for o in objects]
+            hkeys = list(map(value_key, values))
+            refs = list(map(self.reference[k].setdefault, text_col, hkeys))
+            if refs != hkeys:
+                for j in [j for j, (a, b) in enumerate(zip(refs, hkeys)) if a != b]:
+                    self.differing[k].append((text_col[j], hkeys[j], values[j], where(j)))
+            known = self.values[k]
+            for h, v in zip(hkeys, values):
+                if h not in known:
+                    known[h] = v
+            self._count(k, text_col, entity_codes, hkeys, places)
         return [sk for _, sk in keyed]
 
     def _count(self, k: int, text_col: list, entity_codes, values: list, places: list) -> None:
-        """Count attribute ``k``'s (entity, value) pairs of one column and keep where each was first seen.
+        """Count attribute ``k``'s (entity, value key) pairs of one column and keep where each was first seen.
 
-        The same as ``Counter.update`` on the pairs, with Python's own equality
-        (a dict numbers the values), but Python touches only the distinct pairs:
-        numpy finds them, their counts and their first occurrences (places come
-        in file order, so the first occurrence is the first place).
+        The same as ``Counter.update`` on the pairs (absent values are not counted), but Python touches only
+        the distinct pairs: numpy finds them, their counts and their first occurrences (places come in file
+        order, so the first occurrence is the first place).
         """
         numbered: dict = {}
-        codes = np.array([numbered.setdefault(v, len(numbered)) if v is not _ABSENT else -1 for v in values],
+        codes = np.array([numbered.setdefault(v, len(numbered)) if v is not ABSENT else -1 for v in values],
                          dtype=np.int64)
-        pairs = entity_codes * len(numbered) + codes
+        pairs = entity_codes * max(len(numbered), 1) + codes
         present = None
         if (codes < 0).any():  # objects without the key: not counted
             present = np.flatnonzero(codes >= 0)
             pairs = pairs[present]
+        if not len(pairs):
+            return
         _, first, n = np.unique(pairs, return_index=True, return_counts=True)
         if present is not None:
             first = present[first]
@@ -341,9 +370,9 @@ class _Entities:
         """Per entity: its chosen attribute values, and per attribute the variants (value, count, first place)."""
         variants: dict[str, list[list]] = {text: [[] for _ in self.keys] for text in self.first}
         for k, counter in enumerate(self.counts):
-            first_at = self.first_at[k]
-            for (text, value), n in counter.items():
-                variants[text][k].append((value, n, first_at[(text, value)]))
+            first_at, values = self.first_at[k], self.values[k]
+            for (text, h), n in counter.items():
+                variants[text][k].append((values[h], n, first_at[(text, h)]))
         for text in sorted(self.first):
             per_attribute = variants[text]
             chosen = []
@@ -358,7 +387,7 @@ class _Entities:
 
 
 META_TABLES = ("rejected_rows", "set_aside_rows", "unmatched_rows", "quarantined_cells", "attribute_variants",
-               "name_map")
+               "value_traces", "name_map")
 
 
 class Builder:
@@ -384,6 +413,10 @@ class Builder:
         self.quarantined_by_file: Counter = Counter()
         self.first_seen: dict[str, dict] = {}  # record table -> {natural key: line kept}
         self.audit = _Audit(self.meta["quarantined_cells"])
+        self.traces = self.meta["value_traces"]
+        self.inputs = InputDigests()  # the digest of every loaded cell, for the lossless proof
+        self.kept: dict[str, list[int]] = {}  # export path -> indices of its loaded records (the last chunk's)
+        self.trace_reasons: Counter = Counter()
         if state:
             for table, keys in state["natural_keys"].items():
                 self.first_seen[table] = dict(keys)
@@ -422,37 +455,69 @@ class Builder:
         loaded = sum(i < main_rows for i in kept)
         c.records_loaded += loaded
         c.rows_set_aside += main_rows - loaded
-        scalar_cols = [(columns[f.path[0]].values, f.type) for f in record.scalars]
         record_keys = getattr(export, "record_keys", None) or export.lines
+        self.kept[export.path] = kept
+        keys = [record_keys[i] for i in kept]
+        for name in [f.path[0] for f in record.scalars] + [n.column for n in record.nested]:
+            col = columns[name]
+            self.inputs.add(record.table, name, keys, [col.values[i] for i in kept], col.encoding == "json")
+        scalar_cols = [self._stored_column(record, f, columns[f.path[0]].values, kept, record_keys, export)
+                       for f in record.scalars]
         out = rows[record.table]
         object_columns = [n for n in record.nested if n.kind == "object-columns"]
         columnar = [n for n in record.nested if _is_columnar(n)]
         per_record = [n for n in record.nested if not _is_columnar(n)]
         for order, nested in enumerate(record.nested):
             nested._order = order  # the column's place in the row, for "first seen" (line, column, position)
-        for i in kept:
+        for j, i in enumerate(kept):
             sk = record_keys[i]
-            row = [sk] + [to_sql_value(vals[i], t) for vals, t in scalar_cols]
-            if None in row:
-                for (vals, t), f, stored in zip(scalar_cols, record.scalars, row[1:]):
-                    if stored is None and vals[i] is not None:
-                        self.audit.note_type(export.path, f.column, t, vals[i], export.lines[i])
+            row = [sk] + [vals[j] for vals in scalar_cols]
             for nested in object_columns:
                 obj = columns[nested.column].values[i]
                 obj = obj if isinstance(obj, dict) else {}
-                row += [to_sql_value(get_path(obj, f.path), f.type) for f in nested.links]
+                row += [store(get_path(obj, f.path), f.type, f.as_text)[0] for f in nested.links]
             out.append(tuple(row))
             for nested in per_record:
                 value = columns[nested.column].values[i]
                 if value is None:
                     continue
-                _nested_rows(self.plan, nested, value, sk, export, i, rows, self.entities, self.values, c,
-                             self.audit)
+                _nested_rows(self, nested, value, sk, export, i, rows, c)
+                self._check_cell(record, nested, value, sk, export, i)
         for nested in columnar:
-            self._list_rows(nested, columns[nested.column].values, kept, record_keys, export, c)
+            self._list_rows(nested, columns[nested.column].values, kept, record_keys, export, c, record)
+
+    def _stored_column(self, record: RecordSource, f, values: list, kept: list[int], record_keys, export) -> list:
+        """A scalar column's stored values for the kept records; values it cannot give back are traced."""
+        vals = [values[i] for i in kept]
+        if f.type == "text" and set(map(type, vals)) <= {str, type(None)}:
+            return vals  # text stays text: the common case, nothing to check
+        out = []
+        for v, i in zip(vals, kept):
+            stored, exact = store(v, f.type, f.as_text)
+            out.append(stored)
+            if not exact:
+                self.audit.note_type(export.path, f.column, f.type, v, export.lines[i])
+                self.trace(record.table, record_keys[i], None, None, f.path[0], "", f"not {f.type} as given",
+                           v, export.path, export.lines[i])
+        return out
+
+    def trace(self, table, row_sk, owner_sk, position, column, path, reason, original, file, line) -> None:
+        """Keep a value the model's columns cannot give back (``original`` ABSENT: the key was absent)."""
+        self.traces.append((table, row_sk, owner_sk, position, column, path, reason,
+                            None if original is ABSENT else literal(original), file, line))
+        self.trace_reasons[reason] += 1
+
+    def _check_cell(self, record: RecordSource, nested: NestedColumn, value, sk: int, export, i: int) -> None:
+        """A cell of the per-object path that its rows do not give back exactly is traced whole."""
+        group = self.entities[nested.entity].group if nested.kind == "entity-list" else None
+        expected = expect_cell(nested, value, group.identity_type if group else None,
+                               group.attributes if group else ())
+        if not same(expected, value):
+            self.trace(record.table, sk, None, None, nested.column, "", "the cell as given (its rows differ)",
+                       value, export.path, export.lines[i])
 
     def _list_rows(self, nested: NestedColumn, values: list, kept: list[int], record_keys: list[int], export,
-                   c: FileCounts) -> None:
+                   c: FileCounts, record: RecordSource) -> None:
         """Bridge or child rows of one list column for a whole chunk, a column at a time.
 
         Gives exactly the rows the per-object path gives; objects that need
@@ -460,10 +525,13 @@ class Builder:
         type) are handled one by one.
         """
         items, owners, positions, rows_of = [], [], [], []
+        untraced = set()  # rows whose cell needs a trace of its own (kept as given)
         for i in kept:
             v = values[i]
             if v is None:
                 continue
+            if type(v) is not list:
+                untraced.add(i)  # a tuple, or one value where a list is expected: the rows hold a list
             if not isinstance(v, (list, tuple)):
                 v = [v]
             n = len(v)
@@ -488,7 +556,16 @@ class Builder:
             identity_type = self.entities[nested.entity].group.identity_type
             bad = [] if _all_usable(idents, identity_type) else [
                 k for k, v in enumerate(idents) if not usable_identity(v, identity_type)]
+        if nested.kind == "entity-list" and idents is not None:
+            want = int if identity_type == "integer" else str
+            if nested.matched:
+                untraced.update(rows_of[k] for k, o in enumerate(items) if type(o.get(nested.identity)) is not str)
+            elif not set(map(type, idents)) <= {want}:
+                untraced.update(rows_of[k] for k, v in enumerate(idents) if type(v) is not want)
+        if nested.kind == "value-list" and not set(map(type, items)) <= {str}:
+            untraced.update(rows_of[k] for k, x in enumerate(items) if type(x) is not str)
         if bad:
+            untraced.update(rows_of[k] for k in bad)
             for k in bad:
                 x = items[k]
                 message = ("null element in a list" if x is None else "nested element in a list of values"
@@ -503,6 +580,7 @@ class Builder:
             if idents is not None:
                 idents = [idents[k] for k in keep]
         if not items:
+            self._trace_cells(record, nested, values, untraced, record_keys, export)
             return
         if max(owners) < _RECORD_KEY_LIMIT and max(positions) < (1 << _POSITION_BITS):
             keys = [(o << _POSITION_BITS) | p for o, p in zip(owners, positions)]
@@ -521,29 +599,94 @@ class Builder:
                     found.new.append(entry)
             table.extend(zip(keys, owners, [found.rows[t][0] for t in texts], positions))
             c.elements_written += len(keys)
+            self._trace_cells(record, nested, values, untraced, record_keys, export)
             return
         known = audit.known(nested, self.entities)
         if not set(chain.from_iterable(items)) <= known:
             for o, i in zip(items, rows_of):
                 if not o.keys() <= known:
                     audit.note_keys(nested, o.keys() - known, export.path, lines[i])
+                    untraced.add(i)  # the rows have no column for the key: the cell is kept as given
         links = []
         for f in nested.links:
-            col = [o.get(f.path[0]) for o in items] if len(f.path) == 1 else [get_path(o, f.path) for o in items]
-            if not (set(map(type, col)) <= _STORED_AS_IS[f.type] and (f.type != "integer" or _fits_int64(col))):
-                converted = [to_sql_value(v, f.type) for v in col]
-                for v, stored, i in zip(col, converted, rows_of):
-                    if stored is None and v is not None:
+            col = ([o.get(f.path[0], ABSENT) for o in items] if len(f.path) == 1
+                   else [get(o, f.path) for o in items])
+            missing = None if f.null_means == "absent" else ABSENT  # what NULL cannot stand for here
+            if missing is None and None in col:
+                untraced.update(rows_of[k] for k, v in enumerate(col) if v is None)
+            elif missing is ABSENT and ABSENT in col:
+                untraced.update(rows_of[k] for k, v in enumerate(col) if v is ABSENT)
+            col = [None if v is ABSENT else v for v in col]
+            if not (set(map(type, col)) <= _STORED_AS_IS[f.type] and (f.type != "integer" or _fits_int64(col))
+                    and not f.as_text):
+                converted = []
+                for v, i in zip(col, rows_of):
+                    stored, exact = store(v, f.type, f.as_text)
+                    converted.append(stored)
+                    if not exact:
                         audit.note_type(export.path, f"{nested.column}.{f.column}", f.type, v, lines[i])
+                        untraced.add(i)
                 col = converted
             links.append(col)
         if nested.kind == "entity-list":
             places = [(lines[i], nested._order, p) for i, p in zip(rows_of, positions)]
-            entity_keys = self.entities[nested.entity].add_column(idents, items, places)
+            bridge, path = nested.table, export.path
+
+            def where(j):
+                return (bridge, keys[j], owners[j], positions[j], nested.column, path, lines[rows_of[j]])
+
+            entity_keys = self.entities[nested.entity].add_column(idents, items, places, where)
             table.extend(zip(keys, owners, entity_keys, positions, *links))
         else:
             table.extend(zip(keys, owners, positions, *links))
         c.elements_written += len(keys)
+        self._trace_cells(record, nested, values, untraced, record_keys, export)
+
+    def _trace_cells(self, record, nested: NestedColumn, values: list, rows: set, record_keys, export) -> None:
+        for i in sorted(rows):
+            self.trace(record.table, record_keys[i], None, None, nested.column, "",
+                       "the cell as given (its rows differ)", values[i], export.path, export.lines[i])
+
+    def _trace_occurrences(self, table: str, acc: _Entities, held: list, occurrences) -> None:
+        """Trace every occurrence whose own value of an attribute is not the one its entity row gives back."""
+        path_of = {}
+        for k, f in enumerate(acc.group.attributes):
+            reason = f"entity attribute {f.column!r}: this occurrence's own value (the entity row holds another)"
+            pointer_text = pointer(f.path)
+            traced = set()
+            for text, h, v, where in acc.differing[k]:
+                if h != held[k].get(text, h):
+                    bridge, row_sk, owner_sk, position, column, file, line = where
+                    self.trace(bridge, row_sk, owner_sk, position, column, pointer_text, reason, v, file, line)
+                    traced.add((bridge, row_sk))
+            # entities whose reference value is not the one held: each occurrence holding the reference is
+            # traced too; those are the occurrences not listed among the differing ones
+            pending = {}
+            for text, ref in acc.reference[k].items():
+                if text in held[k] and ref != held[k][text]:
+                    pending[acc.first[text][0]] = (ref, acc.values[k].get(ref, ABSENT))
+            if not pending:
+                continue
+            if occurrences is None:
+                raise RuntimeError("finish() needs the bridge rows to trace occurrences")  # pragma: no cover
+            if not path_of:
+                path_of = {n.table: n for n in self._entity_members(table)}
+            for bridge, nested in path_of.items():
+                listed = {row_sk for b, row_sk in traced if b == bridge}
+                for row_sk, owner_sk, position, entity_sk in occurrences(bridge, set(pending)):
+                    if row_sk in listed:
+                        continue
+                    self.trace(bridge, row_sk, owner_sk, position, nested.column, pointer_text, reason,
+                               pending[entity_sk][1], self._member_path(nested), None)
+
+    def _entity_members(self, table: str) -> list[NestedColumn]:
+        return [n for r in self.plan.records for n in r.nested if n.kind == "entity-list" and n.entity == table]
+
+    def _member_path(self, nested: NestedColumn) -> str:
+        for record in self.plan.records:
+            if nested in record.nested:
+                return record.path
+        return ""
 
     def _entity_path(self, group) -> str:
         """The input file an entity group's first member column comes from."""
@@ -563,10 +706,12 @@ class Builder:
             taken[table], found.new = found.new, []
         return taken
 
-    def finish(self) -> Built:
+    def finish(self, occurrences=None) -> Built:
         """Meta rows, counts, and the entity rows whose chosen values differ from those first written.
 
-        Call once, after the last chunk (and after the last ``take_rows``).
+        Call once, after the last chunk (and after the last ``take_rows``). ``occurrences(bridge, sks)``
+        gives the rows ``(row_sk, owner_sk, position, entity_sk)`` of a bridge table that link to the
+        entities ``sks``: the occurrences whose value an entity row no longer holds are traced.
         """
         rows = self.take_rows()
         self.audit.report()
@@ -574,30 +719,37 @@ class Builder:
         merges: list[dict] = []
         updates: dict[str, list[tuple]] = {}
         for table, acc in self.entities.items():
+            held = [{} for _ in acc.keys]  # per attribute: canonical -> key of the value the entity row gives back
             for text, chosen_values, per_attribute in acc.choose():
                 first = acc.first[text]
                 sk, natural = first[0], first[1]
                 chosen = []
-                for (column, _, type_), best, found in zip(acc.keys, chosen_values, per_attribute):
-                    chosen.append(None if best is None else to_sql_value(best, type_))
+                for k, ((column, _, type_), best, found) in enumerate(zip(acc.keys, chosen_values, per_attribute)):
+                    f = acc.group.attributes[k]
+                    stored, exact = store(best, f.type, f.as_text) if found else (None, True)
+                    chosen.append(stored)
+                    held[k][text] = value_key(stored_back(stored, f.type, f.as_text) if stored is not None
+                                              else ABSENT if f.null_means == "absent" else None)
                     for v, n, place in found:  # values the attribute's type (from the first records) cannot hold
-                        if v is not None and to_sql_value(v, type_) is None:
+                        if v is not None and not store(v, f.type, f.as_text)[1]:
                             self.audit.quarantine.append(
                                 (self._entity_path(acc.group), place[0], f"{table}.{column}", None, repr(v)[:40],
                                  f"{n} value(s) of {column!r} for {table} {natural!r} are not {type_}, the "
-                                 f"attribute's type (inferred from the first records); they were stored as NULL"))
+                                 f"attribute's type (inferred from the first records); they were stored as NULL "
+                                 f"and kept as given in value_traces"))
                     if len(found) > 1:
                         conflicts += 1
                         for v, n, _ in found:
                             self.meta["attribute_variants"].append(
                                 (table, sk, str(natural), column,
-                                 None if v is None else str(to_sql_value(v, "text")), n, v == best))
+                                 None if v is None else str(to_sql_value(v, "text")), n, same(v, best)))
                 if acc.group.matched and len(per_attribute[0]) > 1:
                     merges.append({"table": table, "key": natural,
                                    "spellings": {v: n for v, n, _ in per_attribute[0]}})
                 row = (sk, natural, *chosen)
                 if row != first and text not in acc.preexisting:  # appended: existing rows stay as they are
                     updates.setdefault(table, []).append(row)
+            self._trace_occurrences(table, acc, held, occurrences)
         self.meta["name_map"] = name_map(self.plan) if not self.state else []  # appended: the map is there
         offsets = self.state["meta_offset"] if self.state else {}
         for name in META_TABLES:
@@ -607,7 +759,8 @@ class Builder:
         counts = [self.counts[r.path] if r.path in self.counts else FileCounts(r.file, r.path)
                   for r in self.plan.records]
         return Built(rows, counts, conflicts, merges=merges,
-                     cells_quarantined_by_file=dict(self.quarantined_by_file), updates=updates)
+                     cells_quarantined_by_file=dict(self.quarantined_by_file), updates=updates,
+                     inputs=self.inputs, trace_reasons=dict(self.trace_reasons), kept=self.kept)
 
 
 def _all_usable(idents: list, type_: str) -> bool:
@@ -678,7 +831,11 @@ def build(plan: Plan, exports: list, decoded: dict, extra: dict | None = None, s
     for export in exports:
         builder.add(export, decoded[export.path])
     made = builder.take_rows()
-    built = builder.finish()
+
+    def occurrences(bridge: str, sks: set):
+        return [(r[0], r[1], r[3], r[2]) for r in made.get(bridge, ()) if r[2] in sks]
+
+    built = builder.finish(occurrences)
     for name, rows in made.items():
         built.rows[name] = rows + built.rows.get(name, [])
     for table, changed in built.updates.items():
@@ -732,15 +889,20 @@ def _keep(record: RecordSource, export, columns, set_aside: list, first: dict | 
     return sorted(kept)
 
 
-def _nested_rows(plan, nested: NestedColumn, value, owner_sk: int, export, i: int, rows, entities,
-                 values, c: FileCounts, audit: _Audit) -> None:
-    """Rows of one nested value (and of the lists inside it), owned by ``owner_sk``."""
+def _nested_rows(builder: "Builder", nested: NestedColumn, value, owner_sk: int, export, i: int, rows,
+                 c: FileCounts) -> None:
+    """Rows of one nested value (and of the lists inside it), owned by ``owner_sk``.
+
+    What the rows cannot give back is found by comparing the whole cell with
+    ``expect_cell`` afterwards (``Builder._check_cell``) and kept as a trace.
+    """
+    entities, values, audit = builder.entities, builder.values, builder.audit
     where = f"{nested.file}:{nested.column}" + (f".{nested.path}" if nested.path else "")
     if nested.kind == "object-columns":
         if isinstance(value, dict):
             c.elements_decoded += 1
             c.elements_written += 1
-            _lists_inside(plan, nested, value, owner_sk, export, i, rows, entities, values, c, audit)
+            _lists_inside(builder, nested, value, owner_sk, export, i, rows, c)
         return
     if nested.kind == "object-child":
         c.elements_decoded += 1
@@ -748,10 +910,10 @@ def _nested_rows(plan, nested: NestedColumn, value, owner_sk: int, export, i: in
             _quarantine_element(audit.quarantine, export, i, nested, None, "expected an object", c)
             return
         sk = row_key(where, owner_sk, 0)
-        rows[nested.table].append((sk, owner_sk, *[to_sql_value(get_path(value, f.path), f.type)
+        rows[nested.table].append((sk, owner_sk, *[store(get_path(value, f.path), f.type, f.as_text)[0]
                                                     for f in nested.links]))
         c.elements_written += 1
-        _lists_inside(plan, nested, value, sk, export, i, rows, entities, values, c, audit)
+        _lists_inside(builder, nested, value, sk, export, i, rows, c)
         return
     items = value if isinstance(value, (list, tuple)) else [value]
     table = rows[nested.table]
@@ -759,7 +921,7 @@ def _nested_rows(plan, nested: NestedColumn, value, owner_sk: int, export, i: in
         c.elements_decoded += 1
         sk = row_key(where, owner_sk, position)
         if nested.kind == "value-list":
-            if item is None or isinstance(item, (dict, list, tuple)):
+            if item is None or isinstance(item, (dict, list, tuple, set, frozenset)):
                 _quarantine_element(audit.quarantine, export, i, nested, position,
                                     "null element in a list" if item is None else "nested element in a list of values", c)
                 continue
@@ -777,15 +939,10 @@ def _nested_rows(plan, nested: NestedColumn, value, owner_sk: int, export, i: in
         if not isinstance(item, dict):
             _quarantine_element(audit.quarantine, export, i, nested, position, "expected an object in a list of objects", c)
             continue
-        links = [to_sql_value(get_path(item, f.path), f.type) for f in nested.links]
+        links = [store(get_path(item, f.path), f.type, f.as_text)[0] for f in nested.links]
         known = audit.known(nested, entities)
         if not item.keys() <= known:
             audit.note_keys(nested, item.keys() - known, export.path, export.lines[i])
-        if None in links:
-            for f, out in zip(nested.links, links):
-                if out is None and get_path(item, f.path) is not None:
-                    audit.note_type(export.path, f"{nested.column}.{f.column}", f.type, get_path(item, f.path),
-                                    export.lines[i])
         if nested.kind == "entity-list":
             ident = item.get(nested.identity)
             if nested.matched:
@@ -794,22 +951,23 @@ def _nested_rows(plan, nested: NestedColumn, value, owner_sk: int, export, i: in
                 _quarantine_element(audit.quarantine, export, i, nested, position,
                                     f"object without a usable {nested.identity!r}", c)
                 continue
-            entity_sk = entities[nested.entity].add(ident, item, (export.lines[i], getattr(nested, "_order", 0),
-                                                                  position))
+            entity_sk = entities[nested.entity].add(
+                ident, item, (export.lines[i], getattr(nested, "_order", 0), position),
+                (nested.table, sk, owner_sk, position, nested.column, export.path, export.lines[i]))
             table.append((sk, owner_sk, entity_sk, position, *links))
         else:
             table.append((sk, owner_sk, position, *links))
         c.elements_written += 1
-        _lists_inside(plan, nested, item, sk, export, i, rows, entities, values, c, audit)
+        _lists_inside(builder, nested, item, sk, export, i, rows, c)
 
 
-def _lists_inside(plan, nested: NestedColumn, obj: dict, owner_sk: int, export, i: int, rows, entities,
-                  values, c: FileCounts, audit: _Audit) -> None:
+def _lists_inside(builder: "Builder", nested: NestedColumn, obj: dict, owner_sk: int, export, i: int, rows,
+                  c: FileCounts) -> None:
     """Rows of the lists inside one object (grandchild tables), owned by ``owner_sk``."""
     for child in nested.children:
         inner = get_path(obj, child.path.split("."))
         if inner:
-            _nested_rows(plan, child, inner, owner_sk, export, i, rows, entities, values, c, audit)
+            _nested_rows(builder, child, inner, owner_sk, export, i, rows, c)
 
 
 def _quarantine_element(quarantine: list, export, i, nested, position, message, c: FileCounts) -> None:

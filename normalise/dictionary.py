@@ -59,6 +59,18 @@ META_MEANING = {
                               "position": "Character position of the fault in the cell, or the element's position in "
                                           "its list.",
                               "excerpt": "The text around the fault.", "message": "What is wrong."}),
+    "value_traces": ("One row per value that the model's columns cannot give back exactly (a value of another "
+                     "type, a key the model does not have, an absent key where NULL means null, an occurrence's "
+                     "own spelling of an entity attribute): the original as Python literal text, at its row and "
+                     "path (a JSON Pointer, RFC 6901).", {
+                         "table_name": "The table of the row the value belongs to.",
+                         "row_sk": "That row's surrogate key (a record, bridge or child row).",
+                         "owner_sk": "The owning row of a list element, where the row may not exist.",
+                         "position": "The element's position in its list.",
+                         "column_name": "The input column.", "path": "Where inside the value (JSON Pointer; empty: the whole cell or element).",
+                         "reason": "Why the columns cannot hold it.",
+                         "original": "The value as given (Python literal text; NULL: the key was absent).",
+                         "file": "The input file.", "line": "Line of the record in its file."}),
     "attribute_variants": ("One row per value seen for an entity attribute that was written with different values "
                            "in different places (a conflict); the chosen value is the one in the entity table.", {
                                "entity_table": "The entity table.", "entity_sk": "The entity's surrogate key.",

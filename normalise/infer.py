@@ -52,6 +52,8 @@ def measure_dependency(objects: list[dict], key: str, field: str) -> Dependency:
 
     Only key values that occur more than once carry evidence; each occurrence
     that differs from its key's most frequent value counts as one violation.
+    An object without the field holds a value of its own (absent), different
+    from every present value and from null.
 
     Example (the "tournament winners" table of the Wikipedia article *Third
     normal form*: Winner -> Winner's date of birth holds):
@@ -67,7 +69,7 @@ def measure_dependency(objects: list[dict], key: str, field: str) -> Dependency:
         k = obj.get(key)
         if k is None:
             continue
-        values[_hashable(k)][_hashable(obj.get(field))] += 1
+        values[_hashable(k)][_hashable(obj[field]) if field in obj else _MISSING] += 1
     occurrences = violations = 0
     for counter in values.values():
         total = sum(counter.values())
@@ -251,6 +253,12 @@ class ObjectTable:
                 np.concatenate([c[2] for c in coded]))
 
     def measure(self, key: str, field: str, carrying_only: bool = False) -> Dependency:
+        """The dependency key -> field over the objects whose key is not null.
+
+        An absent field is a value of its own, different from every present value
+        and from null (so a flag carried by some occurrences of an entity only is
+        a violation); ``carrying_only`` counts only the objects that carry the field.
+        """
         import numpy as np
 
         kc, _, knull = self.codes(key)
@@ -258,6 +266,8 @@ class ObjectTable:
         keep = ~knull
         if carrying_only:
             keep &= vpresent
+        elif not vpresent.all():
+            vc = np.where(vpresent, vc, (int(vc.max()) + 1) if len(vc) else 0)
         kc, vc = kc[keep], vc[keep]
         if not len(kc):
             return Dependency(key, field, 0, 0)
@@ -452,12 +462,18 @@ def scalar_column_type(values: list) -> str:
     if present and not all(isinstance(v, str) for v in present):
         return value_type(present)
     t = scalar_type(present)
+    # a number column gives back each cell's own text: "+7", "007", "1.50" or "1e3" would come back as
+    # "7", "7", "1.5" and "1000.0", so such a column stays text (the Python reference: str(int), repr(float))
+    if t == "integer" and not all(str(int(v)) == v for v in present):
+        return "text"
     if t == "real" and any(len(v) > 15 and _INTEGER_TEXT.fullmatch(v) for v in present):
         # integers of more digits than a float holds exactly: as integers when they all fit 64 bits, else
         # as text, never rounded to a float
         ints = [v for v in present if _INTEGER_TEXT.fullmatch(v)]
         fits = len(ints) == len(present) and all(len(v) <= 20 and -(1 << 63) <= int(v) < (1 << 63) for v in ints)
-        return "integer" if fits else "text"
+        return "integer" if fits and all(str(int(v)) == v for v in ints) else "text"
+    if t == "real" and not all(repr(float(v)) == v for v in present):
+        return "text"
     return "text" if t == "empty" else t
 
 
@@ -526,7 +542,9 @@ def entity_attributes(objects: list[dict], identity: str, fields: list[str],
                       threshold: float, table: ObjectTable | None = None) -> list[str]:
     """Fields functionally determined by the identity (X -> A within the tolerated violation rate).
 
-    Only objects that carry a field are evidence for it. With no repeated
+    An object without the field is evidence too: absence is a value of its own,
+    so a field carried by some occurrences of an identity only (a flag on one
+    record's link) is not determined by the identity. With no repeated
     identity at all nothing can be measured; such fields count as entity
     attributes unless their name says they are a position in a list.
     ``table``, when given, is the ``ObjectTable`` of these objects.
@@ -536,7 +554,7 @@ def entity_attributes(objects: list[dict], identity: str, fields: list[str],
     for f in fields:
         if f == identity:
             continue
-        d = table.measure(identity, f, carrying_only=True)
+        d = table.measure(identity, f)
         if d.occurrences == 0:
             if not _POSITION_NAME.match(f):
                 out.append(f)
@@ -590,6 +608,7 @@ def get_path(obj, path: list[str]):
 
 
 META_TABLES = ("rejected_rows", "set_aside_rows", "unmatched_rows", "quarantined_cells", "attribute_variants",
+               "value_traces",
                "name_map")
 _GENERIC_IDENTITY = frozenset(["id", "key", "code", "uuid", "guid", "slug"])
 
@@ -684,7 +703,8 @@ def infer_plan(exports: list, decoded: dict, options: Options | None = None):
                 t = scalar_column_type(col.values)
                 scalar_values[name] = col.values
                 scalar_types[name] = t
-                record.scalars.append(FieldMap([name], names(name), t))
+                as_text = t in ("integer", "real") and any(type(v) is str for v in col.values)
+                record.scalars.append(FieldMap([name], names(name), t, as_text=as_text))
                 continue
             origin = getattr(export, "origin", {}).get(name)
             nested = NestedColumn(file=Path(origin[0]).stem if origin else export.name, column=name, kind="")
@@ -699,7 +719,7 @@ def infer_plan(exports: list, decoded: dict, options: Options | None = None):
                     nested.links = _field_maps(objects, fields, Namer(), table)
                 else:
                     nested.kind = "object-columns"
-                    nested.links = [FieldMap(p, names(name + "_" + "_".join(p)), _type_at(objects, p, table))
+                    nested.links = [field_map(objects, p, names(name + "_" + "_".join(p)), table)
                                     for p in fields]
                 nested.children = _child_lists(export.name, name, objects, lists, table)
             else:
@@ -773,9 +793,27 @@ def _type_at(objects: list[dict], path: list[str], table: ObjectTable | None = N
 
 
 def _field_maps(objects: list[dict], paths: list[list[str]], names: Namer, table: ObjectTable | None = None) -> list:
+    return [field_map(objects, p, names("_".join(p)), table) for p in paths]
+
+
+def field_map(objects: list[dict], path: list[str], column: str, table: ObjectTable | None = None):
+    """The column a field of the objects becomes: its type, and whether NULL stands for null or for no key.
+
+    NULL stands for whichever of the two the objects have more often (ties: null);
+    the other kind is kept as a trace, so both come back exactly.
+    """
+    from .exact import ABSENT, get
     from .plan import FieldMap
 
-    return [FieldMap(p, names("_".join(p)), _type_at(objects, p, table)) for p in paths]
+    if table is not None and len(path) == 1:
+        col = table.column(path[0])
+        absent = sum(v is _MISSING for v in col)
+        nulls = sum(v is None for v in col)
+    else:
+        found = [get(o, path) for o in objects]
+        absent = sum(v is ABSENT for v in found)
+        nulls = sum(v is None for v in found)
+    return FieldMap(path, column, _type_at(objects, path, table), "absent" if absent > nulls else "null")
 
 
 def _child_lists(file: str, column: str, objects: list[dict], lists: list[list[str]],
@@ -860,7 +898,7 @@ def _group_entities(plan, entity_lists, options: Options, tables: Namer) -> None
                                   if f != identity]
         else:
             attrs = entity_attributes(objects, identity, top, options.violation_threshold, objects_table)
-        group.attributes = [FieldMap([f], names(f), _type_at(objects, [f], objects_table)) for f in attrs]
+        group.attributes = [field_map(objects, [f], names(f), objects_table) for f in attrs]
         plan.entities.append(group)
         for m in members:
             nested, own = entity_lists[m]

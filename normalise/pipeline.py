@@ -13,6 +13,7 @@ from .decode import decode, paused_gc
 from .infer import Options, infer_plan
 from .join import JoinOptions, join
 from .literal import Limits
+from .prove import LossDetected, loss_message, prove, sqlite_fetch
 from .planfile import join_settings, plan_from_doc, plan_to_toml, read_plan
 from .read import iter_chunks, read
 from .report import manifest
@@ -92,11 +93,14 @@ def build_database(paths: list[str], database: str, *, options: Options | None =
                    parquet_dir: str | None = None, plan_path: str | None = None,
                    schema: str | None = None, chunk_rows: int | None = None, progress=None,
                    report_path: str | None = None, dictionary_path: str | None = None,
-                   append: bool = False) -> dict:
+                   append: bool = False, allow_lossy: bool = False) -> dict:
     """Run every pass on the exports and write a SQLite database; returns the manifest.
 
     ``database`` may instead be a ``postgresql+psycopg://`` URL: the tables then go into
     ``schema`` (default ``normalise``) of that database, in one transaction.
+
+    Before a SQLite database is moved into place every loaded cell is rebuilt from its tables and
+    compared with the input (``prove.py``); a difference raises ``LossDetected`` unless ``allow_lossy``.
 
     Example:
         >>> import tempfile, os
@@ -124,7 +128,8 @@ def build_database(paths: list[str], database: str, *, options: Options | None =
     if chunk_rows and not postgresql and not append and _can_stream(paths, options, join_options):
         plan, result = _build_streaming(paths[0], database, options=options, limits=limits, formats=formats,
                                         encoding=encoding, delimiter=delimiter, replace=replace, picks=picks,
-                                        plan_path=plan_path, chunk_rows=chunk_rows, progress=progress)
+                                        plan_path=plan_path, chunk_rows=chunk_rows, progress=progress,
+                                        allow_lossy=allow_lossy)
         return _outputs(database, plan, result, parquet_dir, manifest_path, report_path, dictionary_path)
     plan, exports, decoded, joined = prepare(paths, options=options, limits=limits, formats=formats,
                                              encoding=encoding, delimiter=delimiter, join_options=join_options,
@@ -152,7 +157,19 @@ def build_database(paths: list[str], database: str, *, options: Options | None =
         result = manifest(plan, built, display_url(database), integrity, joined)
         result["schema"] = integrity["schema"]
     else:
-        integrity = write_sqlite(plan, built.rows, order, database, replace=replace, append=append)
+        by_path = {e.path: e for e in exports}
+
+        def locate(table: str, column: str):
+            for record in plan.records:
+                if record.table == table and record.path in built.kept:
+                    export = by_path[record.path]
+                    keys = getattr(export, "record_keys", None) or export.lines
+                    values = decoded[record.path][column].values
+                    for i in built.kept[record.path]:
+                        yield keys[i], values[i], export.path, export.lines[i]
+
+        integrity = write_sqlite(plan, built.rows, order, database, replace=replace, append=append,
+                                 verify=verifier(plan, built, allow_lossy, locate))
         result = manifest(plan, built, os.fspath(database), integrity, joined)
         if append:  # the manifest counts what the database now holds
             import sqlite3
@@ -162,6 +179,23 @@ def build_database(paths: list[str], database: str, *, options: Options | None =
                     t["rows"] = con.execute(f'SELECT count(*) FROM "{t["name"]}"').fetchone()[0]
             result["appended"] = True
     return _outputs(database, plan, result, parquet_dir, manifest_path, report_path, dictionary_path)
+
+
+def verifier(plan, built, allow_lossy: bool, locate=None):
+    """The lossless proof run on the committed temporary file, before it is moved into place."""
+    def verify(path: str) -> dict:
+        fetch, close = sqlite_fetch(path)
+        try:
+            figures = prove(plan, built.inputs, fetch, locate)
+        finally:
+            close()
+        figures["values_traced"] = sum(built.trace_reasons.values())
+        figures["traced_by_reason"] = dict(sorted(built.trace_reasons.items()))
+        figures["lossy_kept"] = bool(figures["cells_differing"]) and allow_lossy
+        if figures["cells_differing"] and not allow_lossy:
+            raise LossDetected(loss_message(figures))
+        return figures
+    return verify
 
 
 def _outputs(database, plan, result: dict, parquet_dir, manifest_path, report_path, dictionary_path) -> dict:
@@ -191,7 +225,7 @@ def _can_stream(paths: list[str], options: Options | None, join_options: JoinOpt
 
 def _build_streaming(path: str, database: str, *, options: Options | None, limits: Limits, formats: dict | None,
                      encoding: str | None, delimiter: str | None, replace: bool, picks: list[str] | None,
-                     plan_path: str | None, chunk_rows: int, progress) -> tuple:
+                     plan_path: str | None, chunk_rows: int, progress, allow_lossy: bool = False) -> tuple:
     """Build one export in chunks with bounded memory: infer on the first records, then stream."""
     options = options or Options()
     chunks = iter_chunks(path, chunk_rows, encoding=encoding, delimiter=delimiter)
@@ -234,7 +268,12 @@ def _build_streaming(path: str, database: str, *, options: Options | None, limit
             done += chunk.number_of_records + len(chunk.rejected)
             if progress:
                 progress(done, getattr(chunk, "chars_read", 0))
-        built = builder.finish()
+        def occurrences(bridge: str, sks: set):
+            cols = [c.name for c in plan.table(bridge).columns]
+            query = (f'SELECT "{cols[0]}", "{cols[1]}", "{cols[3]}", "{cols[2]}" FROM "{bridge}"')
+            return [r for r in writer.cursor.execute(query) if r[3] in sks]
+
+        built = builder.finish(occurrences)
         for name in order:
             writer.insert(name, built.rows.get(name, []))
         for table, rows in built.updates.items():
@@ -242,7 +281,7 @@ def _build_streaming(path: str, database: str, *, options: Options | None, limit
     except BaseException:
         writer.abort()
         raise
-    integrity = writer.finish()
+    integrity = writer.finish(verifier(plan, built, allow_lossy))
     return plan, manifest(plan, built, os.fspath(database), integrity, None, row_counts=writer.row_counts)
 
 

@@ -11,7 +11,7 @@ from __future__ import annotations
 from dataclasses import asdict, dataclass, field
 
 ROLES = ("record", "entity", "bridge", "child", "set_aside", "quarantine", "variants", "rejected", "unmatched",
-         "names")
+         "names", "traces")
 
 
 @dataclass
@@ -56,6 +56,8 @@ class FieldMap:
     path: list[str]  # keys leading to the value inside an object; [column] for a scalar column
     column: str
     type: str
+    null_means: str = "null"  # what NULL in the column stands for: "null" (the value None) or "absent" (no key)
+    as_text: bool = False  # the values arrive as text ("7") and the type is read from it (CSV cells)
 
 
 @dataclass

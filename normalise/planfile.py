@@ -54,7 +54,15 @@ def _k(key: str) -> str:
 
 
 def _fields(maps: list[FieldMap]) -> list[dict]:
-    return [{"key": f.path, "name": f.column, "type": f.type} for f in maps]
+    out = []
+    for f in maps:
+        d = {"key": f.path, "name": f.column, "type": f.type}
+        if f.null_means != "null":
+            d["null"] = f.null_means
+        if f.as_text:
+            d["as_text"] = True
+        out.append(d)
+    return out
 
 
 def plan_to_toml(plan: Plan, joins: dict | None = None) -> str:
@@ -165,7 +173,11 @@ def _maps(text: str, items, where: str) -> list[FieldMap]:
         if f["type"] not in TYPES:
             _fail(text, f"{where}: unknown type {f['type']!r}", f"use one of {', '.join(TYPES)}", f'"{f["type"]}"')
         key = f["key"] if isinstance(f["key"], list) else [f["key"]]
-        out.append(FieldMap([str(k) for k in key], f["name"], f["type"]))
+        null_means = f.get("null", "null")
+        if null_means not in ("null", "absent"):
+            _fail(text, f"{where}: null = {null_means!r}", 'write null = "absent" (NULL means the key is absent) '
+                  'or leave it out (NULL means null)', f'"{null_means}"')
+        out.append(FieldMap([str(k) for k in key], f["name"], f["type"], null_means, bool(f.get("as_text", False))))
     return out
 
 

@@ -61,8 +61,19 @@ def manifest(plan: Plan, built: Built, database: str, integrity: dict, joined=No
                       "attributes": [f.column for f in g.attributes]} for g in plan.entities],
         "integrity": {"foreign_key_violations": integrity["foreign_key_violations"],
                       "integrity_check": integrity.get("integrity_check"),
-                      "reconciled": reconciled},
+                      "reconciled": reconciled, **_proof(integrity)},
     }
+
+
+def _proof(integrity: dict) -> dict:
+    """The lossless proof's figures (``prove.py``), as the manifest gives them."""
+    p = integrity.get("proof")
+    if p is None:
+        return {"proof": "not run"}
+    return {"proof": "lossy, kept (--allow-lossy)" if p["lossy_kept"] else "exact",
+            "cells_checked": p["cells_checked"], "cells_rebuilt_exactly": p["cells_rebuilt_exactly"],
+            "cells_differing": p["cells_differing"], "differences": p["differences"],
+            "values_traced": p["values_traced"], "traced_by_reason": p["traced_by_reason"]}
 
 
 def summary(m: dict) -> str:
@@ -108,4 +119,12 @@ def summary(m: dict) -> str:
     integ = m["integrity"]
     out.append(f"  integrity: {integ['foreign_key_violations']} foreign-key violations, "
                f"integrity_check {integ['integrity_check']}, reconciled: {'yes' if integ['reconciled'] else 'NO'}")
+    if "cells_checked" in integ:
+        out.append(f"  lossless proof: {integ['cells_rebuilt_exactly']:,} of {integ['cells_checked']:,} cells rebuilt "
+                   f"exactly from the database"
+                   + (f"; {integ['values_traced']:,} values kept as given in value_traces ("
+                      + ", ".join(f"{n:,} {r}" for r, n in integ["traced_by_reason"].items()) + ")"
+                      if integ["values_traced"] else "")
+                   + (f"; {integ['cells_differing']:,} DIFFER, database kept (--allow-lossy)"
+                      if integ["cells_differing"] else ""))
     return "\n".join(out)

@@ -33,7 +33,8 @@ from pathlib import Path
 import networkx as nx
 
 META_TABLES = {"rejected_rows": "rejected", "set_aside_rows": "set_aside", "unmatched_rows": "unmatched",
-               "quarantined_cells": "quarantine", "attribute_variants": "variants", "name_map": "names"}
+               "quarantined_cells": "quarantine", "attribute_variants": "variants", "name_map": "names",
+               "value_traces": "traces"}
 META_ROLES = set(META_TABLES.values())
 RUN_MANIFEST = "run_manifest"  # optional: one row, the manifest as JSON text
 HEAD_ROWS = 50  # rows of each bookkeeping table shown

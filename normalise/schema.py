@@ -57,12 +57,19 @@ _META = {
     "attribute_variants": [("entity_table", "text", False), ("entity_sk", "integer", False),
                            ("natural_key", "text", False), ("attribute", "text", False), ("value", "text", True),
                            ("occurrences", "integer", False), ("chosen", "boolean", False)],
+    # a value the model's columns cannot give back exactly, kept verbatim (original: Python literal text
+    # that ast.literal_eval reads back; NULL when the key was absent), at its place in a row
+    "value_traces": [("table_name", "text", False), ("row_sk", "integer", False), ("owner_sk", "integer", True),
+                     ("position", "integer", True), ("column_name", "text", False), ("path", "text", False),
+                     ("reason", "text", False), ("original", "text", True), ("file", "text", True),
+                     ("line", "integer", True)],
     # every name taken from the data (file, header, object key) and the SQL name it was given
     "name_map": [("table_name", "text", False), ("column_name", "text", True), ("name_in_input", "text", False),
                  ("found_in", "text", False)],
 }
 _META_ROLE = {"rejected_rows": "rejected", "set_aside_rows": "set_aside", "unmatched_rows": "unmatched",
-              "quarantined_cells": "quarantine", "attribute_variants": "variants", "name_map": "names"}
+              "quarantined_cells": "quarantine", "attribute_variants": "variants", "name_map": "names",
+              "value_traces": "traces"}
 
 
 def _source(member: str, path: str = "") -> dict:

@@ -31,7 +31,7 @@ TYPES = {
 }
 
 
-META_ROLES = ("rejected", "set_aside", "unmatched", "quarantine", "variants", "names")
+META_ROLES = ("rejected", "set_aside", "unmatched", "quarantine", "variants", "names", "traces")
 
 
 def printable(value):
@@ -238,8 +238,12 @@ class SqliteWriter:
             self.cursor.executemany(f"UPDATE {_quote(name)} SET {sets} WHERE {_quote(key)} = ?",
                                     [(*row[1:], row[0]) for row in rows])
 
-    def finish(self) -> dict:
-        """Indexes, views, commit into the temporary file, SQLite's own checks, and the move into place."""
+    def finish(self, verify=None) -> dict:
+        """Indexes, views, commit into the temporary file, SQLite's own checks, and the move into place.
+
+        ``verify(path)``, when given, runs on the committed temporary file before the move (the lossless
+        proof); what it returns is in the result under ``"proof"``, and what it raises stops the move.
+        """
         try:
             for name in self.order if not self.append else ():  # appended: indexes and views are there
                 for index in self.md.tables[name].indexes:
@@ -256,6 +260,8 @@ class SqliteWriter:
                 raise IntegrityError(f"{len(violations)} foreign-key values name no row ({first}); "
                                      "nothing was written")
             checks = {"foreign_key_violations": len(violations), "integrity_check": integrity[0][0]}
+            if verify is not None:
+                checks["proof"] = verify(self.temporary)
             with open(self.temporary, "rb") as f:
                 os.fsync(f.fileno())
             refuse_if_locked(self.destination)
@@ -298,7 +304,7 @@ def _checks(path: str) -> tuple[list, list]:
 
 
 def write_sqlite(plan: Plan, rows: dict[str, list[tuple]], order: list[str], destination: str,
-                 replace: bool = False, append: bool = False) -> dict:
+                 replace: bool = False, append: bool = False, verify=None) -> dict:
     """Write a complete SQLite database at ``destination``; returns SQLite's own integrity checks."""
     writer = SqliteWriter(plan, order, destination, replace, append=append)
     try:
@@ -307,7 +313,7 @@ def write_sqlite(plan: Plan, rows: dict[str, list[tuple]], order: list[str], des
     except BaseException:
         writer.abort()
         raise
-    return writer.finish()
+    return writer.finish(verify)
 
 
 def write_parquet(database: str, plan: Plan, directory: str) -> list[str]:

@@ -1,0 +1,367 @@
+"""Exact values: what a column stores, what it gives back, and a canonical digest of a decoded value.
+
+A decoded value is stored in a column of the plan's type only when reading
+the column back gives the same value of the same type (``store``); any other
+value is kept verbatim as a *trace* (table ``value_traces``), so the lossless
+proof (``prove.py``) can give every cell back as it was. ``stored_back`` is
+the one definition of "reading back", shared by the build (to decide what
+needs a trace) and by the proof (to rebuild).
+"""
+
+from __future__ import annotations
+
+import ast
+import json
+from hashlib import blake2b
+
+_INT64_MIN, _INT64_MAX = -(1 << 63), (1 << 63) - 1
+
+ABSENT = object()  # a key an object does not have (None is a value: null)
+
+
+def value_key(value):
+    """A hashable key equal for two values exactly when ``same`` holds (ABSENT is its own key).
+
+    Example:
+        >>> value_key(1) == value_key(True), value_key("a") == value_key("a"), value_key([1]) == value_key((1,))
+        (False, True, False)
+    """
+    if value is ABSENT:
+        return ABSENT
+    kind = type(value)
+    if kind in (str, int, bool, type(None)):
+        return (kind, value)
+    if kind is float:
+        return (kind, repr(value))
+    return (kind, canonical_text(value))
+
+
+def to_column(value, type_: str, as_text: bool):
+    """The value a column of ``type_`` holds for ``value``, before any check (None when it cannot hold it)."""
+    if value is None:
+        return None
+    kind = type(value)
+    if type_ == "integer":
+        if as_text:
+            if kind is not str:
+                return None
+            try:
+                value = int(value)
+            except ValueError:
+                return None
+        elif kind is bool:
+            return None
+        elif kind is not int:
+            return None
+        return value if _INT64_MIN <= value <= _INT64_MAX else None
+    if type_ == "real":
+        if as_text:
+            if kind is not str:
+                return None
+            try:
+                return float(value)
+            except ValueError:
+                return None
+        return value if kind is float else None
+    if type_ == "boolean":
+        return int(value) if kind is bool else None
+    return value if kind is str else None  # text, date, timestamp
+
+
+def stored_back(stored, type_: str, as_text: bool):
+    """The decoded value a stored column value stands for (None for NULL)."""
+    if stored is None:
+        return None
+    if type_ == "integer":
+        return str(stored) if as_text else int(stored)
+    if type_ == "real":
+        return repr(float(stored)) if as_text else float(stored)
+    if type_ == "boolean":
+        return bool(stored)
+    return stored
+
+
+def same(a, b) -> bool:
+    """Equal values of the same types, all the way down (Python's ``==`` says ``1 == True == 1.0``).
+
+    Example:
+        >>> same([1, {"a": 2.0}], [1, {"a": 2.0}]), same(1, True), same((1,), [1]), same(0.0, -0.0)
+        (True, False, False, False)
+    """
+    if type(a) is not type(b):
+        return False
+    if type(a) is float:
+        return repr(a) == repr(b)  # exact, and a NaN is the same as a NaN
+    if type(a) in (list, tuple):
+        return len(a) == len(b) and all(map(same, a, b))
+    if type(a) is dict:
+        return a.keys() == b.keys() and all(same(v, b[k]) for k, v in a.items())
+    if type(a) in (set, frozenset):
+        return canonical_text(a) == canonical_text(b)
+    return a == b
+
+
+def store(value, type_: str, as_text: bool = False):
+    """``(stored, exact)``: the column value and whether reading it back gives ``value`` exactly.
+
+    Example:
+        >>> store("7", "integer", True), store("007", "integer", True), store(True, "integer"), store(7, "text")
+        ((7, True), (None, False), (None, False), ('7', False))
+    """
+    stored = to_column(value, type_, as_text)
+    if stored is None:
+        if type_ == "real" and type(value) is int and -(1 << 53) <= value <= (1 << 53):
+            return float(value), False  # the number, readable; that it was written 3, not 3.0, is traced
+        if value is not None and type_ == "text":
+            # a text column shows another type's value as its JSON text (a Python literal's where JSON has
+            # none); the value itself is not held, so it is kept in value_traces
+            return (json.dumps(value, ensure_ascii=False) if _json_pure(value) else literal(value)), False
+        return None, value is None
+    if same(stored_back(stored, type_, as_text), value):
+        return stored, True
+    return None, False
+
+
+# --- verbatim text of any decoded value ---------------------------------------------
+
+def literal(value) -> str:
+    """Text that ``ast.literal_eval`` reads back as exactly ``value`` (any value decoding gives).
+
+    ``repr`` is that text for every type a cell decodes to (the Python language
+    reference, "Literals" and ``ast.literal_eval``), except the Ellipsis, whose
+    repr is a name.
+
+    Example:
+        >>> literal({"a": (1, 2.5), "b": [None, True, b"x", 1j]})
+        "{'a': (1, 2.5), 'b': [None, True, b'x', 1j]}"
+        >>> from_literal(literal([Ellipsis, {1, 2}]))
+        [Ellipsis, {1, 2}]
+    """
+    text = repr(value)
+    if "Ellipsis" not in text and "inf" not in text and "nan" not in text:
+        return text
+    if value is Ellipsis:
+        return "..."
+    if type(value) is float:
+        return text if value == value and abs(value) != float("inf") else f"float({text!r})"
+    if isinstance(value, (list, tuple, set, frozenset)):
+        inner = ", ".join(map(literal, value))
+        if isinstance(value, list):
+            return f"[{inner}]"
+        if isinstance(value, tuple):
+            return f"({inner}{',' if len(value) == 1 else ''})"
+        return "{" + inner + "}" if value else text
+    if isinstance(value, dict):
+        return "{" + ", ".join(f"{literal(k)}: {literal(v)}" for k, v in value.items()) + "}"
+    return text
+
+
+def from_literal(text: str):
+    """The value ``literal`` wrote (``float('nan')`` and the infinities, which have no literal, included)."""
+    if "float(" not in text:
+        return ast.literal_eval(text)
+    tree = ast.parse(text, mode="eval")
+
+    class Floats(ast.NodeTransformer):
+        def visit_Call(self, node):
+            if (isinstance(node.func, ast.Name) and node.func.id == "float" and len(node.args) == 1
+                    and isinstance(node.args[0], ast.Constant) and node.args[0].value in ("nan", "inf", "-inf")):
+                return ast.Constant(float(node.args[0].value))
+            return self.generic_visit(node)
+
+    return ast.literal_eval(Floats().visit(tree))
+
+
+# --- canonical digest ---------------------------------------------------------------
+
+def canonical_text(value) -> str:
+    """A text that is equal for two values exactly when ``same`` holds (object keys in any order).
+
+    JSON objects are unordered (RFC 8259, section 4), so keys are sorted; every
+    other type keeps its own tag, so a tuple is not a list and ``1`` is not ``True``.
+    """
+    kind = type(value)
+    if kind is dict:
+        items = sorted((canonical_text(k), canonical_text(v)) for k, v in value.items())
+        return "{" + ",".join(f"{k}:{v}" for k, v in items) + "}"
+    if kind is list:
+        return "[" + ",".join(map(canonical_text, value)) + "]"
+    if kind is tuple:
+        return "(" + ",".join(map(canonical_text, value)) + ")"
+    if kind in (set, frozenset):
+        return kind.__name__ + "{" + ",".join(sorted(map(canonical_text, value))) + "}"
+    if kind is str:
+        return json.dumps(value, ensure_ascii=False)
+    if kind is float:
+        return "f" + repr(value)
+    return repr(value)  # int, bool, None, bytes, complex, Ellipsis
+
+
+def _json_pure(value) -> bool:
+    """Whether ``json.dumps`` renders the value without merging types (no tuples, no non-string keys)."""
+    kind = type(value)
+    if kind is dict:
+        return all(type(k) is str for k in value) and all(map(_json_pure, value.values()))
+    if kind is list:
+        return all(map(_json_pure, value))
+    return kind in (str, int, float, bool, type(None))
+
+
+def digest(value, pure: bool = False) -> bytes:
+    """16 bytes that are equal for two values exactly when ``same`` holds.
+
+    ``pure`` says the value holds only what JSON holds (dicts with text keys,
+    lists, text, numbers, booleans, None), as every cell of a JSON column does:
+    then ``json.dumps`` with sorted keys is the canonical text, in C.
+
+    Example:
+        >>> digest({"a": 1, "b": [2.0]}, True) == digest({"b": [2.0], "a": 1})
+        True
+        >>> digest([1]) == digest((1,)), digest([1]) == digest([True])
+        (False, False)
+    """
+    if pure or _json_pure(value):
+        text = "j" + json.dumps(value, ensure_ascii=False, sort_keys=True, check_circular=False)
+    else:
+        text = "c" + canonical_text(value)
+    return blake2b(text.encode("utf-8", "surrogatepass"), digest_size=16).digest()
+
+
+# --- paths inside a value (JSON Pointer, RFC 6901) ------------------------------------
+
+def pointer(path) -> str:
+    """The JSON Pointer (RFC 6901) of a path of keys: ``~`` as ``~0``, ``/`` as ``~1``.
+
+    Example:
+        >>> pointer(["a/b", "m~n"]), pointer([])
+        ('/a~1b/m~0n', '')
+    """
+    return "".join("/" + str(k).replace("~", "~0").replace("/", "~1") for k in path)
+
+
+def pointer_keys(text: str) -> list[str]:
+    """The keys of a JSON Pointer (RFC 6901, section 4: ``~1`` before ``~0``)."""
+    if not text:
+        return []
+    return [k.replace("~1", "/").replace("~0", "~") for k in text[1:].split("/")]
+
+
+def put(obj: dict, keys: list, value) -> None:
+    """Set ``value`` at the path ``keys`` inside ``obj``, making objects on the way; ABSENT removes the key."""
+    for k in keys[:-1]:
+        inner = obj.get(k)
+        if not isinstance(inner, dict):
+            inner = obj[k] = {}
+        obj = inner
+    if value is ABSENT:
+        obj.pop(keys[-1], None)
+    else:
+        obj[keys[-1]] = value
+
+
+def get(obj, keys: list):
+    """The value at the path ``keys`` inside ``obj``; ABSENT where a key is missing."""
+    for k in keys:
+        if not isinstance(obj, dict) or k not in obj:
+            return ABSENT
+        obj = obj[k]
+    return obj
+
+
+# --- what the model gives back ----------------------------------------------------------
+
+class _Mismatch:
+    """Stands for a part of a cell the model's rows do not hold (it never equals a decoded value)."""
+
+    def __repr__(self) -> str:
+        return "<not held by the model>"
+
+
+NOT_HELD = _Mismatch()
+
+
+def field_back(value, f):
+    """What a column of FieldMap ``f`` gives back for ``value`` (ABSENT for a key it reads as absent)."""
+    if value is ABSENT:
+        stored = None
+    else:
+        stored, _ = store(value, f.type, f.as_text)
+    if stored is None:
+        return ABSENT if f.null_means == "absent" else None
+    return stored_back(stored, f.type, f.as_text)
+
+
+def object_back(fields, stored: list) -> dict:
+    """The object a row's field columns give back (``stored``: the column values, in ``fields`` order)."""
+    obj: dict = {}
+    for f, v in zip(fields, stored):
+        if v is None:
+            if f.null_means == "absent":
+                continue
+            put(obj, f.path, None)
+        else:
+            put(obj, f.path, stored_back(v, f.type, f.as_text))
+    return obj
+
+
+def expect_cell(nested, value, identity_type: str | None = None, attributes=()):
+    """What the model's rows give back for one decoded cell of a nested column, before cell traces.
+
+    Mirrors the build: fields through their columns (``field_back``), lists inside
+    objects through their own tables, an entity's attributes as each occurrence
+    gave them (the occurrences the entity row does not match are traced element
+    by element). ``NOT_HELD`` marks what the rows cannot hold at all: the cell then
+    needs a trace of its own.
+    """
+    kind = nested.kind
+    if kind in ("object-columns", "object-child"):
+        if type(value) is not dict:
+            return NOT_HELD
+        expected = _object_expected(nested, value, identity_type, attributes)
+        if kind == "object-columns" and not any(
+                store(get(value, f.path), f.type, f.as_text)[0] is not None for f in nested.links) and not any(
+                    type(get(value, c.path.split("."))) is list and get(value, c.path.split(".")) for c in nested.children):
+            return NOT_HELD  # its record's columns are all NULL: read back as no object at all
+        return expected
+    if type(value) is not list:
+        return NOT_HELD
+    return [_element_expected(nested, x, identity_type, attributes) for x in value]
+
+
+def _object_expected(nested, obj: dict, identity_type, attributes) -> dict:
+    out: dict = {}
+    for f in nested.links:
+        v = field_back(get(obj, f.path), f)
+        if v is not ABSENT:
+            put(out, f.path, v)
+    for child in nested.children:
+        keys = child.path.split(".")
+        inner = get(obj, keys)
+        if inner is ABSENT or inner is None or (type(inner) is list and not inner):
+            continue  # nothing stored: the cell's own comparison finds an empty list or null that went missing
+        put(out, keys, expect_cell(child, inner, identity_type, attributes) if type(inner) is list else NOT_HELD)
+    return out
+
+
+def _element_expected(nested, x, identity_type, attributes):
+    kind = nested.kind
+    if kind == "value-list":
+        if type(x) is not str:
+            return NOT_HELD  # values are text; another type (or a null, a list) is not held as it was
+        return x
+    if type(x) is not dict:
+        return NOT_HELD
+    out = _object_expected(nested, x, identity_type, attributes)
+    if kind == "entity-list":
+        ident = x.get(nested.identity, ABSENT)
+        if nested.matched:
+            if ident is ABSENT or not isinstance(ident, str):
+                return NOT_HELD
+        elif identity_type == "integer" and type(ident) is not int or identity_type == "text" and type(ident) is not str:
+            return NOT_HELD
+        out[nested.identity] = ident
+        for f in attributes:
+            v = get(x, f.path)
+            if v is not ABSENT:
+                put(out, f.path, v)
+    return out
