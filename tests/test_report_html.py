@@ -200,7 +200,7 @@ def test_self_contained(demo):
 def test_one_box_per_table_and_one_line_per_foreign_key(demo):
     db, page = demo["db"], demo["html"]
     names = tables_of(db)
-    assert len(BOX.findall(page)) == len(names) == 14  # 8 data tables, 6 bookkeeping tables
+    assert len(BOX.findall(page)) == len(names) == 15  # 8 data tables, 7 bookkeeping tables
     boxed = [a["data-table"] for t, a in parse(page) if t == "g" and "table-box" in a.get("class", "").split()]
     assert sorted(boxed) == sorted(names)
     with sqlite3.connect(db) as con:
@@ -323,10 +323,10 @@ def test_postgresql_destination_refuses_the_report_before_writing():
         build_database(["nothing.csv"], "postgresql+psycopg://u@localhost/x", report_path="r.html")
 
 
-# --- the diagram at 5 and at 50 tables --------------------------------------------------------------
+# --- the diagram at 5 and at 51 tables (44 data tables and the 7 bookkeeping tables) --------------------------------------------------------------
 
 @pytest.mark.parametrize("size, shape", [(5, dict(records=1, entities=1, lists=1, meta=False)),
-                                         (50, dict(records=6, entities=8, lists=3))])
+                                         (51, dict(records=6, entities=8, lists=3))])
 @pytest.mark.parametrize("with_manifest", [True, False])
 def test_layout_has_one_box_per_table_and_no_overlap(tmp_path, size, shape, with_manifest):
     db = tmp_path / f"s{size}.db"
