@@ -176,9 +176,10 @@ class Built:
 class _Audit:
     """What the model, inferred from the first records, could not hold: reported, never dropped quietly.
 
-    A key that appears in objects but not in the plan, and a value that does not
-    fit its column's type, each become rows of ``quarantined_cells`` (one per
-    column and key, with the first line and the count).
+    A key that appears in objects but not in the plan (with more than an empty
+    list or object), and a value that does not fit its column's type, each
+    become rows of ``quarantined_cells`` (one per column and key, with the first
+    line and the count).
     """
 
     def __init__(self, quarantine: list):
@@ -198,8 +199,16 @@ class _Audit:
             found = self._known[id(nested)] = frozenset(keys)
         return found
 
-    def note_keys(self, nested: NestedColumn, keys, path: str, line: int) -> None:
-        for key in keys:
+    def note_keys(self, nested: NestedColumn, obj: dict, path: str, line: int) -> None:
+        """Count the keys of an object that the model does not hold (``known`` has been asked for ``nested``).
+
+        An empty list or object carries nothing: the model leaves out keys that
+        only ever hold such markers (``infer.scalar_fields``), so none is a lost value.
+        """
+        for key in obj.keys() - self._known[id(nested)]:
+            value = obj[key]
+            if isinstance(value, (list, tuple, dict, set)) and not value:
+                continue
             entry = self.unplanned.setdefault((path, nested.column, str(key)), [line, 0])
             entry[1] += 1
 
@@ -526,7 +535,7 @@ class Builder:
         if not set(chain.from_iterable(items)) <= known:
             for o, i in zip(items, rows_of):
                 if not o.keys() <= known:
-                    audit.note_keys(nested, o.keys() - known, export.path, lines[i])
+                    audit.note_keys(nested, o, export.path, lines[i])
         links = []
         for f in nested.links:
             col = [o.get(f.path[0]) for o in items] if len(f.path) == 1 else [get_path(o, f.path) for o in items]
@@ -780,7 +789,7 @@ def _nested_rows(plan, nested: NestedColumn, value, owner_sk: int, export, i: in
         links = [to_sql_value(get_path(item, f.path), f.type) for f in nested.links]
         known = audit.known(nested, entities)
         if not item.keys() <= known:
-            audit.note_keys(nested, item.keys() - known, export.path, export.lines[i])
+            audit.note_keys(nested, item, export.path, export.lines[i])
         if None in links:
             for f, out in zip(nested.links, links):
                 if out is None and get_path(item, f.path) is not None:
