@@ -59,3 +59,44 @@ def test_empty_lists_under_keys_left_out_of_the_model_are_not_quarantined(tmp_pa
     # the file's lines are its records' lines (one record a line, the first on line 1)
     assert [(line, column) for line, column, _, _ in rows] == [(6, "kids.tags"), (6, "people.notes")]
     assert all("appears in 1 object(s)" in message for _, _, _, message in rows)
+
+
+# --- 2. the entity summary's records_in_total ------------------------------------------------
+
+SUMMARY_CSV = """key,date,contributors,subjects
+b1,2020-01-01,"[{'id': 1, 'name': 'Ann', 'role': 'author'}, {'id': 1, 'name': 'Ann', 'role': 'editor'}, \
+{'id': 2, 'name': 'Bob', 'role': 'author'}]","[""poetry"", ""poetry"", ""art""]"
+b2,2021-01-01,"[{'id': 1, 'name': 'Ann', 'role': 'author'}]","[""art""]"
+b3,2022-01-01,"[{'id': 2, 'name': 'Bob', 'role': 'author'}, {'id': 2, 'name': 'Bob', 'role': 'editor'}, \
+{'id': 3, 'name': 'Cy', 'role': 'author'}]","[""poetry""]"
+"""
+
+
+def test_entity_summary_total_counts_distinct_records(tmp_path):
+    """Bug 2: the entity summary's records_in_total counted links, not records: a person twice in one
+    record (as author and as editor) counted 2 when the entity has one list, whose count had no UNION
+    to drop the repeats. It must be the number of distinct records, as pandas counts them."""
+    import ast
+
+    import pandas as pd
+
+    from normalise.infer import Options
+
+    path = tmp_path / "books.csv"
+    path.write_text(SUMMARY_CSV, encoding="utf-8")
+    db = tmp_path / "books.db"
+    # contributors repeat an id inside one list, so it is no inferred identity: named here
+    build_database([str(path)], str(db), options=Options(identities={"contributors": "id"}))
+    books = pd.read_csv(path, dtype=str, keep_default_na=False)
+    # the cells as the standard library reads them: contributors a Python repr, subjects JSON
+    books["contributors"] = [[p["id"] for p in ast.literal_eval(c)] for c in books["contributors"]]
+    books["subjects"] = [json.loads(c) for c in books["subjects"]]
+    with sqlite3.connect(db) as con:
+        for view, key, column in (("contributor_summary", "id", "contributors"),
+                                  ("subject_summary", "subject", "subjects")):
+            want = books[["key", column]].explode(column).groupby(column)["key"].nunique().to_dict()
+            got = dict(con.execute(f'SELECT "{key}", records_in_total FROM "{view}"').fetchall())
+            assert got == want, view
+            per_list = dict(con.execute(f'SELECT "{key}", records_in_book_{column} FROM "{view}"').fetchall())
+            assert per_list == want, view
+    assert want == {"poetry": 2, "art": 2}  # poetry twice in b1's list, once in b3's
