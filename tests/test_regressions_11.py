@@ -100,3 +100,29 @@ def test_entity_summary_total_counts_distinct_records(tmp_path):
             per_list = dict(con.execute(f'SELECT "{key}", records_in_book_{column} FROM "{view}"').fetchall())
             assert per_list == want, view
     assert want == {"poetry": 2, "art": 2}  # poetry twice in b1's list, once in b3's
+
+
+# --- 3. a plan's duplicates = "last" with --chunk-rows ---------------------------------------
+
+def test_plan_duplicates_last_is_kept_with_and_without_chunks(tmp_path, monkeypatch):
+    """Bug 3: a plan file saying duplicates = "last" gave another database with chunk_rows (the streaming
+    path, which keeps the first) than without: pipeline._can_stream read only options.duplicates, never the
+    plan. The plan's setting decides, so both builds keep the last record of a repeated key."""
+    from normalise.pipeline import make_plan
+
+    lines = ["key,team,tags"] + [f'k{i},t{i % 7},"[""x{i % 3}""]"' for i in range(60)] + ['k5,late,"[""y""]"']
+    path = tmp_path / "items.csv"
+    path.write_text("\n".join(lines) + "\n", encoding="utf-8")
+    plan = tmp_path / "items.toml"
+    text = make_plan([str(path)], str(plan))
+    assert 'natural_key = "key"' in text and 'duplicates = "first"' in text
+    plan.write_text(text.replace('duplicates = "first"', 'duplicates = "last"'), encoding="utf-8")
+    monkeypatch.setattr(pipeline, "SAMPLE_ROWS", 10)  # streamed: the chunks after the first ten records
+    whole = build_database([str(path)], str(tmp_path / "whole.db"), plan_path=str(plan))
+    chunked = build_database([str(path)], str(tmp_path / "chunked.db"), plan_path=str(plan), chunk_rows=7)
+    assert dump(tmp_path / "whole.db") == dump(tmp_path / "chunked.db")
+    assert whole["inputs"] == chunked["inputs"]
+    with sqlite3.connect(tmp_path / "chunked.db") as con:
+        # the file's line 7 holds k5 (header on line 1), line 62 its repeat: the last is kept
+        assert con.execute("SELECT item_sk, team FROM items WHERE key = 'k5'").fetchall() == [(62, "late")]
+        assert con.execute("SELECT line, kept_line FROM set_aside_rows").fetchall() == [(7, 62)]
