@@ -126,3 +126,44 @@ def test_plan_duplicates_last_is_kept_with_and_without_chunks(tmp_path, monkeypa
         # the file's line 7 holds k5 (header on line 1), line 62 its repeat: the last is kept
         assert con.execute("SELECT item_sk, team FROM items WHERE key = 'k5'").fetchall() == [(62, "late")]
         assert con.execute("SELECT line, kept_line FROM set_aside_rows").fetchall() == [(7, 62)]
+
+
+# --- 4. two inputs of one file name in different folders, replayed from a plan -------------
+
+def test_plan_replays_files_of_one_name_from_different_folders(tmp_path):
+    """Bug 4: two inputs with the same file name in different folders (a/titles.csv, b/titles.csv) given with
+    --plan loaded the second file twice and never read the first: plan_from_doc matched [[record]] blocks to
+    inputs by file stem, and both are "titles". Each block now takes the next input of its name, in the order
+    the plan was written (the inputs' order), so the replay gives the very database the inference gave."""
+    from normalise.pipeline import make_plan
+
+    for folder, rows in (("a", ["a1,Ann", "a2,Al"]), ("b", ["b1,Bob", "b2,Bea", "b3,Bo"])):
+        (tmp_path / folder).mkdir()
+        (tmp_path / folder / "titles.csv").write_text("\n".join(["key,name"] + rows) + "\n", encoding="utf-8")
+    paths = [str(tmp_path / "a" / "titles.csv"), str(tmp_path / "b" / "titles.csv")]
+    plan = tmp_path / "titles.toml"
+    make_plan(paths, str(plan))
+    inferred = build_database(paths, str(tmp_path / "inferred.db"))
+    replayed = build_database(paths, str(tmp_path / "replayed.db"), plan_path=str(plan))
+    assert dump(tmp_path / "replayed.db") == dump(tmp_path / "inferred.db")
+    assert [(i["path"], i["rows_read"]) for i in replayed["inputs"]] == [(paths[0], 2), (paths[1], 3)]
+    assert replayed["inputs"] == inferred["inputs"]
+    with sqlite3.connect(tmp_path / "replayed.db") as con:  # the files' own rows, each in its own table
+        assert con.execute("SELECT key FROM titles ORDER BY 1").fetchall() == [("a1",), ("a2",)]
+        assert con.execute("SELECT key FROM titles_2 ORDER BY 1").fetchall() == [("b1",), ("b2",), ("b3",)]
+
+
+def test_plan_with_fewer_blocks_than_inputs_of_one_name_is_refused(tmp_path):
+    """Bug 4, the other side: a plan with one [[record]] "titles" given two inputs named titles must not read
+    one of them twice nor drop the other quietly: the input without a block is named."""
+    from normalise.pipeline import make_plan
+    from normalise.planfile import InvalidPlan
+
+    for folder in ("a", "b"):
+        (tmp_path / folder).mkdir()
+        (tmp_path / folder / "titles.csv").write_text(f"key,name\n{folder}1,x\n{folder}2,y\n", encoding="utf-8")
+    plan = tmp_path / "one.toml"
+    make_plan([str(tmp_path / "a" / "titles.csv")], str(plan))
+    with pytest.raises(InvalidPlan, match="have no \\[\\[record\\]\\] block"):
+        build_database([str(tmp_path / "a" / "titles.csv"), str(tmp_path / "b" / "titles.csv")],
+                       str(tmp_path / "x.db"), plan_path=str(plan))
