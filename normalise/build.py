@@ -100,7 +100,7 @@ def usable_identity(value, type_: str) -> bool:
         >>> usable_identity(7, "integer"), usable_identity("7", "integer"), usable_identity(2**64, "integer")
         (True, False, False)
     """
-    if value is None or type(value) in (dict, list, tuple, bool):
+    if value is None or type(value) in (dict, list, tuple, set, bool):
         return False
     return type_ != "integer" or (type(value) is int and _INT64_MIN <= value <= _INT64_MAX)
 
@@ -131,14 +131,83 @@ def to_sql_value(value, type_: str):
         return bool(value)
     if isinstance(value, str):
         return value
-    return json.dumps(value, ensure_ascii=False, default=str)
+    return json_text(value)
 
 
 def canonical(value, type_: str) -> str:
     """The typed text form of a natural key, the input of its surrogate key."""
     if type_ == "integer" and isinstance(value, int) and not isinstance(value, bool):
         return f"integer:{value}"
-    return "text:" + (value if isinstance(value, str) else json.dumps(value, ensure_ascii=False))
+    return "text:" + (value if isinstance(value, str) else json_text(value))
+
+
+# Values ast.literal_eval gives that JSON has no form for (Python language reference, "Literals")
+_PYTHON_ONLY = (bytes, complex, set, frozenset, type(...))
+
+
+def python_text(value) -> str:
+    """A decoded Python literal as Python literal text, which ``ast.literal_eval`` reads back to an equal value.
+
+    That is ``repr``, but ``...`` for Ellipsis (whose repr is a name) and a set's
+    elements sorted: a set's repr follows its hash order, which for strings
+    changes from one process to the next, and the database must not.
+
+    Example:
+        >>> python_text(b"x"), python_text(1j), python_text(...), python_text({"b", "a"}), python_text([set(), (1,)])
+        ("b'x'", '1j', '...', "{'a', 'b'}", '[set(), (1,)]')
+    """
+    if isinstance(value, (set, frozenset)):
+        items = list(value)
+        try:
+            items.sort()
+        except TypeError:  # elements of several types: in the order of their text
+            items.sort(key=python_text)
+        inner = "{" + ", ".join(map(python_text, items)) + "}"
+        if type(value) is set:
+            return inner if items else "set()"
+        return f"frozenset({inner if items else ''})"
+    if type(value) is dict:
+        return "{" + ", ".join(f"{python_text(k)}: {python_text(v)}" for k, v in value.items()) + "}"
+    if type(value) is list:
+        return "[" + ", ".join(map(python_text, value)) + "]"
+    if type(value) is tuple:
+        return "(" + ", ".join(map(python_text, value)) + ("," if len(value) == 1 else "") + ")"
+    return "..." if value is ... else repr(value)
+
+
+def _python_only(value):
+    if isinstance(value, _PYTHON_ONLY):
+        return python_text(value)
+    raise TypeError(f"{type(value).__name__} is not a decoded value")
+
+
+def _text_keys(value):
+    """The value with every dict key JSON cannot hold (a tuple, bytes, a number) as its literal text."""
+    if type(value) is dict:
+        return {k if isinstance(k, (str, int, float, bool)) or k is None else python_text(k): _text_keys(v)
+                for k, v in value.items()}
+    if isinstance(value, (list, tuple)):
+        return [_text_keys(v) for v in value]
+    return value
+
+
+def json_text(value, ensure_ascii: bool = False) -> str:
+    """A decoded value as the text a column stores: JSON, and what JSON has no form for as Python literal text.
+
+    A bytes, complex, set or Ellipsis value is its ``python_text``; inside a list
+    or an object it is a string of that text, and so is a dict key JSON cannot
+    hold (JSON makes ``1`` the key ``"1"`` likewise).
+
+    Example:
+        >>> json_text({1, 2}), json_text(["a", 1j]), json_text({(1, 2): ...})
+        ('{1, 2}', '["a", "1j"]', '{"(1, 2)": "..."}')
+    """
+    if isinstance(value, _PYTHON_ONLY):
+        return python_text(value)
+    try:
+        return json.dumps(value, ensure_ascii=ensure_ascii, default=_python_only)
+    except TypeError:  # a dict key JSON cannot hold
+        return json.dumps(_text_keys(value), ensure_ascii=ensure_ascii, default=_python_only)
 
 
 @dataclass
@@ -283,7 +352,7 @@ class _Entities:
         for k, (_, key, _) in enumerate(self.keys):
             if key in obj:
                 v = obj[key]
-                pair = (text, v if not isinstance(v, (list, dict)) else json.dumps(v))
+                pair = (text, v if not isinstance(v, (list, dict, set)) else json_text(v, ensure_ascii=True))
                 self.counts[k][pair] += 1
                 if pair not in self.first_at[k] or place < self.first_at[k][pair]:
                     self.first_at[k][pair] = place
@@ -313,8 +382,9 @@ class _Entities:
             entity_codes = np.array([numbered.setdefault(t, len(numbered)) for t in text_col], dtype=np.int64)
         for k, (_, key, _) in enumerate(self.keys):
             values = [o.get(key, _ABSENT) for o in objects]
-            if set(map(type, values)) & {list, dict}:
-                values = [v if not isinstance(v, (list, dict)) else json.dumps(v) for v in values]
+            if set(map(type, values)) & {list, dict, set}:
+                values = [v if not isinstance(v, (list, dict, set)) else json_text(v, ensure_ascii=True)
+                          for v in values]
             self._count(k, text_col, entity_codes, values, places)
         return [sk for _, sk in keyed]
 
@@ -624,7 +694,7 @@ def _all_usable(idents: list, type_: str) -> bool:
     kinds = set(map(type, idents))
     if type_ == "integer":
         return kinds == {int} and _INT64_MIN <= min(idents) and max(idents) <= _INT64_MAX
-    return not kinds & {type(None), dict, list, tuple, bool}
+    return not kinds & {type(None), dict, list, tuple, set, bool}
 
 
 def _fits_int64(col: list) -> bool:
