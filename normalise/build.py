@@ -22,7 +22,8 @@ from itertools import chain
 import numpy as np
 
 from .errors import NormaliseError
-from .exact import ABSENT, expect_cell, get, literal, pointer, same, store, stored_back, value_key
+from .exact import (ABSENT, expect_cell, get, json_text, literal, pointer, python_text, same, store, stored_back,
+                    value_key)
 from .infer import get_path, match_key
 from .plan import NestedColumn, Plan, RecordSource
 from .prove import InputDigests
@@ -102,7 +103,7 @@ def usable_identity(value, type_: str) -> bool:
         >>> usable_identity(7, "integer"), usable_identity("7", "integer"), usable_identity(2**64, "integer")
         (True, False, False)
     """
-    if value is None or type(value) in (dict, list, tuple, bool):
+    if value is None or type(value) in (dict, list, tuple, set, bool):
         return False
     return type_ != "integer" or (type(value) is int and _INT64_MIN <= value <= _INT64_MAX)
 
@@ -133,14 +134,14 @@ def to_sql_value(value, type_: str):
         return bool(value)
     if isinstance(value, str):
         return value
-    return json.dumps(value, ensure_ascii=False, default=str)
+    return json_text(value)
 
 
 def canonical(value, type_: str) -> str:
     """The typed text form of a natural key, the input of its surrogate key."""
     if type_ == "integer" and isinstance(value, int) and not isinstance(value, bool):
         return f"integer:{value}"
-    return "text:" + (value if isinstance(value, str) else json.dumps(value, ensure_ascii=False))
+    return "text:" + (value if isinstance(value, str) else json_text(value))
 
 
 @dataclass
@@ -181,9 +182,10 @@ class Built:
 class _Audit:
     """What the model, inferred from the first records, could not hold: reported, never dropped quietly.
 
-    A key that appears in objects but not in the plan, and a value that does not
-    fit its column's type, each become rows of ``quarantined_cells`` (one per
-    column and key, with the first line and the count).
+    A key that appears in objects but not in the plan (with more than an empty
+    list or object), and a value that does not fit its column's type, each
+    become rows of ``quarantined_cells`` (one per column and key, with the first
+    line and the count).
     """
 
     def __init__(self, quarantine: list):
@@ -203,8 +205,16 @@ class _Audit:
             found = self._known[id(nested)] = frozenset(keys)
         return found
 
-    def note_keys(self, nested: NestedColumn, keys, path: str, line: int) -> None:
-        for key in keys:
+    def note_keys(self, nested: NestedColumn, obj: dict, path: str, line: int) -> None:
+        """Count the keys of an object that the model does not hold (``known`` has been asked for ``nested``).
+
+        An empty list or object carries nothing: the model leaves out keys that
+        only ever hold such markers (``infer.scalar_fields``), so none is a lost value.
+        """
+        for key in obj.keys() - self._known[id(nested)]:
+            value = obj[key]
+            if isinstance(value, (list, tuple, dict, set)) and not value:
+                continue
             entry = self.unplanned.setdefault((path, nested.column, str(key)), [line, 0])
             entry[1] += 1
 
@@ -605,7 +615,7 @@ class Builder:
         if not set(chain.from_iterable(items)) <= known:
             for o, i in zip(items, rows_of):
                 if not o.keys() <= known:
-                    audit.note_keys(nested, o.keys() - known, export.path, lines[i])
+                    audit.note_keys(nested, o, export.path, lines[i])
                     untraced.add(i)  # the rows have no column for the key: the cell is kept as given
         links = []
         for f in nested.links:
@@ -768,7 +778,7 @@ def _all_usable(idents: list, type_: str) -> bool:
     kinds = set(map(type, idents))
     if type_ == "integer":
         return kinds == {int} and _INT64_MIN <= min(idents) and max(idents) <= _INT64_MAX
-    return not kinds & {type(None), dict, list, tuple, bool}
+    return not kinds & {type(None), dict, list, tuple, set, bool}
 
 
 def _fits_int64(col: list) -> bool:
@@ -921,7 +931,7 @@ def _nested_rows(builder: "Builder", nested: NestedColumn, value, owner_sk: int,
         c.elements_decoded += 1
         sk = row_key(where, owner_sk, position)
         if nested.kind == "value-list":
-            if item is None or isinstance(item, (dict, list, tuple, set, frozenset)):
+            if item is None or isinstance(item, (dict, list, tuple)):
                 _quarantine_element(audit.quarantine, export, i, nested, position,
                                     "null element in a list" if item is None else "nested element in a list of values", c)
                 continue
@@ -942,7 +952,12 @@ def _nested_rows(builder: "Builder", nested: NestedColumn, value, owner_sk: int,
         links = [store(get_path(item, f.path), f.type, f.as_text)[0] for f in nested.links]
         known = audit.known(nested, entities)
         if not item.keys() <= known:
-            audit.note_keys(nested, item.keys() - known, export.path, export.lines[i])
+            audit.note_keys(nested, item, export.path, export.lines[i])
+        if None in links:
+            for f, out in zip(nested.links, links):
+                if out is None and get_path(item, f.path) is not None:
+                    audit.note_type(export.path, f"{nested.column}.{f.column}", f.type, get_path(item, f.path),
+                                    export.lines[i])
         if nested.kind == "entity-list":
             ident = item.get(nested.identity)
             if nested.matched:

@@ -90,8 +90,8 @@ def same(a, b) -> bool:
     """
     if type(a) is not type(b):
         return False
-    if type(a) is float:
-        return repr(a) == repr(b)  # exact, and a NaN is the same as a NaN
+    if type(a) in (float, complex):
+        return repr(a) == repr(b)  # exact (the sign of a zero too), and a NaN is the same as a NaN
     if type(a) in (list, tuple):
         return len(a) == len(b) and all(map(same, a, b))
     if type(a) is dict:
@@ -115,7 +115,7 @@ def store(value, type_: str, as_text: bool = False):
         if value is not None and type_ == "text":
             # a text column shows another type's value as its JSON text (a Python literal's where JSON has
             # none); the value itself is not held, so it is kept in value_traces
-            return (json.dumps(value, ensure_ascii=False) if _json_pure(value) else literal(value)), False
+            return json_text(value), False
         return None, value is None
     if same(stored_back(stored, type_, as_text), value):
         return stored, True
@@ -124,49 +124,110 @@ def store(value, type_: str, as_text: bool = False):
 
 # --- verbatim text of any decoded value ---------------------------------------------
 
-def literal(value) -> str:
-    """Text that ``ast.literal_eval`` reads back as exactly ``value`` (any value decoding gives).
+# Values ast.literal_eval gives that JSON has no form for (Python language reference, "Literals")
+_PYTHON_ONLY = (bytes, complex, set, frozenset, type(...))
 
-    ``repr`` is that text for every type a cell decodes to (the Python language
-    reference, "Literals" and ``ast.literal_eval``), except the Ellipsis, whose
-    repr is a name.
+
+_INF = float("inf")
+
+
+def literal(value) -> str:
+    """Text that ``from_literal`` reads back as exactly ``value`` (any value decoding gives).
 
     Example:
         >>> literal({"a": (1, 2.5), "b": [None, True, b"x", 1j]})
         "{'a': (1, 2.5), 'b': [None, True, b'x', 1j]}"
-        >>> from_literal(literal([Ellipsis, {1, 2}]))
-        [Ellipsis, {1, 2}]
+        >>> from_literal(literal([Ellipsis, {1, 2}, float("nan")]))
+        [Ellipsis, {1, 2}, nan]
     """
-    text = repr(value)
-    if "Ellipsis" not in text and "inf" not in text and "nan" not in text:
-        return text
-    if value is Ellipsis:
-        return "..."
-    if type(value) is float:
-        return text if value == value and abs(value) != float("inf") else f"float({text!r})"
-    if isinstance(value, (list, tuple, set, frozenset)):
-        inner = ", ".join(map(literal, value))
-        if isinstance(value, list):
-            return f"[{inner}]"
-        if isinstance(value, tuple):
-            return f"({inner}{',' if len(value) == 1 else ''})"
-        return "{" + inner + "}" if value else text
-    if isinstance(value, dict):
-        return "{" + ", ".join(f"{literal(k)}: {literal(v)}" for k, v in value.items()) + "}"
-    return text
+    if _json_pure(value):
+        text = repr(value)
+        if "inf" not in text and "nan" not in text:
+            return text
+    return python_text(value, exact=True)
+
+
+def python_text(value, exact: bool = False) -> str:
+    """A decoded Python literal as Python literal text, which ``ast.literal_eval`` reads back to an equal value.
+
+    That is ``repr``, but ``...`` for Ellipsis (whose repr is a name) and a set's
+    elements sorted: a set's repr follows its hash order, which for strings
+    changes from one process to the next, and the database must not.
+
+    Example:
+        >>> python_text(b"x"), python_text(1j), python_text(...), python_text({"b", "a"}), python_text([set(), (1,)])
+        ("b'x'", '1j', '...', "{'a', 'b'}", '[set(), (1,)]')
+    """
+    if isinstance(value, (set, frozenset)):
+        items = list(value)
+        try:
+            items.sort()
+        except TypeError:  # elements of several types: in the order of their text
+            items.sort(key=python_text)
+        inner = "{" + ", ".join(python_text(v, exact) for v in items) + "}"
+        if type(value) is set:
+            return inner if items else "set()"
+        return f"frozenset({inner if items else ''})"
+    if type(value) is dict:
+        return "{" + ", ".join(f"{python_text(k, exact)}: {python_text(v, exact)}" for k, v in value.items()) + "}"
+    if type(value) is list:
+        return "[" + ", ".join(python_text(v, exact) for v in value) + "]"
+    if type(value) is tuple:
+        return "(" + ", ".join(python_text(v, exact) for v in value) + ("," if len(value) == 1 else "") + ")"
+    if exact and type(value) is float and (value != value or value in (_INF, -_INF)):
+        return f"float({repr(value)!r})"  # no literal: from_literal reads this call back
+    if exact and type(value) is complex and repr(ast.literal_eval(repr(value))) != repr(value):
+        return f"complex({repr(value)!r})"  # (-0-1j): the literal reads back with +0.0 as its real part
+    return "..." if value is ... else repr(value)
+
+
+def _python_only(value):
+    if isinstance(value, _PYTHON_ONLY):
+        return python_text(value)
+    raise TypeError(f"{type(value).__name__} is not a decoded value")
+
+
+def _text_keys(value):
+    """The value with every dict key JSON cannot hold (a tuple, bytes, a number) as its literal text."""
+    if type(value) is dict:
+        return {k if isinstance(k, (str, int, float, bool)) or k is None else python_text(k): _text_keys(v)
+                for k, v in value.items()}
+    if isinstance(value, (list, tuple)):
+        return [_text_keys(v) for v in value]
+    return value
+
+
+def json_text(value, ensure_ascii: bool = False) -> str:
+    """A decoded value as the text a column stores: JSON, and what JSON has no form for as Python literal text.
+
+    A bytes, complex, set or Ellipsis value is its ``python_text``; inside a list
+    or an object it is a string of that text, and so is a dict key JSON cannot
+    hold (JSON makes ``1`` the key ``"1"`` likewise).
+
+    Example:
+        >>> json_text({1, 2}), json_text(["a", 1j]), json_text({(1, 2): ...})
+        ('{1, 2}', '["a", "1j"]', '{"(1, 2)": "..."}')
+    """
+    if isinstance(value, _PYTHON_ONLY):
+        return python_text(value)
+    try:
+        return json.dumps(value, ensure_ascii=ensure_ascii, default=_python_only)
+    except TypeError:  # a dict key JSON cannot hold
+        return json.dumps(_text_keys(value), ensure_ascii=ensure_ascii, default=_python_only)
+
 
 
 def from_literal(text: str):
     """The value ``literal`` wrote (``float('nan')`` and the infinities, which have no literal, included)."""
-    if "float(" not in text:
+    if "float(" not in text and "complex(" not in text:
         return ast.literal_eval(text)
     tree = ast.parse(text, mode="eval")
 
     class Floats(ast.NodeTransformer):
         def visit_Call(self, node):
-            if (isinstance(node.func, ast.Name) and node.func.id == "float" and len(node.args) == 1
-                    and isinstance(node.args[0], ast.Constant) and node.args[0].value in ("nan", "inf", "-inf")):
-                return ast.Constant(float(node.args[0].value))
+            if (isinstance(node.func, ast.Name) and node.func.id in ("float", "complex") and len(node.args) == 1
+                    and isinstance(node.args[0], ast.Constant) and isinstance(node.args[0].value, str)):
+                return ast.Constant((float if node.func.id == "float" else complex)(node.args[0].value))
             return self.generic_visit(node)
 
     return ast.literal_eval(Floats().visit(tree))

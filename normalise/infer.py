@@ -493,6 +493,8 @@ def detect_natural_key(columns: list[str], values: dict[str, list], types: dict[
         vals = values[name]
         if not vals or any(v is None for v in vals) or types.get(name) not in ("integer", "text"):
             continue
+        if not all(map(is_scalar, vals)):  # a set or a list among the values: no key (nor hashable)
+            continue
         distinct = len(set(vals)) / len(vals)
         if distinct < NATURAL_KEY_MIN_DISTINCT:
             continue

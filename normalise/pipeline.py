@@ -125,7 +125,7 @@ def build_database(paths: list[str], database: str, *, options: Options | None =
         from .errors import UsageError
         raise UsageError("--append adds to an existing SQLite database; it goes with neither --replace nor a "
                          "PostgreSQL --db")
-    if chunk_rows and not postgresql and not append and _can_stream(paths, options, join_options):
+    if chunk_rows and not postgresql and not append and _can_stream(paths, options, join_options, plan_path):
         plan, result = _build_streaming(paths[0], database, options=options, limits=limits, formats=formats,
                                         encoding=encoding, delimiter=delimiter, replace=replace, picks=picks,
                                         plan_path=plan_path, chunk_rows=chunk_rows, progress=progress,
@@ -216,10 +216,17 @@ def _write_reports(database, result: dict, report_path: str | None, dictionary_p
         write_outputs(database, result, report_path=report_path, dictionary_path=dictionary_path)
 
 
-def _can_stream(paths: list[str], options: Options | None, join_options: JoinOptions | None) -> bool:
-    """One CSV or TSV file whose duplicates keep the first (or are refused) streams in chunks."""
+def _can_stream(paths: list[str], options: Options | None, join_options: JoinOptions | None,
+                plan_path: str | None = None) -> bool:
+    """One CSV or TSV file whose duplicates keep the first (or are refused) streams in chunks.
+
+    With a plan, its records' ``duplicates`` decide, as they do for the build (``plan_from_doc``).
+    """
     if len(paths) != 1 or Path(paths[0]).suffix.lower() in (".jsonl", ".ndjson", ".json"):
         return False
+    if plan_path:
+        records = read_plan(plan_path)[0].get("record", [])
+        return all(r.get("duplicates", "first") != "last" for r in records)
     return (options or Options()).duplicates != "last"
 
 

@@ -212,7 +212,10 @@ def plan_from_doc(doc: dict, text: str, exports: list, decoded: dict) -> Plan:
     from .schema import add_tables
 
     plan = Plan(violation_threshold=float(doc.get("violation_threshold", 0.05)))
-    by_name = {e.name: e for e in exports}
+    by_name: dict[str, list] = {}  # file stem -> its inputs, in order: a/titles.csv and b/titles.csv share one
+    for e in exports:
+        by_name.setdefault(e.name, []).append(e)
+    taken: set[str] = set()  # paths of the inputs a [[record]] block has claimed
     handles = {}
     for e in doc.get("entity", []):
         missing = {"handle", "table", "identity", "identity_column", "identity_type"} - set(e)
@@ -232,6 +235,11 @@ def plan_from_doc(doc: dict, text: str, exports: list, decoded: dict) -> Plan:
         if file not in by_name:
             _fail(text, f"[[record]] file {file!r} is not among the inputs ({', '.join(by_name)})",
                   "give that file on the command line, or remove its [[record]] block", f'"{file}"')
+        free = [e for e in by_name[file] if e.path not in taken]
+        if not free:
+            _fail(text, f"[[record]] file {file!r} has more [[record]] blocks than inputs of that name "
+                        f"({len(by_name[file])})", "give each of those files on the command line, in the order "
+                  "the plan was written, or remove the extra block", f'"{file}"')
         missing = {"table", "key"} - set(r)
         if missing:
             _fail(text, f"[[record]] {file} lacks {', '.join(sorted(missing))}",
@@ -239,7 +247,8 @@ def plan_from_doc(doc: dict, text: str, exports: list, decoded: dict) -> Plan:
         if r.get("duplicates", "first") not in ("first", "last", "refuse"):
             _fail(text, f"[[record]] {file}: unknown duplicates policy {r['duplicates']!r}",
                   "use first, last or refuse", f'duplicates = "{r["duplicates"]}"')
-        export = by_name[file]
+        export = free[0]  # blocks of one file name take its inputs in order (the plan lists them so)
+        taken.add(export.path)
         columns = decoded[export.path]
         record = RecordSource(file=file, path=export.path, table=r["table"], key_column=r["key"],
                               natural_key=[r["natural_key"]] if r.get("natural_key") else [],
@@ -261,7 +270,7 @@ def plan_from_doc(doc: dict, text: str, exports: list, decoded: dict) -> Plan:
                   "write a fresh plan with `normalise plan`, or add them to the record's columns",
                   f'file = "{file}"')
         plan.records.append(record)
-    unplanned = [e.name for e in exports if e.name not in {r.file for r in plan.records}]
+    unplanned = [e.name if len(by_name[e.name]) == 1 else e.path for e in exports if e.path not in taken]
     if unplanned:
         _fail(text, f"input file(s) {', '.join(unplanned)} have no [[record]] block, so their rows would be lost",
               "write a fresh plan with `normalise plan`, or give only the files the plan names", "[[record]]")

@@ -217,7 +217,7 @@ def prove(plan, inputs: InputDigests, fetch, locate=None) -> dict:
             for sk in set(cells) - seen:
                 found.append({"file": None, "line": None, "column": key[1], "path": "",
                               "note": f"record {sk}: a value where the input has none"})
-        else:
+        if not found:  # not located (no input at hand, or no cell compares unequal): the digests still differ
             found.append({"file": None, "line": None, "column": key[1], "path": None,
                           "note": f"{key[0]}.{key[1]}: the rebuilt cells differ"})
         exact += max(0, n - len(found))

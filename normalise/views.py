@@ -216,7 +216,9 @@ def _entity_summary(view: View, plan: Plan, dialect: str) -> str:
         owner = bridge.foreign_keys[0].references
         unions.append(f"SELECT {_lit(owner)} AS t, b.{_q(owner_col)} AS k FROM {_q(name)} b "
                       f"WHERE b.{_q(link)} = e.{_q(key)}")
-    cols.append(f"(SELECT count(*) FROM ({' UNION '.join(unions)}) u) AS {_q('records_in_total')}")
+    # distinct records: an entity twice in one record's list is one record (one list has no UNION to drop it)
+    cols.append(f"(SELECT count(*) FROM (SELECT DISTINCT t, k FROM ({' UNION '.join(unions)}) a) u) "
+                f"AS {_q('records_in_total')}")
     if view.date_column:
         owner = plan.table(plan.table(view.lists[0]).foreign_keys[0].references)
         owner_key = owner.primary_key[0]
