@@ -8,8 +8,10 @@ Formats of a column's text cells:
 * ``scalar``         plain text or numbers
 
 Empty markers (blank, ``[]``, ``{}``, ``None``, ``null``, ``nan``) are empty,
-never values. A cell that fails goes to quarantine with its place and a
-message, and its row stays.
+never values; they are whole cells, so a string "None" inside a nested value is
+the string. Stripping guides detection only: a scalar value is the cell exactly
+as given. A cell that fails goes to quarantine with its place and a message,
+and its row stays.
 
 Speed: Python-literal columns are rewritten to JSON in bulk with C-level
 string operations (regex split, join, replace) and parsed by ``json.loads``;
@@ -490,12 +492,16 @@ def _decode_column(name: str, cells: list, lines: list[int], file: str, limits: 
     quarantined: list[QuarantinedCell] = []
     pending_bad: list[int] = []  # already-decoded cells holding lone surrogates
     text_rows: list[int] = []
-    texts: list[str] = []
+    texts: list[str] = []  # stripped: what detection and the nested grammars read
+    raws: list[str] = []  # the same cells as given: what scalar values keep
     kinds: list[str] = []
     for i, cell in enumerate(cells):
         if cell is None:
             counts["empty"] += 1
         elif isinstance(cell, str):
+            # Stripping (str.strip: every Unicode whitespace, NBSP and U+3000 too) only guides
+            # detection; a scalar keeps the cell as given. Around JSON text whitespace is
+            # insignificant (RFC 8259, section 2), and a nested value holds none of it.
             text = cell.strip()
             kind = _classify(text)
             if kind == "empty":
@@ -503,6 +509,7 @@ def _decode_column(name: str, cells: list, lines: list[int], file: str, limits: 
             else:
                 text_rows.append(i)
                 texts.append(text)
+                raws.append(cell)
                 kinds.append(kind)
         elif isinstance(cell, (list, dict)):  # JSON Lines: already decoded
             if not cell:
@@ -582,7 +589,7 @@ def _decode_column(name: str, cells: list, lines: list[int], file: str, limits: 
             counts["delimited" if parts else "empty"] += 1
     else:
         encoding = "scalar"
-        for k, text in enumerate(texts):
+        for k, text in enumerate(raws):
             try:
                 check_limits(text, limits)
             except CellError as exc:
