@@ -5,7 +5,9 @@ column read as JSON every cell is what ``json.loads`` returns (NaN and Infinity
 refused, RFC 8259 section 6) or quarantined, in a column read as Python literals
 what ``ast.literal_eval`` returns or quarantined; a cell the reference accepts is
 quarantined only for a documented reason (depth, size, a lone surrogate); a cell
-the reference refuses is never given a value.
+the reference refuses is never given a value. A scalar value is its cell exactly
+(never trimmed); a delimited column gives every cell back exactly (its layout
+entry, else its values joined by its join separator).
 
 ``check_read(data, suffix)``: ``read`` on fuzzed file bytes raises nothing but
 ``UnreadableFile``; every row it reads is a record or a rejected row with a line;
@@ -154,7 +156,22 @@ def check_decode(cells: list[str], mode: str, limits: Limits = LIMITS):
         if not any(w is not REFUSED and strict_equal(value, stored(w)) for w in wants):
             raise InvariantBroken(f"{text!r} ({mode}) decoded to {value!r}, the reference gives "
                                   f"{[w for w in wants if w is not REFUSED][0]!r}")
+    check_faithful(cells, col)
     return col
+
+
+def check_faithful(cells: list, col) -> None:
+    """Scalar values are the cells as given; a delimited column gives every text cell back exactly."""
+    for i, cell in enumerate(cells):
+        value = col.values[i]
+        if col.encoding == "scalar" and value is not None and value != cell:
+            raise InvariantBroken(f"scalar cell {cell!r} stored as {value!r}")
+        if col.encoding == "delimited" and isinstance(cell, str):
+            back = col.layout[i] if col.layout[i] is not None else (
+                "" if value is None else col.join_separator.join(value))
+            if back != cell:
+                raise InvariantBroken(f"delimited cell {cell!r} given back as {back!r} "
+                                      f"(values {value!r}, join separator {col.join_separator!r})")
 
 
 SUFFIXES = (".csv", ".tsv", ".jsonl", ".json", ".txt")

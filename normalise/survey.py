@@ -48,6 +48,8 @@ def survey_column(export: Export, column: DecodedColumn) -> dict:
             entry["identity_candidates"] = [c.to_json() for c in identity_candidates(objects, owners)]
     if column.separator is not None:
         entry["separator"] = column.separator
+    if column.encoding == "delimited":
+        entry["rejoined"] = column.rejoined  # values that kept a name suffix ("Carl Dole, Jr.")
     if column.ambiguity:
         entry["ambiguous"] = True
         entry["ambiguity"] = column.ambiguity
@@ -131,6 +133,9 @@ def render(result: dict) -> str:
                            + (f"; also possible: {', '.join(others)}" if others else ""))
             elif c["shape"] in ("object-list", "object"):
                 out.append("      identity: none found (objects become child rows)")
+            if c.get("rejoined"):
+                out.append(f"      {c['rejoined']} values kept a name suffix after a comma "
+                           f"(\"Carl Dole, Jr.\") as part of the value before it")
             for a in c.get("ambiguity", []):
                 out.append(f"      ambiguous separator: {a}")
             for q in c.get("quarantine", []):

@@ -6,9 +6,11 @@ reference refuses is quarantined with a place and a message, never a crash;
 NaN and Infinity are refused in JSON (RFC 8259, section 6); nothing is ever
 evaluated; the depth and size limits hold, even for a cell nested 100,000 deep.
 
-Cells are stripped of surrounding whitespace before decoding, and the empty
-markers and decoded empty containers are stored as None, so column-level
-checks compare against ``cell_value(reference(cell.strip()))``.
+Nested cells are stripped of surrounding whitespace before decoding (around
+JSON text it is insignificant, RFC 8259 section 2; scalar cells keep theirs,
+see tests/test_exact_values.py), and the empty markers and decoded empty
+containers are stored as None, so column-level checks compare against
+``cell_value(reference(cell.strip()))``.
 
 One deliberate refusal beyond the references: a value whose string holds a
 lone surrogate (made by an escape such as "\\ud800", which both references
