@@ -468,9 +468,17 @@ class Builder:
         record_keys = getattr(export, "record_keys", None) or export.lines
         self.kept[export.path] = kept
         keys = [record_keys[i] for i in kept]
-        for name in [f.path[0] for f in record.scalars] + [n.column for n in record.nested]:
+        for name in [f.path[0] for f in record.scalars]:
             col = columns[name]
             self.inputs.add(record.table, name, keys, [col.values[i] for i in kept], col.encoding == "json")
+        for nested in record.nested:
+            col = columns[nested.column]
+            if nested.separator and col.encoding == "delimited":  # the proof compares the cell's own text
+                texts = self._delimited_cells(record, nested, col, kept, keys, export)
+                self.inputs.add(record.table, nested.column, keys, texts, True)
+            else:
+                self.inputs.add(record.table, nested.column, keys, [col.values[i] for i in kept],
+                                col.encoding == "json")
         scalar_cols = [self._stored_column(record, f, columns[f.path[0]].values, kept, record_keys, export)
                        for f in record.scalars]
         out = rows[record.table]
@@ -510,6 +518,25 @@ class Builder:
                 self.trace(record.table, record_keys[i], None, None, f.path[0], "", f"not {f.type} as given",
                            v, export.path, export.lines[i])
         return out
+
+    def _delimited_cells(self, record, nested: NestedColumn, col, kept: list[int], keys: list[int], export) -> list:
+        """The text of each kept delimited cell; a cell that is not its values joined by the plan's separator
+        (quotes, uneven spacing, empty pieces) is kept as written in value_traces."""
+        sep, layout, values = nested.separator, col.layout, col.values
+        texts = []
+        for i, sk in zip(kept, keys):
+            pieces = values[i]
+            if pieces is None:
+                texts.append(None)
+                continue
+            written = layout[i] if layout is not None and layout[i] is not None else (
+                col.join_separator or sep).join(pieces)
+            texts.append(written)
+            if written != sep.join(pieces):
+                self.trace(record.table, sk, None, None, nested.column, "",
+                           "the cell as written (quotes, spacing or empty pieces around its values)", written,
+                           export.path, export.lines[i])
+        return texts
 
     def trace(self, table, row_sk, owner_sk, position, column, path, reason, original, file, line) -> None:
         """Keep a value the model's columns cannot give back (``original`` ABSENT: the key was absent)."""

@@ -712,6 +712,8 @@ def infer_plan(exports: list, decoded: dict, options: Options | None = None):
             nested = NestedColumn(file=Path(origin[0]).stem if origin else export.name, column=name, kind="")
             if shape == "scalar-list":
                 nested.kind = "value-list"
+                if col.encoding == "delimited":
+                    nested.separator = col.join_separator or col.separator or ""
             elif shape == "object":
                 objects, _ = objects_of(col.values)
                 table = ObjectTable(objects)

@@ -205,9 +205,13 @@ def _join_one(result: Joined, combined: JoinedExport, combined_cols: dict, main:
         combined.origin[new] = (other.path, name)
         combined.origin_lines[new] = ([None if j is None else other.lines[j] for j in index] + [None] * padding
                                       + [other.lines[j] for j in extra_rows])
+        layout = None
+        if source.layout is not None:
+            layout = ([None if j is None else source.layout[j] for j in index] + [None] * padding
+                      + [source.layout[j] for j in extra_rows])
         combined_cols[new] = DecodedColumn(new, source.encoding, values, source.quarantined,
                                            source.format_counts, source.separator, source.ambiguity,
-                                           source.forced)
+                                           source.forced, source.rejoined, source.join_separator, layout)
     if extra_rows:
         position = len(result.joins) + 2
         for name in list(combined.cells):
@@ -287,7 +291,9 @@ def _link_many(result: Joined, main: Export, main_key: str, other: Export, right
     columns = {}
     for name, col in decoded[other.path].items():
         columns[name] = DecodedColumn(name, col.encoding, [col.values[j] for j in keep], col.quarantined,
-                                      col.format_counts, col.separator, col.ambiguity, col.forced)
+                                      col.format_counts, col.separator, col.ambiguity, col.forced, col.rejoined,
+                                      col.join_separator,
+                                      None if col.layout is None else [col.layout[j] for j in keep])
     columns[column] = DecodedColumn(column, "scalar", cells[column])
     result.exports[result.exports.index(other)] = linked
     result.decoded[other.path] = columns

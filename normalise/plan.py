@@ -88,6 +88,7 @@ class NestedColumn:
     path: str = ""  # path inside the record's column, for nested lists
     identity: str = ""  # identity field of an entity list
     matched: bool = False  # objects matched on the identity field's normalised text
+    separator: str = ""  # a delimited column's separator text between values (", "): the cell is the values joined
 
 
 @dataclass

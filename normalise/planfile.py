@@ -133,6 +133,8 @@ def _nested_toml(nested: NestedColumn, header: str) -> list[str]:
             out.append("matched = true")
     if nested.kind == "value-list":
         out.append(f"values_table = {_v(nested.entity)}")
+        if nested.separator:
+            out.append(f"separator = {_v(nested.separator)}  # between the values of a delimited cell")
     label = {"entity-list": "link attributes (kept on the bridge)", "child-list": "fields",
              "object-columns": "record columns", "object-child": "fields"}.get(nested.kind)
     if label:
@@ -377,6 +379,9 @@ def _nested_from(text: str, n: dict, columns: dict, handles: dict, plan: Plan) -
                           identity=n.get("identity", ""), matched=bool(n.get("matched", False)),
                           links=_maps(text, n.get("fields"), f"{column}.fields"))
     nested.children = [_nested_from(text, c, columns, handles, plan) for c in n.get("children", [])]
+    decoded = columns.get(column) if "path" not in n else None
+    if kind == "value-list" and getattr(decoded, "encoding", None) == "delimited":
+        nested.separator = str(n.get("separator", decoded.join_separator or decoded.separator or ""))
     return nested
 
 

@@ -87,6 +87,8 @@ def rebuild_cells(plan, fetch) -> dict[tuple[str, str], dict[int, object]]:
                         cells[r[0]] = obj
             else:
                 cells = _owned(plan, nested, fetch, traces)
+                if nested.separator:  # a delimited cell: its values joined, as the cell wrote them
+                    cells = {sk: nested.separator.join(v) for sk, v in cells.items()}
             out[(record.table, nested.column)] = cells
         for (t, sk, column), original in traces["cells"].items():
             if t == record.table:
