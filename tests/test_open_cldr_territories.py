@@ -151,7 +151,6 @@ def test_entity_and_link_attributes(built, column, attributes, links):
     assert got == {code: dict(zip(sorted(attributes), next(iter(v)))) for code, v in per_code.items()}
 
 
-@pytest.mark.xfail(reason="lossless proof lands with issue 11", strict=False)
 def test_lossless_proof(built):
     _, _, m = built
     assert m["integrity"]["cells_checked"] > 0

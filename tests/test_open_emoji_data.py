@@ -131,16 +131,12 @@ def test_values_exact(built):
                 assert exported(r[key], values.get(key)), (r["unified"], key, r[key], values.get(key))
 
 
-@pytest.mark.xfail(strict=True, reason="the one-emoticon column text (':)', ';)', ';p') is read as a list "
-                   "delimited by ';' because two cells hold a ';', and the empty piece before it is dropped: "
-                   "';)' comes back as ')' and ';p' as 'p', with no quarantine")
 def test_emoticon_text_exact(built):
     rows, db, m = built
     got = records(db, m, STEM)
     assert {k: v.get("text") for k, v in got.items()} == {r["unified"]: r["text"] for r in rows}
 
 
-@pytest.mark.xfail(reason="lossless proof lands with issue 11", strict=False)
 def test_lossless_proof(built):
     _, _, m = built
     assert m["integrity"]["cells_checked"] > 0

@@ -111,7 +111,6 @@ def test_values_exact(built):
     assert [e for e, v in got.items() if "variant" in v] == [r["emoji"] for r in rows if "variant" in r]
 
 
-@pytest.mark.xfail(reason="lossless proof lands with issue 11", strict=False)
 def test_lossless_proof(built):
     _, _, m = built
     assert m["integrity"]["cells_checked"] > 0
