@@ -522,16 +522,12 @@ class Builder:
     def _delimited_cells(self, record, nested: NestedColumn, col, kept: list[int], keys: list[int], export) -> list:
         """The text of each kept delimited cell; a cell that is not its values joined by the plan's separator
         (quotes, uneven spacing, empty pieces) is kept as written in value_traces."""
-        sep, layout, values = nested.separator, col.layout, col.values
-        texts = []
-        for i, sk in zip(kept, keys):
+        sep, values = nested.separator, col.values
+        texts = delimited_texts(col, kept, sep)
+        for i, sk, written in zip(kept, keys, texts):
             pieces = values[i]
             if pieces is None:
-                texts.append(None)
                 continue
-            written = layout[i] if layout is not None and layout[i] is not None else (
-                col.join_separator or sep).join(pieces)
-            texts.append(written)
             if written != sep.join(pieces):
                 self.trace(record.table, sk, None, None, nested.column, "",
                            "the cell as written (quotes, spacing or empty pieces around its values)", written,
@@ -798,6 +794,29 @@ class Builder:
         return Built(rows, counts, conflicts, merges=merges,
                      cells_quarantined_by_file=dict(self.quarantined_by_file), updates=updates,
                      inputs=self.inputs, trace_reasons=dict(self.trace_reasons), kept=self.kept)
+
+
+def delimited_texts(col, rows: list[int], sep: str) -> list:
+    """The text of a delimited column's cells as written (``decode.DecodedColumn.layout``), None where empty."""
+    layout, values = col.layout, col.values
+    out = []
+    for i in rows:
+        pieces = values[i]
+        if pieces is None:
+            out.append(None)
+        elif layout is not None and layout[i] is not None:
+            out.append(layout[i])
+        else:
+            out.append((col.join_separator or sep).join(pieces))
+    return out
+
+
+def reference_values(record: RecordSource, column: str, col, rows: list[int]) -> list:
+    """What the lossless proof compares a column's cells with: the decoded values, and a delimited cell's text."""
+    nested = next((n for n in record.nested if n.column == column), None)
+    if nested is not None and nested.separator and col.encoding == "delimited":
+        return delimited_texts(col, rows, nested.separator)
+    return [col.values[i] for i in rows]
 
 
 def _all_usable(idents: list, type_: str) -> bool:

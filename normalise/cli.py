@@ -142,7 +142,8 @@ def _run_build(args, options, join_options, progress):
                             replace=args.replace, manifest_path=args.manifest, picks=args.pick,
                             parquet_dir=args.parquet, plan_path=args.plan, chunk_rows=args.chunk_rows or None,
                             progress=progress, schema=args.schema,
-                            append=args.append, report_path=args.report, dictionary_path=args.dictionary)
+                            append=args.append, report_path=args.report, dictionary_path=args.dictionary,
+                            allow_lossy=args.allow_lossy)
 
 
 def cmd_plan(args) -> int:
@@ -238,6 +239,9 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--chunk-rows", type=int, default=5000, metavar="N",
                    help="records read at a time when one CSV/TSV file is built (bounded memory; 0: all at once)")
     p.add_argument("--quiet", action="store_true", help="print nothing but errors (no progress)")
+    p.add_argument("--allow-lossy", action="store_true",
+                   help="keep the database even when a value rebuilt from it differs from the export "
+                        "(the manifest, the summary and the report say so)")
     p.set_defaults(func=cmd_build)
 
     p = sub.add_parser("plan", help="write the inferred model as an editable TOML plan")

@@ -7,7 +7,7 @@ import json
 import os
 from pathlib import Path
 
-from .build import Builder, build
+from .build import Builder, build, reference_values
 from .check import check_plan, check_rows
 from .decode import decode, paused_gc
 from .infer import Options, infer_plan
@@ -164,9 +164,10 @@ def build_database(paths: list[str], database: str, *, options: Options | None =
                 if record.table == table and record.path in built.kept:
                     export = by_path[record.path]
                     keys = getattr(export, "record_keys", None) or export.lines
-                    values = decoded[record.path][column].values
-                    for i in built.kept[record.path]:
-                        yield keys[i], values[i], export.path, export.lines[i]
+                    rows = built.kept[record.path]
+                    values = reference_values(record, column, decoded[record.path][column], rows)
+                    for i, value in zip(rows, values):
+                        yield keys[i], value, export.path, export.lines[i]
 
         integrity = write_sqlite(plan, built.rows, order, database, replace=replace, append=append,
                                  verify=verifier(plan, built, allow_lossy, locate))
@@ -288,7 +289,18 @@ def _build_streaming(path: str, database: str, *, options: Options | None, limit
     except BaseException:
         writer.abort()
         raise
-    integrity = writer.finish(verifier(plan, built, allow_lossy))
+    record = plan.records[0]
+
+    def locate(table: str, column: str):
+        """Read the file again, only when the proof found a difference, to name the cells that differ."""
+        loaded = built.inputs.records.get(table, set())
+        for chunk in iter_chunks(path, chunk_rows, encoding=encoding, delimiter=delimiter):
+            columns = decode(chunk, limits, fixed)
+            rows = [i for i, line in enumerate(chunk.lines) if line in loaded]
+            for i, value in zip(rows, reference_values(record, column, columns[column], rows)):
+                yield chunk.lines[i], value, chunk.path, chunk.lines[i]
+
+    integrity = writer.finish(verifier(plan, built, allow_lossy, locate))
     return plan, manifest(plan, built, os.fspath(database), integrity, None, row_counts=writer.row_counts)
 
 

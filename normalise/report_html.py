@@ -1010,6 +1010,7 @@ def _tiles(model: dict) -> str:
         (f"{integ['foreign_key_violations']:,}", "foreign-key violations", integ["foreign_key_violations"] > 0),
         (esc(integ["integrity_check"], 40), "integrity_check", integ["integrity_check"] != "ok"),
         ({True: "yes", False: "NO", None: "unknown"}[reconciled], "rows and elements reconciled", reconciled is False),
+        _proof_tile(model),
         (f"{meta.get('quarantine', {}).get('total', 0):,}", "quarantined cells", False),
         (f"{meta.get('rejected', {}).get('total', 0):,}", "rejected rows", False),
         (f"{meta.get('set_aside', {}).get('total', 0):,}", "set-aside rows", False),
@@ -1175,6 +1176,15 @@ def _reconciliation_section(model: dict) -> str:
     return "\n".join(parts)
 
 
+def _proof_tile(model: dict) -> tuple:
+    """The lossless proof's figure: cells rebuilt exactly from the database, of the cells checked."""
+    m = (model.get("manifest") or {}).get("integrity") or {}
+    if "cells_checked" not in m:
+        return ("unknown", "cells rebuilt exactly (no manifest)", False)
+    return (f"{m['cells_rebuilt_exactly']:,} / {m['cells_checked']:,}", "cells rebuilt exactly",
+            m["cells_rebuilt_exactly"] != m["cells_checked"])
+
+
 def _integrity_section(model: dict) -> str:
     integ = model["integrity"]
     m = (model.get("manifest") or {}).get("integrity") or {}
@@ -1189,9 +1199,19 @@ def _integrity_section(model: dict) -> str:
             ["<td>rows and elements reconciled</td>",
              _cell({True: "yes", False: "NO", None: "unknown (no manifest)"}[_reconciled(model)]),
              _cell({True: "yes", False: "NO"}.get(m.get("reconciled"), _DASH))]]
+    if "cells_checked" in m:
+        lossy = m["cells_differing"]
+        rows.append(["<td>lossless proof: cells rebuilt from the tables equal the export</td>", _cell(_DASH),
+                     f'<td class="{"bad" if lossy else "ok"}">{_num(m["cells_rebuilt_exactly"])} of '
+                     f'{_num(m["cells_checked"])} exactly' + (f"; {_num(lossy)} DIFFER (kept with --allow-lossy)"
+                                                               if lossy else "") + "</td>"])
+        rows.append([f"<td>values kept as given in {_code('value_traces')}</td>", _cell(_DASH),
+                     _cell(", ".join(f"{n:,} {r}" for r, n in m.get("traced_by_reason", {}).items()) or "none")])
     out = (_src("SQLite's own checks, run on the database as this report was made; the last column is what the "
-                "build recorded in its manifest")
+                "build recorded in its manifest, the lossless proof included")
            + _table_html(["check", "now", "at build"], rows))
+    for d in m.get("differences", [])[:5]:
+        out += f'<p class="note bad">differs: {esc(str(d), 300)}</p>'
     if integ["violations"]:
         out += "<h3>Foreign-key violations (first ones)</h3>" + _table_html(
             ["table", "#rowid", "parent", "#foreign key"], [[_cell(v) for v in row] for row in integ["violations"]])

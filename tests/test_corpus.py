@@ -301,6 +301,9 @@ def check_build(results: dict, expect: dict, work: Path, inputs: list[str]) -> N
     manifest = json.loads(manifest_path.read_text("utf-8"))
     integrity = manifest["integrity"]
     assert integrity["reconciled"] is True and integrity["foreign_key_violations"] == 0, integrity
+    # the lossless proof (prove.py): every loaded cell rebuilt from the tables equals the decoded input
+    assert integrity["proof"] == "exact", integrity
+    assert integrity["cells_rebuilt_exactly"] == integrity["cells_checked"], integrity
     assert integrity["integrity_check"] == "ok", integrity
     for i in manifest["inputs"]:
         accounted = i["records_loaded"] + i["rows_set_aside"] + i["rows_rejected"] + i.get("rows_unmatched", 0)
