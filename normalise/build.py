@@ -177,6 +177,7 @@ class Built:
     inputs: object = None  # prove.InputDigests of the loaded cells
     trace_reasons: dict = field(default_factory=dict)  # why values were kept in value_traces, and how many
     kept: dict = field(default_factory=dict)  # export path -> indices of its loaded records
+    rejoined: dict = field(default_factory=dict)  # "file:column" -> values whose name suffix was rejoined
 
 
 class _Audit:
@@ -427,6 +428,7 @@ class Builder:
         self.inputs = InputDigests()  # the digest of every loaded cell, for the lossless proof
         self.kept: dict[str, list[int]] = {}  # export path -> indices of its loaded records (the last chunk's)
         self.trace_reasons: Counter = Counter()
+        self.rejoined: Counter = Counter()  # "file:column" -> delimited values with a name suffix rejoined
         if state:
             for table, keys in state["natural_keys"].items():
                 self.first_seen[table] = dict(keys)
@@ -473,6 +475,8 @@ class Builder:
             self.inputs.add(record.table, name, keys, [col.values[i] for i in kept], col.encoding == "json")
         for nested in record.nested:
             col = columns[nested.column]
+            if getattr(col, "rejoined", 0):
+                self.rejoined[f"{export.path}:{nested.column}"] += col.rejoined
             if nested.separator and col.encoding == "delimited":  # the proof compares the cell's own text
                 texts = self._delimited_cells(record, nested, col, kept, keys, export)
                 self.inputs.add(record.table, nested.column, keys, texts, True)
@@ -685,6 +689,9 @@ class Builder:
         path_of = {}
         for k, f in enumerate(acc.group.attributes):
             reason = f"entity attribute {f.column!r}: this occurrence's own value (the entity row holds another)"
+            if acc.group.matched and f.path == [acc.group.identity]:
+                reason = (f"matched on normalised {f.column!r} (--match): this occurrence's own spelling (the entity "
+                          f"row holds the most frequent)")
             pointer_text = pointer(f.path)
             traced = set()
             for text, h, v, where in acc.differing[k]:
@@ -793,7 +800,8 @@ class Builder:
                   for r in self.plan.records]
         return Built(rows, counts, conflicts, merges=merges,
                      cells_quarantined_by_file=dict(self.quarantined_by_file), updates=updates,
-                     inputs=self.inputs, trace_reasons=dict(self.trace_reasons), kept=self.kept)
+                     inputs=self.inputs, trace_reasons=dict(self.trace_reasons), kept=self.kept,
+                     rejoined=dict(self.rejoined))
 
 
 def delimited_texts(col, rows: list[int], sep: str) -> list:

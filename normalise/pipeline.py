@@ -151,24 +151,24 @@ def build_database(paths: list[str], database: str, *, options: Options | None =
     if missing:
         from .check import IntegrityError
         raise IntegrityError(f"{missing} foreign-key values name no row; nothing was written")
+    by_path = {e.path: e for e in exports}
+
+    def locate(table: str, column: str):
+        for record in plan.records:
+            if record.table == table and record.path in built.kept:
+                export = by_path[record.path]
+                keys = getattr(export, "record_keys", None) or export.lines
+                rows = built.kept[record.path]
+                values = reference_values(record, column, decoded[record.path][column], rows)
+                for i, value in zip(rows, values):
+                    yield keys[i], value, export.path, export.lines[i]
+
     if postgresql:
         integrity = write_postgresql(plan, built.rows, order, database, schema=schema or DEFAULT_SCHEMA,
-                                     replace=replace)
+                                     replace=replace, verify=verifier(plan, built, allow_lossy, locate))
         result = manifest(plan, built, display_url(database), integrity, joined)
         result["schema"] = integrity["schema"]
     else:
-        by_path = {e.path: e for e in exports}
-
-        def locate(table: str, column: str):
-            for record in plan.records:
-                if record.table == table and record.path in built.kept:
-                    export = by_path[record.path]
-                    keys = getattr(export, "record_keys", None) or export.lines
-                    rows = built.kept[record.path]
-                    values = reference_values(record, column, decoded[record.path][column], rows)
-                    for i, value in zip(rows, values):
-                        yield keys[i], value, export.path, export.lines[i]
-
         integrity = write_sqlite(plan, built.rows, order, database, replace=replace, append=append,
                                  verify=verifier(plan, built, allow_lossy, locate))
         result = manifest(plan, built, os.fspath(database), integrity, joined)
@@ -184,8 +184,8 @@ def build_database(paths: list[str], database: str, *, options: Options | None =
 
 def verifier(plan, built, allow_lossy: bool, locate=None):
     """The lossless proof run on the committed temporary file, before it is moved into place."""
-    def verify(path: str) -> dict:
-        fetch, close = sqlite_fetch(path)
+    def verify(where) -> dict:  # a SQLite file's path, or a fetch on PostgreSQL's open transaction
+        fetch, close = sqlite_fetch(where) if isinstance(where, str) else (where, lambda: None)
         try:
             figures = prove(plan, built.inputs, fetch, locate)
         finally:

@@ -57,6 +57,8 @@ def manifest(plan: Plan, built: Built, database: str, integrity: dict, joined=No
         "cells_quarantined": (sum(c.cells_quarantined for c in built.counts)
                               + sum(i["cells_quarantined"] for i in joined_inputs)),
         "conflicts": built.conflicts,
+        # delimited values whose name suffix ("Jr.", "Ltd.") was rejoined to the value before it, per column
+        "values_rejoined": dict(sorted(built.rejoined.items())),
         "entities": [{"table": g.table, "identity": g.identity, "members": g.members,
                       "attributes": [f.column for f in g.attributes]} for g in plan.entities],
         "integrity": {"foreign_key_violations": integrity["foreign_key_violations"],
@@ -116,6 +118,8 @@ def summary(m: dict) -> str:
         if len(e["members"]) > 1:
             out.append(f"  entity {e['table']} shared by {', '.join(e['members'])} (identity {e['identity']})")
     out.append(f"  conflicts: {m['conflicts']} (all variants in attribute_variants)")
+    for where, n in m.get("values_rejoined", {}).items():
+        out.append(f"  {where}: {n:,} delimited values kept whole with their name suffix (\"Dole, Jr.\" is one value)")
     integ = m["integrity"]
     out.append(f"  integrity: {integ['foreign_key_violations']} foreign-key violations, "
                f"integrity_check {integ['integrity_check']}, reconciled: {'yes' if integ['reconciled'] else 'NO'}")

@@ -1207,6 +1207,10 @@ def _integrity_section(model: dict) -> str:
                                                                if lossy else "") + "</td>"])
         rows.append([f"<td>values kept as given in {_code('value_traces')}</td>", _cell(_DASH),
                      _cell(", ".join(f"{n:,} {r}" for r, n in m.get("traced_by_reason", {}).items()) or "none")])
+    rejoined = (model.get("manifest") or {}).get("values_rejoined") or {}
+    if rejoined:
+        rows.append(["<td>delimited values kept whole with their name suffix (\"Dole, Jr.\")</td>", _cell(_DASH),
+                     _cell(", ".join(f"{n:,} in {where}" for where, n in rejoined.items()))])
     out = (_src("SQLite's own checks, run on the database as this report was made; the last column is what the "
                 "build recorded in its manifest, the lossless proof included")
            + _table_html(["check", "now", "at build"], rows))

@@ -502,7 +502,7 @@ def _copy_rows(cursor, schema: str, table: sa.Table, data: list[tuple], role: st
 
 
 def write_postgresql(plan: Plan, rows: dict[str, list[tuple]], order: list[str], database: str,
-                     schema: str = DEFAULT_SCHEMA, replace: bool = False) -> dict:
+                     schema: str = DEFAULT_SCHEMA, replace: bool = False, verify=None) -> dict:
     """Write the tables, rows, indexes and views into one schema of a PostgreSQL database.
 
     Everything happens in one transaction: the schema is created when missing,
@@ -572,6 +572,12 @@ def write_postgresql(plan: Plan, rows: dict[str, list[tuple]], order: list[str],
                     f"PostgreSQL names are at most {PG_MAX_IDENTIFIER} bytes and would be cut: "
                     + "; ".join(dict.fromkeys(truncated)) + ". Shorten the table names they come from "
                     "(normalise plan -o plan.toml, rename, then build --plan plan.toml); nothing was written")
+            proof = None
+            if verify is not None:  # the lossless proof, on the rows as PostgreSQL holds them, before the commit
+                def fetch(query: str) -> list:
+                    cursor.execute(query)
+                    return cursor.fetchall()
+                proof = verify(fetch)
             for name in order:
                 cursor.execute(sql.SQL("ANALYZE {}").format(sql.Identifier(schema, name)))
     except pg_errors.DependentObjectsStillExist as exc:
@@ -588,4 +594,7 @@ def write_postgresql(plan: Plan, rows: dict[str, list[tuple]], order: list[str],
         engine.dispose()
     # Every foreign key was added, and so checked by PostgreSQL against every row, before
     # the commit; PostgreSQL has no counterpart of SQLite's PRAGMA integrity_check.
-    return {"foreign_key_violations": 0, "integrity_check": None, "schema": schema}
+    result = {"foreign_key_violations": 0, "integrity_check": None, "schema": schema}
+    if verify is not None:
+        result["proof"] = proof
+    return result
