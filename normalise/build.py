@@ -472,17 +472,17 @@ class Builder:
         keys = [record_keys[i] for i in kept]
         for name in [f.path[0] for f in record.scalars]:
             col = columns[name]
-            self.inputs.add(record.table, name, keys, [col.values[i] for i in kept], col.encoding == "json")
+            self.inputs.add(record.table, name, keys, [col.values[i] for i in kept], kept, col.impure)
         for nested in record.nested:
             col = columns[nested.column]
             if getattr(col, "rejoined", 0):
                 self.rejoined[f"{export.path}:{nested.column}"] += col.rejoined
             if nested.separator and col.encoding == "delimited":  # the proof compares the cell's own text
                 texts = self._delimited_cells(record, nested, col, kept, keys, export)
-                self.inputs.add(record.table, nested.column, keys, texts, True)
+                self.inputs.add(record.table, nested.column, keys, texts, kept, set())
             else:
-                self.inputs.add(record.table, nested.column, keys, [col.values[i] for i in kept],
-                                col.encoding == "json")
+                self.inputs.add(record.table, nested.column, keys, [col.values[i] for i in kept], kept,
+                                col.impure)
         scalar_cols = [self._stored_column(record, f, columns[f.path[0]].values, kept, record_keys, export)
                        for f in record.scalars]
         out = rows[record.table]

@@ -92,6 +92,9 @@ class DecodedColumn:
     rejoined: int = 0
     join_separator: str | None = None
     layout: list | None = None
+    # rows whose value may hold what JSON has not (tuples, sets, bytes, non-text keys): the cells the exact
+    # per-cell path decoded; None when not known (then the lossless proof looks at every value)
+    impure: set | None = None
 
     def __post_init__(self):
         if self.join_separator is None:
@@ -290,9 +293,18 @@ def _decode_python_column(texts: list[str], limits: Limits) -> list:
     return _decode_exactly(values, fast, texts, decode_python_literal, limits)
 
 
+class _Values(list):
+    """Decoded values, with the positions the exact per-cell path decoded (``exact``): only those may hold
+    what JSON has not (tuples, sets, bytes, non-text keys); the bulk route's values are JSON's own types."""
+
+    exact: list = []
+
+
 def _decode_exactly(values: list, rows: list[int], texts: list[str], exact, limits: Limits) -> list:
     """Fill ``values[k]`` for each row the fast route left by the exact per-cell path (run outside the
     nesting guard: it measures depth itself); a CellError marks a failed cell."""
+    values = _Values(values)
+    values.exact = list(rows)
     for k in rows:
         try:
             values[k] = exact(texts[k], limits)
@@ -755,6 +767,7 @@ def _decode_column(name: str, cells: list, lines: list[int], file: str, limits: 
                    forced: tuple[str, str | None] | None, raw_surrogates: bool) -> DecodedColumn:
     n = len(cells)
     values: list = [None] * n
+    impure = None  # rows whose value may hold Python-only types; None: not known, every value is looked at
     counts: Counter = Counter()
     quarantined: list[QuarantinedCell] = []
     pending_bad: list[int] = []  # already-decoded cells holding lone surrogates
@@ -821,6 +834,9 @@ def _decode_column(name: str, cells: list, lines: list[int], file: str, limits: 
                 retry = {}  # a stray cell of the other grammar is a malformed cell, not a format
             else:
                 fmt = "mixed"
+        if primary == "python-literal" or retry:  # values that may hold what JSON has not, for the proof
+            impure = {text_rows[nested[j]] for j in getattr(decoded, "exact", ())} if primary != "json" else set()
+            impure |= {text_rows[nested[j]] for j in retry} if other == "python-literal" else set()
         for j, value in enumerate(decoded):
             k = nested[j]
             row = text_rows[k]
@@ -884,9 +900,11 @@ def _decode_column(name: str, cells: list, lines: list[int], file: str, limits: 
             encoding = "mixed"
     if not any(v for k, v in counts.items() if k not in ("empty", "invalid")) and not counts.get("invalid"):
         encoding = "empty"
+    if encoding == "json" or encoding == "delimited":
+        impure = set()
     column = DecodedColumn(name, encoding, values, quarantined,
                            {k: v for k, v in sorted(counts.items()) if v}, sep if encoding == "delimited" else None,
-                           forced=bool(forced))
+                           forced=bool(forced), impure=impure)
     if encoding == "delimited":
         column.ambiguity = ambiguity
         column.rejoined = rejoined

@@ -268,6 +268,9 @@ def _json_pure(value) -> bool:
     return kind in (str, int, float, bool, type(None))
 
 
+_encode = json.JSONEncoder(ensure_ascii=False, sort_keys=True, check_circular=False).encode
+
+
 def digest(value, pure: bool = False) -> bytes:
     """16 bytes that are equal for two values exactly when ``same`` holds.
 
@@ -282,7 +285,7 @@ def digest(value, pure: bool = False) -> bytes:
         (False, False)
     """
     if pure or _json_pure(value):
-        text = "j" + json.dumps(value, ensure_ascii=False, sort_keys=True, check_circular=False)
+        text = "j" + _encode(value)
     else:
         text = "c" + canonical_text(value)
     return blake2b(text.encode("utf-8", "surrogatepass"), digest_size=16).digest()

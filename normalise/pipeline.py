@@ -187,7 +187,7 @@ def verifier(plan, built, allow_lossy: bool, locate=None):
     def verify(where) -> dict:  # a SQLite file's path, or a fetch on PostgreSQL's open transaction
         fetch, close = sqlite_fetch(where) if isinstance(where, str) else (where, lambda: None)
         try:
-            figures = prove(plan, built.inputs, fetch, locate)
+            figures = prove(plan, built.inputs, fetch, locate, where if isinstance(where, str) else None)
         finally:
             close()
         figures["values_traced"] = sum(built.trace_reasons.values())

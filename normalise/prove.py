@@ -15,6 +15,7 @@ from __future__ import annotations
 
 import sqlite3
 from hashlib import blake2b
+from operator import itemgetter
 
 from .errors import NormaliseError
 from .exact import ABSENT, digest, from_literal, object_back, pointer, pointer_keys, put, same, stored_back
@@ -41,36 +42,49 @@ class InputDigests:
         self.sums: dict[tuple[str, str], list] = {}  # (record table, column) -> [cells, sum]
         self.records: dict[str, set] = {}  # record table -> keys of the records loaded by this build
 
-    def add(self, table: str, column: str, keys: list[int], values: list, pure: bool) -> None:
+    def add(self, table: str, column: str, keys: list[int], values: list, rows: list[int],
+            impure: set | None) -> None:
+        """The cells ``values`` of the records ``keys`` (rows ``rows`` of their column); ``impure``: the rows
+        whose value may hold what JSON has not (``DecodedColumn.impure``; None: any)."""
         self.records.setdefault(table, set()).update(keys)
         entry = self.sums.setdefault((table, column), [0, 0])
         total = entry[1]
         n = 0
-        for sk, v in zip(keys, values):
+        for sk, v, i in zip(keys, values, rows):
             if v is not None:
-                total += _mix(sk, digest(v, pure))
+                total += _mix(sk, digest(v, impure is not None and i not in impure))
                 n += 1
         entry[0] += n
         entry[1] = total % _MOD
 
 
-def rebuild_cells(plan, fetch) -> dict[tuple[str, str], dict[int, object]]:
+def rebuild_cells(plan, fetch, impure: set | None = None, only: set | None = None
+                  ) -> dict[tuple[str, str], dict[int, object]]:
     """Every non-empty cell of the loaded records, rebuilt from the database: (table, column) -> {sk: value}.
 
-    ``fetch(sql)`` runs a query on the written database and returns its rows.
+    ``fetch(sql)`` runs a query on the written database and returns its rows. ``impure``, when given,
+    receives the (table, column) and (table, column, sk) whose values came partly from ``value_traces``
+    (only those may hold what JSON has not). ``only``, when given, is the (table, column) to rebuild.
     """
     traces = _traces(fetch, {r.table for r in plan.records})
+    traced_tables = {t for t, _ in traces["elements"]}
+    impure = set() if impure is None else impure
     out: dict[tuple[str, str], dict[int, object]] = {}
     for record in plan.records:
+        wanted = [f for f in record.scalars if only is None or (record.table, f.path[0]) in only]
+        nested_wanted = [n for n in record.nested if only is None or (record.table, n.column) in only]
+        if not wanted and not nested_wanted:
+            continue
         table = plan.table(record.table)
         names = [c.name for c in table.columns]
-        rows = fetch(f"SELECT * FROM {_q(record.table)}")
+        needs_rows = wanted or any(n.kind == "object-columns" for n in nested_wanted)
+        rows = fetch(f"SELECT * FROM {_q(record.table)}") if needs_rows else []
         at = {n: j for j, n in enumerate(names)}
-        for f in record.scalars:
+        for f in wanted:
             j = at[f.column]
             out[(record.table, f.path[0])] = {r[0]: stored_back(r[j], f.type, f.as_text) for r in rows
                                                if r[j] is not None}
-        for nested in record.nested:
+        for nested in nested_wanted:
             cells: dict[int, object] = {}
             if nested.kind == "object-columns":
                 js = [at[f.column] for f in nested.links]
@@ -90,11 +104,21 @@ def rebuild_cells(plan, fetch) -> dict[tuple[str, str], dict[int, object]]:
                 if nested.separator:  # a delimited cell: its values joined, as the cell wrote them
                     cells = {sk: nested.separator.join(v) for sk, v in cells.items()}
             out[(record.table, nested.column)] = cells
+            if traced_tables & _tables_of(nested):
+                impure.add((record.table, nested.column))
         for (t, sk, column), original in traces["cells"].items():
-            if t == record.table:
+            if t == record.table and (only is None or (t, column) in only):
                 found = out.setdefault((t, column), {})
                 found[sk] = from_literal(original)
+                impure.add((t, column, sk))
     return out
+
+
+def _tables_of(nested) -> set:
+    found = {nested.table} if nested.table else set()
+    for child in nested.children:
+        found |= _tables_of(child)
+    return found
 
 
 def _q(name: str) -> str:
@@ -123,52 +147,68 @@ def _apply(obj, edits) -> object:
     return obj
 
 
+def row_objects(fields, start: int):
+    """A function giving the object a row's field columns (from index ``start`` on) stand for.
+
+    The same as ``exact.object_back``, made once per table: the common case (one key per field, values
+    SQLite gives back as they were decoded) is one dict comprehension per row.
+    """
+    keys = [f.path[0] for f in fields]
+    plain = all(len(f.path) == 1 and (f.type in ("text", "date", "timestamp") or
+                                      f.type in ("integer", "real") and not f.as_text) for f in fields)
+    if not plain:
+        return lambda r: object_back(fields, r[start:])
+    if all(f.null_means == "null" for f in fields):
+        return lambda r: dict(zip(keys, r[start:]))
+    if all(f.null_means == "absent" for f in fields):
+        return lambda r: {k: v for k, v in zip(keys, r[start:]) if v is not None}
+    absent = [f.null_means == "absent" for f in fields]
+    return lambda r: {k: v for k, v, a in zip(keys, r[start:], absent) if v is not None or not a}
+
+
 def _owned(plan, nested, fetch, traces) -> dict[int, object]:
     """The lists (or single objects) of a nested table, per owning row key, rebuilt from its rows."""
     table = plan.table(nested.table)
     names = [c.name for c in table.columns]
     rows = fetch(f"SELECT * FROM {_q(nested.table)}")
     elements = traces["elements"]
+    traced = {sk for t, sk in elements if t == nested.table}
+    lists = _child_lists(plan, nested, fetch, traces) if nested.kind != "value-list" else []
     if nested.kind == "object-child":
-        lists = _child_lists(plan, nested, fetch, traces)
+        make = row_objects(nested.links, 2)
         out = {}
         for r in rows:
-            obj = object_back(nested.links, list(r[2:]))
+            obj = make(r)
             for child, found in lists:
                 if r[0] in found:
                     put(obj, child.path.split("."), found[r[0]])
-            out[r[1]] = _apply(obj, elements.get((nested.table, r[0]), ()))
+            out[r[1]] = _apply(obj, elements[(nested.table, r[0])]) if r[0] in traced else obj
         return out
-    rows.sort(key=lambda r: (r[1], r[names.index("list_position")]))
+    rows.sort(key=itemgetter(1, names.index("list_position")))
     if nested.kind == "value-list":
-        value_table = plan.table(nested.entity)
         values = dict(fetch(f"SELECT * FROM {_q(nested.entity)}"))
-        del value_table
         made = [(r[1], values[r[2]]) for r in rows]
     else:
-        start = 4 if nested.kind == "entity-list" else 3
+        make = row_objects(nested.links, 4 if nested.kind == "entity-list" else 3)
         if nested.kind == "entity-list":
             group = plan.entity_group(nested.entity)
-            entity = {r[0]: r for r in fetch(f"SELECT * FROM {_q(group.table)}")}
-            attributes = group.attributes
-        lists = _child_lists(plan, nested, fetch, traces)
-        made = []
-        for r in rows:
-            obj = object_back(nested.links, list(r[start:]))
-            if nested.kind == "entity-list":
-                e = entity[r[2]]
+            attributes = row_objects(group.attributes, 2)
+            entity = {}
+            for e in fetch(f"SELECT * FROM {_q(group.table)}"):
+                obj = attributes(e)
                 if not nested.matched:
                     obj[nested.identity] = stored_back(e[1], group.identity_type, False)
-                for f, v in zip(attributes, e[2:]):
-                    if v is None:
-                        if f.null_means != "absent":
-                            put(obj, f.path, None)
-                    else:
-                        put(obj, f.path, stored_back(v, f.type, f.as_text))
-            for child, found in lists:
-                if r[0] in found:
-                    put(obj, child.path.split("."), found[r[0]])
-            made.append((r[1], _apply(obj, elements.get((nested.table, r[0]), ()))))
+                entity[e[0]] = obj
+            made = [(r[1], {**entity[r[2]], **make(r)}) for r in rows]
+        else:
+            made = [(r[1], make(r)) for r in rows]
+        if lists or traced:
+            for r, (_, obj) in zip(rows, made):
+                for child, found in lists:
+                    if r[0] in found:
+                        put(obj, child.path.split("."), found[r[0]])
+            made = [(owner, _apply(obj, elements[(nested.table, r[0])]) if r[0] in traced else obj)
+                    for r, (owner, obj) in zip(rows, made)]
     out: dict[int, list] = {}
     for owner, element in made:
         found = out.get(owner)
@@ -182,29 +222,95 @@ def _child_lists(plan, nested, fetch, traces) -> list:
     return [(child, _owned(plan, child, fetch, traces)) for child in nested.children]
 
 
-def prove(plan, inputs: InputDigests, fetch, locate=None) -> dict:
+def _rebuilt(plan, fetch, key, records: dict, impure: set | None = None) -> dict:
+    """One column's rebuilt cells, of this build's records only (``--append`` adds to others)."""
+    cells = rebuild_cells(plan, fetch, impure, {key}).get(key, {})
+    loaded = records.get(key[0], set())
+    if len(cells) != len(loaded) or not loaded.issuperset(cells):
+        cells = {sk: v for sk, v in cells.items() if sk in loaded}
+    return cells
+
+
+def _sums(plan, fetch, keys: set, records: dict) -> dict:
+    """(cells, digest sum) of each rebuilt column, as ``InputDigests`` sums the input's."""
+    impure: set = set()
+    rebuilt = rebuild_cells(plan, fetch, impure, keys)
+    out = {}
+    for key, cells in rebuilt.items():
+        loaded = records.get(key[0], set())
+        whole = key in impure
+        got = n = 0
+        for sk, v in cells.items():
+            if sk in loaded:
+                got += _mix(sk, digest(v, not whole and (key[0], key[1], sk) not in impure))
+                n += 1
+        out[key] = (n, got % _MOD)
+    return out
+
+
+def _units(plan) -> list[set]:
+    """The columns to rebuild, in parts that can be rebuilt apart: a record table's scalars, each nested column."""
+    units = []
+    for record in plan.records:
+        units.append({(record.table, f.path[0]) for f in record.scalars})
+        units += [{(record.table, n.column)} for n in record.nested]
+    return [u for u in units if u]
+
+
+def _unit_sums(job) -> dict:
+    path, plan, keys, records = job
+    fetch, close = sqlite_fetch(path)
+    try:
+        return _sums(plan, fetch, keys, records)
+    finally:
+        close()
+
+
+def _sums_in_processes(path: str, plan, units: list[set], records: dict) -> dict | None:
+    """The column sums on every core: SQLite files are read by many processes at once; each rebuilds its
+    share of the columns (Python objects, so threads would take turns). None when processes cannot start."""
+    import multiprocessing
+    import os
+
+    workers = min(len(units), os.cpu_count() or 1)
+    if workers < 2 or "fork" not in multiprocessing.get_all_start_methods():
+        return None
+    shares: list[set] = [set() for _ in range(workers)]
+    for k, unit in enumerate(units):  # round robin: nested columns, the costly units, spread over the cores
+        shares[k % workers] |= unit
+    try:
+        with multiprocessing.get_context("fork").Pool(workers) as pool:
+            parts = pool.map(_unit_sums, [(path, plan, share, records) for share in shares])
+    except (OSError, multiprocessing.ProcessError):  # pragma: no cover - no processes to be had
+        return None
+    out: dict = {}
+    for part in parts:
+        out.update(part)
+    return out
+
+
+def prove(plan, inputs: InputDigests, fetch, locate=None, path: str | None = None) -> dict:
     """Compare the rebuilt cells with the input's digests; returns the figures of the manifest's ``integrity``.
 
     ``locate(table, column)``, when given, yields ``(sk, value, file, line)`` for each input cell of that
-    column, to find the cells that differ.
+    column, to find the cells that differ. ``path``, a SQLite file, lets the columns be rebuilt by a
+    process per core.
     """
-    rebuilt = rebuild_cells(plan, fetch)
-    for (table, column), cells in rebuilt.items():  # only this build's records (--append adds to others)
-        loaded = inputs.records.get(table, set())
-        if len(cells) != len(loaded) or not loaded.issuperset(cells):
-            rebuilt[(table, column)] = {sk: v for sk, v in cells.items() if sk in loaded}
+    units = _units(plan)
+    sums = None
+    if path is not None and len(units) > 1:
+        sums = _sums_in_processes(path, plan, units, inputs.records)
+    if sums is None:
+        sums = _sums(plan, fetch, {k for unit in units for k in unit}, inputs.records)
     checked = exact = 0
     differing: list[dict] = []
-    for key in sorted(set(inputs.sums) | set(rebuilt)):
+    for key in sorted(set(inputs.sums) | set(sums)):
         n, total = inputs.sums.get(key, (0, 0))
-        cells = rebuilt.get(key, {})
-        got = 0
-        for sk, v in cells.items():
-            got += _mix(sk, digest(v))
         checked += n
-        if len(cells) == n and got % _MOD == total:
+        if tuple(sums.get(key, (0, 0))) == (n, total):
             exact += n
             continue
+        cells = _rebuilt(plan, fetch, key, inputs.records)
         found = []
         if locate is not None:
             seen = set()
