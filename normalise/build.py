@@ -497,7 +497,12 @@ class Builder:
             for nested in object_columns:
                 obj = columns[nested.column].values[i]
                 obj = obj if isinstance(obj, dict) else {}
-                row += [store(get_path(obj, f.path), f.type, f.as_text)[0] for f in nested.links]
+                for f in nested.links:
+                    value = get_path(obj, f.path)
+                    stored, exact = store(value, f.type, f.as_text)
+                    row.append(stored)
+                    if not exact:  # the cell is traced whole (_check_cell); the column is named here
+                        self.audit.note_type(export.path, f.column, f.type, value, export.lines[i])
             out.append(tuple(row))
             for nested in per_record:
                 value = columns[nested.column].values[i]
@@ -693,12 +698,12 @@ class Builder:
                 reason = (f"matched on normalised {f.column!r} (--match): this occurrence's own spelling (the entity "
                           f"row holds the most frequent)")
             pointer_text = pointer(f.path)
-            traced = set()
+            listed = set()  # every occurrence whose value differs from its entity's reference
             for text, h, v, where in acc.differing[k]:
+                bridge, row_sk, owner_sk, position, column, file, line = where
+                listed.add((bridge, row_sk))
                 if h != held[k].get(text, h):
-                    bridge, row_sk, owner_sk, position, column, file, line = where
                     self.trace(bridge, row_sk, owner_sk, position, column, pointer_text, reason, v, file, line)
-                    traced.add((bridge, row_sk))
             # entities whose reference value is not the one held: each occurrence holding the reference is
             # traced too; those are the occurrences not listed among the differing ones
             pending = {}
@@ -712,9 +717,8 @@ class Builder:
             if not path_of:
                 path_of = {n.table: n for n in self._entity_members(table)}
             for bridge, nested in path_of.items():
-                listed = {row_sk for b, row_sk in traced if b == bridge}
                 for row_sk, owner_sk, position, entity_sk in occurrences(bridge, set(pending)):
-                    if row_sk in listed:
+                    if (bridge, row_sk) in listed:  # not the reference value: traced above when need be
                         continue
                     self.trace(bridge, row_sk, owner_sk, position, nested.column, pointer_text, reason,
                                pending[entity_sk][1], self._member_path(nested), None)

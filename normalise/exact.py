@@ -117,6 +117,8 @@ def store(value, type_: str, as_text: bool = False):
             # none); the value itself is not held, so it is kept in value_traces
             return json_text(value), False
         return None, value is None
+    if type(stored) is float and stored == 0.0 and str(stored)[0] == "-":
+        return 0.0, False  # SQLite gives a REAL -0.0 back as 0.0 (its sign is kept in value_traces)
     if same(stored_back(stored, type_, as_text), value):
         return stored, True
     return None, False

@@ -252,6 +252,22 @@ class ObjectTable:
         return (np.concatenate(codes), np.concatenate([c[1] for c in coded]),
                 np.concatenate([c[2] for c in coded]))
 
+    def presence_varies(self, key: str, field: str) -> bool:
+        """Whether some identity's objects carry ``field`` in some occurrences and not in others.
+
+        The violation threshold tolerates a misspelt value; it does not tolerate a
+        field that one occurrence has and another lacks (a flag on one link).
+        """
+        import numpy as np
+
+        kc, _, knull = self.codes(key)
+        _, vpresent, _ = self.codes(field)
+        if vpresent.all() or not vpresent.any():
+            return False
+        keep = ~knull
+        pairs = np.unique(kc[keep] * 2 + vpresent[keep])
+        return bool(len(np.unique(pairs // 2)) < len(pairs))
+
     def measure(self, key: str, field: str, carrying_only: bool = False) -> Dependency:
         """The dependency key -> field over the objects whose key is not null.
 
@@ -557,6 +573,8 @@ def entity_attributes(objects: list[dict], identity: str, fields: list[str],
         if f == identity:
             continue
         d = table.measure(identity, f)
+        if d.occurrences and table.presence_varies(identity, f):
+            continue  # carried by some occurrences of an identity only: a link attribute, whatever the share
         if d.occurrences == 0:
             if not _POSITION_NAME.match(f):
                 out.append(f)

@@ -75,8 +75,7 @@ def _proof(integrity: dict) -> dict:
     return {"proof": "lossy, kept (--allow-lossy)" if p["lossy_kept"] else "exact",
             "cells_checked": p["cells_checked"], "cells_rebuilt_exactly": p["cells_rebuilt_exactly"],
             "cells_differing": p["cells_differing"], "differences": p["differences"],
-            "values_traced": p["values_traced"], "traced_by_reason": p["traced_by_reason"],
-            "proof_seconds": p.get("seconds")}
+            "values_traced": p["values_traced"], "traced_by_reason": p["traced_by_reason"]}
 
 
 def summary(m: dict) -> str:

@@ -282,7 +282,8 @@ def assert_exact(m: dict, cells: int | None = None) -> None:
     assert integrity["cells_differing"] == 0 and integrity["differences"] == []
     assert integrity["cells_rebuilt_exactly"] == integrity["cells_checked"]
     if cells is not None:
-        assert integrity["cells_checked"] == cells
+        # a cell the decoder quarantined (a stray tuple in a column read as JSON) is not decoded, so not checked
+        assert integrity["cells_checked"] == cells - m["cells_quarantined"]
 
 
 def plan_of(paths, **kwargs):
@@ -407,9 +408,6 @@ def test_lead_on_one_occurrence_is_a_link_attribute(tmp_path):
     assert_round_trip(db, m, plan_of([path]), path, {"people": json.loads})
 
 
-@pytest.mark.xfail(strict=True, reason="a flag carried by 1 of 30 occurrences of an id passes the 5% violation "
-                   "threshold and becomes an entity attribute: the person row says lead = true for all 30 links "
-                   "(29 absent values kept only as traces, no attribute_variants row)")
 def test_lead_on_one_of_many_occurrences_is_still_a_link_attribute(tmp_path):
     # Textbook FD definition: one occurrence with lead and 29 without is a violation of pid -> lead;
     # whatever the tolerance for misspellings, the entity row must not hold a value 29 of its 30
@@ -535,8 +533,6 @@ def check_jsonl_round_trip(db, m, plan, path) -> None:
             assert column in back and same(back[column], value), (key, column, value, back.get(column))
 
 
-@pytest.mark.xfail(strict=True, reason="values of another type in an object column's fields (a list in an integer "
-                   "field, 7 in a boolean field) are traced but no quarantined_cells row names the column")
 def test_object_column_values_of_another_type_are_named_in_quarantined_cells(tmp_path, monkeypatch):
     monkeypatch.setattr(pipeline, "SAMPLE_ROWS", 5)
     path = tmp_path / "items.jsonl"
@@ -619,7 +615,6 @@ FIRST_OCCURRENCE_DEFECT = ("an entity's occurrences whose value is the one the e
                            "refuses valid input with LossDetected")
 
 
-@pytest.mark.xfail(strict=True, reason=FIRST_OCCURRENCE_DEFECT)
 def test_first_occurrence_spelled_the_odd_way(tmp_path):
     # the issue's example with the odd spelling first: "Ann Lee" x3 is still the most frequent value
     rows = [("odd", json.dumps([{"id": 1, "name": "Ann  Lee"}, {"id": 2, "name": "Bo"}]))]
@@ -635,7 +630,6 @@ def test_first_occurrence_spelled_the_odd_way(tmp_path):
     assert [(p, o) for _, _, _, p, o in _traces(db)] == [("/name", "'Ann  Lee'")]
 
 
-@pytest.mark.xfail(strict=True, reason=FIRST_OCCURRENCE_DEFECT)
 @pytest.mark.parametrize("first, later", [
     ({"pid": 1, "name": "Ann"}, {"pid": 1, "name": "Ann", "lead": True}),  # a flag on the last occurrence only
     ({"pid": 1, "name": "Ann", "x": None}, {"pid": 1, "name": "Ann"}),  # null first, absent later
@@ -798,11 +792,12 @@ def test_a_loss_stops_the_build_and_writes_nothing(tmp_path, monkeypatch):
 
     real = prove_module.rebuild_cells
 
-    def losing(plan, fetch):
-        cells = real(plan, fetch)
-        people = next(v for (t, c), v in cells.items() if c == "people")
-        sk = min(people)
-        people[sk] = people[sk][:-1]
+    def losing(plan, fetch, *args):
+        cells = real(plan, fetch, *args)
+        for (_, column), people in cells.items():
+            if column == "people":
+                sk = min(people)
+                people[sk] = people[sk][:-1]
         return cells
 
     monkeypatch.setattr(prove_module, "rebuild_cells", losing)
@@ -818,8 +813,6 @@ def test_a_loss_stops_the_build_and_writes_nothing(tmp_path, monkeypatch):
     assert (difference["column"], difference["line"]) == ("people", 2)  # b1, the first record
 
 
-@pytest.mark.xfail(strict=True, reason="-0.0 in a real column is stored as is, but SQLite reads it back as 0.0: "
-                   "the build raises LossDetected on valid input instead of keeping the sign in value_traces")
 @pytest.mark.parametrize("name, text", [
     ("a.csv", "key,x\nk1,1.5\nk2,-0.0\n"),  # a CSV column of decimals
     ("b.jsonl", '{"key": "k1", "x": 1.5}\n{"key": "k2", "x": -0.0}\n'),  # a JSON number (RFC 8259, section 6)
