@@ -336,15 +336,15 @@ class _Entities:
             entity_codes = np.array([numbered.setdefault(t, len(numbered)) for t in text_col], dtype=np.int64)
         for k, (_, key, _) in enumerate(self.keys):
             values = [o.get(key, ABSENT) for o in objects]
-            hkeys = list(map(value_key, values))
+            # text, None and ABSENT are their own keys (exact.value_key): most columns need no call per value
+            hkeys = values if set(map(type, values)) <= _OWN_KEYS else list(map(value_key, values))
             refs = list(map(self.reference[k].setdefault, text_col, hkeys))
             if refs != hkeys:
                 for j in [j for j, (a, b) in enumerate(zip(refs, hkeys)) if a != b]:
                     self.differing[k].append((text_col[j], hkeys[j], values[j], where(j)))
             known = self.values[k]
-            for h, v in zip(hkeys, values):
-                if h not in known:
-                    known[h] = v
+            for h, v in dict(zip(reversed(hkeys), reversed(values))).items():  # each key's first value
+                known.setdefault(h, v)
             self._count(k, text_col, entity_codes, hkeys, places)
         return [sk for _, sk in keyed]
 
@@ -396,6 +396,8 @@ class _Entities:
         rows, self.new_rows = self.new_rows, []
         return rows
 
+
+_OWN_KEYS = {str, type(None), type(ABSENT)}
 
 META_TABLES = ("rejected_rows", "set_aside_rows", "unmatched_rows", "quarantined_cells", "attribute_variants",
                "value_traces", "name_map")

@@ -23,13 +23,13 @@ def value_key(value):
     """A hashable key equal for two values exactly when ``same`` holds (ABSENT is its own key).
 
     Example:
-        >>> value_key(1) == value_key(True), value_key("a") == value_key("a"), value_key([1]) == value_key((1,))
-        (False, True, False)
+        >>> value_key(1) == value_key(True), value_key("1") == value_key(1), value_key([1]) == value_key((1,))
+        (False, False, False)
     """
-    if value is ABSENT:
-        return ABSENT
+    if value is ABSENT or value is None or type(value) is str:
+        return value  # text equals only text, and None only None: the value is its own key
     kind = type(value)
-    if kind in (str, int, bool, type(None)):
+    if kind in (int, bool):
         return (kind, value)
     if kind is float:
         return (kind, repr(value))
@@ -271,6 +271,16 @@ def _json_pure(value) -> bool:
 
 
 _encode = json.JSONEncoder(ensure_ascii=False, sort_keys=True, check_circular=False).encode
+
+
+def keyed_digest(key: int, value, pure: bool = False) -> int:
+    """``digest`` of the value with a record key before it, as a 128-bit number (one hash, not two)."""
+    if pure or _json_pure(value):
+        text = "j" + _encode(value)
+    else:
+        text = "c" + canonical_text(value)
+    return int.from_bytes(blake2b(key.to_bytes(9, "big", signed=True) + text.encode("utf-8", "surrogatepass"),
+                                  digest_size=16).digest(), "big")
 
 
 def digest(value, pure: bool = False) -> bytes:

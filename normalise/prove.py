@@ -18,17 +18,13 @@ from hashlib import blake2b
 from operator import itemgetter
 
 from .errors import NormaliseError
-from .exact import ABSENT, digest, from_literal, object_back, pointer, pointer_keys, put, same, stored_back
+from .exact import ABSENT, from_literal, keyed_digest, object_back, pointer, pointer_keys, put, same, stored_back
 
 _MOD = 1 << 128
 
 
 class LossDetected(NormaliseError):
     """A value rebuilt from the database differs from the value in the export."""
-
-
-def _mix(sk: int, cell_digest: bytes) -> int:
-    return int.from_bytes(blake2b(sk.to_bytes(9, "big", signed=True) + cell_digest, digest_size=16).digest(), "big")
 
 
 class InputDigests:
@@ -52,7 +48,7 @@ class InputDigests:
         n = 0
         for sk, v, i in zip(keys, values, rows):
             if v is not None:
-                total += _mix(sk, digest(v, impure is not None and i not in impure))
+                total += keyed_digest(sk, v, impure is not None and i not in impure)
                 n += 1
         entry[0] += n
         entry[1] = total % _MOD
@@ -242,7 +238,7 @@ def _sums(plan, fetch, keys: set, records: dict) -> dict:
         got = n = 0
         for sk, v in cells.items():
             if sk in loaded:
-                got += _mix(sk, digest(v, not whole and (key[0], key[1], sk) not in impure))
+                got += keyed_digest(sk, v, not whole and (key[0], key[1], sk) not in impure)
                 n += 1
         out[key] = (n, got % _MOD)
     return out
