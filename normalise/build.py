@@ -22,8 +22,8 @@ from itertools import chain
 import numpy as np
 
 from .errors import NormaliseError
-from .exact import (ABSENT, expect_cell, get, json_text, literal, pointer, python_text, same, store, stored_back,
-                    value_key)
+from .exact import (ABSENT, expect_cell, expect_element, get, json_text, literal, pointer, python_text, same, store,
+                    stored_back, value_key)
 from .infer import get_path, match_key
 from .plan import NestedColumn, Plan, RecordSource
 from .prove import InputDigests
@@ -646,35 +646,52 @@ class Builder:
             self._trace_cells(record, nested, values, untraced, record_keys, export)
             return
         known = audit.known(nested, self.entities)
+        bridge, path = nested.table, export.path
+
+        def keep(k: int, keys_in: list, original, reason: str) -> None:
+            """One field of one element, as given, on its bridge or child row (the rows are still checked)."""
+            self.trace(bridge, keys[k], owners[k], positions[k], nested.column, pointer(keys_in), reason, original,
+                       path, lines[rows_of[k]])
+
+        if any(len(f.path) > 1 for f in nested.links):
+            # fields of sub-objects: a sub-object that is null, empty or holds more keys than the model cannot be
+            # told from its fields, so each element is compared with what its row gives back (exact.expect_cell)
+            group = self.entities[nested.entity].group if nested.kind == "entity-list" else None
+            for k, o in enumerate(items):
+                back = expect_element(nested, o, group.identity_type if group else None,
+                                         group.attributes if group else ())
+                if not same(back, o):
+                    untraced.add(rows_of[k])
         if not set(chain.from_iterable(items)) <= known:
-            for o, i in zip(items, rows_of):
+            for k, (o, i) in enumerate(zip(items, rows_of)):
                 if not o.keys() <= known:
                     audit.note_keys(nested, o, export.path, lines[i])
-                    untraced.add(i)  # the rows have no column for the key: the cell is kept as given
+                    for key in o.keys() - known:  # no column for the key: its value is kept as given
+                        keep(k, [key], o[key], "a key the model does not have")
         links = []
         for f in nested.links:
             col = ([o.get(f.path[0], ABSENT) for o in items] if len(f.path) == 1
                    else [get(o, f.path) for o in items])
-            missing = None if f.null_means == "absent" else ABSENT  # what NULL cannot stand for here
-            if missing is None and None in col:
-                untraced.update(rows_of[k] for k, v in enumerate(col) if v is None)
-            elif missing is ABSENT and ABSENT in col:
-                untraced.update(rows_of[k] for k, v in enumerate(col) if v is ABSENT)
+            if f.null_means == "absent" and None in col:
+                for k in [k for k, v in enumerate(col) if v is None]:
+                    keep(k, f.path, None, "null where the column's NULL means an absent key")
+            elif f.null_means == "null" and ABSENT in col:
+                for k in [k for k, v in enumerate(col) if v is ABSENT]:
+                    keep(k, f.path, ABSENT, "an absent key where the column's NULL means null")
             col = [None if v is ABSENT else v for v in col]
             if not (set(map(type, col)) <= _STORED_AS_IS[f.type] and (f.type != "integer" or _fits_int64(col))
-                    and not f.as_text):
+                    and not f.as_text and not (f.type == "real" and 0.0 in col)):
                 converted = []
-                for v, i in zip(col, rows_of):
+                for k, (v, i) in enumerate(zip(col, rows_of)):
                     stored, exact = store(v, f.type, f.as_text)
                     converted.append(stored)
                     if not exact:
                         audit.note_type(export.path, f"{nested.column}.{f.column}", f.type, v, lines[i])
-                        untraced.add(i)
+                        keep(k, f.path, v, f"not {f.type} as given")
                 col = converted
             links.append(col)
         if nested.kind == "entity-list":
             places = [(lines[i], nested._order, p) for i, p in zip(rows_of, positions)]
-            bridge, path = nested.table, export.path
 
             def where(j):
                 return (bridge, keys[j], owners[j], positions[j], nested.column, path, lines[rows_of[j]])

@@ -401,7 +401,7 @@ def expect_cell(nested, value, identity_type: str | None = None, attributes=()):
         return expected
     if type(value) is not list:
         return NOT_HELD
-    return [_element_expected(nested, x, identity_type, attributes) for x in value]
+    return [expect_element(nested, x, identity_type, attributes) for x in value]
 
 
 def _object_expected(nested, obj: dict, identity_type, attributes) -> dict:
@@ -419,7 +419,7 @@ def _object_expected(nested, obj: dict, identity_type, attributes) -> dict:
     return out
 
 
-def _element_expected(nested, x, identity_type, attributes):
+def expect_element(nested, x, identity_type, attributes):
     kind = nested.kind
     if kind == "value-list":
         if type(x) is not str:
