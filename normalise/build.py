@@ -662,6 +662,10 @@ class Builder:
                                          group.attributes if group else ())
                 if not same(back, o):
                     untraced.add(rows_of[k])
+        if not set(map(type, chain.from_iterable(items))) <= {str}:
+            # a key that is not text (a Python literal's {1: 'a'}): the plan names fields by text, so the
+            # cell is kept whole
+            untraced.update(rows_of[k] for k, o in enumerate(items) if not set(map(type, o)) <= {str})
         if not set(chain.from_iterable(items)) <= known:
             for k, (o, i) in enumerate(zip(items, rows_of)):
                 if not o.keys() <= known:

@@ -108,6 +108,8 @@ def store(value, type_: str, as_text: bool = False):
         >>> store("7", "integer", True), store("007", "integer", True), store(True, "integer"), store(7, "text")
         ((7, True), (None, False), (None, False), ('7', False))
     """
+    if value is ABSENT:
+        return None, True  # what NULL then stands for is the field's null_means (field_back)
     stored = to_column(value, type_, as_text)
     if stored is None:
         if type_ == "real" and type(value) is int and -(1 << 53) <= value <= (1 << 53):

@@ -39,6 +39,7 @@ from unittest import mock
 
 import pytest
 from hypothesis import HealthCheck, given, settings
+from hypothesis import strategies as st
 
 from normalise import pipeline
 from normalise.build import build
@@ -47,6 +48,7 @@ from normalise.infer import Options
 from normalise.pipeline import build_database, make_plan, prepare
 from normalise.prove import LossDetected, prove, rebuild_cells, sqlite_fetch
 from normalise.write import write_sqlite
+from tests import strategies
 from tests.strategies_exports import SAMPLE, exports, write_csv
 
 # The README's empty markers, plus "NaN" and "()", which decode.EMPTY_MARKERS also lists; stripped as
@@ -835,3 +837,44 @@ def test_negative_zero_is_kept(tmp_path, name, text):
     path.write_text(text, encoding="utf-8")
     m = build_database([str(path)], str(tmp_path / "out.db"))
     assert_exact(m, 4)
+
+
+def test_keys_that_are_not_text_and_null_or_empty_sub_objects_come_back(tmp_path):
+    # Python literals may key a dict by a number ({1: 'a'}; Python reference, "Dictionary displays"); a
+    # sub-object may be null or empty where others have fields: none of these can be told apart by the
+    # columns, so the cells are kept as given and proved (the reference: ast.literal_eval of each cell)
+    lists = tmp_path / "lists.csv"
+    write_rows(lists, ["key", "p"], [("k1", "[{1: 'a', 'id': 5}]"), ("k2", "[{1: 'b', 'id': 6}]"),
+                                     ("k3", "[{2: 'c', 'id': 5}]")])
+    objects = tmp_path / "objects.csv"
+    write_rows(objects, ["key", "p"], [("k1", "{1: 'a', 'x': {'y': 1}}"), ("k2", "{'x': None}"),
+                                       ("k3", "{'x': {}}")])
+    for path in (lists, objects):
+        m = build_database([str(path)], str(tmp_path / f"{path.stem}.db"))
+        assert_exact(m, 6)
+        with sqlite3.connect(tmp_path / f"{path.stem}.db") as con:
+            kept = [ast.literal_eval(o) for (o,) in con.execute(
+                "SELECT original FROM value_traces WHERE path = '' ORDER BY row_sk")]
+        with open(path, newline="", encoding="utf-8") as f:
+            cells = [ast.literal_eval(row["p"]) for row in csv.DictReader(f)]
+        assert all(k in cells for k in kept) and kept
+
+
+@settings(max_examples=60, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture,
+                                                                 HealthCheck.too_slow])
+@given(cells=st.lists(st.one_of(strategies.json_values(max_leaves=12),
+                                st.lists(st.dictionaries(st.sampled_from(["id", "name", "role", "tags", "at"]),
+                                                         strategies.json_values(max_leaves=6), max_size=4),
+                                         max_size=4)),
+                      min_size=1, max_size=6),
+       python=st.booleans(), chunked=st.booleans())
+def test_any_json_values_are_proved_exact(tmp_path_factory, cells, python, chunked):
+    # any JSON value (RFC 8259) in a nested column, as JSON text or as its Python repr: whatever the model
+    # makes of the column, every cell comes back exactly, or the build would refuse to write it
+    where = tmp_path_factory.mktemp("anyjson")
+    path = where / "any.csv"
+    text = [repr(c) if python else json.dumps(c, ensure_ascii=False) for c in cells]
+    write_rows(path, ["key", "v"], [(f"k{i}", t) for i, t in enumerate(text)])
+    m = build_database([str(path)], str(where / "any.db"), chunk_rows=2 if chunked else None)
+    assert m["integrity"]["proof"] == "exact", m["integrity"]["differences"]
+    assert m["integrity"]["cells_rebuilt_exactly"] == m["integrity"]["cells_checked"]
