@@ -22,7 +22,7 @@ from itertools import chain
 import numpy as np
 
 from .errors import NormaliseError
-from .exact import (ABSENT, expect_cell, expect_element, get, json_text, literal, pointer, python_text, same, store,
+from .exact import (ABSENT, expect_cell, expect_element, get, json_text, literal, pointer, same, store,
                     stored_back, value_key)
 from .infer import get_path, match_key
 from .plan import NestedColumn, Plan, RecordSource

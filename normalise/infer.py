@@ -866,7 +866,7 @@ def _child_lists(file: str, column: str, objects: list[dict], lists: list[list[s
 
 def _group_entities(plan, entity_lists, options: Options, tables: Namer) -> None:
     """Put entity lists of one identity space into one entity table (union-find on agreement)."""
-    from .plan import EntityGroup, FieldMap
+    from .plan import EntityGroup
 
     parent = list(range(len(entity_lists)))
 

@@ -14,7 +14,6 @@ hand, and named by file, line, column and the first differing path.
 from __future__ import annotations
 
 import sqlite3
-from hashlib import blake2b
 from operator import itemgetter
 
 from .errors import NormaliseError

@@ -23,8 +23,7 @@ import json
 
 import pytest
 
-from normalise.pipeline import build_database
-from tests.open_data import element_tables, lists, nest, pragmas, record_table, records
+from tests.open_data import (build_jsonl, check_lossless, check_pragmas, element_tables, lists, nest, record_table, records)
 
 STEM = "emoji_names"
 
@@ -46,14 +45,7 @@ def emoji_records() -> list[dict]:
 @pytest.fixture(scope="module")
 def built(tmp_path_factory):
     rows = emoji_records()
-    where = tmp_path_factory.mktemp("emoji_names")
-    path = where / f"{STEM}.jsonl"
-    with open(path, "w", encoding="utf-8") as f:
-        for row in rows:
-            f.write(json.dumps(row, ensure_ascii=False) + "\n")
-    db = where / f"{STEM}.db"
-    m = build_database([str(path)], str(db))
-    return rows, db, m
+    return build_jsonl(rows, tmp_path_factory.mktemp("emoji_names"), STEM)
 
 
 def test_package_and_licence():
@@ -82,10 +74,7 @@ def test_records(built):
 
 def test_sqlite_pragmas(built):
     _, db, m = built
-    fk, integrity = pragmas(db)
-    assert fk == []  # SQLite: PRAGMA foreign_key_check
-    assert integrity == [("ok",)]  # SQLite: PRAGMA integrity_check
-    assert m["integrity"]["foreign_key_violations"] == 0 and m["integrity"]["integrity_check"] == "ok"
+    check_pragmas(db, m)
 
 
 def test_aliases(built):
@@ -112,6 +101,4 @@ def test_values_exact(built):
 
 
 def test_lossless_proof(built):
-    _, _, m = built
-    assert m["integrity"]["cells_checked"] > 0
-    assert m["integrity"]["cells_rebuilt_exactly"] == m["integrity"]["cells_checked"]
+    check_lossless(built[2])
