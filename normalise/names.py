@@ -28,7 +28,13 @@ def sql_name(text: str) -> str:
     return name[:MAX_NAME]
 
 
-_IRREGULAR = {"people": "person", "children": "child", "men": "man", "women": "woman", "data": "data"}
+_IRREGULAR = {"people": "person", "children": "child", "men": "man", "women": "woman", "data": "data",
+              "series": "series", "species": "species", "news": "news", "status": "status"}
+# -ies words whose singular ends in -ie, not -y (English spelling, common practice)
+_IE = frozenset(["cookies", "movies", "calories", "pies", "ties", "lies", "zombies", "selfies", "brownies"])
+# plurals in -es after a sibilant: box -> boxes, match -> matches, wish -> wishes, address -> addresses,
+# alias -> aliases, status -> statuses (English spelling, common practice)
+_SIBILANT_ES = ("xes", "ches", "shes", "sses", "zzes", "iases", "tuses", "suses")
 
 
 def singular(name: str) -> str:
@@ -37,13 +43,22 @@ def singular(name: str) -> str:
     Example:
         >>> singular("contributors"), singular("titles"), singular("categories"), singular("press"), singular("people")
         ('contributor', 'title', 'category', 'press', 'person')
+        >>> singular("aliases"), singular("suffixes"), singular("series"), singular("status"), singular("cookies")
+        ('alias', 'suffix', 'series', 'status', 'cookie')
     """
     for plural, one in _IRREGULAR.items():
         if name == plural or name.endswith("_" + plural):
             return name[: len(name) - len(plural)] + one
+    last = name.rsplit("_", 1)[-1]
+    if last in _IE:
+        return name[:-1]
     if name.endswith("ies") and len(name) > 4:
         return name[:-3] + "y"
-    if name.endswith("s") and not name.endswith("ss") and len(name) > 3:
+    if name.endswith(_SIBILANT_ES) and len(last) > 4:
+        return name[:-2]
+    if name.endswith(("ss", "us", "is")):
+        return name
+    if name.endswith("s") and len(name) > 3:
         return name[:-1]
     return name
 
