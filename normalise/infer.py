@@ -358,11 +358,11 @@ def identity_candidates(objects: list[dict], owners: list[int], threshold: float
         width = int(present_codes.max()) + 1
         pairs = np.unique(owner_codes[~isnull] * width + present_codes)
         unique_within = len(pairs) / max(1, present_count)  # 1 - repeats inside a list / values
-        if unique_within < 0.99:
-            continue
         distinct = len(np.unique(present_codes))
-        if distinct < 2 and n > 1:
-            continue
+        named = bool(_ID_NAME.search(key))
+        repeats = unique_within < 0.99 or (distinct < 2 and n > 1)
+        if repeats and not named:
+            continue  # a value repeated inside lists (or one value only) identifies nothing by itself
         determines = []
         for other in keys:
             if other == key:
@@ -370,8 +370,11 @@ def identity_candidates(objects: list[dict], owners: list[int], threshold: float
             d = table.measure(key, other)
             if d.occurrences and d.violation_rate <= threshold and not _POSITION_NAME.match(other):
                 determines.append(other)
-        named = bool(_ID_NAME.search(key))
         if not named and not determines:
+            continue
+        if repeats and not determines:
+            # an identifier repeated inside one list (one person as author and as editor) is still an
+            # identity when it determines the entity's other fields: each repeat is a link of its own
             continue
         integer = kinds == {int}  # every present value an int (bool is a kind of its own)
         out.append(IdentityCandidate(key, present_count / n, distinct, unique_within, determines,
