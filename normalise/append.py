@@ -12,7 +12,7 @@ from __future__ import annotations
 
 import sqlite3
 
-from .build import canonical
+from .build import canonical, value_text
 from .errors import NormaliseError
 from .plan import Plan
 
@@ -55,9 +55,10 @@ def read_state(database: str, plan: Plan) -> dict:
             state["entities"][group.table] = {canonical(r[1], group.identity_type): r for r in rows}
         for t in plan.tables:
             if t.role == "entity" and t.name not in state["entities"]:  # tables of scalar values
-                state["values"][t.name] = {canonical(v, "text") if not isinstance(v, str) else "text:" + v: (sk, v)
+                value_type = t.columns[1].type
+                state["values"][t.name] = {value_text(v if value_type != "boolean" else bool(v), value_type): (sk, v)
                                            for sk, v in con.execute(f"SELECT * FROM {_q(t.name)}")}
-            if t.role in ("rejected", "set_aside", "unmatched", "quarantine", "variants", "names"):
+            if t.role in ("rejected", "set_aside", "unmatched", "quarantine", "variants", "names", "traces"):
                 state["meta_offset"][t.name] = con.execute(
                     f"SELECT coalesce(max({_q(t.primary_key[0])}), 0) FROM {_q(t.name)}").fetchone()[0]
         return state

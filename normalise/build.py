@@ -137,6 +137,20 @@ def to_sql_value(value, type_: str):
     return json_text(value)
 
 
+def value_text(value, type_: str) -> str:
+    """The typed text a value of a value list is keyed by (its surrogate key is the hash of it).
+
+    Example:
+        >>> value_text("7", "text"), value_text(7, "integer"), value_text(44, "real"), value_text(44.0, "real")
+        ('text:7', 'integer:7', 'real:44.0', 'real:44.0')
+    """
+    if type(value) is str:
+        return "text:" + value
+    if type_ == "real" and type(value) in (int, float):
+        return "real:" + repr(float(value))  # 44 and 44.0 are one REAL value (the 44 is traced)
+    return canonical(value, type_)
+
+
 def canonical(value, type_: str) -> str:
     """The typed text form of a natural key, the input of its surrogate key."""
     if type_ == "integer" and isinstance(value, int) and not isinstance(value, bool):
@@ -589,7 +603,11 @@ class Builder:
         lines = export.lines
         audit = self.audit
         if nested.kind == "value-list":
-            bad = [k for k, x in enumerate(items) if x is None or isinstance(x, (dict, list, tuple))]
+            vt = nested.value_type
+            if vt == "text":
+                bad = [k for k, x in enumerate(items) if x is None or isinstance(x, (dict, list, tuple))]
+            else:  # a value the list's type cannot hold is not a value of the list (its cell is kept whole)
+                bad = [k for k, x in enumerate(items) if x is None or store(x, vt)[0] is None]
         else:
             bad = [k for k, x in enumerate(items) if type(x) is not dict]
         idents = None
@@ -606,8 +624,11 @@ class Builder:
                 untraced.update(rows_of[k] for k, o in enumerate(items) if type(o.get(nested.identity)) is not str)
             elif not set(map(type, idents)) <= {want}:
                 untraced.update(rows_of[k] for k, v in enumerate(idents) if type(v) is not want)
-        if nested.kind == "value-list" and not set(map(type, items)) <= {str}:
-            untraced.update(rows_of[k] for k, x in enumerate(items) if type(x) is not str)
+        if nested.kind == "value-list":
+            want = {"text": str, "integer": int, "real": float, "boolean": bool}[nested.value_type]
+            if not set(map(type, items)) <= {want} or (want is float and 0.0 in items):
+                untraced.update(rows_of[k] for k, x in enumerate(items) if type(x) is not want
+                                or want is float and x == 0.0 and str(x)[0] == "-")
         if bad:
             untraced.update(rows_of[k] for k in bad)
             for k in bad:
@@ -636,10 +657,12 @@ class Builder:
             found = self.values.get(nested.entity)
             if found is None:
                 found = self.values[nested.entity] = _ValueTable()
-            texts = ["text:" + x if type(x) is str else canonical(x, "text") for x in items]
+            vt = nested.value_type
+            texts = [value_text(x, vt) for x in items]
             for text, x in zip(texts, items):
                 if text not in found.rows:
-                    entry = found.rows[text] = (key_of(text), to_sql_value(x, "text"))
+                    entry = found.rows[text] = (key_of(text), store(x, vt)[0] if vt != "text" else
+                                                to_sql_value(x, "text"))
                     found.new.append(entry)
             table.extend(zip(keys, owners, [found.rows[t][0] for t in texts], positions))
             c.elements_written += len(keys)
@@ -1012,17 +1035,20 @@ def _nested_rows(builder: "Builder", nested: NestedColumn, value, owner_sk: int,
         c.elements_decoded += 1
         sk = row_key(where, owner_sk, position)
         if nested.kind == "value-list":
-            if item is None or isinstance(item, (dict, list, tuple)):
+            vt = nested.value_type
+            if item is None or isinstance(item, (dict, list, tuple)) or vt != "text" and store(item, vt)[0] is None:
                 _quarantine_element(audit.quarantine, export, i, nested, position,
-                                    "null element in a list" if item is None else "nested element in a list of values", c)
+                                    "null element in a list" if item is None else "nested element in a list of values"
+                                    if isinstance(item, (dict, list, tuple)) else f"not {vt}, the list's type", c)
                 continue
-            text = canonical(item, "text") if not isinstance(item, str) else "text:" + item
+            text = value_text(item, vt)
             found = values.get(nested.entity)
             if found is None:
                 found = values[nested.entity] = _ValueTable()
             entry = found.rows.get(text)
             if entry is None:
-                entry = found.rows[text] = (key_of(text), to_sql_value(item, "text"))
+                entry = found.rows[text] = (key_of(text), store(item, vt)[0] if vt != "text" else
+                                            to_sql_value(item, "text"))
                 found.new.append(entry)
             table.append((sk, owner_sk, entry[0], position))
             c.elements_written += 1

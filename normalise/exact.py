@@ -356,6 +356,7 @@ class _Mismatch:
 
 
 NOT_HELD = _Mismatch()
+_VALUE_TYPES = {"text": str, "integer": int, "real": float, "boolean": bool}
 
 
 def field_back(value, f):
@@ -424,8 +425,9 @@ def _object_expected(nested, obj: dict, identity_type, attributes) -> dict:
 def expect_element(nested, x, identity_type, attributes):
     kind = nested.kind
     if kind == "value-list":
-        if type(x) is not str:
-            return NOT_HELD  # values are text; another type (or a null, a list) is not held as it was
+        if type(x) is not _VALUE_TYPES.get(getattr(nested, "value_type", "text")) or (
+                type(x) is float and x == 0.0 and str(x)[0] == "-"):
+            return NOT_HELD  # a value of another type than the list's (or a null, a list, -0.0) is not held
         return x
     if type(x) is not dict:
         return NOT_HELD

@@ -735,6 +735,8 @@ def infer_plan(exports: list, decoded: dict, options: Options | None = None):
                 nested.kind = "value-list"
                 if col.encoding == "delimited":
                     nested.separator = col.join_separator or col.separator or ""
+                else:
+                    nested.value_type = list_value_type(col.values)
             elif shape == "object":
                 objects, _ = objects_of(col.values)
                 table = ObjectTable(objects)
@@ -852,6 +854,8 @@ def _child_lists(file: str, column: str, objects: list[dict], lists: list[list[s
             inner = table.values(path[0])
         else:
             inner = [get_path(o, path) for o in objects]
+        # a value that is not a list is taken as a list of one (build._nested_rows), so its type counts too
+        wrapped = [v if isinstance(v, (list, tuple)) else [v] for v in inner if v is not None]
         inner = [v for v in inner if isinstance(v, (list, tuple))]
         items = [x for v in inner for x in v if x is not None]
         nested = NestedColumn(file, column, "", path=".".join(path))
@@ -863,8 +867,26 @@ def _child_lists(file: str, column: str, objects: list[dict], lists: list[list[s
             nested.children = _child_lists(file, column + "." + ".".join(path), items, sub, sub_table)
         else:
             nested.kind = "value-list"
+            nested.value_type = list_value_type(wrapped)
         out.append(nested)
     return out
+
+
+def list_value_type(lists: list) -> str:
+    """The type of a value list's values: integer or boolean when every value is one, real when every value
+    is a number (a list of numbers stays numbers, RFC 8259 section 6), else text.
+
+    Example:
+        >>> list_value_type([[1, 2], None, [3]]), list_value_type([[1.5, 2.0]]), list_value_type([[1, "a"]])
+        ('integer', 'real', 'text')
+    """
+    kinds = {type(x) for v in lists if isinstance(v, (list, tuple)) for x in v if x is not None}
+    if kinds == {int}:
+        values = [x for v in lists if isinstance(v, (list, tuple)) for x in v if x is not None]
+        return "integer" if -(1 << 63) <= min(values) and max(values) < (1 << 63) else "text"
+    if kinds and kinds <= {int, float}:
+        return "real"  # numbers: an integer among them comes back as 3.0 and is traced as the 3 it was
+    return {frozenset([bool]): "boolean"}.get(frozenset(kinds), "text")
 
 
 def _group_entities(plan, entity_lists, options: Options, tables: Namer) -> None:

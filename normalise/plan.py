@@ -88,6 +88,7 @@ class NestedColumn:
     path: str = ""  # path inside the record's column, for nested lists
     identity: str = ""  # identity field of an entity list
     matched: bool = False  # objects matched on the identity field's normalised text
+    value_type: str = "text"  # a value list's values: integer, real, boolean or text (a list of numbers stays numbers)
     separator: str = ""  # a delimited column's separator text between values (", "): the cell is the values joined
 
 

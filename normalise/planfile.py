@@ -135,6 +135,8 @@ def _nested_toml(nested: NestedColumn, header: str) -> list[str]:
         out.append(f"values_table = {_v(nested.entity)}")
         if nested.separator:
             out.append(f"separator = {_v(nested.separator)}  # between the values of a delimited cell")
+        if nested.value_type != "text":
+            out.append(f"value_type = {_v(nested.value_type)}  # integer | real | boolean | text")
     label = {"entity-list": "link attributes (kept on the bridge)", "child-list": "fields",
              "object-columns": "record columns", "object-child": "fields"}.get(nested.kind)
     if label:
@@ -379,6 +381,12 @@ def _nested_from(text: str, n: dict, columns: dict, handles: dict, plan: Plan) -
                           identity=n.get("identity", ""), matched=bool(n.get("matched", False)),
                           links=_maps(text, n.get("fields"), f"{column}.fields"))
     nested.children = [_nested_from(text, c, columns, handles, plan) for c in n.get("children", [])]
+    if kind == "value-list":
+        value_type = n.get("value_type", "text")
+        if value_type not in ("integer", "real", "boolean", "text"):
+            _fail(text, f"nested column {column!r}: value_type {value_type!r}", "use integer, real, boolean or text",
+                  f'value_type = "{value_type}"')
+        nested.value_type = value_type
     decoded = columns.get(column) if "path" not in n else None
     if kind == "value-list" and getattr(decoded, "encoding", None) == "delimited":
         nested.separator = str(n.get("separator", decoded.join_separator or decoded.separator or ""))

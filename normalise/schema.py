@@ -105,7 +105,7 @@ def _nested_tables(plan: Plan, nested: NestedColumn, owner: str, owner_key: str)
         value_column = singular(nested.entity) if not nested.entity.endswith("_value") else "value"
         plan.tables.append(Table(nested.entity, "entity",
                                  [Column(value_key, "integer", nullable=False),
-                                  Column(value_column, "text", nullable=False, unique=True)],
+                                  Column(value_column, nested.value_type, nullable=False, unique=True)],
                                  [value_key], natural_key=[value_column], sources=source))
         value_column = names(value_key)
         cols.append(Column(value_column, "integer", nullable=False))

@@ -58,3 +58,23 @@ def test_table_names_are_singular_nouns():
     # English plurals (common practice): aliases, suffixes, series, status, cookies
     assert [singular(w) for w in ("aliases", "suffixes", "series", "status", "cookies", "categories")] == [
         "alias", "suffix", "series", "status", "cookie", "category"]
+
+
+def test_a_list_of_numbers_keeps_numbers(tmp_path):
+    # JSON numbers (RFC 8259 section 6) in a list: an INTEGER value table when every value is an integer, a
+    # REAL one when some have a fraction; SQLite's typeof() says what each stored value is
+    cells = {"A": [33, 65], "B": [44, 21], "C": [2, 3, 3]}
+    path = tmp_path / "points.csv"
+    write_rows(path, ["key", "steps", "latlng"],
+               [(k, json.dumps(v), json.dumps([x + 0.5 for x in v] if k == "C" else v)) for k, v in cells.items()])
+    m = build_database([str(path)], str(tmp_path / "out.db"))
+    assert m["integrity"]["proof"] == "exact"
+    with sqlite3.connect(tmp_path / "out.db") as con:
+        steps = con.execute("SELECT DISTINCT typeof(step) FROM step").fetchall()
+        got = con.execute('SELECT r."key", v.step FROM point_steps b JOIN step v USING (step_sk) '
+                          'JOIN points r USING (point_sk) ORDER BY r."key", b.list_position').fetchall()
+        latlng = con.execute("SELECT DISTINCT typeof(latlng) FROM latlng").fetchall()
+    assert steps == [("integer",)] and latlng == [("real",)]
+    assert got == [(k, x) for k, v in cells.items() for x in v]
+    # 33 beside 2.5 is held as 33.0 in the REAL table; the cell as given is kept in value_traces
+    assert m["integrity"]["traced_by_reason"] == {"the cell as given (its rows differ)": 2}
