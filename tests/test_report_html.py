@@ -478,7 +478,7 @@ def test_report_renders_in_chromium(demo, tmp_path):
     assert dumped.returncode == 0, dumped.stderr[-2000:]
     assert console_messages(dumped.stderr) == []
     dom = dumped.stdout
-    assert len(BOX.findall(dom)) == len(tables_of(demo["db"])) == 14
+    assert len(BOX.findall(dom)) == len(tables_of(demo["db"])) == 15  # 8 data tables, 7 bookkeeping tables
     assert len(re.findall(r'<svg class="chart', dom)) >= 7  # 3 entity charts and 4 list-length charts
     shot = tmp_path / "report.png"
     taken = run_chromium(page, tmp_path / "profile", f"--screenshot={shot}", "--window-size=1600,2400",
@@ -500,7 +500,7 @@ def test_fifty_table_report_renders_in_chromium(tmp_path):
     dumped = run_chromium(page, tmp_path / "profile", "--dump-dom")
     assert dumped.returncode == 0, dumped.stderr[-2000:]
     assert console_messages(dumped.stderr) == []
-    assert len(BOX.findall(dumped.stdout)) == 50
+    assert len(BOX.findall(dumped.stdout)) == 51  # 44 data tables and the 7 bookkeeping tables
     shot = tmp_path / "s50.png"
     run_chromium(page, tmp_path / "profile", f"--screenshot={shot}", "--window-size=1600,2400", "--hide-scrollbars")
     assert shot.is_file()
