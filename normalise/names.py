@@ -31,7 +31,7 @@ def sql_name(text: str) -> str:
 _IRREGULAR = {"people": "person", "children": "child", "men": "man", "women": "woman", "data": "data",
               "series": "series", "species": "species", "news": "news", "status": "status"}
 # -ies words whose singular ends in -ie, not -y (English spelling, common practice)
-_IE = frozenset(["cookies", "movies", "calories", "pies", "ties", "lies", "zombies", "selfies", "brownies"])
+_IE = frozenset(["cookies", "rookies", "calories", "pies", "ties", "lies", "zombies", "selfies", "brownies"])
 # plurals in -es after a sibilant: box -> boxes, match -> matches, wish -> wishes, address -> addresses,
 # alias -> aliases, status -> statuses (English spelling, common practice)
 _SIBILANT_ES = ("xes", "ches", "shes", "sses", "zzes", "iases", "tuses", "suses")
