@@ -15,14 +15,11 @@ import sqlite3
 from .build import canonical, value_text
 from .errors import NormaliseError
 from .plan import Plan
+from .names import quote_name as _q
 
 
 class SchemaMismatch(NormaliseError):
     """The database was not built from this plan: --append would mix two models."""
-
-
-def _q(name: str) -> str:
-    return '"' + name.replace('"', '""') + '"'
 
 
 def read_state(database: str, plan: Plan) -> dict:

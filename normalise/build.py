@@ -22,8 +22,8 @@ from itertools import chain
 import numpy as np
 
 from .errors import NormaliseError
-from .exact import (ABSENT, expect_cell, expect_element, get, json_text, literal, pointer, same, store,
-                    stored_back, value_key)
+from .exact import (ABSENT, VALUE_TYPES, expect_cell, expect_element, get, is_negative_zero, json_text, literal,
+                    pointer, same, store, stored_back, value_key)
 from .infer import get_path, match_key
 from .plan import NestedColumn, Plan, RecordSource
 from .prove import InputDigests
@@ -241,15 +241,13 @@ class _Audit:
         for (path, column, key), (line, n) in self.unplanned.items():
             self.quarantine.append((path, line, f"{column}.{key}", None, f"key {key!r}",
                                     f"key {key!r} appears in {n} object(s) from this line on but is not in the "
-                                    f"model (inferred from the first records); its values were not stored: "
-                                    f"write a plan with `normalise plan` and add it"))
+                                    f"model (inferred from the first records); its values are kept as given in "
+                                    f"value_traces, not in columns: write a plan with `normalise plan` and add it"))
         for (path, column, type_), (line, n, example) in self.mismatched.items():
             self.quarantine.append((path, line, column, None, repr(example)[:40],
                                     f"{n} value(s) from this line on are not {type_}, the column's type "
-                                    f"(inferred from the first records); they were stored as NULL"))
-
-
-_ABSENT = object()  # a key an object does not have (None is a value: null)
+                                    f"(inferred from the first records); the column holds NULL (a text column "
+                                    f"their text) and value_traces each value as given"))
 
 
 class _ValueTable:
@@ -258,6 +256,16 @@ class _ValueTable:
     def __init__(self):
         self.rows: dict[str, tuple] = {}  # canonical -> (sk, value)
         self.new: list[tuple] = []
+
+    def key(self, value, value_type: str) -> int:
+        """The surrogate key of a value of the list, its row made when first seen."""
+        text = value_text(value, value_type)
+        entry = self.rows.get(text)
+        if entry is None:
+            stored = store(value, value_type)[0] if value_type != "text" else to_sql_value(value, "text")
+            entry = self.rows[text] = (key_of(text), stored)
+            self.new.append(entry)
+        return entry[0]
 
 
 class _Entities:
@@ -583,13 +591,13 @@ class Builder:
         type) are handled one by one.
         """
         items, owners, positions, rows_of = [], [], [], []
-        untraced = set()  # rows whose cell needs a trace of its own (kept as given)
+        whole = set()  # rows whose cell the rows cannot give back: kept whole in value_traces
         for i in kept:
             v = values[i]
             if v is None:
                 continue
             if type(v) is not list:
-                untraced.add(i)  # a tuple, or one value where a list is expected: the rows hold a list
+                whole.add(i)  # a tuple, or one value where a list is expected: the rows hold a list
             if not isinstance(v, (list, tuple)):
                 v = [v]
             n = len(v)
@@ -621,16 +629,15 @@ class Builder:
         if nested.kind == "entity-list" and idents is not None:
             want = int if identity_type == "integer" else str
             if nested.matched:
-                untraced.update(rows_of[k] for k, o in enumerate(items) if type(o.get(nested.identity)) is not str)
+                whole.update(rows_of[k] for k, o in enumerate(items) if type(o.get(nested.identity)) is not str)
             elif not set(map(type, idents)) <= {want}:
-                untraced.update(rows_of[k] for k, v in enumerate(idents) if type(v) is not want)
+                whole.update(rows_of[k] for k, v in enumerate(idents) if type(v) is not want)
         if nested.kind == "value-list":
-            want = {"text": str, "integer": int, "real": float, "boolean": bool}[nested.value_type]
+            want = VALUE_TYPES[nested.value_type]
             if not set(map(type, items)) <= {want} or (want is float and 0.0 in items):
-                untraced.update(rows_of[k] for k, x in enumerate(items) if type(x) is not want
-                                or want is float and x == 0.0 and str(x)[0] == "-")
+                whole.update(rows_of[k] for k, x in enumerate(items) if type(x) is not want or is_negative_zero(x))
         if bad:
-            untraced.update(rows_of[k] for k in bad)
+            whole.update(rows_of[k] for k in bad)
             for k in bad:
                 x = items[k]
                 message = ("null element in a list" if x is None else "nested element in a list of values"
@@ -645,7 +652,7 @@ class Builder:
             if idents is not None:
                 idents = [idents[k] for k in keep]
         if not items:
-            self._trace_cells(record, nested, values, untraced, record_keys, export)
+            self._trace_cells(record, nested, values, whole, record_keys, export)
             return
         if max(owners) < _RECORD_KEY_LIMIT and max(positions) < (1 << _POSITION_BITS):
             keys = [(o << _POSITION_BITS) | p for o, p in zip(owners, positions)]
@@ -658,15 +665,9 @@ class Builder:
             if found is None:
                 found = self.values[nested.entity] = _ValueTable()
             vt = nested.value_type
-            texts = [value_text(x, vt) for x in items]
-            for text, x in zip(texts, items):
-                if text not in found.rows:
-                    entry = found.rows[text] = (key_of(text), store(x, vt)[0] if vt != "text" else
-                                                to_sql_value(x, "text"))
-                    found.new.append(entry)
-            table.extend(zip(keys, owners, [found.rows[t][0] for t in texts], positions))
+            table.extend(zip(keys, owners, [found.key(x, vt) for x in items], positions))
             c.elements_written += len(keys)
-            self._trace_cells(record, nested, values, untraced, record_keys, export)
+            self._trace_cells(record, nested, values, whole, record_keys, export)
             return
         known = audit.known(nested, self.entities)
         bridge, path = nested.table, export.path
@@ -684,11 +685,11 @@ class Builder:
                 back = expect_element(nested, o, group.identity_type if group else None,
                                          group.attributes if group else ())
                 if not same(back, o):
-                    untraced.add(rows_of[k])
+                    whole.add(rows_of[k])
         if not set(map(type, chain.from_iterable(items))) <= {str}:
             # a key that is not text (a Python literal's {1: 'a'}): the plan names fields by text, so the
             # cell is kept whole
-            untraced.update(rows_of[k] for k, o in enumerate(items) if not set(map(type, o)) <= {str})
+            whole.update(rows_of[k] for k, o in enumerate(items) if not set(map(type, o)) <= {str})
         if not set(chain.from_iterable(items)) <= known:
             for k, (o, i) in enumerate(zip(items, rows_of)):
                 if not o.keys() <= known:
@@ -728,7 +729,7 @@ class Builder:
         else:
             table.extend(zip(keys, owners, positions, *links))
         c.elements_written += len(keys)
-        self._trace_cells(record, nested, values, untraced, record_keys, export)
+        self._trace_cells(record, nested, values, whole, record_keys, export)
 
     def _trace_cells(self, record, nested: NestedColumn, values: list, rows: set, record_keys, export) -> None:
         for i in sorted(rows):
@@ -1041,16 +1042,10 @@ def _nested_rows(builder: "Builder", nested: NestedColumn, value, owner_sk: int,
                                     "null element in a list" if item is None else "nested element in a list of values"
                                     if isinstance(item, (dict, list, tuple)) else f"not {vt}, the list's type", c)
                 continue
-            text = value_text(item, vt)
             found = values.get(nested.entity)
             if found is None:
                 found = values[nested.entity] = _ValueTable()
-            entry = found.rows.get(text)
-            if entry is None:
-                entry = found.rows[text] = (key_of(text), store(item, vt)[0] if vt != "text" else
-                                            to_sql_value(item, "text"))
-                found.new.append(entry)
-            table.append((sk, owner_sk, entry[0], position))
+            table.append((sk, owner_sk, found.key(item, vt), position))
             c.elements_written += 1
             continue
         if not isinstance(item, dict):

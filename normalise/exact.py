@@ -12,6 +12,7 @@ from __future__ import annotations
 
 import ast
 import json
+import math
 from hashlib import blake2b
 
 _INT64_MIN, _INT64_MAX = -(1 << 63), (1 << 63) - 1
@@ -34,6 +35,16 @@ def value_key(value):
     if kind is float:
         return (kind, repr(value))
     return (kind, canonical_text(value))
+
+
+def is_negative_zero(value) -> bool:
+    """Whether a value is the float -0.0, which SQLite gives back as 0.0 (so it is traced, never stored as such).
+
+    Example:
+        >>> is_negative_zero(-0.0), is_negative_zero(0.0), is_negative_zero(0)
+        (True, False, False)
+    """
+    return type(value) is float and value == 0.0 and math.copysign(1.0, value) < 0
 
 
 def to_column(value, type_: str, as_text: bool):
@@ -119,7 +130,7 @@ def store(value, type_: str, as_text: bool = False):
             # none); the value itself is not held, so it is kept in value_traces
             return json_text(value), False
         return None, value is None
-    if type(stored) is float and stored == 0.0 and str(stored)[0] == "-":
+    if is_negative_zero(stored):
         return 0.0, False  # SQLite gives a REAL -0.0 back as 0.0 (its sign is kept in value_traces)
     if same(stored_back(stored, type_, as_text), value):
         return stored, True
@@ -276,33 +287,25 @@ _encode = json.JSONEncoder(ensure_ascii=False, sort_keys=True, check_circular=Fa
 
 
 def keyed_digest(key: int, value, pure: bool = False) -> int:
-    """``digest`` of the value with a record key before it, as a 128-bit number (one hash, not two)."""
-    if pure or _json_pure(value):
-        text = "j" + _encode(value)
-    else:
-        text = "c" + canonical_text(value)
-    return int.from_bytes(blake2b(key.to_bytes(9, "big", signed=True) + text.encode("utf-8", "surrogatepass"),
-                                  digest_size=16).digest(), "big")
-
-
-def digest(value, pure: bool = False) -> bytes:
-    """16 bytes that are equal for two values exactly when ``same`` holds.
+    """A 128-bit number that is equal for two (record key, value) pairs exactly when the keys are and ``same``
+    holds for the values.
 
     ``pure`` says the value holds only what JSON holds (dicts with text keys,
     lists, text, numbers, booleans, None), as every cell of a JSON column does:
     then ``json.dumps`` with sorted keys is the canonical text, in C.
 
     Example:
-        >>> digest({"a": 1, "b": [2.0]}, True) == digest({"b": [2.0], "a": 1})
+        >>> keyed_digest(7, {"a": 1, "b": [2.0]}, True) == keyed_digest(7, {"b": [2.0], "a": 1})
         True
-        >>> digest([1]) == digest((1,)), digest([1]) == digest([True])
+        >>> keyed_digest(7, [1]) == keyed_digest(7, (1,)), keyed_digest(7, [1]) == keyed_digest(7, [True])
         (False, False)
     """
     if pure or _json_pure(value):
         text = "j" + _encode(value)
     else:
         text = "c" + canonical_text(value)
-    return blake2b(text.encode("utf-8", "surrogatepass"), digest_size=16).digest()
+    return int.from_bytes(blake2b(key.to_bytes(9, "big", signed=True) + text.encode("utf-8", "surrogatepass"),
+                                  digest_size=16).digest(), "big")
 
 
 # --- paths inside a value (JSON Pointer, RFC 6901) ------------------------------------
@@ -356,7 +359,7 @@ class _Mismatch:
 
 
 NOT_HELD = _Mismatch()
-_VALUE_TYPES = {"text": str, "integer": int, "real": float, "boolean": bool}
+VALUE_TYPES = {"text": str, "integer": int, "real": float, "boolean": bool}  # a value list's type: its values
 
 
 def field_back(value, f):
@@ -425,8 +428,7 @@ def _object_expected(nested, obj: dict, identity_type, attributes) -> dict:
 def expect_element(nested, x, identity_type, attributes):
     kind = nested.kind
     if kind == "value-list":
-        if type(x) is not _VALUE_TYPES.get(getattr(nested, "value_type", "text")) or (
-                type(x) is float and x == 0.0 and str(x)[0] == "-"):
+        if type(x) is not VALUE_TYPES[nested.value_type] or is_negative_zero(x):
             return NOT_HELD  # a value of another type than the list's (or a null, a list, -0.0) is not held
         return x
     if type(x) is not dict:

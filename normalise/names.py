@@ -14,6 +14,17 @@ _UNSAFE = re.compile(r"[^a-z0-9_]+")
 MAX_NAME = 60
 
 
+def quote_name(name: str) -> str:
+    """A name as an SQL identifier in double quotes, a quote inside it doubled (SQL-92; SQLite and PostgreSQL
+    read it so), so no name can change the statement around it.
+
+    Example:
+        >>> quote_name('t"; DROP TABLE x; --')
+        '"t""; DROP TABLE x; --"'
+    """
+    return '"' + str(name).replace('"', '""') + '"'
+
+
 def sql_name(text: str) -> str:
     """A lower-case SQL identifier for a name from the data.
 

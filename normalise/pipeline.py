@@ -13,6 +13,7 @@ from .decode import decode, paused_gc
 from .infer import Options, infer_plan
 from .join import JoinOptions, join
 from .literal import Limits
+from .names import quote_name
 from .prove import LossDetected, loss_message, prove, sqlite_fetch
 from .planfile import join_settings, plan_from_doc, plan_to_toml, read_plan
 from .read import iter_chunks, read
@@ -277,8 +278,8 @@ def _build_streaming(path: str, database: str, *, options: Options | None, limit
             if progress:
                 progress(done, getattr(chunk, "chars_read", 0))
         def occurrences(bridge: str, sks: set):
-            cols = [c.name for c in plan.table(bridge).columns]
-            query = (f'SELECT "{cols[0]}", "{cols[1]}", "{cols[3]}", "{cols[2]}" FROM "{bridge}"')
+            cols = [quote_name(c.name) for c in plan.table(bridge).columns]
+            query = f"SELECT {cols[0]}, {cols[1]}, {cols[3]}, {cols[2]} FROM {quote_name(bridge)}"
             return [r for r in writer.cursor.execute(query) if r[3] in sks]
 
         built = builder.finish(occurrences)

@@ -18,6 +18,7 @@ from operator import itemgetter
 
 from .errors import NormaliseError
 from .exact import ABSENT, from_literal, keyed_digest, object_back, pointer, pointer_keys, put, same, stored_back
+from .names import quote_name as _q
 
 _MOD = 1 << 128
 
@@ -114,10 +115,6 @@ def _tables_of(nested) -> set:
     for child in nested.children:
         found |= _tables_of(child)
     return found
-
-
-def _q(name: str) -> str:
-    return '"' + name.replace('"', '""') + '"'
 
 
 def _traces(fetch, record_tables: set) -> dict:

@@ -31,6 +31,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 
 import networkx as nx
+from .names import quote_name as _q
 
 META_TABLES = {"rejected_rows": "rejected", "set_aside_rows": "set_aside", "unmatched_rows": "unmatched",
                "quarantined_cells": "quarantine", "attribute_variants": "variants", "name_map": "names",
@@ -78,10 +79,6 @@ def esc(value, limit: int | None = None) -> str:
         '&lt;img src=x onerror=&quot;alert(1)&quot;&gt;'
     """
     return html.escape(shorten(clean(value), limit), quote=True)
-
-
-def _q(name: str) -> str:
-    return '"' + str(name).replace('"', '""') + '"'
 
 
 def _n(count: int, noun: str) -> str:

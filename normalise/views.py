@@ -16,6 +16,7 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 
 from .plan import Plan, Table
+from .names import quote_name as _q
 
 LIST_SEPARATOR = "; "
 _DISPLAY_NAMES = ("name", "display_name", "full_name", "title", "label")
@@ -91,10 +92,6 @@ def _free(name: str, taken: set) -> str:
         n += 1
     taken.add(name)
     return name
-
-
-def _q(name: str) -> str:
-    return '"' + name.replace('"', '""') + '"'
 
 
 def _lit(value: str) -> str:

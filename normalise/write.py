@@ -20,6 +20,7 @@ from sqlalchemy import event
 from .errors import NormaliseError
 from .plan import Plan
 from .views import view_sql
+from .names import quote_name as _quote
 
 TYPES = {
     "integer": sa.BigInteger,
@@ -133,10 +134,6 @@ def metadata_for(plan: Plan) -> sa.MetaData:
                 continue  # a key that starts with these columns already indexes them
             sa.Index(f"ix_{t.name}_{'_'.join(fk.columns)}", *[table.c[c] for c in fk.columns])
     return md
-
-
-def _quote(name: str) -> str:
-    return '"' + name.replace('"', '""') + '"'
 
 
 def _foreign_keys_on(dbapi_connection, _record) -> None:

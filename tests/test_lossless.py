@@ -478,12 +478,18 @@ def _traced(traces, table, row_sk, column, keys: list, value) -> bool:
     return False
 
 
-def test_values_of_another_type_after_the_sample_are_traced_never_coerced(tmp_path, monkeypatch):
+@pytest.fixture
+def late_types(tmp_path, monkeypatch):
+    """The export of ``_late_types_export`` built with a five-record sample: (manifest, database, export)."""
     monkeypatch.setattr(pipeline, "SAMPLE_ROWS", 5)
     path = tmp_path / "items.jsonl"
     _late_types_export(path)
     db = tmp_path / "out.db"
-    m = build_database([str(path)], str(db))
+    return build_database([str(path)], str(db)), db, path
+
+
+def test_values_of_another_type_after_the_sample_are_traced_never_coerced(late_types):
+    m, db, path = late_types
     assert_exact(m, 5 * 7)  # seven records, five non-empty cells each
     (entity,) = m["entities"]
     e = entity["table"]
@@ -542,12 +548,8 @@ def check_jsonl_round_trip(db, m, plan, path) -> None:
             assert column in back and same(back[column], value), (key, column, value, back.get(column))
 
 
-def test_object_column_values_of_another_type_are_named_in_quarantined_cells(tmp_path, monkeypatch):
-    monkeypatch.setattr(pipeline, "SAMPLE_ROWS", 5)
-    path = tmp_path / "items.jsonl"
-    _late_types_export(path)
-    db = tmp_path / "out.db"
-    m = build_database([str(path)], str(db))
+def test_object_column_values_of_another_type_are_named_in_quarantined_cells(late_types):
+    m, db, path = late_types
     assert_exact(m)
     with sqlite3.connect(db) as con:
         quarantined = {r[0] for r in con.execute("SELECT column_name FROM quarantined_cells")}
