@@ -167,3 +167,27 @@ def build_jsonl(rows: list[dict], where, stem: str) -> tuple:
             f.write(json.dumps(row, ensure_ascii=False) + "\n")
     db = where / f"{stem}.db"
     return rows, db, build_database([str(path)], str(db))
+
+
+def npm_package(name: str, version: str, where):
+    """The files of one npm package at one version (``npm pack``, then the tarball unpacked): its folder.
+
+    Skips the test when npm or the registry is not at hand, as the PyPI downloads of the other tests do.
+    """
+    import shutil
+    import subprocess
+    import tarfile
+
+    import pytest
+
+    npm = shutil.which("npm")
+    if npm is None:
+        pytest.skip("npm is not installed here")
+    done = subprocess.run([npm, "pack", f"{name}@{version}", "--pack-destination", str(where), "--silent"],
+                          capture_output=True, text=True, timeout=180, cwd=str(where))
+    found = sorted(where.glob("*.tgz"))
+    if done.returncode != 0 or not found:
+        pytest.skip(f"npm could not fetch {name}@{version} (no registry here?): {done.stderr.strip()[-300:]}")
+    with tarfile.open(found[0]) as tar:
+        tar.extractall(where, filter="data")
+    return where / "package"
