@@ -147,7 +147,8 @@ def value_text(value, type_: str) -> str:
     if type(value) is str:
         return "text:" + value
     if type_ == "real" and type(value) in (int, float):
-        return "real:" + repr(float(value))  # 44 and 44.0 are one REAL value (the 44 is traced)
+        # 44 and 44.0 are one REAL value (the 44 is traced); so are -0.0 and 0.0, one value to SQL's UNIQUE
+        return "real:" + repr(float(value) + 0.0)
     return canonical(value, type_)
 
 
