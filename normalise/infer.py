@@ -652,7 +652,8 @@ def keyed_shape(objects: list[dict]) -> str:
 
     The evidence, over every object of a column: many distinct keys in all (more than a wide object's
     ``WIDE_OBJECT_KEYS``), or keys that each turn up in a few objects only (the objects fill at most half
-    of the key-by-object grid); keys that look like codes (short, no spaces, most of one form: "EUR" and
+    of the key-by-object grid, and at most a fifth of the keys are in nearly every object: a few fixed
+    keys with rare extras are fields); keys that look like codes (short, no spaces, most of one form: "EUR" and
     "USD" are both three capitals); and values of one shape (all scalars, or all objects with a few fields).
 
     Example:
@@ -670,7 +671,9 @@ def keyed_shape(objects: list[dict]) -> str:
     if not all(type(k) is str and _CODE_KEY.fullmatch(k) for k in counts):
         return ""
     many = distinct > WIDE_OBJECT_KEYS
-    varying = distinct >= KEYED_MIN_VARYING and 2 * sum(counts.values()) <= len(objects) * distinct
+    shared = sum(n >= 0.9 * len(objects) for n in counts.values())  # keys nearly every object has
+    varying = (distinct >= KEYED_MIN_VARYING and 2 * sum(counts.values()) <= len(objects) * distinct
+               and 5 * shared <= distinct)
     if not (many or varying):
         return ""
     if Counter(map(_key_form, counts)).most_common(1)[0][1] < 0.8 * distinct:
