@@ -489,8 +489,10 @@ def keyed_object(items, key: str, value_field: str = ""):
     """The object keyed by data that ``keyed_items`` read as ``items`` (anything else is given back as it is).
 
     Example:
-        >>> keyed_object([{"code": "EUR", "name": "Euro"}], "code"), keyed_object([{"code": "deu", "value": "German"}], "code", "value")
-        ({'EUR': {'name': 'Euro'}}, {'deu': 'German'})
+        >>> keyed_object([{"code": "EUR", "name": "Euro"}], "code")
+        {'EUR': {'name': 'Euro'}}
+        >>> keyed_object([{"code": "deu", "value": "German"}], "code", "value")
+        {'deu': 'German'}
     """
     if type(items) is not list or not all(type(x) is dict and type(x.get(key)) is str for x in items):
         return items

@@ -661,7 +661,8 @@ def keyed_shape(objects: list[dict]) -> str:
         ...         {"GBP": {"name": "Pound"}}, {"EUR": {"name": "Euro"}, "CHF": {"name": "Franc"}}]
         >>> keyed_shape(rows), keyed_shape([{"city": "X", "zip": "1"}, {"city": "Y", "zip": "2"}])
         ('objects', '')
-        >>> keyed_shape([{"deu": "German"}, {"fra": "French"}, {"ita": "Italian"}, {"nld": "Dutch"}, {"por": "Portuguese"}])
+        >>> keyed_shape([{"deu": "German"}, {"fra": "French"}, {"ita": "Italian"}, {"nld": "Dutch"},
+        ...              {"por": "Portuguese"}])
         'scalars'
     """
     counts = Counter(chain.from_iterable(objects))

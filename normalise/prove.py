@@ -17,7 +17,8 @@ import sqlite3
 from operator import itemgetter
 
 from .errors import NormaliseError
-from .exact import ABSENT, from_literal, keyed_digest, keyed_object, object_back, pointer, pointer_keys, put, same, stored_back
+from .exact import (ABSENT, from_literal, keyed_digest, keyed_object, object_back, pointer, pointer_keys, put, same,
+                    stored_back)
 from .names import quote_name as _q
 
 _MOD = 1 << 128

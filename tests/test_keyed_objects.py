@@ -43,7 +43,8 @@ def test_repeating_group_is_a_relation_keyed_by_owner_and_key(tmp_path):
     assert {"address_city", "address_zip"} <= {c["name"] for c in record["columns"]}
     assert not any("p_10" in c["name"] for c in record["columns"])
     # part codes recur across stores: the codes are an entity, each store's stock a bridge row per code
-    (stock,) = [t for t in m["tables"] if {"file": "stores", "column": "stock"} in t["sources"] and t["role"] == "bridge"]
+    (stock,) = [t for t in m["tables"]
+                if {"file": "stores", "column": "stock"} in t["sources"] and t["role"] == "bridge"]
     (fk,) = [fk for fk in stock["foreign_keys"] if fk["references"] != "stores"]
     part, (part_key,) = tables[fk["references"]], fk["columns"]
     (code,) = part["natural_key"]
