@@ -22,8 +22,8 @@ from itertools import chain
 import numpy as np
 
 from .errors import NormaliseError
-from .exact import (ABSENT, VALUE_TYPES, expect_cell, expect_element, get, is_negative_zero, json_text, literal,
-                    pointer, same, store, stored_back, value_key)
+from .exact import (ABSENT, VALUE_TYPES, expect_cell, expect_element, get, is_negative_zero, json_text, keyed_items,
+                    literal, pointer, same, store, stored_back, value_key)
 from .infer import get_path, match_key
 from .plan import NestedColumn, Plan, RecordSource
 from .prove import InputDigests
@@ -511,6 +511,7 @@ class Builder:
                                 col.impure)
         scalar_cols = [self._stored_column(record, f, columns[f.path[0]].values, kept, record_keys, export)
                        for f in record.scalars]
+        columns = self._keyed_columns(record, columns, kept, record_keys, export)
         out = rows[record.table]
         object_columns = [n for n in record.nested if n.kind == "object-columns"]
         columnar = [n for n in record.nested if _is_columnar(n)]
@@ -540,9 +541,37 @@ class Builder:
                 if value is None:
                     continue
                 _nested_rows(self, nested, value, sk, export, i, rows, c)
-                self._check_cell(record, nested, value, sk, export, i)
+                self._check_cell(record, nested, value, sk, export, i, columns[nested.column])
         for nested in columnar:
-            self._list_rows(nested, columns[nested.column].values, kept, record_keys, export, c, record)
+            self._list_rows(nested, columns[nested.column].values, kept, record_keys, export, c, record,
+                            getattr(columns[nested.column], "given", None))
+
+    def _keyed_columns(self, record: RecordSource, columns: dict, kept: list[int], record_keys, export) -> dict:
+        """The columns with each object keyed by data read as its list (``exact.keyed_items``), once, here.
+
+        The input digests were taken on the cells as given, so the proof compares the objects rebuilt from
+        the rows with them. A cell that does not fit the keyed form (a key that is not text, a value of
+        another shape) makes no rows and is kept whole in value_traces.
+        """
+        keyed = [n for n in record.nested if n.keyed]
+        if not keyed:
+            return columns
+        columns = dict(columns)
+        for nested in keyed:
+            given = columns[nested.column].values
+            values = [None] * len(given)
+            for i in kept:
+                v = given[i]
+                if v is None:
+                    continue
+                items = keyed_items(v, nested.keyed, nested.keyed_value)
+                if items is None:
+                    self.trace(record.table, record_keys[i], None, None, nested.column, "",
+                               "the cell as given (not an object keyed by data of the column's form)", v,
+                               export.path, export.lines[i])
+                values[i] = items
+            columns[nested.column] = _KeyedColumn(values, {i: given[i] for i in kept if given[i] is not None})
+        return columns
 
     def _stored_column(self, record: RecordSource, f, values: list, kept: list[int], record_keys, export) -> list:
         """A scalar column's stored values for the kept records; values it cannot give back are traced."""
@@ -606,17 +635,18 @@ class Builder:
                 out.append(store(get_path(item, f.path), f.type, f.as_text)[0])
         return out
 
-    def _check_cell(self, record: RecordSource, nested: NestedColumn, value, sk: int, export, i: int) -> None:
+    def _check_cell(self, record: RecordSource, nested: NestedColumn, value, sk: int, export, i: int,
+                    col=None) -> None:
         """A cell of the per-object path that its rows do not give back exactly is traced whole."""
         group = self.entities[nested.entity].group if nested.kind == "entity-list" else None
         expected = expect_cell(nested, value, group.identity_type if group else None,
                                group.attributes if group else (), self.groups)
         if not same(expected, value):
             self.trace(record.table, sk, None, None, nested.column, "", "the cell as given (its rows differ)",
-                       value, export.path, export.lines[i])
+                       getattr(col, "given", {}).get(i, value), export.path, export.lines[i])
 
     def _list_rows(self, nested: NestedColumn, values: list, kept: list[int], record_keys: list[int], export,
-                   c: FileCounts, record: RecordSource) -> None:
+                   c: FileCounts, record: RecordSource, given: dict | None = None) -> None:
         """Bridge or child rows of one list column for a whole chunk, a column at a time.
 
         Gives exactly the rows the per-object path gives; objects that need
@@ -685,7 +715,7 @@ class Builder:
             if idents is not None:
                 idents = [idents[k] for k in keep]
         if not items:
-            self._trace_cells(record, nested, values, whole, record_keys, export)
+            self._trace_cells(record, nested, values, whole, record_keys, export, given)
             return
         if max(owners) < _RECORD_KEY_LIMIT and max(positions) < (1 << _POSITION_BITS):
             keys = [(o << _POSITION_BITS) | p for o, p in zip(owners, positions)]
@@ -700,7 +730,7 @@ class Builder:
             vt = nested.value_type
             table.extend(zip(keys, owners, [found.key(x, vt) for x in items], positions))
             c.elements_written += len(keys)
-            self._trace_cells(record, nested, values, whole, record_keys, export)
+            self._trace_cells(record, nested, values, whole, record_keys, export, given)
             return
         known = audit.known(nested, self.entities)
         bridge, path = nested.table, export.path
@@ -767,12 +797,14 @@ class Builder:
         else:
             table.extend(zip(keys, owners, positions, *links))
         c.elements_written += len(keys)
-        self._trace_cells(record, nested, values, whole, record_keys, export)
+        self._trace_cells(record, nested, values, whole, record_keys, export, given)
 
-    def _trace_cells(self, record, nested: NestedColumn, values: list, rows: set, record_keys, export) -> None:
+    def _trace_cells(self, record, nested: NestedColumn, values: list, rows: set, record_keys, export,
+                     given: dict | None = None) -> None:
+        given = given or {}
         for i in sorted(rows):
             self.trace(record.table, record_keys[i], None, None, nested.column, "",
-                       "the cell as given (its rows differ)", values[i], export.path, export.lines[i])
+                       "the cell as given (its rows differ)", given.get(i, values[i]), export.path, export.lines[i])
 
     def _trace_occurrences(self, table: str, acc: _Entities, held: list, occurrences) -> None:
         """Trace every occurrence whose own value of an attribute is not the one its entity row gives back."""
@@ -883,6 +915,14 @@ class Builder:
                      cells_quarantined_by_file=dict(self.quarantined_by_file), updates=updates,
                      inputs=self.inputs, trace_reasons=dict(self.trace_reasons), kept=self.kept,
                      rejoined=dict(self.rejoined))
+
+
+@dataclass
+class _KeyedColumn:
+    """A column of objects keyed by data, read as lists (``values``), with the cells as given (``given``)."""
+
+    values: list
+    given: dict  # row -> the cell as given, for the traces of whole cells
 
 
 def delimited_texts(col, rows: list[int], sep: str) -> list:
@@ -1147,6 +1187,8 @@ def _lists_inside(builder: "Builder", nested: NestedColumn, obj: dict, owner_sk:
     """Rows of the lists inside one object (grandchild tables), owned by ``owner_sk``."""
     for child in nested.children:
         inner = get_path(obj, child.path.split("."))
+        if child.keyed and isinstance(inner, dict):  # read as its list; one that does not fit is kept whole
+            inner = keyed_items(inner, child.keyed, child.keyed_value)
         if inner:
             _nested_rows(builder, child, inner, owner_sk, export, i, rows, c)
 

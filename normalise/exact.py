@@ -466,6 +466,9 @@ def _object_expected(nested, obj: dict, identity_type, attributes, groups=None) 
     for child in nested.children:
         keys = child.path.split(".")
         inner = get(obj, keys)
+        if getattr(child, "keyed", "") and type(inner) is dict:
+            put(out, keys, _keyed_expected(child, inner, identity_type, attributes))
+            continue
         if inner is ABSENT or inner is None or (type(inner) is list and not inner):
             continue  # nothing stored: the cell's own comparison finds an empty list or null that went missing
         put(out, keys, expect_cell(child, inner, *_own(child, identity_type, attributes, groups), groups)
@@ -503,3 +506,62 @@ def expect_element(nested, x, identity_type, attributes, groups: dict | None = N
             if v is not ABSENT:
                 put(out, f.path, v)
     return out
+
+
+# --- objects keyed by data -------------------------------------------------------------
+
+def keyed_items(value, key: str, value_field: str = ""):
+    """The list an object keyed by data stands for, its keys in order; None when the object does not fit.
+
+    ``{k1: v1, k2: v2}`` is ``[{key: k1, **v1}, {key: k2, **v2}]`` when the values are objects, or
+    ``[{key: k1, value_field: v1}, ...]`` when ``value_field`` is given and they are scalars. A key that is
+    not text, a value of the other shape, or a value object that has a field named ``key`` does not fit:
+    such a cell is kept whole in value_traces. ``keyed_object`` gives the object back.
+
+    Example:
+        >>> keyed_items({"EUR": {"name": "Euro"}, "USD": {"name": "US dollar"}}, "code")
+        [{'code': 'EUR', 'name': 'Euro'}, {'code': 'USD', 'name': 'US dollar'}]
+        >>> keyed_items({"deu": "German"}, "code", "value"), keyed_items({1: "a"}, "code", "value")
+        ([{'code': 'deu', 'value': 'German'}], None)
+    """
+    if type(value) is not dict:
+        return None
+    out = []
+    for k, v in value.items():
+        if type(k) is not str:
+            return None
+        if value_field:
+            if isinstance(v, (dict, list, tuple, set, frozenset)):
+                return None
+            out.append({key: k, value_field: v})
+        else:
+            if type(v) is not dict or key in v:
+                return None
+            out.append({key: k, **v})
+    return out
+
+
+def keyed_object(items, key: str, value_field: str = ""):
+    """The object keyed by data that ``keyed_items`` read as ``items`` (anything else is given back as it is).
+
+    Example:
+        >>> keyed_object([{"code": "EUR", "name": "Euro"}], "code")
+        {'EUR': {'name': 'Euro'}}
+        >>> keyed_object([{"code": "deu", "value": "German"}], "code", "value")
+        {'deu': 'German'}
+    """
+    if type(items) is not list or not all(type(x) is dict and type(x.get(key)) is str for x in items):
+        return items
+    if value_field:
+        if not all(x.keys() == {key, value_field} for x in items):
+            return items
+        return {x[key]: x[value_field] for x in items}
+    return {x[key]: {k: v for k, v in x.items() if k != key} for x in items}
+
+
+def _keyed_expected(nested, obj: dict, identity_type, attributes):
+    """What the rows of an object keyed by data (inside another object) give back: its list's rows, as an object."""
+    items = keyed_items(obj, nested.keyed, nested.keyed_value)
+    if items is None or not items:
+        return NOT_HELD  # kept whole: its rows cannot hold it (an empty object makes no rows at all)
+    return keyed_object(expect_cell(nested, items, identity_type, attributes), nested.keyed, nested.keyed_value)

@@ -402,8 +402,10 @@ class Options:
     merge: list = None  # lists of "file:column" forced into one entity
     match: dict = None  # "file:column" or "column" -> field matched on its normalised text
     no_merge: list = None  # "file:column" never merged with another column
+    keyed: dict = None  # "file:column" or "column" -> field the keys of an object keyed by data go to ("" = not)
 
     def __post_init__(self):
+        self.keyed = self.keyed or {}
         self.natural_keys = self.natural_keys or {}
         self.identities = self.identities or {}
         self.match = self.match or {}
@@ -615,6 +617,9 @@ def scalar_fields(objects: list[dict], prefix: list[str] | None = None,
                 scalars.append(path)
         elif dict in kinds and kinds <= {dict, type(None)}:
             inner = [v for v in table.values(k) if isinstance(v, dict)]
+            if keyed_shape(inner):  # keyed by data: a list of its keys (_child_lists)
+                lists.append(path)
+                continue
             sub_scalars, sub_lists = scalar_fields(inner, path)
             scalars += sub_scalars
             lists += sub_lists
@@ -629,6 +634,94 @@ def get_path(obj, path: list[str]):
             return None
         obj = obj.get(k)
     return obj
+
+
+# --- objects keyed by data --------------------------------------------------------
+
+# A key that reads as a code: short, no spaces (ISO 4217 "EUR", ISO 639-3 "deu", a year "2018", "1F3FB")
+_CODE_KEY = re.compile(r"[A-Za-z0-9][A-Za-z0-9_.+-]{0,11}")
+KEYED_MIN_VARYING = 5  # keys, each in a few objects only, that make objects keyed by data
+
+
+def _key_form(key: str) -> str:
+    """A key's form: each letter as A or a, each digit as 9 ("EUR" -> "AAA", "1F3FB" -> "9A9AA")."""
+    return "".join("A" if c.isupper() else "a" if c.islower() else "9" if c.isdigit() else c for c in key)
+
+
+def keyed_shape(objects: list[dict]) -> str:
+    """Whether objects are keyed by data rather than by field names: "objects" or "scalars" (their values), or "".
+
+    The evidence, over every object of a column: many distinct keys in all (more than a wide object's
+    ``WIDE_OBJECT_KEYS``), or keys that each turn up in a few objects only (the objects fill at most half
+    of the key-by-object grid, and at most a fifth of the keys are in nearly every object: a few fixed
+    keys with rare extras are fields); keys that look like codes (short, no spaces, most of one form: "EUR" and
+    "USD" are both three capitals); and values of one shape (all scalars, or all objects with a few fields).
+
+    Example:
+        >>> rows = [{"EUR": {"name": "Euro"}}, {"USD": {"name": "US dollar"}, "USN": {"name": "US dollar (next day)"}},
+        ...         {"GBP": {"name": "Pound"}}, {"EUR": {"name": "Euro"}, "CHF": {"name": "Franc"}}]
+        >>> keyed_shape(rows), keyed_shape([{"city": "X", "zip": "1"}, {"city": "Y", "zip": "2"}])
+        ('objects', '')
+        >>> keyed_shape([{"deu": "German"}, {"fra": "French"}, {"ita": "Italian"}, {"nld": "Dutch"},
+        ...              {"por": "Portuguese"}])
+        'scalars'
+    """
+    counts = Counter(chain.from_iterable(objects))
+    distinct = len(counts)
+    if len(objects) < 2 or distinct < 2:
+        return ""
+    if not all(type(k) is str and _CODE_KEY.fullmatch(k) for k in counts):
+        return ""
+    many = distinct > WIDE_OBJECT_KEYS
+    shared = sum(n >= 0.9 * len(objects) for n in counts.values())  # keys nearly every object has
+    varying = (distinct >= KEYED_MIN_VARYING and 2 * sum(counts.values()) <= len(objects) * distinct
+               and 5 * shared <= distinct)
+    if not (many or varying):
+        return ""
+    if Counter(map(_key_form, counts)).most_common(1)[0][1] < 0.8 * distinct:
+        return ""  # keys of many forms ("city", "zip", "street") are names, not codes
+    values = [v for o in objects for v in o.values()]
+    if all(type(v) is dict for v in values):
+        fields = set(chain.from_iterable(values))
+        return "objects" if 0 < len(fields) <= WIDE_OBJECT_KEYS else ""
+    if not any(isinstance(v, (dict, list, tuple, set, frozenset)) for v in values):
+        return "scalars"
+    return ""
+
+
+def keyed_fields(objects: list[dict], name: str, forced: str | None = None) -> tuple[str, str]:
+    """The fields an object keyed by data is read into: (its keys' field, a scalar value's field), or ("", "").
+
+    ``forced`` (from ``Options.keyed``) names the keys' field whatever the evidence; "" says not keyed.
+
+    Example:
+        >>> keyed_fields([{"deu": "German"}, {"fra": "French"}], "languages", forced="code")
+        ('code', 'value')
+    """
+    if forced == "":
+        return "", ""
+    shape = keyed_shape(objects)
+    if not shape and forced:
+        values = [v for o in objects for v in o.values()]
+        shape = "objects" if values and all(type(v) is dict for v in values) else "scalars"
+    if not shape:
+        return "", ""
+    fields = set(chain.from_iterable(v for o in objects for v in o.values())) if shape == "objects" else set()
+    key = forced or Namer(fields)(f"{singular(sql_name(name))}_code")
+    return key, ("value" if shape == "scalars" else "")
+
+
+def _keyed_column(nested, values: list, options: "Options", file: str) -> list:
+    """A column of objects keyed by data as lists of objects (``nested.keyed`` says so); else its values."""
+    from .exact import keyed_items
+
+    forced = options.keyed.get(f"{nested.file}:{nested.column}", options.keyed.get(
+        f"{file}:{nested.column}", options.keyed.get(nested.column)))
+    key, value_field = keyed_fields([v for v in values if isinstance(v, dict)], nested.column, forced)
+    if not key:
+        return values
+    nested.keyed, nested.keyed_value = key, value_field
+    return [keyed_items(v, key, value_field) if isinstance(v, dict) else None for v in values]
 
 
 META_TABLES = ("rejected_rows", "set_aside_rows", "unmatched_rows", "quarantined_cells", "attribute_variants",
@@ -732,6 +825,11 @@ def infer_plan(exports: list, decoded: dict, options: Options | None = None):
                 continue
             origin = getattr(export, "origin", {}).get(name)
             nested = NestedColumn(file=Path(origin[0]).stem if origin else export.name, column=name, kind="")
+            values = col.values
+            if shape == "object":
+                values = _keyed_column(nested, values, options, export.name)
+                if nested.keyed:
+                    shape = "object-list"
             if shape == "scalar-list":
                 nested.kind = "value-list"
                 if col.encoding == "delimited":
@@ -749,7 +847,7 @@ def infer_plan(exports: list, decoded: dict, options: Options | None = None):
                             "" if wide else name + "_")
                 nested.children = _child_lists(export.name, name, objects, lists, table, found)
             else:
-                objects, owners = objects_of(col.values)
+                objects, owners = objects_of(values)
                 table = ObjectTable(objects)
                 # FILE:COLUMN names the file the column comes from (a joined file's own name), as
                 # entity members and --no-merge do; the main file's name and the bare column also work
@@ -861,11 +959,16 @@ def _child_lists(file: str, column: str, objects: list[dict], lists: list[list[s
             inner = table.values(path[0])
         else:
             inner = [get_path(o, path) for o in objects]
+        key, value_field = keyed_fields([v for v in inner if isinstance(v, dict)], path[-1])
+        if key:  # an object keyed by data: read as the list of its keys (exact.keyed_items)
+            from .exact import keyed_items
+
+            inner = [keyed_items(v, key, value_field) if isinstance(v, dict) else v for v in inner]
         # a value that is not a list is taken as a list of one (build._nested_rows), so its type counts too
         wrapped = [v if isinstance(v, (list, tuple)) else [v] for v in inner if v is not None]
         inner = [v for v in inner if isinstance(v, (list, tuple))]
         items = [x for v in inner for x in v if x is not None]
-        nested = NestedColumn(file, column, "", path=".".join(path))
+        nested = NestedColumn(file, column, "", path=".".join(path), keyed=key, keyed_value=value_field)
         if items and all(isinstance(x, dict) for x in items):
             nested.kind = "child-list"
             sub_table = ObjectTable(items)
@@ -1008,14 +1111,14 @@ class _Found:
                                          for p in fields if tuple(p) not in held]
 
 
-_CODE_KEY = re.compile(r"[a-z]{2,3}([_-][A-Za-z0-9]{2,4})?|[A-Z]{2,3}")
+_SHORT_CODE = re.compile(r"[a-z]{2,3}([_-][A-Za-z0-9]{2,4})?|[A-Z]{2,3}")  # "de", "pt_BR", "EUR"
 
 
 def _keys_like_codes(table: ObjectTable) -> bool:
     """Whether objects are keyed by codes (languages, countries, currencies: many short keys, one kind of
     value) rather than by field names."""
     keys = table.keys()
-    if len(keys) < 5 or not all(isinstance(k, str) and _CODE_KEY.fullmatch(k) for k in keys):
+    if len(keys) < 5 or not all(isinstance(k, str) and _SHORT_CODE.fullmatch(k) for k in keys):
         return False
     kinds = set().union(*(table.kinds(k) for k in keys)) - {type(None)}
     return len(kinds) == 1
@@ -1030,6 +1133,8 @@ def _object_paths(objects: list[dict], table: ObjectTable | None = None, prefix:
         kinds = table.kinds(k)
         if dict in kinds and kinds <= {dict, type(None)}:
             inner = [v for v in table.values(k) if isinstance(v, dict)]
+            if keyed_shape(inner):
+                continue  # keyed by data: a list of its keys (scalar_fields), not one object
             path = list(prefix) + [str(k)]
             sub = ObjectTable(inner)
             out.append((path, inner, sub))

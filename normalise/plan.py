@@ -93,6 +93,8 @@ class NestedColumn:
     matched: bool = False  # objects matched on the identity field's normalised text
     value_type: str = "text"  # a value list's values: integer, real, boolean or text (a list of numbers stays numbers)
     separator: str = ""  # a delimited column's separator text between values (", "): the cell is the values joined
+    keyed: str = ""  # an object keyed by data, read as a list of objects: the field its keys go to ("" = not)
+    keyed_value: str = ""  # ... and the field a scalar value goes to ("" when the values are objects)
 
 
 @dataclass

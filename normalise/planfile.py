@@ -127,6 +127,11 @@ def _nested_toml(nested: NestedColumn, header: str) -> list[str]:
             f"kind = {_v(nested.kind)}  # entity-list | child-list | value-list | object-columns | object-child"]
     if nested.table:
         out.append(f"table = {_v(nested.table)}")
+    if nested.keyed:
+        out.append(f"keyed = {_v(nested.keyed)}  # an object keyed by data: a row per key, the key in this field "
+                   f"(\"\" = not keyed)")
+        if nested.keyed_value:
+            out.append(f"keyed_value = {_v(nested.keyed_value)}  # the field of each key's scalar value")
     if nested.kind == "entity-list":
         out += [f"entity = {_v(nested.entity)}  # handle of an [[entity]]", f"identity = {_v(nested.identity)}"]
         if nested.matched:
@@ -283,7 +288,7 @@ def plan_from_doc(doc: dict, text: str, exports: list, decoded: dict) -> Plan:
         for nested in record.nested:
             if nested.kind != "entity-list" or nested.entity in handles:
                 continue
-            objects, _ = objects_of(decoded[record.path][nested.column].values)
+            objects, _ = objects_of(_values(decoded[record.path][nested.column].values, nested))
             fields, _ = scalar_fields(objects)
             top = [p[0] for p in fields if len(p) == 1]
             attrs = entity_attributes(objects, nested.identity, top, plan.violation_threshold)
@@ -304,13 +309,13 @@ def plan_from_doc(doc: dict, text: str, exports: list, decoded: dict) -> Plan:
                               "use the same identity, or give the column an entity handle of its own",
                               f'identity = "{nested.identity}"')
                     group.members.append(f"{nested.file}:{nested.column}")
-                    _check_keys(text, decoded[record.path][nested.column].values, nested, group)
+                    _check_keys(text, _values(decoded[record.path][nested.column].values, nested), nested, group)
         if group.members:
             plan.entities.append(group)
     for record in plan.records:  # objects that are no entities: child rows or record columns
         for nested in record.nested:
             if nested.kind in ("child-list", "object-columns", "object-child"):
-                _check_keys(text, decoded[record.path][nested.column].values, nested)
+                _check_keys(text, _values(decoded[record.path][nested.column].values, nested), nested)
     add_tables(plan)
     names = {t.name for t in plan.tables}
     for v in doc.get("view", []):
@@ -381,6 +386,11 @@ def _nested_from(text: str, n: dict, columns: dict, handles: dict, plan: Plan) -
                           identity=n.get("identity", ""), matched=bool(n.get("matched", False)),
                           links=_maps(text, n.get("fields"), f"{column}.fields"))
     nested.children = [_nested_from(text, c, columns, handles, plan) for c in n.get("children", [])]
+    nested.keyed, nested.keyed_value = str(n.get("keyed", "")), str(n.get("keyed_value", ""))
+    if nested.keyed and kind not in ("entity-list", "child-list"):
+        _fail(text, f"nested column {column!r}: keyed = {nested.keyed!r} with kind {kind!r}",
+              'an object keyed by data is a list of its keys: use kind = "entity-list" or "child-list", or '
+              'keyed = ""', f'keyed = "{nested.keyed}"')
     if kind == "value-list":
         value_type = n.get("value_type", "text")
         if value_type not in ("integer", "real", "boolean", "text"):
@@ -391,6 +401,15 @@ def _nested_from(text: str, n: dict, columns: dict, handles: dict, plan: Plan) -
     if kind == "value-list" and getattr(decoded, "encoding", None) == "delimited":
         nested.separator = str(n.get("separator", decoded.join_separator or decoded.separator or ""))
     return nested
+
+
+def _values(values: list, nested: NestedColumn) -> list:
+    """A column's values as the build reads them: an object keyed by data as the list of its keys."""
+    if not nested.keyed:
+        return values
+    from .exact import keyed_items
+
+    return [keyed_items(v, nested.keyed, nested.keyed_value) for v in values]
 
 
 def _check_keys(text: str, values: list, nested: NestedColumn, group: EntityGroup | None = None) -> None:

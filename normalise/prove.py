@@ -17,7 +17,8 @@ import sqlite3
 from operator import itemgetter
 
 from .errors import NormaliseError
-from .exact import ABSENT, from_literal, keyed_digest, object_back, pointer, pointer_keys, put, same, stored_back
+from .exact import (ABSENT, from_literal, keyed_digest, keyed_object, object_back, pointer, pointer_keys, put, same,
+                    stored_back)
 from .names import quote_name as _q
 
 _MOD = 1 << 128
@@ -213,6 +214,8 @@ def _owned(plan, nested, fetch, traces) -> dict[int, object]:
         if found is None:
             found = out[owner] = []
         found.append(element)
+    if getattr(nested, "keyed", ""):  # an object keyed by data: its list of keys read back as the object
+        return {owner: keyed_object(items, nested.keyed, nested.keyed_value) for owner, items in out.items()}
     return out
 
 

@@ -124,6 +124,13 @@ def _nested_tables(plan: Plan, nested: NestedColumn, owner: str, owner_key: str)
         cols.append(Column(POSITION, "integer", nullable=False))
     cols += [Column(f.column, f.type, source=".".join(f.path)) for f in nested.links]
     fks += _references(plan, nested.links)
+    if nested.keyed:  # an object keyed by data: one row per owner and key (a repeating group, first normal form)
+        if nested.kind == "entity-list":
+            key_column = entity_column if nested.identity == nested.keyed else None
+        else:
+            key_column = next((f.column for f in nested.links if f.path == [nested.keyed]), None)
+        if key_column:
+            unique.append([owner_key, key_column])
     plan.tables.append(Table(nested.table, role, cols, [key], position_column=position,
                              foreign_keys=fks, unique=unique, sources=source))
     for child in nested.children:

