@@ -20,7 +20,7 @@ import pandas as pd
 import pytest
 
 from normalise.pipeline import build_database
-from tests.open_data import (build_jsonl, check_lossless, check_pragmas, children, element_tables, lists, nest,
+from tests.open_data import (build_jsonl, check_lossless, check_pragmas, element_tables, lists, nest,
                              npm_package, record_table, without_empty)
 
 PACKAGE, VERSION = "world-countries", "5.1.0"
