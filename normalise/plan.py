@@ -58,6 +58,7 @@ class FieldMap:
     type: str
     null_means: str = "null"  # what NULL in the column stands for: "null" (the value None) or "absent" (no key)
     as_text: bool = False  # the values arrive as text ("7") and the type is read from it (CSV cells)
+    references: str = ""  # a scalar column whose values are natural keys of this record table (a foreign key)
 
 
 @dataclass
@@ -90,6 +91,7 @@ class NestedColumn:
     matched: bool = False  # objects matched on the identity field's normalised text
     value_type: str = "text"  # a value list's values: integer, real, boolean or text (a list of numbers stays numbers)
     separator: str = ""  # a delimited column's separator text between values (", "): the cell is the values joined
+    references: str = ""  # a value list whose values are natural keys of this record table (a foreign key)
 
 
 @dataclass
