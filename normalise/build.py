@@ -148,7 +148,8 @@ def value_text(value, type_: str) -> str:
     if type(value) is str:
         return "text:" + value
     if type_ == "real" and type(value) in (int, float):
-        return "real:" + repr(float(value))  # 44 and 44.0 are one REAL value (the 44 is traced)
+        # 44 and 44.0 are one REAL value (the 44 is traced); so are -0.0 and 0.0, one value to SQL's UNIQUE
+        return "real:" + repr(float(value) + 0.0)
     return canonical(value, type_)
 
 
@@ -215,7 +216,7 @@ class _Audit:
     def known(self, nested: NestedColumn, entities: dict) -> frozenset:
         found = self._known.get(id(nested))
         if found is None:
-            keys = {f.path[0] for f in nested.links} | {c.path.split(".")[0] for c in nested.children}
+            keys = {f.path[0] for f in nested.links if f.path} | {c.path.split(".")[0] for c in nested.children}
             if nested.identity:
                 keys.add(nested.identity)
             if nested.kind == "entity-list":
@@ -583,6 +584,7 @@ class Builder:
         self.meta: dict[str, list[tuple]] = {name: list((extra or {}).get(name, [])) for name in META_TABLES}
         self.rows: dict[str, list[tuple]] = {t.name: [] for t in plan.tables if t.name not in self.meta}
         self.entities = {g.table: _Entities(g) for g in plan.entities}
+        self.groups = {g.table: g for g in plan.entities}
         self.values: dict[str, _ValueTable] = {}
         self.counts: dict[str, FileCounts] = {}
         self.quarantined_by_file: Counter = Counter()
@@ -593,7 +595,7 @@ class Builder:
         self.kept: dict[str, list[int]] = {}  # export path -> indices of its loaded records (the last chunk's)
         self.trace_reasons: Counter = Counter()
         self.rejoined: Counter = Counter()  # "file:column" -> delimited values with a name suffix rejoined
-        self.references = _References(plan, state)  # values that are natural keys of record tables
+        self.record_references = _References(plan, state)  # values that are natural keys of record tables
         if state:
             for table, keys in state["natural_keys"].items():
                 self.first_seen[table] = dict(keys)
@@ -635,7 +637,7 @@ class Builder:
         record_keys = getattr(export, "record_keys", None) or export.lines
         self.kept[export.path] = kept
         keys = [record_keys[i] for i in kept]
-        self.references.add_keys(record, columns, kept, keys)
+        self.record_references.add_keys(record, columns, kept, keys)
         for name in [f.path[0] for f in record.scalars]:
             col = columns[name]
             self.inputs.add(record.table, name, keys, [col.values[i] for i in kept], kept, col.impure)
@@ -651,7 +653,7 @@ class Builder:
                                 col.impure)
         scalar_cols = [self._stored_column(record, f, columns[f.path[0]].values, kept, record_keys, export)
                        for f in record.scalars]
-        reference_cols = self.references.cell_keys(record, columns, kept, keys)
+        reference_cols = self.record_references.cell_keys(record, columns, kept, keys)
         out = rows[record.table]
         object_columns = [n for n in record.nested if n.kind == "object-columns"]
         columnar = [n for n in record.nested if _is_columnar(n)]
@@ -665,6 +667,11 @@ class Builder:
                 obj = columns[nested.column].values[i]
                 obj = obj if isinstance(obj, dict) else {}
                 for f in nested.links:
+                    if f.entity:
+                        row.append(self.reference(f, obj, (export.lines[i], nested._order, 0),
+                                                  (record.table, sk, None, None, nested.column, export.path,
+                                                   export.lines[i], f.path)))
+                        continue
                     value = get_path(obj, f.path)
                     stored, exact = store(value, f.type, f.as_text)
                     row.append(stored)
@@ -717,11 +724,37 @@ class Builder:
                             None if original is ABSENT else literal(original), file, line))
         self.trace_reasons[reason] += 1
 
+    def reference(self, f, obj, place: tuple, where: tuple):
+        """The entity key of the single object a reference (``FieldMap.entity``) finds in ``obj``, or None.
+
+        ``where`` is the row holding it: (table, row_sk, owner_sk, position, column, file, line, path). An
+        object that is not there, or has no usable identity, gives NULL; its cell does not come back from
+        the rows and is kept whole in value_traces.
+        """
+        sub = get(obj, f.path) if f.path else obj
+        if type(sub) is not dict:
+            return None
+        acc = self.entities[f.entity]
+        ident = sub.get(acc.group.identity)
+        if not usable_identity(ident, acc.group.identity_type):
+            return None
+        return acc.add(ident, sub, place, where)
+
+    def _links(self, nested: NestedColumn, item: dict, place: tuple, where: tuple) -> list:
+        """One object's stored link columns, references to entities among them (the per-object path)."""
+        out = []
+        for f in nested.links:
+            if f.entity:
+                out.append(self.reference(f, item, place, where + (f.path,)))
+            else:
+                out.append(store(get_path(item, f.path), f.type, f.as_text)[0])
+        return out
+
     def _check_cell(self, record: RecordSource, nested: NestedColumn, value, sk: int, export, i: int) -> None:
         """A cell of the per-object path that its rows do not give back exactly is traced whole."""
         group = self.entities[nested.entity].group if nested.kind == "entity-list" else None
         expected = expect_cell(nested, value, group.identity_type if group else None,
-                               group.attributes if group else ())
+                               group.attributes if group else (), self.groups)
         if not same(expected, value):
             self.trace(record.table, sk, None, None, nested.column, "", "the cell as given (its rows differ)",
                        value, export.path, export.lines[i])
@@ -811,7 +844,7 @@ class Builder:
             vt = nested.value_type
             value_keys = [found.key(x, vt) for x in items]
             if nested.references:
-                self.references.used[nested.entity].update(value_keys)
+                self.record_references.used[nested.entity].update(value_keys)
             table.extend(zip(keys, owners, value_keys, positions))
             c.elements_written += len(keys)
             self._trace_cells(record, nested, values, whole, record_keys, export)
@@ -824,13 +857,13 @@ class Builder:
             self.trace(bridge, keys[k], owners[k], positions[k], nested.column, pointer(keys_in), reason, original,
                        path, lines[rows_of[k]])
 
-        if any(len(f.path) > 1 for f in nested.links):
+        if any(len(f.path) > 1 or f.entity for f in nested.links):
             # fields of sub-objects: a sub-object that is null, empty or holds more keys than the model cannot be
             # told from its fields, so each element is compared with what its row gives back (exact.expect_cell)
             group = self.entities[nested.entity].group if nested.kind == "entity-list" else None
             for k, o in enumerate(items):
                 back = expect_element(nested, o, group.identity_type if group else None,
-                                         group.attributes if group else ())
+                                      group.attributes if group else (), self.groups)
                 if not same(back, o):
                     whole.add(rows_of[k])
         if not set(map(type, chain.from_iterable(items))) <= {str}:
@@ -845,6 +878,11 @@ class Builder:
                         keep(k, [key], o[key], "a key the model does not have")
         links = []
         for f in nested.links:
+            if f.entity:
+                links.append([self.reference(f, o, (lines[i], nested._order, p),
+                                             (bridge, keys[k], owners[k], p, nested.column, path, lines[i], f.path))
+                              for k, (o, i, p) in enumerate(zip(items, rows_of, positions))])
+                continue
             col = ([o.get(f.path[0], ABSENT) for o in items] if len(f.path) == 1
                    else [get(o, f.path) for o in items])
             if f.null_means == "absent" and None in col:
@@ -869,7 +907,7 @@ class Builder:
             places = [(lines[i], nested._order, p) for i, p in zip(rows_of, positions)]
 
             def where(j):
-                return (bridge, keys[j], owners[j], positions[j], nested.column, path, lines[rows_of[j]])
+                return (bridge, keys[j], owners[j], positions[j], nested.column, path, lines[rows_of[j]], [])
 
             entity_keys = self.entities[nested.entity].add_column(idents, items, places, where)
             table.extend(zip(keys, owners, entity_keys, positions, *links))
@@ -885,19 +923,19 @@ class Builder:
 
     def _trace_occurrences(self, table: str, acc: _Entities, held: list, occurrences) -> None:
         """Trace every occurrence whose own value of an attribute is not the one its entity row gives back."""
-        path_of = {}
+        members = None
         for k, f in enumerate(acc.group.attributes):
             reason = f"entity attribute {f.column!r}: this occurrence's own value (the entity row holds another)"
             if acc.group.matched and f.path == [acc.group.identity]:
                 reason = (f"matched on normalised {f.column!r} (--match): this occurrence's own spelling (the entity "
                           f"row holds the most frequent)")
-            pointer_text = pointer(f.path)
             listed = set()  # every occurrence whose value differs from its entity's reference
             for text, h, v, where in acc.differing[k]:
-                bridge, row_sk, owner_sk, position, column, file, line = where
-                listed.add((bridge, row_sk))
+                owning, row_sk, owner_sk, position, column, file, line, prefix = where
+                listed.add((owning, row_sk, column, tuple(prefix)))
                 if h != held[k].get(text, h):
-                    self.trace(bridge, row_sk, owner_sk, position, column, pointer_text, reason, v, file, line)
+                    self.trace(owning, row_sk, owner_sk, position, column, pointer(prefix + f.path), reason, v,
+                               file, line)
             # entities whose reference value is not the one held: each occurrence holding the reference is
             # traced too; those are the occurrences not listed among the differing ones
             pending = {}
@@ -907,24 +945,15 @@ class Builder:
             if not pending:
                 continue
             if occurrences is None:
-                raise RuntimeError("finish() needs the bridge rows to trace occurrences")  # pragma: no cover
-            if not path_of:
-                path_of = {n.table: n for n in self._entity_members(table)}
-            for bridge, nested in path_of.items():
-                for row_sk, owner_sk, position, entity_sk in occurrences(bridge, set(pending)):
-                    if (bridge, row_sk) in listed:  # not the reference value: traced above when need be
+                raise RuntimeError("finish() needs the rows to trace occurrences")  # pragma: no cover
+            if members is None:
+                members = entity_members(self.plan, table)
+            for owning, fk_column, column, prefix, file in members:
+                for row_sk, owner_sk, position, entity_sk in occurrences(owning, fk_column, set(pending)):
+                    if (owning, row_sk, column, tuple(prefix)) in listed:  # traced above when need be
                         continue
-                    self.trace(bridge, row_sk, owner_sk, position, nested.column, pointer_text, reason,
-                               pending[entity_sk][1], self._member_path(nested), None)
-
-    def _entity_members(self, table: str) -> list[NestedColumn]:
-        return [n for r in self.plan.records for n in r.nested if n.kind == "entity-list" and n.entity == table]
-
-    def _member_path(self, nested: NestedColumn) -> str:
-        for record in self.plan.records:
-            if nested in record.nested:
-                return record.path
-        return ""
+                    self.trace(owning, row_sk, owner_sk, position, column, pointer(prefix + f.path), reason,
+                               pending[entity_sk][1], file, None)
 
     def _entity_path(self, group) -> str:
         """The input file an entity group's first member column comes from."""
@@ -942,21 +971,22 @@ class Builder:
             taken[table] = acc.take_new_rows()
         for table, found in self.values.items():
             taken[table], found.new = found.new, []
-            taken[table] = self.references.link_values(table, taken[table])
+            taken[table] = self.record_references.link_values(table, taken[table])
         return taken
 
     def finish(self, occurrences=None) -> Built:
         """Meta rows, counts, and the entity rows whose chosen values differ from those first written.
 
-        Call once, after the last chunk (and after the last ``take_rows``). ``occurrences(bridge, sks)``
-        gives the rows ``(row_sk, owner_sk, position, entity_sk)`` of a bridge table that link to the
-        entities ``sks``: the occurrences whose value an entity row no longer holds are traced.
+        Call once, after the last chunk (and after the last ``take_rows``). ``occurrences(table, column, sks)``
+        gives the rows ``(row_sk, owner_sk, position, entity_sk)`` of a table whose foreign key ``column``
+        refers to one of the entities ``sks`` (``entity_members``): the occurrences whose value an entity
+        row no longer holds are traced.
         """
         rows = self.take_rows()
         self.audit.report()
         conflicts = 0
         merges: list[dict] = []
-        updates, column_updates, references = self.references.finish(self.plan)
+        updates, column_updates, references = self.record_references.finish(self.plan)
         for table, acc in self.entities.items():
             held = [{} for _ in acc.keys]  # per attribute: canonical -> key of the value the entity row gives back
             for text, chosen_values, per_attribute in acc.choose():
@@ -1080,6 +1110,37 @@ def name_map(plan: Plan) -> list[tuple]:
     return rows
 
 
+def entity_members(plan: Plan, entity: str) -> list[tuple]:
+    """Every column of the written tables that refers to an entity table: (table, foreign key column, input
+    column, path of the object inside the element, input file), for bridges and for references alike."""
+    out = []
+
+    def visit(nested, path: str, owner_table: str) -> None:
+        here = nested.table or owner_table
+        if nested.kind == "entity-list" and nested.entity == entity:
+            fk = next(k for k in plan.table(nested.table).foreign_keys if k.references == entity)
+            out.append((nested.table, fk.columns[0], nested.column, [], path))
+        for f in nested.links:
+            if f.entity == entity:
+                out.append((here, f.column, nested.column, list(f.path), path))
+        for child in nested.children:
+            visit(child, path, here)
+
+    for record in plan.records:
+        for nested in record.nested:
+            visit(nested, record.path, record.table)
+    return out
+
+
+def occurrence_columns(plan: Plan, table: str, fk_column: str) -> tuple:
+    """Where in a table's rows the key, the owner, the list position and a foreign key are (None: none)."""
+    t = plan.table(table)
+    names = [c.name for c in t.columns]
+    owner = names.index(t.foreign_keys[0].columns[0]) if t.role in ("bridge", "child") else None
+    position = names.index(t.position_column) if t.position_column else None
+    return 0, owner, position, names.index(fk_column)
+
+
 def _meta_order(row: tuple):
     """Bookkeeping rows in file and line order, whatever order the chunks found them in."""
     return tuple((0, "") if v is None else (1, v) if isinstance(v, str) else (2, v) for v in row[:4])
@@ -1095,8 +1156,9 @@ def build(plan: Plan, exports: list, decoded: dict, extra: dict | None = None, s
         builder.add(export, decoded[export.path])
     made = builder.take_rows()
 
-    def occurrences(bridge: str, sks: set):
-        return [(r[0], r[1], r[3], r[2]) for r in made.get(bridge, ()) if r[2] in sks]
+    def occurrences(table: str, fk_column: str, sks: set):
+        at = occurrence_columns(plan, table, fk_column)
+        return [tuple(None if j is None else r[j] for j in at) for r in made.get(table, ()) if r[at[3]] in sks]
 
     built = builder.finish(occurrences)
     for name, rows in made.items():
@@ -1176,8 +1238,9 @@ def _nested_rows(builder: "Builder", nested: NestedColumn, value, owner_sk: int,
             _quarantine_element(audit.quarantine, export, i, nested, None, "expected an object", c)
             return
         sk = row_key(where, owner_sk, 0)
-        rows[nested.table].append((sk, owner_sk, *[store(get_path(value, f.path), f.type, f.as_text)[0]
-                                                    for f in nested.links]))
+        rows[nested.table].append((sk, owner_sk, *builder._links(
+            nested, value, (export.lines[i], getattr(nested, "_order", 0), 0),
+            (nested.table, sk, owner_sk, None, nested.column, export.path, export.lines[i]))))
         c.elements_written += 1
         _lists_inside(builder, nested, value, sk, export, i, rows, c)
         return
@@ -1202,13 +1265,14 @@ def _nested_rows(builder: "Builder", nested: NestedColumn, value, owner_sk: int,
         if not isinstance(item, dict):
             _quarantine_element(audit.quarantine, export, i, nested, position, "expected an object in a list of objects", c)
             continue
-        links = [store(get_path(item, f.path), f.type, f.as_text)[0] for f in nested.links]
+        links = builder._links(nested, item, (export.lines[i], getattr(nested, "_order", 0), position),
+                               (nested.table, sk, owner_sk, position, nested.column, export.path, export.lines[i]))
         known = audit.known(nested, entities)
         if not item.keys() <= known:
             audit.note_keys(nested, item, export.path, export.lines[i])
         if None in links:
             for f, out in zip(nested.links, links):
-                if out is None and get_path(item, f.path) is not None:
+                if out is None and not f.entity and get_path(item, f.path) is not None:
                     audit.note_type(export.path, f"{nested.column}.{f.column}", f.type, get_path(item, f.path),
                                     export.lines[i])
         if nested.kind == "entity-list":
@@ -1221,7 +1285,7 @@ def _nested_rows(builder: "Builder", nested: NestedColumn, value, owner_sk: int,
                 continue
             entity_sk = entities[nested.entity].add(
                 ident, item, (export.lines[i], getattr(nested, "_order", 0), position),
-                (nested.table, sk, owner_sk, position, nested.column, export.path, export.lines[i]))
+                (nested.table, sk, owner_sk, position, nested.column, export.path, export.lines[i], []))
             table.append((sk, owner_sk, entity_sk, position, *links))
         else:
             table.append((sk, owner_sk, position, *links))

@@ -373,12 +373,33 @@ def field_back(value, f):
     return stored_back(stored, f.type, f.as_text)
 
 
-def object_back(fields, stored: list) -> dict:
-    """The object a row's field columns give back (``stored``: the column values, in ``fields`` order)."""
+def object_back(fields, stored: list, entities: dict | None = None) -> dict:
+    """The object a row's field columns give back (``stored``: the column values, in ``fields`` order).
+
+    A reference (``FieldMap.entity``) puts its entity's object at its path: ``entities[table][key]``, or,
+    without ``entities``, the stored value is that object already. References come first, so the
+    fields of the same object kept on the row (its link attributes) are put into it.
+    """
     obj: dict = {}
-    for f, v in zip(fields, stored):
+    nulled = []  # paths a reference left null: no field of the row goes inside them
+    order = sorted(range(len(fields)), key=lambda j: (not fields[j].entity, len(fields[j].path)))
+    for j in order:
+        f, v = fields[j], stored[j]
+        if f.entity:
+            if v is None:
+                if f.null_means != "absent":
+                    if f.path:
+                        put(obj, f.path, None)
+                    nulled.append(f.path)
+                continue
+            found = dict(entities[f.entity][v] if entities is not None else v)
+            if f.path:
+                put(obj, f.path, found)
+            else:
+                obj.update(found)
+            continue
         if v is None:
-            if f.null_means == "absent":
+            if f.null_means == "absent" or any(f.path[:len(p)] == p for p in nulled):
                 continue
             put(obj, f.path, None)
         else:
@@ -386,46 +407,81 @@ def object_back(fields, stored: list) -> dict:
     return obj
 
 
-def expect_cell(nested, value, identity_type: str | None = None, attributes=()):
+def expect_cell(nested, value, identity_type: str | None = None, attributes=(), groups: dict | None = None):
     """What the model's rows give back for one decoded cell of a nested column, before cell traces.
 
     Mirrors the build: fields through their columns (``field_back``), lists inside
     objects through their own tables, an entity's attributes as each occurrence
     gave them (the occurrences the entity row does not match are traced element
     by element). ``NOT_HELD`` marks what the rows cannot hold at all: the cell then
-    needs a trace of its own.
+    needs a trace of its own. ``groups`` maps entity tables to their ``EntityGroup`` (references).
     """
     kind = nested.kind
     if kind in ("object-columns", "object-child"):
         if type(value) is not dict:
             return NOT_HELD
-        expected = _object_expected(nested, value, identity_type, attributes)
+        expected = _object_expected(nested, value, identity_type, attributes, groups)
         if kind == "object-columns" and not any(
-                store(get(value, f.path), f.type, f.as_text)[0] is not None for f in nested.links) and not any(
+                (_referred(value, f, groups) if f.entity else store(get(value, f.path), f.type, f.as_text)[0])
+                is not None for f in nested.links) and not any(
                     type(get(value, c.path.split("."))) is list and get(value, c.path.split(".")) for c in nested.children):
             return NOT_HELD  # its record's columns are all NULL: read back as no object at all
         return expected
     if type(value) is not list:
         return NOT_HELD
-    return [expect_element(nested, x, identity_type, attributes) for x in value]
+    return [expect_element(nested, x, identity_type, attributes, groups) for x in value]
 
 
-def _object_expected(nested, obj: dict, identity_type, attributes) -> dict:
-    out: dict = {}
-    for f in nested.links:
-        v = field_back(get(obj, f.path), f)
+def _referred(obj, f, groups) -> dict | None:
+    """The entity object a reference's row gives back for ``obj``: its identity and the attributes as this
+    occurrence gave them (the others are traced); None where the build stores no key."""
+    sub = get(obj, f.path) if f.path else obj
+    if type(sub) is not dict:
+        return None
+    group = groups[f.entity]
+    ident = sub.get(group.identity)
+    if ident is None or ident is ABSENT or type(ident) in (dict, list, tuple, set, bool):
+        return None  # as build.usable_identity: no key is stored
+    if group.identity_type == "integer" and not (type(ident) is int and -(1 << 63) <= ident < (1 << 63)):
+        return None
+    out = {group.identity: ident if type(ident) is (int if group.identity_type == "integer" else str) else NOT_HELD}
+    for a in group.attributes:
+        v = get(sub, a.path)
         if v is not ABSENT:
-            put(out, f.path, v)
+            put(out, a.path, v)
+    return out
+
+
+def _object_expected(nested, obj: dict, identity_type, attributes, groups=None) -> dict:
+    if any(f.entity for f in nested.links):
+        stored = [_referred(obj, f, groups) if f.entity else store(get(obj, f.path), f.type, f.as_text)[0]
+                  for f in nested.links]
+        out = object_back(nested.links, stored)
+    else:
+        out = {}
+        for f in nested.links:
+            v = field_back(get(obj, f.path), f)
+            if v is not ABSENT:
+                put(out, f.path, v)
     for child in nested.children:
         keys = child.path.split(".")
         inner = get(obj, keys)
         if inner is ABSENT or inner is None or (type(inner) is list and not inner):
             continue  # nothing stored: the cell's own comparison finds an empty list or null that went missing
-        put(out, keys, expect_cell(child, inner, identity_type, attributes) if type(inner) is list else NOT_HELD)
+        put(out, keys, expect_cell(child, inner, *_own(child, identity_type, attributes, groups), groups)
+            if type(inner) is list else NOT_HELD)
     return out
 
 
-def expect_element(nested, x, identity_type, attributes):
+def _own(nested, identity_type, attributes, groups) -> tuple:
+    """The identity type and attributes of a nested column's own entities (an entity list inside objects)."""
+    if nested.kind == "entity-list" and groups and nested.entity in groups:
+        group = groups[nested.entity]
+        return group.identity_type, group.attributes
+    return identity_type, attributes
+
+
+def expect_element(nested, x, identity_type, attributes, groups: dict | None = None):
     kind = nested.kind
     if kind == "value-list":
         if type(x) is not VALUE_TYPES[nested.value_type] or is_negative_zero(x):
@@ -433,7 +489,7 @@ def expect_element(nested, x, identity_type, attributes):
         return x
     if type(x) is not dict:
         return NOT_HELD
-    out = _object_expected(nested, x, identity_type, attributes)
+    out = _object_expected(nested, x, identity_type, attributes, groups)
     if kind == "entity-list":
         ident = x.get(nested.identity, ABSENT)
         if nested.matched:

@@ -16,6 +16,7 @@ from pathlib import Path
 from collections import Counter, defaultdict
 from dataclasses import dataclass
 
+from .exact import ABSENT as _ABSENT, get
 from .names import Namer, singular, sql_name
 
 DEFAULT_VIOLATION_THRESHOLD = 0.05
@@ -708,7 +709,7 @@ def infer_plan(exports: list, decoded: dict, options: Options | None = None):
     options = options or Options()
     plan = Plan(violation_threshold=options.violation_threshold)
     tables = Namer(META_TABLES)
-    entity_lists = []  # (NestedColumn, ObjectTable of its objects)
+    found = _Found(options)  # where entities are: lists of them and single objects with an identity
 
     for export in exports:
         columns = decoded[export.path]
@@ -741,14 +742,12 @@ def infer_plan(exports: list, decoded: dict, options: Options | None = None):
                 objects, _ = objects_of(col.values)
                 table = ObjectTable(objects)
                 fields, lists = scalar_fields(objects, table=table)
-                if len(fields) > WIDE_OBJECT_KEYS:
-                    nested.kind = "object-child"
-                    nested.links = _field_maps(objects, fields, Namer(), table)
-                else:
-                    nested.kind = "object-columns"
-                    nested.links = [field_map(objects, p, names(name + "_" + "_".join(p)), table)
-                                    for p in fields]
-                nested.children = _child_lists(export.name, name, objects, lists, table)
+                wide = len(fields) > WIDE_OBJECT_KEYS
+                nested.kind = "object-child" if wide else "object-columns"
+                refs = found.references(nested, export.name, objects, table, itself=not wide)
+                found.links(nested, objects, table, fields, refs, Namer() if wide else names,
+                            "" if wide else name + "_")
+                nested.children = _child_lists(export.name, name, objects, lists, table, found)
             else:
                 objects, owners = objects_of(col.values)
                 table = ObjectTable(objects)
@@ -766,11 +765,12 @@ def infer_plan(exports: list, decoded: dict, options: Options | None = None):
                 nested.kind = "entity-list" if wanted else "child-list"
                 nested.identity = wanted
                 if wanted:
-                    entity_lists.append((nested, table))
-                else:
-                    fields, lists = scalar_fields(objects, table=table)
-                    nested.links = _field_maps(objects, fields, Namer(), table)
-                    nested.children = _child_lists(export.name, name, objects, lists, table)
+                    found.members.append(_Member(nested, table, wanted, nested.matched,
+                                                 f"{nested.file}:{nested.column}", nested.column))
+                fields, lists = scalar_fields(objects, table=table)
+                refs = found.references(nested, export.name, objects, table)
+                found.links(nested, objects, table, fields, refs, Namer(["list_position"] if wanted else []), "")
+                nested.children = _child_lists(export.name, name, objects, lists, table, found)
             record.nested.append(nested)
         chosen = options.natural_keys.get(export.name)
         if chosen is None:
@@ -784,7 +784,9 @@ def infer_plan(exports: list, decoded: dict, options: Options | None = None):
         record.parent_column = getattr(export, "parent_column", "")
         plan.records.append(record)
 
-    _group_entities(plan, entity_lists, options, tables)
+    found.settle()
+    _group_entities(plan, found.members, options, tables)
+    found.make_links(plan)
     for record in plan.records:
         owner = singular(record.table)
         for nested in record.nested:
@@ -794,6 +796,7 @@ def infer_plan(exports: list, decoded: dict, options: Options | None = None):
                 nested.entity = tables(singular(sql_name(nested.column)))
             for child in nested.children:
                 _name_children(child, nested.table or record.table, tables)
+            _free_key_names(plan, nested, record.key_column)
     infer_references(plan, decoded)
     from .schema import add_tables
     from .views import default_views
@@ -845,8 +848,12 @@ def field_map(objects: list[dict], path: list[str], column: str, table: ObjectTa
 
 
 def _child_lists(file: str, column: str, objects: list[dict], lists: list[list[str]],
-                 table: ObjectTable | None = None) -> list:
-    """Lists inside objects become grandchild tables: value lists or child lists, recursively."""
+                 table: ObjectTable | None = None, found: "_Found | None" = None) -> list:
+    """Lists inside objects become grandchild tables: value lists, entity lists or child lists, recursively.
+
+    A list of objects with an identity named like one (``id``, ``user_id``) is an entity list, its entities
+    shared with the other columns of the same identity space; ``found`` collects them.
+    """
     from .plan import NestedColumn
 
     out = []
@@ -864,13 +871,184 @@ def _child_lists(file: str, column: str, objects: list[dict], lists: list[list[s
             nested.kind = "child-list"
             sub_table = ObjectTable(items)
             fields, sub = scalar_fields(items, table=sub_table)
-            nested.links = _field_maps(items, fields, Namer(), sub_table)
-            nested.children = _child_lists(file, column + "." + ".".join(path), items, sub, sub_table)
+            if found is None:
+                nested.links = _field_maps(items, fields, Namer(), sub_table)
+            else:
+                owners = [k for k, v in enumerate(inner) for x in v if x is not None]
+                wanted = found.identity_of(nested, file, owners, items, sub_table)
+                if wanted:
+                    nested.kind, nested.identity = "entity-list", wanted
+                    found.members.append(_Member(nested, sub_table, wanted, False, found.name_of(nested),
+                                                 path[-1]))
+                refs = found.references(nested, file, items, sub_table)
+                found.links(nested, items, sub_table, fields, refs, Namer(["list_position"] if wanted else []),
+                            "")
+            nested.children = _child_lists(file, column + "." + ".".join(path), items, sub, sub_table, found)
         else:
             nested.kind = "value-list"
             nested.value_type = list_value_type(wrapped)
         out.append(nested)
     return out
+
+
+@dataclass
+class _Member:
+    """One place entities are found: a list of them, or single objects at a path (a reference)."""
+
+    holder: object  # the NestedColumn of an entity list, or the FieldMap of a reference
+    table: ObjectTable  # the objects
+    identity: str
+    matched: bool
+    name: str  # "file:column", "file:column.path" (a list inside objects), or the reference's path
+    column: str  # what the entity table is named after when this is its first member
+    tentative: bool = False  # single objects whose identities never repeat: an entity only if shared
+
+
+class _Found:
+    """Entities wherever they are, collected while the columns are read; links made once attributes are known.
+
+    The fields an entity's table holds (its identity and attributes) are not columns of the rows that refer
+    to it, so the rows' columns (``NestedColumn.links``) are made after the entities are grouped.
+    """
+
+    def __init__(self, options: "Options"):
+        self.options = options
+        self.members: list[_Member] = []
+        self.pending: list[tuple] = []
+
+    @staticmethod
+    def name_of(nested, path: list[str] = ()) -> str:
+        inside = ".".join(([nested.path] if nested.path else []) + list(path))
+        return f"{nested.file}:{nested.column}" + (f".{inside}" if inside else "")
+
+    def _forced(self, nested, file: str, path: list[str] = ()):
+        """The identity an option names for these objects (``--identity``), or None."""
+        name = self.name_of(nested, path)
+        bare = name.split(":", 1)[1]
+        for key in (name, f"{file}:{bare}", bare):
+            if key in self.options.identities:
+                return self.options.identities[key]
+        return None
+
+    def identity_of(self, nested, file: str, owners: list[int], objects: list[dict], table: ObjectTable) -> str:
+        """The identity of objects inside objects: one an option names, or a field named like an identifier."""
+        forced = self._forced(nested, file)
+        if forced is not None:
+            return forced
+        candidates = identity_candidates(objects, owners, self.options.violation_threshold, table)
+        named = [c for c in candidates if c.named_like_identity]
+        return named[0].field if named else ""
+
+    def references(self, nested, file: str, objects: list[dict], table: ObjectTable, itself: bool = False) -> list:
+        """Single objects with an identity inside the objects (at any depth; ``itself``: the objects too)."""
+        from .plan import FieldMap
+
+        out = []
+        paths = ([([], objects, table)] if itself else []) + _object_paths(objects, table)
+        for path, subs, sub_table in paths:
+            wanted = self.identity_of_single(nested, file, path, subs, sub_table)
+            if not wanted:
+                continue
+            found = [get(o, path) for o in objects] if path else objects
+            absent = sum(v is _ABSENT for v in found)
+            nulls = sum(v is None for v in found)
+            ref = FieldMap(list(path), "", "integer", "absent" if absent > nulls else "null")
+            forced = self._forced(nested, file, path) is not None
+            codes, _, isnull = sub_table.codes(wanted)
+            repeats = len(set(codes[~isnull].tolist())) < int((~isnull).sum())
+            self.members.append(_Member(ref, sub_table, wanted, False, self.name_of(nested, path),
+                                        path[-1] if path else nested.column, tentative=not (forced or repeats)))
+            out.append(ref)
+        return out
+
+    def settle(self) -> None:
+        """Single objects whose identities never repeat are an entity only when another member (a list or
+        a reference) shares identities with them; otherwise they stay fields of the rows holding them (a
+        one-to-one object identifies nothing shared; its keys may as well be codes, e.g. ``id`` Indonesian)."""
+        def identities(m):
+            return set(map(_hashable, m.table.values(m.identity))) - {None}
+
+        dropped = []
+        for m in self.members:
+            if m.tentative:
+                own = identities(m)
+                if not any(o is not m and o.identity == m.identity and not o.tentative and own & identities(o)
+                           for o in self.members):
+                    dropped.append(m)
+        gone = {id(m.holder) for m in dropped}
+        self.members = [m for m in self.members if id(m.holder) not in gone]
+        for entry in self.pending:
+            entry[4][:] = [r for r in entry[4] if id(r) not in gone]
+
+    def identity_of_single(self, nested, file: str, path, objects: list[dict], table: ObjectTable) -> str:
+        forced = self._forced(nested, file, path)
+        if forced is not None:
+            return forced if forced in table.keys() else ""
+        if _keys_like_codes(table):
+            return ""  # {"de": ..., "id": ...}: keyed by codes, its "id" a language, not an identity
+        return self.identity_of(nested, file, list(range(len(objects))), objects, table) if objects else ""
+
+    def links(self, nested, objects, table, fields, refs, names: Namer, prefix: str) -> None:
+        if not refs and nested.kind != "entity-list":
+            nested.links = [field_map(objects, p, names(prefix + "_".join(p)), table) for p in fields]
+            return
+        self.pending.append((nested, objects, table, fields, refs, names, prefix))
+
+    def make_links(self, plan) -> None:
+        """Each row's columns: references first (the entity's key), then the fields no entity table holds."""
+        for nested, objects, table, fields, refs, names, prefix in self.pending:
+            held = set()
+            if nested.kind == "entity-list":
+                group = plan.entity_group(nested.entity)
+                held |= {(nested.identity,)} | {tuple(f.path) for f in group.attributes}
+            for ref in refs:
+                group = plan.entity_group(ref.entity)
+                held |= {tuple(ref.path + [group.identity])} | {tuple(ref.path + f.path) for f in group.attributes}
+                ref.column = names(prefix + "_".join(ref.path + ["sk"]))
+            nested.links = list(refs) + [field_map(objects, p, names(prefix + "_".join(p)), table)
+                                         for p in fields if tuple(p) not in held]
+
+
+_CODE_KEY = re.compile(r"[a-z]{2,3}([_-][A-Za-z0-9]{2,4})?|[A-Z]{2,3}")
+
+
+def _keys_like_codes(table: ObjectTable) -> bool:
+    """Whether objects are keyed by codes (languages, countries, currencies: many short keys, one kind of
+    value) rather than by field names."""
+    keys = table.keys()
+    if len(keys) < 5 or not all(isinstance(k, str) and _CODE_KEY.fullmatch(k) for k in keys):
+        return False
+    kinds = set().union(*(table.kinds(k) for k in keys)) - {type(None)}
+    return len(kinds) == 1
+
+
+def _object_paths(objects: list[dict], table: ObjectTable | None = None, prefix: tuple = ()) -> list:
+    """The paths to single objects inside objects (keys holding only objects or nulls), at any depth, with
+    the objects found there: the keys ``scalar_fields`` flattens."""
+    table = table or ObjectTable(objects)
+    out = []
+    for k in table.keys():
+        kinds = table.kinds(k)
+        if dict in kinds and kinds <= {dict, type(None)}:
+            inner = [v for v in table.values(k) if isinstance(v, dict)]
+            path = list(prefix) + [str(k)]
+            sub = ObjectTable(inner)
+            out.append((path, inner, sub))
+            out += _object_paths(inner, sub, tuple(path))
+    return out
+
+
+def _free_key_names(plan, nested, owner_key: str) -> None:
+    """A row's column named like a key its table is given (its own, its owner's, the entity's) is renamed."""
+    if nested.table:
+        taken = {f"{nested.table}_sk", owner_key, "list_position"}
+        if nested.kind == "entity-list":
+            taken.add(f"{nested.entity}_sk")
+        names = Namer(sorted(taken))
+        for f in nested.links:
+            f.column = names(f.column)
+    for child in nested.children:
+        _free_key_names(plan, child, f"{nested.table}_sk" if nested.table else owner_key)
 
 
 def list_value_type(lists: list) -> str:
@@ -890,11 +1068,16 @@ def list_value_type(lists: list) -> str:
     return {frozenset([bool]): "boolean"}.get(frozenset(kinds), "text")
 
 
-def _group_entities(plan, entity_lists, options: Options, tables: Namer) -> None:
-    """Put entity lists of one identity space into one entity table (union-find on agreement)."""
+def _group_entities(plan, members: list, options: Options, tables: Namer) -> None:
+    """Put the members (entity lists and references) of one identity space into one entity table.
+
+    Two members share a table when they have the same identity field and agree on the entities they
+    have in common (union-find over the pairs); ``--merge`` forces members together, ``--no-merge``
+    keeps one apart.
+    """
     from .plan import EntityGroup
 
-    parent = list(range(len(entity_lists)))
+    parent = list(range(len(members)))
 
     def find(i):
         while parent[i] != i:
@@ -902,32 +1085,32 @@ def _group_entities(plan, entity_lists, options: Options, tables: Namer) -> None
             i = parent[i]
         return i
 
-    ref = [f"{n.file}:{n.column}" for n, _ in entity_lists]
+    ref = [m.name for m in members]
     forbidden = set(options.no_merge)
     merged = {}  # (i, j) -> the table of both lists: a group of just those two measures on it again
-    for i in range(len(entity_lists)):
-        for j in range(i + 1, len(entity_lists)):
-            (a, ta), (b, tb) = entity_lists[i], entity_lists[j]
+    for i in range(len(members)):
+        for j in range(i + 1, len(members)):
+            a, b = members[i], members[j]
             if a.identity != b.identity or a.matched != b.matched or ref[i] in forbidden or ref[j] in forbidden:
                 continue
-            both = ObjectTable.concat([ta, tb])
-            common, agree = _agreement(ta, tb, a.identity, both)
+            both = ObjectTable.concat([a.table, b.table])
+            common, agree = _agreement(a.table, b.table, a.identity, both)
             if common and agree >= 1 - options.violation_threshold:
                 parent[find(j)] = find(i)
                 merged[(i, j)] = both
     for group in options.merge:
-        members = [ref.index(m) for m in group if m in ref]
-        for m in members[1:]:
-            parent[find(m)] = find(members[0])
+        chosen = [ref.index(m) for m in group if m in ref]
+        for m in chosen[1:]:
+            parent[find(m)] = find(chosen[0])
 
     groups: dict[int, list[int]] = {}
-    for i in range(len(entity_lists)):
+    for i in range(len(members)):
         groups.setdefault(find(i), []).append(i)
-    for members in groups.values():
-        first = entity_lists[members[0]][0]
+    for chosen in groups.values():
+        first = members[chosen[0]]
         identity = first.identity
-        both = merged.get(tuple(members))
-        objects_table = both if both is not None else ObjectTable.concat([entity_lists[m][1] for m in members])
+        both = merged.get(tuple(chosen))
+        objects_table = both if both is not None else ObjectTable.concat([members[m].table for m in chosen])
         objects = objects_table.objects
         table = tables(_entity_name(identity, first.column))
         names = Namer([f"{table}_sk"])
@@ -936,7 +1119,7 @@ def _group_entities(plan, entity_lists, options: Options, tables: Namer) -> None
         group = EntityGroup(table=table, key_column=f"{table}_sk", identity=identity,
                             identity_column=identity_column,
                             identity_type="text" if matched else _identity_type(objects_table, identity),
-                            members=[ref[m] for m in members], matched=matched)
+                            members=[ref[m] for m in chosen], matched=matched)
         all_fields, _ = scalar_fields(objects, table=objects_table)
         top = [p[0] for p in all_fields if len(p) == 1]
         if matched:
@@ -948,13 +1131,8 @@ def _group_entities(plan, entity_lists, options: Options, tables: Namer) -> None
             attrs = entity_attributes(objects, identity, top, options.violation_threshold, objects_table)
         group.attributes = [field_map(objects, [f], names(f), objects_table) for f in attrs]
         plan.entities.append(group)
-        for m in members:
-            nested, own = entity_lists[m]
-            nested.entity = table
-            fields, lists = scalar_fields(own.objects, table=own)
-            links = [p for p in fields if p != [identity] and not (len(p) == 1 and p[0] in attrs)]
-            nested.links = _field_maps(own.objects, links, Namer(["list_position"]), own)
-            nested.children = _child_lists(nested.file, nested.column, own.objects, lists, own)
+        for m in chosen:
+            members[m].holder.entity = table
 
 
 _MATCH_KEY = "\x00match_key"

@@ -7,7 +7,7 @@ import json
 import os
 from pathlib import Path
 
-from .build import Builder, build, reference_values
+from .build import Builder, build, occurrence_columns, reference_values
 from .check import check_plan, check_rows
 from .decode import decode, paused_gc
 from .infer import Options, infer_plan
@@ -277,10 +277,11 @@ def _build_streaming(path: str, database: str, *, options: Options | None, limit
             done += chunk.number_of_records + len(chunk.rejected)
             if progress:
                 progress(done, getattr(chunk, "chars_read", 0))
-        def occurrences(bridge: str, sks: set):
-            cols = [quote_name(c.name) for c in plan.table(bridge).columns]
-            query = f"SELECT {cols[0]}, {cols[1]}, {cols[3]}, {cols[2]} FROM {quote_name(bridge)}"
-            return [r for r in writer.cursor.execute(query) if r[3] in sks]
+        def occurrences(table: str, fk_column: str, sks: set):
+            names = [c.name for c in plan.table(table).columns]
+            picked = ", ".join("NULL" if j is None else quote_name(names[j])
+                               for j in occurrence_columns(plan, table, fk_column))
+            return [r for r in writer.cursor.execute(f"SELECT {picked} FROM {quote_name(table)}") if r[3] in sks]
 
         built = builder.finish(occurrences)
         for name in order:

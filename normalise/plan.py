@@ -58,6 +58,9 @@ class FieldMap:
     type: str
     null_means: str = "null"  # what NULL in the column stands for: "null" (the value None) or "absent" (no key)
     as_text: bool = False  # the values arrive as text ("7") and the type is read from it (CSV cells)
+    # an entity reference: ``path`` leads to a single object with an identity ([]: the object itself), held as
+    # the entity table's surrogate key in ``column`` (a foreign key); the entity's attributes are in its table
+    entity: str = ""
     references: str = ""  # a scalar column whose values are natural keys of this record table (a foreign key)
 
 

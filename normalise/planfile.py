@@ -189,7 +189,7 @@ def _maps(text: str, items, where: str) -> list[FieldMap]:
             _fail(text, f"{where}: null = {null_means!r}", 'write null = "absent" (NULL means the key is absent) '
                   'or leave it out (NULL means null)', f'"{null_means}"')
         out.append(FieldMap([str(k) for k in key], f["name"], f["type"], null_means, bool(f.get("as_text", False)),
-                            str(f.get("references", ""))))
+                            references=str(f.get("references", ""))))
     return out
 
 

@@ -63,6 +63,7 @@ def rebuild_cells(plan, fetch, impure: set | None = None, only: set | None = Non
     (only those may hold what JSON has not). ``only``, when given, is the (table, column) to rebuild.
     """
     traces = _traces(fetch, {r.table for r in plan.records})
+    traces["entities"] = {}  # entity table -> {key: its object}, read once
     traced_tables = {t for t, _ in traces["elements"]}
     impure = set() if impure is None else impure
     out: dict[tuple[str, str], dict[int, object]] = {}
@@ -85,9 +86,14 @@ def rebuild_cells(plan, fetch, impure: set | None = None, only: set | None = Non
             if nested.kind == "object-columns":
                 js = [at[f.column] for f in nested.links]
                 lists = _child_lists(plan, nested, fetch, traces)
+                entities = _referred(plan, nested.links, fetch, traces)
+                edits = traces["fields"]
                 for r in rows:
                     stored = [r[j] for j in js]
-                    obj = object_back(nested.links, stored)
+                    obj = object_back(nested.links, stored, entities)
+                    if (record.table, r[0], nested.column) in edits:  # occurrences' own attribute values
+                        obj = _apply(obj, edits[(record.table, r[0], nested.column)])
+                        impure.add((record.table, nested.column, r[0]))
                     inside = False
                     for child, found in lists:
                         if r[0] in found:
@@ -119,14 +125,16 @@ def _tables_of(nested) -> set:
 
 def _traces(fetch, record_tables: set) -> dict:
     """Values kept verbatim: whole cells (of record tables, at path "") and parts of elements."""
-    cells, elements = {}, {}
+    cells, elements, fields = {}, {}, {}
     for table, row_sk, column, path, original in fetch(
             "SELECT table_name, row_sk, column_name, path, original FROM value_traces"):
         if path == "" and table in record_tables:
             cells[(table, row_sk, column)] = original
+        elif table in record_tables:  # a part of an object held in the record's columns (a reference)
+            fields.setdefault((table, row_sk, column), []).append((path, original))
         else:
             elements.setdefault((table, row_sk), []).append((path, original))
-    return {"cells": cells, "elements": elements}
+    return {"cells": cells, "elements": elements, "fields": fields}
 
 
 def _apply(obj, edits) -> object:
@@ -139,12 +147,15 @@ def _apply(obj, edits) -> object:
     return obj
 
 
-def row_objects(fields, start: int):
+def row_objects(fields, start: int, entities: dict | None = None):
     """A function giving the object a row's field columns (from index ``start`` on) stand for.
 
     The same as ``exact.object_back``, made once per table: the common case (one key per field, values
-    SQLite gives back as they were decoded) is one dict comprehension per row.
+    SQLite gives back as they were decoded) is one dict comprehension per row. ``entities``: the objects
+    of the entity tables the fields refer to (``_referred``).
     """
+    if any(f.entity for f in fields):
+        return lambda r: object_back(fields, r[start:], entities)
     keys = [f.path[0] for f in fields]
     plain = all(len(f.path) == 1 and (f.type in ("text", "date", "timestamp") or
                                       f.type in ("integer", "real") and not f.as_text) for f in fields)
@@ -166,8 +177,9 @@ def _owned(plan, nested, fetch, traces) -> dict[int, object]:
     elements = traces["elements"]
     traced = {sk for t, sk in elements if t == nested.table}
     lists = _child_lists(plan, nested, fetch, traces) if nested.kind != "value-list" else []
+    entities = _referred(plan, nested.links, fetch, traces)
     if nested.kind == "object-child":
-        make = row_objects(nested.links, 2)
+        make = row_objects(nested.links, 2, entities)
         out = {}
         for r in rows:
             obj = make(r)
@@ -183,16 +195,9 @@ def _owned(plan, nested, fetch, traces) -> dict[int, object]:
                   for sk, v, *_ in fetch(f"SELECT * FROM {_q(nested.entity)}")}
         made = [(r[1], values[r[2]]) for r in rows]
     else:
-        make = row_objects(nested.links, 4 if nested.kind == "entity-list" else 3)
+        make = row_objects(nested.links, 4 if nested.kind == "entity-list" else 3, entities)
         if nested.kind == "entity-list":
-            group = plan.entity_group(nested.entity)
-            attributes = row_objects(group.attributes, 2)
-            entity = {}
-            for e in fetch(f"SELECT * FROM {_q(group.table)}"):
-                obj = attributes(e)
-                if not nested.matched:
-                    obj[nested.identity] = stored_back(e[1], group.identity_type, False)
-                entity[e[0]] = obj
+            entity = _entity_objects(plan, nested.entity, fetch, traces)
             made = [(r[1], {**entity[r[2]], **make(r)}) for r in rows]
         else:
             made = [(r[1], make(r)) for r in rows]
@@ -210,6 +215,27 @@ def _owned(plan, nested, fetch, traces) -> dict[int, object]:
             found = out[owner] = []
         found.append(element)
     return out
+
+
+def _entity_objects(plan, table: str, fetch, traces) -> dict:
+    """Each entity of a table as an object, by its key: its identity and attributes (read once per proof)."""
+    cache = traces["entities"]
+    found = cache.get(table)
+    if found is None:
+        group = plan.entity_group(table)
+        attributes = row_objects(group.attributes, 2)
+        found = cache[table] = {}
+        for e in fetch(f"SELECT * FROM {_q(table)}"):
+            obj = attributes(e)
+            if not group.matched:
+                obj[group.identity] = stored_back(e[1], group.identity_type, False)
+            found[e[0]] = obj
+    return found
+
+
+def _referred(plan, fields, fetch, traces) -> dict:
+    """The objects of the entity tables that fields refer to (references), by table."""
+    return {f.entity: _entity_objects(plan, f.entity, fetch, traces) for f in fields if f.entity}
 
 
 def _child_lists(plan, nested, fetch, traces) -> list:

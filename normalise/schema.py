@@ -29,7 +29,8 @@ def add_tables(plan: Plan) -> None:
             if nested.kind == "object-columns":
                 cols += [Column(f.column, f.type, source=nested.column + "." + ".".join(f.path))
                          for f in nested.links]
-        fks = []
+        fks = [fk for nested in record.nested if nested.kind == "object-columns"
+               for fk in _references(plan, nested.links)]
         if record.parent_path:  # one-to-many: each record belongs to a record of the main export
             parent = next(r for r in plan.records if r.path == record.parent_path)
             column = next(f.column for f in record.scalars if f.path == [record.parent_column])
@@ -103,6 +104,11 @@ def _reference_value_table(plan: Plan, table: Table, references: str) -> None:
     table.foreign_keys.append(ForeignKey([column], target.table, [target.key_column]))
 
 
+def _references(plan: Plan, fields) -> list[ForeignKey]:
+    """The foreign keys of a row's references to entities (``FieldMap.entity``)."""
+    return [ForeignKey([f.column], f.entity, [plan.entity_group(f.entity).key_column]) for f in fields if f.entity]
+
+
 def own_key(table: str) -> str:
     return f"{table}_sk"
 
@@ -145,6 +151,7 @@ def _nested_tables(plan: Plan, nested: NestedColumn, owner: str, owner_key: str)
     if position:
         cols.append(Column(POSITION, "integer", nullable=False))
     cols += [Column(f.column, f.type, source=".".join(f.path)) for f in nested.links]
+    fks += _references(plan, nested.links)
     plan.tables.append(Table(nested.table, role, cols, [key], position_column=position,
                              foreign_keys=fks, unique=unique, sources=source))
     for child in nested.children:
