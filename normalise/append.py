@@ -54,7 +54,10 @@ def read_state(database: str, plan: Plan) -> dict:
             if t.role == "entity" and t.name not in state["entities"]:  # tables of scalar values
                 value_type = t.columns[1].type
                 state["values"][t.name] = {value_text(v if value_type != "boolean" else bool(v), value_type): (sk, v)
-                                           for sk, v in con.execute(f"SELECT * FROM {_q(t.name)}")}
+                                           for sk, v, *_ in con.execute(f"SELECT * FROM {_q(t.name)}")}
+                if len(t.columns) > 2:  # a value list whose values name records: which value rows do
+                    state.setdefault("value_links", {})[t.name] = dict(
+                        con.execute(f"SELECT {_q(t.columns[0].name)}, {_q(t.columns[2].name)} FROM {_q(t.name)}"))
             if t.role in ("rejected", "set_aside", "unmatched", "quarantine", "variants", "names", "traces"):
                 state["meta_offset"][t.name] = con.execute(
                     f"SELECT coalesce(max({_q(t.primary_key[0])}), 0) FROM {_q(t.name)}").fetchone()[0]

@@ -24,8 +24,9 @@ import numpy as np
 from .errors import NormaliseError
 from .exact import (ABSENT, VALUE_TYPES, expect_cell, expect_element, get, is_negative_zero, json_text, keyed_items,
                     literal, pointer, same, store, stored_back, value_key)
-from .infer import get_path, match_key
+from .infer import get_path, match_key, reference_text
 from .plan import NestedColumn, Plan, RecordSource
+from .schema import reference_columns
 from .prove import InputDigests
 
 _MASK = (1 << 63) - 1
@@ -193,6 +194,8 @@ class Built:
     trace_reasons: dict = field(default_factory=dict)  # why values were kept in value_traces, and how many
     kept: dict = field(default_factory=dict)  # export path -> indices of its loaded records
     rejoined: dict = field(default_factory=dict)  # "file:column" -> values whose name suffix was rejoined
+    column_updates: dict = field(default_factory=dict)  # (table, column) -> [(value, row sk)] to set at the end
+    references: list = field(default_factory=list)  # per reference to a record table: values, matched, unmatched
 
 
 class _Audit:
@@ -426,6 +429,143 @@ META_TABLES = ("rejected_rows", "set_aside_rows", "unmatched_rows", "quarantined
                "value_traces", "name_map")
 
 
+class _References:
+    """Values that are natural keys of record tables (``references`` in the plan), resolved to those records'
+    surrogate keys.
+
+    The record a value names may come later in the file or in another file: a value no record has yet is
+    noted and resolved at the end (``finish``: value rows rewritten whole, record columns set), so one chunk
+    or many give the same rows. A value no record has at the end keeps NULL and is counted, never dropped
+    (its own text stays in its column either way).
+    """
+
+    def __init__(self, plan: Plan, state: dict | None):
+        self.value_lists = {n.entity: n for r in plan.records for n in r.nested
+                            if n.kind == "value-list" and n.references}
+        self.columns = {r.table: reference_columns(r) for r in plan.records}  # [(FieldMap, foreign-key column)]
+        self.targets = ({n.references for n in self.value_lists.values()}
+                        | {f.references for found in self.columns.values() for f, _ in found})
+        self.records: dict[str, dict] = {}  # record table -> {natural key's reference text: record sk}
+        self.linked = {t: {} for t in self.value_lists}  # value table -> {value sk: record sk or None}
+        self.unlinked = {t: {} for t in self.value_lists}  # value table -> {value sk: value} with no record yet
+        self.used = {t: Counter() for t in self.value_lists}  # value table -> bridge rows naming each value
+        self.cells: dict[tuple, int] = {}  # (record table, foreign-key column) -> values seen
+        self.pending: dict[tuple, list] = {}  # (record table, foreign-key column) -> [(row sk, text)] unresolved
+        if state:  # build --append: the records already there are named too; their value rows stay as they are
+            for table in self.targets:
+                self.records[table] = dict(state["natural_keys"].get(table, {}))
+            for table, links in state.get("value_links", {}).items():
+                if table in self.linked:
+                    self.linked[table].update(links)
+
+    def add_keys(self, record: RecordSource, columns: dict, kept: list[int], keys: list[int]) -> None:
+        """The natural keys of the records just kept, before any row names them."""
+        if record.table not in self.targets or not record.natural_key:
+            return
+        source = next(f.path[0] for f in record.scalars if f.column == record.natural_key[0])
+        values = columns[source].values
+        found = self.records.setdefault(record.table, {})
+        for i, sk in zip(kept, keys):
+            text = reference_text(values[i])
+            if text is not None:
+                found.setdefault(text, sk)
+
+    def cell_keys(self, record: RecordSource, columns: dict, kept: list[int], keys: list[int]) -> list[list]:
+        """Per referring scalar column of the record: the referenced record's key for each kept record."""
+        out = []
+        for f, column in self.columns[record.table]:
+            found = self.records.get(f.references, {})
+            values = columns[f.path[0]].values
+            pending = self.pending.setdefault((record.table, column), [])
+            col = []
+            seen = 0
+            for i, sk in zip(kept, keys):
+                v = values[i]
+                if v is None:
+                    col.append(None)
+                    continue
+                seen += 1
+                text = reference_text(v)
+                target = found.get(text)
+                if target is None:
+                    pending.append((sk, text))
+                col.append(target)
+            self.cells[(record.table, column)] = self.cells.get((record.table, column), 0) + seen
+            out.append(col)
+        return out
+
+    def link_values(self, table: str, rows: list[tuple]) -> list[tuple]:
+        """New value rows of a referring value list, each with its record's key (None: none yet)."""
+        nested = self.value_lists.get(table)
+        if nested is None or not rows:
+            return rows
+        found = self.records.get(nested.references, {})
+        linked, unlinked = self.linked[table], self.unlinked[table]
+        out = []
+        for sk, value in rows:
+            target = found.get(reference_text(value))
+            linked[sk] = target
+            if target is None:
+                unlinked[sk] = value
+            out.append((sk, value, target))
+        return out
+
+    def finish(self, plan: Plan) -> tuple[dict, dict, list[dict]]:
+        """(value rows to rewrite, record columns to set, the figures of each reference), once all records are in."""
+        updates, column_updates, figures = {}, {}, []
+        for table, nested in self.value_lists.items():
+            found = self.records.get(nested.references, {})
+            linked, unlinked = self.linked[table], self.unlinked[table]
+            for sk, value in list(unlinked.items()):
+                target = found.get(reference_text(value))
+                if target is not None:
+                    linked[sk] = target
+                    del unlinked[sk]
+                    updates.setdefault(table, []).append((sk, value, target))
+            used = self.used[table]
+            missing = [sk for sk in used if linked.get(sk) is None]
+            unmatched = sum(used[sk] for sk in missing)
+            figures.append(_reference_figures(
+                f"{nested.file}:{nested.column}", "value-list", table, plan.table(table).columns[-1].name,
+                nested.references, sum(used.values()), unmatched, len(missing),
+                [unlinked[sk] for sk in missing if sk in unlinked], len(used)))
+        for record in plan.records:
+            for f, column in self.columns[record.table]:
+                found = self.records.get(f.references, {})
+                sets, unmatched = [], Counter()
+                for sk, text in self.pending.get((record.table, column), ()):
+                    target = found.get(text)
+                    if target is None:
+                        unmatched[text] += 1
+                    else:
+                        sets.append((target, sk))
+                if sets:
+                    column_updates[(record.table, column)] = sets
+                figures.append(_reference_figures(
+                    f"{record.file}:{f.path[0]}", "column", record.table, column, f.references,
+                    self.cells.get((record.table, column), 0), sum(unmatched.values()), len(unmatched),
+                    [t for t in unmatched if t is not None]))
+        return updates, column_updates, figures
+
+
+def _reference_figures(column: str, kind: str, table: str, key: str, references: str, values: int,
+                       unmatched: int, distinct_unmatched: int, examples: list, distinct: int | None = None) -> dict:
+    """The manifest's entry of one reference: values seen, matched to a record, and kept without one."""
+    out = {"column": column, "kind": kind, "foreign_key": f"{table}.{key}", "references": references,
+           "values": values, "matched": values - unmatched, "unmatched": unmatched,
+           "distinct_unmatched": distinct_unmatched, "unmatched_examples": sorted(map(str, examples))[:5]}
+    if distinct is not None:
+        out["distinct_values"] = distinct
+    return out
+
+
+def set_column(plan: Plan, rows: dict, table: str, column: str, pairs: list[tuple]) -> None:
+    """Set one column of rows held in memory: ``pairs`` of (value, primary key)."""
+    at = [c.name for c in plan.table(table).columns].index(column)
+    values = {sk: v for v, sk in pairs}
+    rows[table] = [r if r[0] not in values else (*r[:at], values[r[0]], *r[at + 1:]) for r in rows[table]]
+
+
 class Builder:
     """Builds rows chunk by chunk; entity and value tables and the meta tables come at the end.
 
@@ -455,6 +595,7 @@ class Builder:
         self.kept: dict[str, list[int]] = {}  # export path -> indices of its loaded records (the last chunk's)
         self.trace_reasons: Counter = Counter()
         self.rejoined: Counter = Counter()  # "file:column" -> delimited values with a name suffix rejoined
+        self.record_references = _References(plan, state)  # values that are natural keys of record tables
         if state:
             for table, keys in state["natural_keys"].items():
                 self.first_seen[table] = dict(keys)
@@ -496,6 +637,7 @@ class Builder:
         record_keys = getattr(export, "record_keys", None) or export.lines
         self.kept[export.path] = kept
         keys = [record_keys[i] for i in kept]
+        self.record_references.add_keys(record, columns, kept, keys)
         for name in [f.path[0] for f in record.scalars]:
             col = columns[name]
             self.inputs.add(record.table, name, keys, [col.values[i] for i in kept], kept, col.impure)
@@ -512,6 +654,7 @@ class Builder:
         scalar_cols = [self._stored_column(record, f, columns[f.path[0]].values, kept, record_keys, export)
                        for f in record.scalars]
         columns = self._keyed_columns(record, columns, kept, record_keys, export)
+        reference_cols = self.record_references.cell_keys(record, columns, kept, keys)
         out = rows[record.table]
         object_columns = [n for n in record.nested if n.kind == "object-columns"]
         columnar = [n for n in record.nested if _is_columnar(n)]
@@ -535,6 +678,7 @@ class Builder:
                     row.append(stored)
                     if not exact:  # the cell is traced whole (_check_cell); the column is named here
                         self.audit.note_type(export.path, f.column, f.type, value, export.lines[i])
+            row += [vals[j] for vals in reference_cols]
             out.append(tuple(row))
             for nested in per_record:
                 value = columns[nested.column].values[i]
@@ -728,7 +872,10 @@ class Builder:
             if found is None:
                 found = self.values[nested.entity] = _ValueTable()
             vt = nested.value_type
-            table.extend(zip(keys, owners, [found.key(x, vt) for x in items], positions))
+            value_keys = [found.key(x, vt) for x in items]
+            if nested.references:
+                self.record_references.used[nested.entity].update(value_keys)
+            table.extend(zip(keys, owners, value_keys, positions))
             c.elements_written += len(keys)
             self._trace_cells(record, nested, values, whole, record_keys, export, given)
             return
@@ -856,6 +1003,7 @@ class Builder:
             taken[table] = acc.take_new_rows()
         for table, found in self.values.items():
             taken[table], found.new = found.new, []
+            taken[table] = self.record_references.link_values(table, taken[table])
         return taken
 
     def finish(self, occurrences=None) -> Built:
@@ -870,7 +1018,7 @@ class Builder:
         self.audit.report()
         conflicts = 0
         merges: list[dict] = []
-        updates: dict[str, list[tuple]] = {}
+        updates, column_updates, references = self.record_references.finish(self.plan)
         for table, acc in self.entities.items():
             held = [{} for _ in acc.keys]  # per attribute: canonical -> key of the value the entity row gives back
             for text, chosen_values, per_attribute in acc.choose():
@@ -914,7 +1062,7 @@ class Builder:
         return Built(rows, counts, conflicts, merges=merges,
                      cells_quarantined_by_file=dict(self.quarantined_by_file), updates=updates,
                      inputs=self.inputs, trace_reasons=dict(self.trace_reasons), kept=self.kept,
-                     rejoined=dict(self.rejoined))
+                     rejoined=dict(self.rejoined), column_updates=column_updates, references=references)
 
 
 @dataclass
@@ -1059,6 +1207,9 @@ def build(plan: Plan, exports: list, decoded: dict, extra: dict | None = None, s
         chosen = {row[0]: row for row in changed}
         built.rows[table] = [chosen.get(row[0], row) for row in built.rows[table]]
     built.updates = {}
+    for (table, column), pairs in built.column_updates.items():
+        set_column(plan, built.rows, table, column, pairs)
+    built.column_updates = {}
     return built
 
 

@@ -288,6 +288,8 @@ def _build_streaming(path: str, database: str, *, options: Options | None, limit
             writer.insert(name, built.rows.get(name, []))
         for table, rows in built.updates.items():
             writer.update(table, rows)
+        for (table, column), pairs in built.column_updates.items():
+            writer.set_column(table, column, pairs)
     except BaseException:
         writer.abort()
         raise

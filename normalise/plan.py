@@ -61,6 +61,7 @@ class FieldMap:
     # an entity reference: ``path`` leads to a single object with an identity ([]: the object itself), held as
     # the entity table's surrogate key in ``column`` (a foreign key); the entity's attributes are in its table
     entity: str = ""
+    references: str = ""  # a scalar column whose values are natural keys of this record table (a foreign key)
 
 
 @dataclass
@@ -95,6 +96,7 @@ class NestedColumn:
     separator: str = ""  # a delimited column's separator text between values (", "): the cell is the values joined
     keyed: str = ""  # an object keyed by data, read as a list of objects: the field its keys go to ("" = not)
     keyed_value: str = ""  # ... and the field a scalar value goes to ("" when the values are objects)
+    references: str = ""  # a value list whose values are natural keys of this record table (a foreign key)
 
 
 @dataclass

@@ -61,6 +61,8 @@ def _fields(maps: list[FieldMap]) -> list[dict]:
             d["null"] = f.null_means
         if f.as_text:
             d["as_text"] = True
+        if f.references:
+            d["references"] = f.references
         out.append(d)
     return out
 
@@ -88,6 +90,9 @@ def plan_to_toml(plan: Plan, joins: dict | None = None) -> str:
                 f"natural_key = {_v(record.natural_key[0] if record.natural_key else '')}",
                 f"duplicates = {_v(record.duplicates)}  # first | last | refuse",
                 "columns = ["]
+        if any(f.references for f in record.scalars):
+            out.insert(-1, "# references = TABLE: the column's values are natural keys of that record table "
+                           "(a foreign key beside it); remove it to keep the values only")
         out += [f"  {_v(f)}," for f in _fields(record.scalars)]
         out.append("]")
         for nested in record.nested:
@@ -142,6 +147,8 @@ def _nested_toml(nested: NestedColumn, header: str) -> list[str]:
             out.append(f"separator = {_v(nested.separator)}  # between the values of a delimited cell")
         if nested.value_type != "text":
             out.append(f"value_type = {_v(nested.value_type)}  # integer | real | boolean | text")
+        if nested.references:
+            out.append(f"references = {_v(nested.references)}  # the values are natural keys of this record table")
     label = {"entity-list": "link attributes (kept on the bridge)", "child-list": "fields",
              "object-columns": "record columns", "object-child": "fields"}.get(nested.kind)
     if label:
@@ -186,7 +193,8 @@ def _maps(text: str, items, where: str) -> list[FieldMap]:
         if null_means not in ("null", "absent"):
             _fail(text, f"{where}: null = {null_means!r}", 'write null = "absent" (NULL means the key is absent) '
                   'or leave it out (NULL means null)', f'"{null_means}"')
-        out.append(FieldMap([str(k) for k in key], f["name"], f["type"], null_means, bool(f.get("as_text", False))))
+        out.append(FieldMap([str(k) for k in key], f["name"], f["type"], null_means, bool(f.get("as_text", False)),
+                            references=str(f.get("references", ""))))
     return out
 
 
@@ -316,6 +324,7 @@ def plan_from_doc(doc: dict, text: str, exports: list, decoded: dict) -> Plan:
         for nested in record.nested:
             if nested.kind in ("child-list", "object-columns", "object-child"):
                 _check_keys(text, _values(decoded[record.path][nested.column].values, nested), nested)
+    _check_references(text, plan)
     add_tables(plan)
     names = {t.name for t in plan.tables}
     for v in doc.get("view", []):
@@ -342,6 +351,19 @@ def plan_from_doc(doc: dict, text: str, exports: list, decoded: dict) -> Plan:
         _check_view(text, plan, view)
         plan.views.append(view)
     return plan
+
+
+def _check_references(text: str, plan: Plan) -> None:
+    """Every ``references`` names a record table with a natural key (the values are matched against it)."""
+    keyed = {r.table for r in plan.records if r.natural_key}
+    for record in plan.records:
+        named = [(f.path[0], f.references) for f in record.scalars if f.references]
+        named += [(n.column, n.references) for n in record.nested if n.kind == "value-list" and n.references]
+        for column, table in named:
+            if table not in keyed:
+                _fail(text, f"column {column!r} of {record.file} references {table!r}, which is not a record "
+                            f"table with a natural key", f"use one of: {', '.join(sorted(keyed)) or '(none)'}, "
+                      "or remove references to keep the values without a foreign key", f'"{table}"')
 
 
 def _check_view(text: str, plan: Plan, view: View) -> None:
@@ -397,6 +419,7 @@ def _nested_from(text: str, n: dict, columns: dict, handles: dict, plan: Plan) -
             _fail(text, f"nested column {column!r}: value_type {value_type!r}", "use integer, real, boolean or text",
                   f'value_type = "{value_type}"')
         nested.value_type = value_type
+        nested.references = str(n.get("references", ""))
     decoded = columns.get(column) if "path" not in n else None
     if kind == "value-list" and getattr(decoded, "encoding", None) == "delimited":
         nested.separator = str(n.get("separator", decoded.join_separator or decoded.separator or ""))

@@ -192,7 +192,8 @@ def _owned(plan, nested, fetch, traces) -> dict[int, object]:
     rows.sort(key=itemgetter(1, names.index("list_position")))
     if nested.kind == "value-list":
         vt = getattr(nested, "value_type", "text")
-        values = {sk: stored_back(v, vt, False) for sk, v in fetch(f"SELECT * FROM {_q(nested.entity)}")}
+        values = {sk: stored_back(v, vt, False)  # a third column, when there, names the record (references)
+                  for sk, v, *_ in fetch(f"SELECT * FROM {_q(nested.entity)}")}
         made = [(r[1], values[r[2]]) for r in rows]
     else:
         make = row_objects(nested.links, 4 if nested.kind == "entity-list" else 3, entities)

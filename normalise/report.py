@@ -59,6 +59,8 @@ def manifest(plan: Plan, built: Built, database: str, integrity: dict, joined=No
         "conflicts": built.conflicts,
         # delimited values whose name suffix ("Jr.", "Ltd.") was rejoined to the value before it, per column
         "values_rejoined": dict(sorted(built.rejoined.items())),
+        # values that are natural keys of a record table: how many found their record; the others are kept
+        "references": list(built.references),
         "entities": [{"table": g.table, "identity": g.identity, "members": g.members,
                       "attributes": [f.column for f in g.attributes]} for g in plan.entities],
         "integrity": {"foreign_key_violations": integrity["foreign_key_violations"],
@@ -117,6 +119,10 @@ def summary(m: dict) -> str:
     for e in m["entities"]:
         if len(e["members"]) > 1:
             out.append(f"  entity {e['table']} shared by {', '.join(e['members'])} (identity {e['identity']})")
+    for r in m.get("references", []):
+        out.append(f"  {r['column']} -> {r['references']} ({r['foreign_key']}): {r['matched']:,} of {r['values']:,} "
+                   f"values name a record" + (f"; {r['unmatched']:,} name none ({r['distinct_unmatched']:,} distinct, "
+                                              f"kept with a NULL key)" if r["unmatched"] else ""))
     out.append(f"  conflicts: {m['conflicts']} (all variants in attribute_variants)")
     for where, n in m.get("values_rejoined", {}).items():
         out.append(f"  {where}: {n:,} delimited values kept whole with their name suffix (\"Dole, Jr.\" is one value)")

@@ -230,6 +230,13 @@ def _table(conn: sqlite3.Connection, name: str, known: dict | None) -> dict:
     return table
 
 
+def _owning_keys(table: dict) -> list[dict]:
+    """The foreign keys that may own a row or link it to an entity: NOT NULL ones. A nullable foreign key names
+    the record a value refers to (a region's parent), which makes its table neither a child nor a bridge."""
+    nullable = {c["name"] for c in table["columns"] if c["nullable"]}
+    return [f for f in table["foreign_keys"] if not set(f["columns"]) <= nullable]
+
+
 def _infer_roles(tables: list[dict]) -> None:
     """Roles, owners and natural keys of the tables the manifest does not describe, from their keys.
 
@@ -241,21 +248,24 @@ def _infer_roles(tables: list[dict]) -> None:
     for t in tables:
         if not t["inferred"] or not t["foreign_keys"] or any(f["owner"] for f in t["foreign_keys"]):
             continue
-        leading = [f for f in t["foreign_keys"]
+        owning = _owning_keys(t)
+        if not owning:
+            continue
+        leading = [f for f in owning
                    if any(u[:len(f["columns"])] == f["columns"] and u != f["columns"] for u in t["unique"])
                    or f["unique"]]
-        owner = leading[0] if leading else t["foreign_keys"][0]
+        owner = leading[0] if leading else owning[0]
         owner["owner"] = True
         t["foreign_keys"].sort(key=lambda f: not f["owner"])
-    referenced = {f["references"] for t in tables for f in t["foreign_keys"] if not f["owner"]}
+    referenced = {f["references"] for t in tables for f in _owning_keys(t) if not f["owner"]}
     for t in tables:
         if not t["inferred"] or t["role"]:
             continue
         cols = {c["name"] for c in t["columns"]}
         if t["name"] in META_TABLES and not t["foreign_keys"]:
             t["role"] = META_TABLES[t["name"]]
-        elif t["foreign_keys"]:
-            t["role"] = "bridge" if len(t["foreign_keys"]) > 1 else "child"
+        elif _owning_keys(t):
+            t["role"] = "bridge" if len(_owning_keys(t)) > 1 else "child"
         else:
             t["role"] = "entity" if t["name"] in referenced else "record"
         if t["role"] in ("record", "entity"):

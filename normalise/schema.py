@@ -3,7 +3,7 @@
 from __future__ import annotations
 
 from .names import Namer, singular
-from .plan import Column, ForeignKey, NestedColumn, Plan, Table
+from .plan import Column, FieldMap, ForeignKey, NestedColumn, Plan, RecordSource, Table
 
 POSITION = "list_position"
 
@@ -35,6 +35,10 @@ def add_tables(plan: Plan) -> None:
             parent = next(r for r in plan.records if r.path == record.parent_path)
             column = next(f.column for f in record.scalars if f.path == [record.parent_column])
             fks.append(ForeignKey([column], parent.table, [parent.key_column]))
+        for f, column in reference_columns(record):  # values that are natural keys of a record table
+            target = next(r for r in plan.records if r.table == f.references)
+            cols.append(Column(column, "integer"))
+            fks.append(ForeignKey([column], target.table, [target.key_column]))
         plan.tables.append(Table(record.table, "record", cols, [record.key_column],
                                  natural_key=list(record.natural_key), foreign_keys=fks,
                                  sources=[{"file": record.file, "column": None}]))
@@ -78,6 +82,28 @@ def _source(member: str, path: str = "") -> dict:
     return {"file": file, "column": column + (("." + path) if path else "")}
 
 
+def reference_columns(record: RecordSource) -> list[tuple[FieldMap, str]]:
+    """The scalar columns of a record that refer to a record table, each with its foreign-key column's name.
+
+    The column keeps its values as given (the lossless proof reads them); the foreign-key column beside it,
+    at the end of the record table, holds the referenced record's surrogate key, NULL when no record has the
+    value as its natural key.
+    """
+    taken = [record.key_column] + [f.column for f in record.scalars]
+    taken += [f.column for n in record.nested if n.kind == "object-columns" for f in n.links]
+    names = Namer(taken)
+    return [(f, names(f"{f.column}_sk")) for f in record.scalars if f.references]
+
+
+def _reference_value_table(plan: Plan, table: Table, references: str) -> None:
+    """A value table whose values are natural keys of a record table: each value row names its record (NULL
+    when there is none), so ``bridge JOIN value JOIN record`` leads from a list to the records it names."""
+    target = next(r for r in plan.records if r.table == references)
+    column = Namer([c.name for c in table.columns])(target.key_column)
+    table.columns.append(Column(column, "integer"))
+    table.foreign_keys.append(ForeignKey([column], target.table, [target.key_column]))
+
+
 def _references(plan: Plan, fields) -> list[ForeignKey]:
     """The foreign keys of a row's references to entities (``FieldMap.entity``)."""
     return [ForeignKey([f.column], f.entity, [plan.entity_group(f.entity).key_column]) for f in fields if f.entity]
@@ -113,6 +139,8 @@ def _nested_tables(plan: Plan, nested: NestedColumn, owner: str, owner_key: str)
                                  [Column(value_key, "integer", nullable=False),
                                   Column(value_column, nested.value_type, nullable=False, unique=True)],
                                  [value_key], natural_key=[value_column], sources=source))
+        if nested.references:
+            _reference_value_table(plan, plan.tables[-1], nested.references)
         value_column = names(value_key)
         cols.append(Column(value_column, "integer", nullable=False))
         fks.append(ForeignKey([value_column], nested.entity, [value_key]))

@@ -10,7 +10,8 @@ import os
 from dataclasses import dataclass, field
 
 from .decode import DecodedColumn, decode
-from .infer import identity_candidates, objects_of, scalar_type
+from .infer import (REFERENCE_MIN_SHARE, REFERENCE_MIN_VALUES, detect_natural_key, identity_candidates, is_reference,
+                    objects_of, reference_evidence, reference_texts, scalar_column_type, scalar_type)
 from .literal import Limits
 from .profile import profile_values
 from .read import Export, read
@@ -72,9 +73,11 @@ def survey(paths: list[str], *, limits: Limits = Limits(), formats: dict | None 
         ('python-literal', 'object-list', 'id')
     """
     files = []
+    surveyed = []
     for path in paths:
         export = read(path, encoding=encoding, delimiter=delimiter)
         columns = decode(export, limits, formats)
+        surveyed.append((export, columns))
         files.append({
             "path": os.fspath(path),
             "format": export.kind,
@@ -88,7 +91,35 @@ def survey(paths: list[str], *, limits: Limits = Limits(), formats: dict | None 
             "quarantined": sum(len(c.quarantined) for c in columns.values()),
             "columns": [survey_column(export, c) for c in columns.values()],
         })
+    _reference_evidence(surveyed, files)
     return {"files": files}
+
+
+def _reference_evidence(surveyed: list, files: list[dict]) -> None:
+    """For each column of scalars or of lists of scalars: the share of its distinct values that are natural keys
+    of a file (``references`` in the entry), the evidence a build goes by to make it a foreign key."""
+    keys, key_columns, key_of = {}, {}, {}
+    for export, columns in surveyed:
+        types = {n: scalar_column_type(c.values) for n, c in columns.items() if c.encoding in ("scalar", "empty")}
+        key = detect_natural_key(list(types), {n: columns[n].values for n in types}, types)
+        if key:
+            keys[export.name] = reference_texts(columns[key].values, False)
+            key_columns[export.name], key_of[export.name] = key, key
+    if not keys:
+        return
+    for (export, columns), found in zip(surveyed, files):
+        for entry in found["columns"]:
+            name = entry["name"]
+            if name == key_of.get(export.name) or entry["shape"] not in ("scalar", "scalar-list"):
+                continue
+            texts = reference_texts(columns[name].values, entry["shape"] == "scalar-list")
+            evidence = reference_evidence(texts, keys)
+            if evidence is None:
+                continue
+            table, distinct, matched = evidence
+            entry["references"] = {"file": table, "key": key_columns[table], "distinct_values": distinct,
+                                   "matched": matched, "share": round(matched / distinct, 4),
+                                   "foreign_key": is_reference(evidence, name, texts, key_columns)}
 
 
 def render(result: dict) -> str:
@@ -133,6 +164,13 @@ def render(result: dict) -> str:
                            + (f"; also possible: {', '.join(others)}" if others else ""))
             elif c["shape"] in ("object-list", "object"):
                 out.append("      identity: none found (objects become child rows)")
+            ref = c.get("references")
+            if ref:
+                out.append(f"      values are natural keys of {ref['file']}.{ref['key']}: {ref['matched']:,} of "
+                           f"{ref['distinct_values']:,} distinct values ({ref['share']:.0%})"
+                           + ("; a build makes it a foreign key" if ref["foreign_key"] else
+                              f"; a foreign key needs {REFERENCE_MIN_SHARE:.0%} and {REFERENCE_MIN_VALUES} values "
+                              f"(or references in a plan)"))
             if c.get("rejoined"):
                 out.append(f"      {c['rejoined']} values kept a name suffix after a comma "
                            f"(\"Carl Dole, Jr.\") as part of the value before it")

@@ -235,6 +235,13 @@ class SqliteWriter:
             self.cursor.executemany(f"UPDATE {_quote(name)} SET {sets} WHERE {_quote(key)} = ?",
                                     [(*row[1:], row[0]) for row in rows])
 
+    def set_column(self, name: str, column: str, pairs: list[tuple]) -> None:
+        """Set one column of rows written before: ``pairs`` of (value, primary key)."""
+        if pairs:
+            key = self.plan.table(name).primary_key[0]
+            self.cursor.executemany(f"UPDATE {_quote(name)} SET {_quote(column)} = ? WHERE {_quote(key)} = ?",
+                                    pairs)
+
     def finish(self, verify=None) -> dict:
         """Indexes, views, commit into the temporary file, SQLite's own checks, and the move into place.
 

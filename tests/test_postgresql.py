@@ -551,3 +551,19 @@ def test_view_order_does_not_depend_on_collation(pg, pg_url, schema, tmp_path):
         assert_same_as_sqlite(pg, icu, db, entity_views)
     finally:
         _drop(pg, icu)
+
+
+def test_references_back_match_sqlite(pg, pg_url, schema, tmp_path):
+    """Values that are natural keys of a record table (issue 12): the same foreign keys and rows as SQLite's,
+    a table referring to itself included."""
+    from tests.test_references_12 import regions, write_csv
+
+    path = write_csv(tmp_path / "regions.csv", regions())
+    db = str(tmp_path / "regions.db")
+    m_sqlite = build_database([path], db)
+    m = build_database([path], pg_url, schema=schema)
+    assert m["references"] == m_sqlite["references"] and len(m["references"]) == 2
+    assert_same_as_sqlite(pg, schema, db, relation_names(m))
+    # pg_constraint: the self-reference and the value table's reference, both checked (validated)
+    assert (["parent_sk"], schema, "regions", ["region_sk"], True) in _pg_constraints(pg, schema, "regions", "f")
+    assert (["region_sk"], schema, "regions", ["region_sk"], True) in _pg_constraints(pg, schema, "neighbour", "f")
