@@ -78,7 +78,7 @@ def check_option_names(exports: list, decoded: dict, options=None, formats: dict
         >>> from normalise.decode import decode
         >>> from normalise.infer import Options
         >>> books = Export("books.csv", "csv", ["title", "senders"],
-        ...                {"title": ["A"], "senders": ['[{"id": 1, "name": "Ivo"}]']}, [2])
+        ...                {"title": ["A"], "senders": ['[{"id": 1, "name": "Tamsel"}]']}, [2])
         >>> check_option_names([books], {"books.csv": decode(books)}, Options(identities={"sender": "id"}))
         Traceback (most recent call last):
         ...
