@@ -14,6 +14,7 @@ from .infer import Options, infer_plan
 from .join import JoinOptions, join
 from .literal import Limits
 from .names import quote_name
+from .options_check import check_option_names
 from .prove import LossDetected, loss_message, prove, sqlite_fetch
 from .planfile import join_settings, plan_from_doc, plan_to_toml, read_plan
 from .read import iter_chunks, read
@@ -53,6 +54,7 @@ def prepare(paths: list[str], *, options: Options | None = None, limits: Limits 
     exports = [read(p, encoding=encoding, delimiter=delimiter) for p in paths]
     decoded = {e.path: decode(e, limits, formats) for e in exports}
     options = options or Options()
+    check_option_names(exports, decoded, options, formats, join_options or JoinOptions())
     doc = text = None
     if plan_path:
         doc, text = read_plan(plan_path)
@@ -247,6 +249,7 @@ def _build_streaming(path: str, database: str, *, options: Options | None, limit
             break
     start = concat(first)
     start_decoded = decode(start, limits, formats)
+    check_option_names([start], {start.path: start_decoded}, options, formats)
     # later chunks are read in the formats found at the start, so every chunk agrees
     fixed = dict(formats or {})
     for name, col in start_decoded.items():

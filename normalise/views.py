@@ -165,6 +165,7 @@ def add_pick(plan: Plan, spec: str) -> Pick:
     record, the first contributor whose role is editor.
     """
     from .errors import UsageError
+    from .options_check import closest_first
 
     name, eq, rest = spec.partition("=")
     column, colon, condition = rest.partition(":")
@@ -177,11 +178,11 @@ def add_pick(plan: Plan, spec: str) -> Pick:
     if not bridges:
         lists = sorted({s["column"] for t in plan.tables if t.role == "bridge" for s in t.sources})
         raise UsageError(f"--pick {spec!r}: no list of entities comes from {column!r} "
-                         f"(lists: {', '.join(lists)})")
+                         f"(lists: {closest_first(column, lists)})")
     bridge = bridges[0]
     if attribute not in [c.name for c in bridge.columns]:
         raise UsageError(f"--pick {spec!r}: {attribute!r} is not a link attribute of {bridge.name} "
-                         f"(columns: {', '.join(c.name for c in bridge.columns)})")
+                         f"(columns: {closest_first(attribute, [c.name for c in bridge.columns])})")
     for view in plan.views:
         if view.kind == "record_summary" and bridge.name in view.lists:
             pick = Pick(name, bridge.name, attribute, value)
