@@ -1075,7 +1075,7 @@ class _Found:
         for m in self.members:
             if m.tentative:
                 own = identities(m)
-                if not any(o is not m and o.identity == m.identity and not o.tentative and own & identities(o)
+                if not any(o is not m and o.identity == m.identity and own & identities(o)
                            for o in self.members):
                     dropped.append(m)
         gone = {id(m.holder) for m in dropped}
