@@ -1217,7 +1217,11 @@ def _group_entities(plan, members: list, options: Options, tables: Namer) -> Non
         both = merged.get(tuple(chosen))
         objects_table = both if both is not None else ObjectTable.concat([members[m].table for m in chosen])
         objects = objects_table.objects
-        table = tables(_entity_name(identity, first.column))
+        # named after what its members call it most often (user, in sender, user, owner, user), ties the first
+        called = Counter(singular(sql_name(members[m].column)) for m in chosen)
+        column = next(members[m].column for m in chosen if singular(sql_name(members[m].column)) == max(
+            called, key=lambda name: (called[name], -list(called).index(name))))
+        table = tables(_entity_name(identity, column))
         names = Namer([f"{table}_sk"])
         matched = first.matched
         identity_column = names(f"{identity}_key" if matched else identity)

@@ -63,6 +63,8 @@ def _fields(maps: list[FieldMap]) -> list[dict]:
             d["as_text"] = True
         if f.references:
             d["references"] = f.references
+        if f.entity:
+            d["entity"] = f.entity  # a reference: the key of the [[entity]] the object at `key` is
         out.append(d)
     return out
 
@@ -194,7 +196,7 @@ def _maps(text: str, items, where: str) -> list[FieldMap]:
             _fail(text, f"{where}: null = {null_means!r}", 'write null = "absent" (NULL means the key is absent) '
                   'or leave it out (NULL means null)', f'"{null_means}"')
         out.append(FieldMap([str(k) for k in key], f["name"], f["type"], null_means, bool(f.get("as_text", False)),
-                            references=str(f.get("references", ""))))
+                            references=str(f.get("references", "")), entity=str(f.get("entity", ""))))
     return out
 
 
@@ -225,7 +227,7 @@ def join_settings(doc: dict) -> dict:
 
 def plan_from_doc(doc: dict, text: str, exports: list, decoded: dict) -> Plan:
     """Rebuild the plan from its file and check that it still fits the decoded data."""
-    from .infer import entity_attributes, objects_of, scalar_fields, _type_at
+    from .infer import _Found, entity_attributes, objects_of, scalar_fields, _type_at
     from .schema import add_tables
 
     plan = Plan(violation_threshold=float(doc.get("violation_threshold", 0.05)))
@@ -306,6 +308,7 @@ def plan_from_doc(doc: dict, text: str, exports: list, decoded: dict) -> Plan:
                     isinstance(o.get(nested.identity), int) for o in objects if o.get(nested.identity) is not None)
                 else "text", attributes=[FieldMap([a], a, _type_at(objects, [a])) for a in attrs])
             nested.links = [f for f in nested.links if f.path[0] not in attrs]
+    done: set = set()  # references and inner entity lists already given their entity table
     for handle, group in handles.items():
         for record in plan.records:
             for nested in record.nested:
@@ -318,12 +321,30 @@ def plan_from_doc(doc: dict, text: str, exports: list, decoded: dict) -> Plan:
                               f'identity = "{nested.identity}"')
                     group.members.append(f"{nested.file}:{nested.column}")
                     _check_keys(text, _values(decoded[record.path][nested.column].values, nested), nested, group)
+        for nested, inner in _inside(plan):  # entity lists inside objects, and references to single objects
+            if nested.path and nested.kind == "entity-list" and nested.entity == handle and id(nested) not in done:
+                nested.entity = group.table
+                group.members.append(_Found.name_of(nested))
+                done.add(id(nested))
+            for f in nested.links:
+                if f.entity == handle and id(f) not in done:
+                    f.entity = group.table
+                    group.members.append(_Found.name_of(nested, f.path))
+                    done.add(id(f))
         if group.members:
             plan.entities.append(group)
     for record in plan.records:  # objects that are no entities: child rows or record columns
         for nested in record.nested:
             if nested.kind in ("child-list", "object-columns", "object-child"):
-                _check_keys(text, _values(decoded[record.path][nested.column].values, nested), nested)
+                _check_keys(text, _values(decoded[record.path][nested.column].values, nested), nested,
+                            groups={g.table: g for g in plan.entities})
+    for nested, _ in _inside(plan):
+        for f in nested.links:
+            if f.entity and id(f) not in done:
+                _fail(text, f"field {'.'.join(f.path) or '(the object itself)'} of {nested.column!r} refers to "
+                            f"entity {f.entity!r}, which no [[entity]] defines",
+                      f"use one of: {', '.join(handles) or '(none)'}, or remove entity = from the field",
+                      f'entity = "{f.entity}"')
     _check_references(text, plan)
     add_tables(plan)
     names = {t.name for t in plan.tables}
@@ -335,7 +356,7 @@ def plan_from_doc(doc: dict, text: str, exports: list, decoded: dict) -> Plan:
         if v["table"] not in names and v["table"] in handles:
             v = dict(v, table=handles[v["table"]].table)  # the handle of an entity whose table was renamed
         lists = v.get("lists", [])
-        for name in [v.get("table")] + lists:
+        for name in [v.get("table")] + [n.partition(".")[0] for n in lists]:
             if name not in names:
                 _fail(text, f"view {v.get('name')!r} names table {name!r}, which the plan does not make",
                       f"use one of: {', '.join(sorted(names))}", f'"{name}"', after=f'name = "{v.get("name")}"')
@@ -374,7 +395,18 @@ def _check_view(text: str, plan: Plan, view: View) -> None:
         _fail(text, f"view {view.name!r}: unknown kind {view.kind!r}", "use record_summary or entity_summary",
               f'"{view.kind}"')
     end = 0 if view.kind == "record_summary" else 1
+    from .views import occurrence, references
+
     for name in view.lists:
+        if "." in name:  # a reference: TABLE.COLUMN, a foreign key to one entity
+            table = plan.table(name.partition(".")[0])
+            if name not in references(plan, table) or (
+                    end == 0 and table.name != view.table) or (end == 1 and next(
+                        k for k in table.foreign_keys if k.columns[0] == name.partition(".")[2]).references
+                                                               != view.table):
+                _fail(text, f"view {view.name!r} lists {name!r}, which is not a reference of {view.table!r}",
+                      f"remove {name!r} from the view's lists", f'"{name}"', after=f'name = "{view.name}"')
+            continue
         table = plan.table(name)
         if table.role != "bridge" or table.foreign_keys[end].references != view.table:
             what = "is owned by" if end == 0 else "links to"
@@ -388,7 +420,7 @@ def _check_view(text: str, plan: Plan, view: View) -> None:
             _fail(text, f"pick {pick.name!r}: {pick.attribute!r} is not a column of {pick.bridge!r}",
                   "name a link attribute of that bridge", f'"{pick.attribute}"', after=f'name = "{view.name}"')
     if view.date_column and view.kind == "entity_summary" and view.lists:
-        owner = plan.table(plan.table(view.lists[0]).foreign_keys[0].references)
+        owner = plan.table(occurrence(plan, view.lists[0])[1])
         if view.date_column not in [c.name for c in owner.columns]:
             _fail(text, f"view {view.name!r}: {owner.name!r} has no column {view.date_column!r}",
                   "name a date column of the records, or remove date_column", f'"{view.date_column}"')
@@ -426,6 +458,16 @@ def _nested_from(text: str, n: dict, columns: dict, handles: dict, plan: Plan) -
     return nested
 
 
+def _inside(plan: Plan):
+    """Every nested column of the plan, lists inside objects too, with whether it is inside another."""
+    for record in plan.records:
+        stack = [(n, False) for n in record.nested]
+        while stack:
+            nested, inner = stack.pop(0)
+            yield nested, inner
+            stack[:0] = [(c, True) for c in nested.children]
+
+
 def _values(values: list, nested: NestedColumn) -> list:
     """A column's values as the build reads them: an object keyed by data as the list of its keys."""
     if not nested.keyed:
@@ -435,13 +477,18 @@ def _values(values: list, nested: NestedColumn) -> list:
     return [keyed_items(v, nested.keyed, nested.keyed_value) for v in values]
 
 
-def _check_keys(text: str, values: list, nested: NestedColumn, group: EntityGroup | None = None) -> None:
+def _check_keys(text: str, values: list, nested: NestedColumn, group: EntityGroup | None = None,
+                groups: dict | None = None) -> None:
     """Every key of the column's objects must be planned (identity, attribute, link or nested list).
 
     Keys that only ever hold empty lists or objects make no column or table, so they need no plan.
     """
     attributes = group.attributes if group else []
-    known = {nested.identity} | {f.path[0] for f in attributes} | {f.path[0] for f in nested.links}
+    groups = groups or {}
+    known = {nested.identity} | {f.path[0] for f in attributes} | {f.path[0] for f in nested.links if f.path}
+    for f in nested.links:
+        if f.entity and not f.path and groups.get(f.entity):  # the object itself is an entity
+            known |= {groups[f.entity].identity} | {a.path[0] for a in groups[f.entity].attributes}
     known |= {c.path.split(".")[0] for c in nested.children}
     found = set()
     for v in values:

@@ -19,7 +19,7 @@ from .plan import Plan, Table
 from .names import quote_name as _q
 
 LIST_SEPARATOR = "; "
-_DISPLAY_NAMES = ("name", "display_name", "full_name", "title", "label")
+_DISPLAY_NAMES = ("name", "display_name", "full_name", "title", "label", "login", "username")
 
 
 @dataclass
@@ -37,7 +37,9 @@ class View:
     name: str
     kind: str  # record_summary | entity_summary
     table: str
-    lists: list[str] = field(default_factory=list)  # bridges summarised (record summary) or counted (entity)
+    # bridges summarised (record summary) or counted (entity summary); "TABLE.COLUMN": a reference, the foreign
+    # key COLUMN of TABLE to a single entity (a record's sender, a child row's author)
+    lists: list[str] = field(default_factory=list)
     picks: list[Pick] = field(default_factory=list)
     date_column: str | None = None
     separator: str = LIST_SEPARATOR
@@ -59,29 +61,55 @@ def _bridge_entity(plan: Plan, bridge: Table) -> Table:
     return plan.table(bridge.foreign_keys[1].references)
 
 
+def references(plan: Plan, table: Table) -> list[str]:
+    """The references of a table's rows to single entities, as "TABLE.COLUMN" (``FieldMap.entity``)."""
+    entities = {g.table for g in plan.entities}
+    own = {"bridge": 2, "child": 1}.get(table.role, 0)  # the owner's key, and a bridge's entity or value key
+    return [f"{table.name}.{fk.columns[0]}" for fk in table.foreign_keys[own:] if fk.references in entities]
+
+
+def occurrence(plan: Plan, entry: str) -> tuple[str, str, str, str]:
+    """Where a view's list entry finds its entities: (table, the record table owning each row, the row's column
+    holding that record's key, the row's column holding the entity's key)."""
+    name, dot, column = entry.partition(".")
+    table = plan.table(name)
+    if dot:
+        if table.role == "record":
+            return name, name, table.primary_key[0], column
+        return name, table.foreign_keys[0].references, table.foreign_keys[0].columns[0], column
+    return name, table.foreign_keys[0].references, table.foreign_keys[0].columns[0], table.foreign_keys[1].columns[0]
+
+
 def default_views(plan: Plan) -> list[View]:
-    """A record summary per record table with lists, an entity summary per entity table with bridges."""
+    """A record summary per record table with lists or references, an entity summary per entity table that
+    records hold (through bridges, or references on their rows and on their child rows)."""
     views = []
     taken = {t.name for t in plan.tables}
     bridges = [t for t in plan.tables if t.role == "bridge"]
     for record in (t for t in plan.tables if t.role == "record"):
-        own = [b.name for b in bridges if b.foreign_keys[0].references == record.name]
+        own = [b.name for b in bridges if b.foreign_keys[0].references == record.name] + references(plan, record)
         if own:
             name = _free(f"{record.name}_summary", taken)
             views.append(View(name, "record_summary", record.name, own))
+    entries = [b.name for b in bridges] + [r for t in plan.tables if t.role in ("record", "bridge", "child")
+                                           for r in references(plan, t)]
     for entity in (t for t in plan.tables if t.role == "entity"):
-        used = [b for b in bridges if b.foreign_keys[1].references == entity.name
-                and plan.table(b.foreign_keys[0].references).role == "record"]
+        used = []
+        for entry in entries:
+            table, owner, _, link = occurrence(plan, entry)
+            fk = next(k for k in plan.table(table).foreign_keys if k.columns[0] == link)
+            if fk.references == entity.name and plan.table(owner).role == "record":
+                used.append(entry)
         if not used:
             continue
-        owners = {b.foreign_keys[0].references for b in used}
+        owners = {occurrence(plan, e)[1] for e in used}
         date_column = None
         if len(owners) == 1:
             owner = plan.table(owners.pop())
             dates = [c.name for c in owner.columns if c.type in ("date", "timestamp")]
             date_column = dates[0] if dates else None
         name = _free(f"{entity.name}_summary", taken)
-        views.append(View(name, "entity_summary", entity.name, [b.name for b in used], date_column=date_column))
+        views.append(View(name, "entity_summary", entity.name, used, date_column=date_column))
     return views
 
 
@@ -131,6 +159,14 @@ def _record_summary(view: View, plan: Plan, dialect: str) -> str:
     key = record.primary_key[0]
     cols = [f"r.{_q(key)}"] + [f"r.{_q(c)}" for c in record.natural_key]
     for name in view.lists:
+        if "." in name:  # a reference on the record's row: the entity's display name
+            column = name.partition(".")[2]
+            fk = next(k for k in record.foreign_keys if k.columns[0] == column)
+            entity = plan.table(fk.references)
+            label = column[:-3] if column.endswith("_sk") else column
+            cols.append(f"(SELECT e.{_q(display_column(entity))} FROM {_q(entity.name)} e "
+                        f"WHERE e.{_q(fk.ref_columns[0])} = r.{_q(column)}) AS {_q(label)}")
+            continue
         bridge = plan.table(name)
         entity = _bridge_entity(plan, bridge)
         owner_col = bridge.foreign_keys[0].columns[0]
@@ -205,25 +241,23 @@ def _entity_summary(view: View, plan: Plan, dialect: str) -> str:
     if shown not in entity.natural_key:
         cols.append(f"e.{_q(shown)}")
     unions = []
-    for name in view.lists:
-        bridge = plan.table(name)
-        owner_col = bridge.foreign_keys[0].columns[0]
-        link = bridge.foreign_keys[1].columns[0]  # the bridge's column for this entity
-        cols.append(f"(SELECT count(DISTINCT b.{_q(owner_col)}) FROM {_q(name)} b WHERE b.{_q(link)} = e.{_q(key)}) "
-                    f"AS {_q('records_in_' + name)}")
-        owner = bridge.foreign_keys[0].references
-        unions.append(f"SELECT {_lit(owner)} AS t, b.{_q(owner_col)} AS k FROM {_q(name)} b "
+    for entry in view.lists:
+        table, owner, owner_col, link = occurrence(plan, entry)
+        label = entry.replace(".", "_")
+        label = label[:-3] if "." in entry and label.endswith("_sk") else label
+        cols.append(f"(SELECT count(DISTINCT b.{_q(owner_col)}) FROM {_q(table)} b WHERE b.{_q(link)} = e.{_q(key)}) "
+                    f"AS {_q('records_in_' + label)}")
+        unions.append(f"SELECT {_lit(owner)} AS t, b.{_q(owner_col)} AS k FROM {_q(table)} b "
                       f"WHERE b.{_q(link)} = e.{_q(key)}")
     # distinct records: an entity twice in one record's list is one record (one list has no UNION to drop it)
     cols.append(f"(SELECT count(*) FROM (SELECT DISTINCT t, k FROM ({' UNION '.join(unions)}) a) u) "
                 f"AS {_q('records_in_total')}")
     if view.date_column:
-        owner = plan.table(plan.table(view.lists[0]).foreign_keys[0].references)
+        owner = plan.table(occurrence(plan, view.lists[0])[1])
         owner_key = owner.primary_key[0]
         label = owner.natural_key[0] if owner.natural_key else owner_key
-        inner = " UNION ".join(f"SELECT b.{_q(plan.table(n).foreign_keys[0].columns[0])} AS k FROM {_q(n)} b "
-                               f"WHERE b.{_q(plan.table(n).foreign_keys[1].columns[0])} = e.{_q(key)}"
-                               for n in view.lists)
+        inner = " UNION ".join(f"SELECT b.{_q(o[2])} AS k FROM {_q(o[0])} b WHERE b.{_q(o[3])} = e.{_q(key)}"
+                               for o in map(lambda n: occurrence(plan, n), view.lists))
         date = _bytewise(dialect, f"r.{_q(view.date_column)}", owner.column(view.date_column).type)
         shown_label = _bytewise(dialect, f"r.{_q(label)}", owner.column(label).type)
         for which, direction in (("first", "ASC"), ("last", "DESC")):
