@@ -738,7 +738,7 @@ def _entity_name(identity: str, column: str) -> str:
         ('person', 'person', 'author')
     """
     base = re.sub(r"(?i)(_id|_key|_code|_uuid|id)$", "", identity).strip("_")
-    if not base or base == identity or identity.lower() in _GENERIC_IDENTITY:
+    if len(base) < 3 or base == identity or identity.lower() in _GENERIC_IDENTITY:  # "qid" names no "q"
         return singular(sql_name(column))
     return sql_name(base)
 

@@ -332,6 +332,9 @@ def plan_from_doc(doc: dict, text: str, exports: list, decoded: dict) -> Plan:
                     group.members.append(_Found.name_of(nested, f.path))
                     done.add(id(f))
         if group.members:
+            written = [str(m) for m in next((e.get("members") or [] for e in doc.get("entity", [])
+                                             if e.get("handle") == handle), [])]
+            group.members.sort(key=lambda m: written.index(m) if m in written else len(written))
             plan.entities.append(group)
     for record in plan.records:  # objects that are no entities: child rows or record columns
         for nested in record.nested:
