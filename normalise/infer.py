@@ -1180,7 +1180,7 @@ def _group_entities(plan, members: list, options: Options, tables: Namer) -> Non
     have in common (union-find over the pairs); ``--merge`` forces members together, ``--no-merge``
     keeps one apart.
     """
-    from .plan import EntityGroup
+    from .plan import EntityGroup, FieldMap
 
     parent = list(range(len(members)))
 
@@ -1217,10 +1217,12 @@ def _group_entities(plan, members: list, options: Options, tables: Namer) -> Non
         both = merged.get(tuple(chosen))
         objects_table = both if both is not None else ObjectTable.concat([members[m].table for m in chosen])
         objects = objects_table.objects
-        # named after what its members call it most often (user, in sender, user, owner, user), ties the first
+        # named after what its members call it most often (user, in sender, user, owner, user); ties to a list's
+        # name (a list names the kind, "watchers"; a single object its role, "opened_by"), then the first
         called = Counter(singular(sql_name(members[m].column)) for m in chosen)
-        column = next(members[m].column for m in chosen if singular(sql_name(members[m].column)) == max(
-            called, key=lambda name: (called[name], -list(called).index(name))))
+        listed = {singular(sql_name(members[m].column)) for m in chosen if not isinstance(members[m].holder, FieldMap)}
+        best = max(called, key=lambda name: (called[name], name in listed, -list(called).index(name)))
+        column = next(members[m].column for m in chosen if singular(sql_name(members[m].column)) == best)
         table = tables(_entity_name(identity, column))
         names = Namer([f"{table}_sk"])
         matched = first.matched

@@ -27,7 +27,7 @@ def add_tables(plan: Plan) -> None:
                                source=f.path[0]))
         for nested in record.nested:
             if nested.kind == "object-columns":
-                cols += [Column(f.column, f.type, source=nested.column + "." + ".".join(f.path))
+                cols += [Column(f.column, f.type, source=".".join([nested.column, *f.path]))
                          for f in nested.links]
         fks = [fk for nested in record.nested if nested.kind == "object-columns"
                for fk in _references(plan, nested.links)]
