@@ -40,7 +40,12 @@ def sql_name(text: str) -> str:
 
 
 _IRREGULAR = {"people": "person", "children": "child", "men": "man", "women": "woman", "data": "data",
-              "series": "series", "species": "species", "news": "news", "status": "status"}
+              "series": "series", "species": "species", "news": "news", "status": "status",
+              # Latin and Greek plurals, and -us words doubled in -uses (English spelling, common practice)
+              "indices": "index", "matrices": "matrix", "vertices": "vertex", "appendices": "appendix",
+              "analyses": "analysis", "theses": "thesis", "crises": "crisis", "diagnoses": "diagnosis",
+              "criteria": "criterion", "phenomena": "phenomenon", "media": "media",
+              "buses": "bus", "campuses": "campus", "viruses": "virus", "bonuses": "bonus", "censuses": "census"}
 # -ies words whose singular ends in -ie, not -y (English spelling, common practice)
 _IE = frozenset(["cookies", "rookies", "calories", "pies", "ties", "lies", "zombies", "selfies", "brownies"])
 # plurals in -es after a sibilant: box -> boxes, match -> matches, wish -> wishes, address -> addresses,
@@ -56,6 +61,8 @@ def singular(name: str) -> str:
         ('contributor', 'title', 'category', 'press', 'person')
         >>> singular("aliases"), singular("suffixes"), singular("series"), singular("status"), singular("cookies")
         ('alias', 'suffix', 'series', 'status', 'cookie')
+        >>> singular("statuses"), singular("buses"), singular("analyses"), singular("indices"), singular("prices")
+        ('status', 'bus', 'analysis', 'index', 'price')
     """
     for plural, one in _IRREGULAR.items():
         if name == plural or name.endswith("_" + plural):

@@ -58,6 +58,10 @@ def test_table_names_are_singular_nouns():
     # English plurals (common practice): aliases, suffixes, series, status, cookies
     assert [singular(w) for w in ("aliases", "suffixes", "series", "status", "cookies", "categories")] == [
         "alias", "suffix", "series", "status", "cookie", "category"]
+    # -uses, -ices, -yses (English spelling, common practice): the -us, -ex and -is words by name, others regular
+    assert [singular(w) for w in ("statuses", "buses", "causes", "houses", "indices", "prices", "analyses",
+                                  "user_statuses")] == [
+        "status", "bus", "cause", "house", "index", "price", "analysis", "user_status"]
 
 
 def test_a_list_of_numbers_keeps_numbers(tmp_path):
