@@ -33,6 +33,105 @@ class InvalidPlan(NormaliseError):
     """A plan file that cannot be read or does not fit the data."""
 
 
+# --- the plan file's schema: what each block may hold; the reader checks a file against it ---------------
+
+NAME = "name"  # a SQL name as the tool makes them: [a-z0-9_], not starting with a digit, at most 60 characters
+TEXT, FLAG, WHOLE, SHARE, TEXTS = "text", "true or false", "a whole number", "a number from 0 to 1", "texts"
+REQUIRED = "required"  # a block's keys that must be there
+FIELD = {REQUIRED: ("key", "name", "type"), "key": "path", "name": NAME, "type": TYPES, "null": ("null", "absent"), "as_text": FLAG,
+         "references": NAME, "entity": NAME}
+NESTED = {REQUIRED: ("column", "kind"), "column": TEXT, "path": TEXT, "file": TEXT, "kind": KINDS, "table": NAME, "entity": NAME,
+          "values_table": NAME, "identity": TEXT, "matched": FLAG, "separator": TEXT,
+          "value_type": ("integer", "real", "boolean", "text"), "references": NAME, "keyed": TEXT,
+          "keyed_value": TEXT, "fields": [FIELD]}
+NESTED["children"] = [NESTED]
+SCHEMA = {
+    "version": WHOLE, "violation_threshold": SHARE,
+    "join": {"how": ("left", "inner", "full"), "cardinality": ("one-to-one", "one-to-many"), "separate": FLAG,
+             "on": "map of texts"},
+    "record": [{REQUIRED: ("file", "table", "key"), "file": TEXT, "table": NAME, "key": NAME, "natural_key": TEXT,
+                "duplicates": ("first", "last", "refuse"), "columns": [FIELD], "nested": [NESTED]}],
+    "entity": [{REQUIRED: ("handle", "table", "identity", "identity_column", "identity_type"), "handle": TEXT, "table": NAME, "identity": TEXT, "identity_column": NAME,
+                "identity_type": TYPES, "matched": FLAG, "members": TEXTS, "attributes": [FIELD]}],
+    "view": [{REQUIRED: ("name", "kind", "table"), "name": NAME, "kind": ("record_summary", "entity_summary"), "table": NAME, "lists": TEXTS,
+              "date_column": TEXT, "separator": TEXT,
+              "pick": [{REQUIRED: ("name", "list", "attribute", "value"), "name": NAME, "list": TEXT, "attribute": TEXT, "value": "a text or number"}]}],
+}
+
+
+def check_shape(doc: dict, text: str) -> None:
+    """Every key of the plan file known and every value of the kind the schema (``SCHEMA``) says, or one
+    ``InvalidPlan`` naming the line, the key, what was expected and what arrived."""
+    _shape(doc, SCHEMA, "", text)
+
+
+def _shape(value, spec, where: str, text: str) -> None:
+    if isinstance(spec, dict):
+        if not isinstance(value, dict):
+            _wrong(text, where, "a table of keys", value)
+        missing = [k for k in spec.get(REQUIRED, ()) if k not in value]
+        if missing:
+            _fail(text, f"{where or 'the plan'} lacks {', '.join(missing)}",
+                  f"every such block needs {', '.join(spec[REQUIRED])}; or write a fresh plan with `normalise plan`",
+                  *_needles(value))
+        for key, inner in value.items():
+            if key not in spec or key == REQUIRED:
+                _fail(text, f"{where or 'the plan'}: unknown key {key!r}",
+                      f"use one of: {', '.join(k for k in spec if k != REQUIRED)}; or write a fresh plan with "
+                      "`normalise plan`",
+                      f"{key} =", f'"{key}"', f"{key}")
+            _shape(inner, spec[key], f"{where}.{key}" if where else key, text)
+    elif isinstance(spec, list):
+        if not isinstance(value, list):
+            _wrong(text, where, "a list of [[...]] blocks or { ... } entries", value)
+        for n, item in enumerate(value):
+            _shape(item, spec[0], f"{where}[{n + 1}]", text)
+    elif isinstance(spec, tuple):
+        if value not in spec:
+            key = where.rsplit(".", 1)[-1].split("[")[0]
+            _fail(text, f"{where}: unknown {key} {value!r}", f"use one of {', '.join(spec)}",
+                  f"{key} = {_v(value) if isinstance(value, (str, int, float, bool)) else ''}".strip(), f"{key} =")
+    elif not _fits(value, spec):
+        _wrong(text, where, spec, value)
+
+
+def _needles(block: dict) -> list[str]:
+    """Text that finds a block's line: its naming keys with their values first."""
+    keys = [k for k in ("name", "column", "handle", "file", "table") if isinstance(block.get(k), str)]
+    keys += [k for k, v in block.items() if k not in keys and isinstance(v, (str, int, float))]
+    return [f"{k} = {_v(block[k])}" for k in keys]
+
+
+def _fits(value, spec: str) -> bool:
+    from .names import sql_name
+
+    if spec == NAME:
+        return isinstance(value, str) and sql_name(value) == value and len(value.encode()) <= 63
+    if spec == TEXT:
+        return isinstance(value, str)
+    if spec == FLAG:
+        return isinstance(value, bool)
+    if spec == WHOLE:
+        return isinstance(value, int) and not isinstance(value, bool)
+    if spec == SHARE:
+        return isinstance(value, (int, float)) and not isinstance(value, bool) and 0 <= value < 1
+    if spec == TEXTS:
+        return isinstance(value, list) and all(isinstance(v, str) for v in value)
+    if spec == "path":
+        return isinstance(value, str) or isinstance(value, list) and all(isinstance(v, str) for v in value)
+    if spec == "map of texts":
+        return isinstance(value, dict) and all(isinstance(v, str) for v in value.values())
+    return isinstance(value, (str, int, float)) and not isinstance(value, bool)  # a pick's value
+
+
+def _wrong(text: str, where: str, expected: str, value) -> None:
+    key = where.rsplit(".", 1)[-1].split("[")[0]
+    shown = _v(value) if isinstance(value, (str, int, float, bool, list)) else type(value).__name__
+    hint = ("names are lower case letters, digits and _ (not first), at most 60 characters"
+            if expected == NAME else f"write {key} = <{expected}>")
+    _fail(text, f"{where}: expected {expected}, got {shown[:60]}", hint, f"{key} = {shown}", f"{key} =")
+
+
 # --- writing ---------------------------------------------------------------------
 
 def _v(value) -> str:
@@ -202,12 +301,19 @@ def _maps(text: str, items, where: str) -> list[FieldMap]:
 
 def read_plan(path: str) -> tuple[dict, str]:
     """The raw plan document and its text; TOML syntax errors name their line."""
-    text = Path(path).read_text(encoding="utf-8")
+    try:
+        text = Path(path).read_text(encoding="utf-8")
+    except UnicodeDecodeError as exc:
+        raise InvalidPlan(f"plan {path}: not UTF-8 text (byte {exc.start}: {exc.object[exc.start:exc.start + 1]!r})"
+                          "\n  hint: a plan file is UTF-8 TOML; save it as UTF-8") from None
+    except OSError as exc:
+        raise InvalidPlan(f"plan {path}: cannot be read ({exc.strerror})") from None
     try:
         doc = tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
         raise InvalidPlan(f"plan {path}: {exc}\n  hint: the plan is TOML; check quotes, brackets and "
                           "commas on that line") from None
+    check_shape(doc, text)
     if doc.get("version") != PLAN_VERSION:
         _fail(text, f"version {doc.get('version')!r} is not {PLAN_VERSION}", f"set version = {PLAN_VERSION}",
               "version")
@@ -275,6 +381,10 @@ def plan_from_doc(doc: dict, text: str, exports: list, decoded: dict) -> Plan:
                               scalars=_maps(text, r.get("columns"), f"record {file}.columns"),
                               parent_path=getattr(export, "parent_path", ""),
                               parent_column=getattr(export, "parent_column", ""))
+        if record.natural_key and record.natural_key[0] not in [f.column for f in record.scalars]:
+            _fail(text, f"[[record]] {file}: natural_key {record.natural_key[0]!r} is none of its columns",
+                  f"use one of: {', '.join(f.column for f in record.scalars) or '(none)'}, or \"\" for none",
+                  f'natural_key = "{record.natural_key[0]}"')
         planned = {f.path[0] for f in record.scalars}
         for nested in r.get("nested", []):
             record.nested.append(_nested_from(text, nested, columns, handles, plan))
@@ -350,6 +460,7 @@ def plan_from_doc(doc: dict, text: str, exports: list, decoded: dict) -> Plan:
                       f'entity = "{f.entity}"')
     _check_references(text, plan)
     add_tables(plan)
+    _check_names(text, plan)
     names = {t.name for t in plan.tables}
     for v in doc.get("view", []):
         missing = {"name", "kind", "table"} - set(v)
@@ -377,6 +488,26 @@ def plan_from_doc(doc: dict, text: str, exports: list, decoded: dict) -> Plan:
     return plan
 
 
+def _check_names(text: str, plan: Plan) -> None:
+    """Table names unique (and none a bookkeeping table's), column names unique within a table (and none a key
+    the tool gives the table itself), so every statement the plan makes can run."""
+    from .build import META_TABLES
+
+    seen: set = set()
+    for t in plan.tables:
+        if t.name in seen:
+            what = "a bookkeeping table of the tool" if t.name in META_TABLES else "another table"
+            _fail(text, f"table name {t.name!r} is taken twice ({what} has it)", "give each table a name of its own",
+                  f'table = "{t.name}"', f'"{t.name}"')
+        seen.add(t.name)
+        columns: set = set()
+        for c in t.columns:
+            if c.name in columns:
+                _fail(text, f"table {t.name!r} has two columns named {c.name!r} (a key the tool adds, or another "
+                            f"field)", "give the field a name of its own", f'name = "{c.name}"', f'"{c.name}"')
+            columns.add(c.name)
+
+
 def _check_references(text: str, plan: Plan) -> None:
     """Every ``references`` names a record table with a natural key (the values are matched against it)."""
     keyed = {r.table for r in plan.records if r.natural_key}
@@ -400,6 +531,9 @@ def _check_view(text: str, plan: Plan, view: View) -> None:
     end = 0 if view.kind == "record_summary" else 1
     from .views import occurrence, references
 
+    if end == 1 and not view.lists:
+        _fail(text, f"view {view.name!r} counts the records of {view.table!r} through no list",
+              "name the bridges or references it counts in lists, or remove the view", f'name = "{view.name}"')
     for name in view.lists:
         if "." in name:  # a reference: TABLE.COLUMN, a foreign key to one entity
             table = plan.table(name.partition(".")[0])
@@ -442,6 +576,11 @@ def _nested_from(text: str, n: dict, columns: dict, handles: dict, plan: Plan) -
                           entity=n.get("entity") or n.get("values_table"), path=n.get("path", ""),
                           identity=n.get("identity", ""), matched=bool(n.get("matched", False)),
                           links=_maps(text, n.get("fields"), f"{column}.fields"))
+    needs = {"entity-list": ("table", "entity", "identity"), "child-list": ("table",), "object-child": ("table",),
+             "value-list": ("table", "values_table")}.get(kind, ())
+    if [k for k in needs if not n.get(k)]:
+        _fail(text, f"nested column {column!r} ({kind}) lacks {', '.join(k for k in needs if not n.get(k))}",
+              f"a {kind} needs {', '.join(needs)}; or write a fresh plan with `normalise plan`", f'column = "{column}"')
     nested.children = [_nested_from(text, c, columns, handles, plan) for c in n.get("children", [])]
     nested.keyed, nested.keyed_value = str(n.get("keyed", "")), str(n.get("keyed_value", ""))
     if nested.keyed and kind not in ("entity-list", "child-list"):
