@@ -140,7 +140,7 @@ def _v(value) -> str:
     if isinstance(value, (int, float)):
         return repr(value)
     if isinstance(value, str):
-        return json.dumps(value, ensure_ascii=False)
+        return _toml_string(value)
     if isinstance(value, list):
         return "[" + ", ".join(_v(v) for v in value) + "]"
     if isinstance(value, dict):
@@ -149,7 +149,19 @@ def _v(value) -> str:
 
 
 def _k(key: str) -> str:
-    return key if re.fullmatch(r"[A-Za-z0-9_-]+", key) else json.dumps(key, ensure_ascii=False)
+    return key if re.fullmatch(r"[A-Za-z0-9_-]+", key) else _toml_string(key)
+
+
+def _toml_string(text: str) -> str:
+    """A TOML basic string: JSON's escapes are TOML's (toml.io v1.0.0, "String"), and DEL, which JSON leaves
+    as it is, is a control character TOML wants escaped too.
+
+    Example:
+        >>> import tomllib
+        >>> tomllib.loads("k = " + _toml_string('a"b' + chr(127)))["k"] == 'a"b' + chr(127)
+        True
+    """
+    return json.dumps(text, ensure_ascii=False).replace("\x7f", "\\u007f")
 
 
 def _fields(maps: list[FieldMap]) -> list[dict]:

@@ -127,3 +127,17 @@ def test_any_mutation_works_or_is_refused_cleanly(planned, tmp_path_factory, dat
         assert not (where / "edited.db").exists()
     else:
         assert m["integrity"]["proof"] == "exact"
+
+
+def test_a_header_with_control_characters_round_trips_through_the_plan(tmp_path):
+    # TOML v1.0.0 (toml.io, "String"): DEL and the other control characters are escaped in basic strings
+    import tomllib
+
+    from tests.test_lossless import write_rows
+
+    path = tmp_path / "odd.csv"
+    write_rows(path, ["key", "odd\x7fname", "tab\tname"], [("k1", "x", "y"), ("k2", "z", "w")])
+    text = make_plan([str(path)], str(tmp_path / "p.toml"))
+    assert "\x7f" not in text and tomllib.loads(text)
+    m = build_database([str(path)], str(tmp_path / "o.db"), plan_path=str(tmp_path / "p.toml"))
+    assert m["integrity"]["proof"] == "exact"
