@@ -25,6 +25,22 @@ def quote_name(name: str) -> str:
     return '"' + str(name).replace('"', '""') + '"'
 
 
+def fit(name: str, limit: int = MAX_NAME) -> str:
+    """A name shortened to ``limit`` characters when longer, with a stable hash of the whole name at its end,
+    so names that differ past the limit stay apart (PostgreSQL keeps 63 bytes of a name: its documentation,
+    "Identifiers and Key Words"; the tool keeps 60, so that ``_sk`` still fits).
+
+    Example:
+        >>> fit("a" * 70) == "a" * 51 + "_" + fit("a" * 70)[-8:], len(fit("a" * 70)), fit("short")
+        (True, 60, 'short')
+    """
+    if len(name.encode("utf-8")) <= limit:
+        return name
+    from hashlib import blake2b
+
+    return name[:limit - 9] + "_" + blake2b(name.encode("utf-8"), digest_size=4).hexdigest()
+
+
 def sql_name(text: str) -> str:
     """A lower-case SQL identifier for a name from the data.
 
@@ -36,7 +52,7 @@ def sql_name(text: str) -> str:
     name = _UNSAFE.sub("_", text.lower()).strip("_")
     if not name or name[0].isdigit():
         name = "c_" + name if name else "c"
-    return name[:MAX_NAME]
+    return fit(name)
 
 
 _IRREGULAR = {"people": "person", "children": "child", "men": "man", "women": "woman", "data": "data",
@@ -91,7 +107,7 @@ class Namer:
         base = sql_name(wanted)
         name, n = base, 2
         while name.lower() in self.taken:
-            name = f"{base}_{n}"
+            name = fit(f"{base}_{n}")
             n += 1
         self.taken.add(name.lower())
         return name

@@ -114,12 +114,22 @@ def default_views(plan: Plan) -> list[View]:
 
 
 def _free(name: str, taken: set) -> str:
+    from .names import fit
+
     base, n = name, 2
+    name = fit(name)
     while name in taken:
-        name = f"{base}_{n}"
+        name = fit(f"{base}_{n}")
         n += 1
     taken.add(name)
     return name
+
+
+def _label(name: str) -> str:
+    """A view column's name, shortened with a hash when longer than a PostgreSQL name (63 bytes)."""
+    from .names import fit
+
+    return fit(name, 63)
 
 
 def _lit(value: str) -> str:
@@ -177,7 +187,7 @@ def _record_summary(view: View, plan: Plan, dialect: str) -> str:
         source = (f"{_q(name)} b JOIN {_q(entity.name)} e ON e.{_q(entity_key)} = b.{_q(entity_col)} "
                   f"WHERE b.{_q(owner_col)} = r.{_q(key)}")
         cols.append(f"(SELECT count(*) FROM {_q(name)} b WHERE b.{_q(owner_col)} = r.{_q(key)}) "
-                    f"AS {_q('number_of_' + label)}")
+                    f"AS {_q(_label('number_of_' + label))}")
         cols.append(_ordered_join(dialect, f"e.{_q(shown)}", "b.list_position", source, view.separator)
                     + f" AS {_q(label)}")
     for pick in view.picks:
@@ -246,7 +256,7 @@ def _entity_summary(view: View, plan: Plan, dialect: str) -> str:
         label = entry.replace(".", "_")
         label = label[:-3] if "." in entry and label.endswith("_sk") else label
         cols.append(f"(SELECT count(DISTINCT b.{_q(owner_col)}) FROM {_q(table)} b WHERE b.{_q(link)} = e.{_q(key)}) "
-                    f"AS {_q('records_in_' + label)}")
+                    f"AS {_q(_label('records_in_' + label))}")
         unions.append(f"SELECT {_lit(owner)} AS t, b.{_q(owner_col)} AS k FROM {_q(table)} b "
                       f"WHERE b.{_q(link)} = e.{_q(key)}")
     # distinct records: an entity twice in one record's list is one record (one list has no UNION to drop it)
@@ -264,8 +274,8 @@ def _entity_summary(view: View, plan: Plan, dialect: str) -> str:
             cols.append(f"(SELECT r.{_q(label)} FROM {_q(owner.name)} r WHERE r.{_q(owner_key)} IN ({inner}) "
                         f"AND r.{_q(view.date_column)} IS NOT NULL "
                         f"ORDER BY {date} {direction}, {shown_label} {direction} LIMIT 1) "
-                        f"AS {_q(f'{which}_{singular_prefix(owner.name)[:-1]}')}")
+                        f"AS {_q(_label(f'{which}_{singular_prefix(owner.name)[:-1]}'))}")
             cols.append(f"(SELECT {'min' if which == 'first' else 'max'}({date}) "
                         f"FROM {_q(owner.name)} r WHERE r.{_q(owner_key)} IN ({inner})) "
-                        f"AS {_q(f'{which}_{view.date_column}')}")
+                        f"AS {_q(_label(f'{which}_{view.date_column}'))}")
     return f"SELECT {', '.join(cols)} FROM {_q(entity.name)} e"
