@@ -743,6 +743,26 @@ def _entity_name(identity: str, column: str) -> str:
     return sql_name(base)
 
 
+SAME_SHAPE_FIELDS = 4  # objects with at least this many fields, nearly all in common, are of one kind
+SAME_SHAPE_SHARE = 0.8  # Jaccard share of the field names two object sets have in common
+
+
+def _same_shape(a: ObjectTable, b: ObjectTable) -> bool:
+    """Whether two sets of objects with no identity in common are still of one kind: the same fields, nearly
+    all (a reviewer and a sender, both carrying id, login, type, url, ...). Shared identities would be the
+    stronger evidence; with none, one shape is what says they are one identity space.
+
+    Example:
+        >>> person = lambda i: {"id": i, "login": f"u{i}", "type": "User", "url": f"/u/{i}"}
+        >>> _same_shape(ObjectTable([person(1)]), ObjectTable([person(2)]))
+        True
+        >>> _same_shape(ObjectTable([person(1)]), ObjectTable([{"id": 2, "title": "t", "state": "open"}]))
+        False
+    """
+    fa, fb = set(map(str, a.keys())), set(map(str, b.keys()))
+    return len(fa & fb) >= SAME_SHAPE_FIELDS and len(fa & fb) >= SAME_SHAPE_SHARE * len(fa | fb)
+
+
 def _agreement(a: ObjectTable, b: ObjectTable, identity: str, table: ObjectTable) -> tuple[int, float]:
     """Common identities of two object sets and the share of shared attributes that agree.
 
@@ -842,7 +862,7 @@ def infer_plan(exports: list, decoded: dict, options: Options | None = None):
                 fields, lists = scalar_fields(objects, table=table)
                 wide = len(fields) > WIDE_OBJECT_KEYS
                 nested.kind = "object-child" if wide else "object-columns"
-                refs = found.references(nested, export.name, objects, table, itself=not wide)
+                refs = found.references(nested, export.name, objects, table, itself=True)
                 found.links(nested, objects, table, fields, refs, Namer() if wide else names,
                             "" if wide else name + "_")
                 nested.children = _child_lists(export.name, name, objects, lists, table, found)
@@ -1200,7 +1220,7 @@ def _group_entities(plan, members: list, options: Options, tables: Namer) -> Non
                 continue
             both = ObjectTable.concat([a.table, b.table])
             common, agree = _agreement(a.table, b.table, a.identity, both)
-            if common and agree >= 1 - options.violation_threshold:
+            if common and agree >= 1 - options.violation_threshold or not common and _same_shape(a.table, b.table):
                 parent[find(j)] = find(i)
                 merged[(i, j)] = both
     for group in options.merge:

@@ -68,16 +68,27 @@ def references(plan: Plan, table: Table) -> list[str]:
     return [f"{table.name}.{fk.columns[0]}" for fk in table.foreign_keys[own:] if fk.references in entities]
 
 
-def occurrence(plan: Plan, entry: str) -> tuple[str, str, str, str]:
-    """Where a view's list entry finds its entities: (table, the record table owning each row, the row's column
-    holding that record's key, the row's column holding the entity's key)."""
+def occurrence(plan: Plan, entry: str) -> tuple[str, str, str, str] | None:
+    """Where a view's list entry finds its entities: (the FROM clause, with ``b`` the table of the entry and
+    its owners joined up to the record, the record table, the expression of the record's key, the expression
+    of the entity's key). A list inside a one-to-one child (``pull_request.requested_reviewers``) counts for
+    the record owning the child. None when no record owns the rows."""
     name, dot, column = entry.partition(".")
     table = plan.table(name)
-    if dot:
-        if table.role == "record":
-            return name, name, table.primary_key[0], column
-        return name, table.foreign_keys[0].references, table.foreign_keys[0].columns[0], column
-    return name, table.foreign_keys[0].references, table.foreign_keys[0].columns[0], table.foreign_keys[1].columns[0]
+    link = f"b.{_q(column if dot else table.foreign_keys[1].columns[0])}"
+    source, alias, here, n = f"{_q(name)} b", "b", table, 0
+    while here.role != "record":
+        if here.role not in ("bridge", "child"):
+            return None
+        fk = here.foreign_keys[0]
+        parent = plan.table(fk.references)
+        if parent.role == "record":
+            return source, parent.name, f"{alias}.{_q(fk.columns[0])}", link
+        n += 1
+        source += (f" JOIN {_q(parent.name)} p{n} ON p{n}.{_q(parent.primary_key[0])} = "
+                   f"{alias}.{_q(fk.columns[0])}")
+        alias, here = f"p{n}", parent
+    return source, name, f"b.{_q(table.primary_key[0])}", link
 
 
 def default_views(plan: Plan) -> list[View]:
@@ -96,9 +107,10 @@ def default_views(plan: Plan) -> list[View]:
     for entity in (t for t in plan.tables if t.role == "entity"):
         used = []
         for entry in entries:
-            table, owner, _, link = occurrence(plan, entry)
-            fk = next(k for k in plan.table(table).foreign_keys if k.columns[0] == link)
-            if fk.references == entity.name and plan.table(owner).role == "record":
+            name, dot, column = entry.partition(".")
+            table = plan.table(name)
+            fk = next(k for k in table.foreign_keys if k.columns[0] == column) if dot else table.foreign_keys[1]
+            if fk.references == entity.name and occurrence(plan, entry) is not None:
                 used.append(entry)
         if not used:
             continue
@@ -252,13 +264,12 @@ def _entity_summary(view: View, plan: Plan, dialect: str) -> str:
         cols.append(f"e.{_q(shown)}")
     unions = []
     for entry in view.lists:
-        table, owner, owner_col, link = occurrence(plan, entry)
+        source, owner, record_key, link = occurrence(plan, entry)
         label = entry.replace(".", "_")
         label = label[:-3] if "." in entry and label.endswith("_sk") else label
-        cols.append(f"(SELECT count(DISTINCT b.{_q(owner_col)}) FROM {_q(table)} b WHERE b.{_q(link)} = e.{_q(key)}) "
+        cols.append(f"(SELECT count(DISTINCT {record_key}) FROM {source} WHERE {link} = e.{_q(key)}) "
                     f"AS {_q(_label('records_in_' + label))}")
-        unions.append(f"SELECT {_lit(owner)} AS t, b.{_q(owner_col)} AS k FROM {_q(table)} b "
-                      f"WHERE b.{_q(link)} = e.{_q(key)}")
+        unions.append(f"SELECT {_lit(owner)} AS t, {record_key} AS k FROM {source} WHERE {link} = e.{_q(key)}")
     # distinct records: an entity twice in one record's list is one record (one list has no UNION to drop it)
     cols.append(f"(SELECT count(*) FROM (SELECT DISTINCT t, k FROM ({' UNION '.join(unions)}) a) u) "
                 f"AS {_q('records_in_total')}")
@@ -266,7 +277,7 @@ def _entity_summary(view: View, plan: Plan, dialect: str) -> str:
         owner = plan.table(occurrence(plan, view.lists[0])[1])
         owner_key = owner.primary_key[0]
         label = owner.natural_key[0] if owner.natural_key else owner_key
-        inner = " UNION ".join(f"SELECT b.{_q(o[2])} AS k FROM {_q(o[0])} b WHERE b.{_q(o[3])} = e.{_q(key)}"
+        inner = " UNION ".join(f"SELECT {o[2]} AS k FROM {o[0]} WHERE {o[3]} = e.{_q(key)}"
                                for o in map(lambda n: occurrence(plan, n), view.lists))
         date = _bytewise(dialect, f"r.{_q(view.date_column)}", owner.column(view.date_column).type)
         shown_label = _bytewise(dialect, f"r.{_q(label)}", owner.column(label).type)

@@ -51,24 +51,6 @@ CASES = {
     "three files": ([(k, "jsonl") for k in KINDS], None),
 }
 
-SPLIT = pytest.mark.xfail(strict=True, reason=(
-    "normalise.infer._group_entities joins two members of an identity space only when _agreement finds "
-    "identities they have in common; pull_request.requested_reviewers and requested_reviewer hold only "
-    "the user 5346, which no other user column holds, so they get an entity table of their own although "
-    "they carry the same identity field and the same 18 keys as sender, pull_request.user, ..."))
-SUMMARY = pytest.mark.xfail(strict=True, reason=(
-    "normalise.views.default_views counts in an entity summary only the bridges and references whose own "
-    "row belongs to a record table (plan.table(owner).role == 'record'); the bridges of lists inside a "
-    "1:1 child (pull_request.requested_reviewers on pull_request_pull_request, issue.assignees on "
-    "issue_issue) are left out, so records_in_total of the user 5346 counts the 2 payloads of the "
-    "requested_reviewer column and not the 22 of pull_request.requested_reviewers"))
-WIDE = pytest.mark.xfail(strict=True, reason=(
-    "normalise.infer.infer_plan makes a wide single object (over WIDE_OBJECT_KEYS keys) a 1:1 child "
-    "table only for a top-level column; inside a child, scalar_fields flattens the objects that are no "
-    "entity into the child's columns: issues' changes.old_issue, changes.new_issue, "
-    "changes.old_repository and changes.new_repository (26 to 78 keys each) give issue_changes 223 columns "
-    "(149 in the three-file build, where new_repository shares identities and becomes an entity)"))
-
 
 # --- facts, from the payloads ---------------------------------------------------------------------------
 
@@ -299,8 +281,7 @@ def test_every_user_reference_joins_the_right_user(build, case):
     assert sorted(held) == sorted(records_per_user(files))
 
 
-@pytest.mark.parametrize("case", [pytest.param(c, marks=SPLIT) if "pull_request" in c or c == "three files"
-                                  else c for c in CASES])
+@pytest.mark.parametrize("case", CASES)
 def test_one_people_table(build, case):
     files, db, m = build(case)
     people = user_tables(m, files)
@@ -313,8 +294,7 @@ def test_one_people_table(build, case):
     assert people[0]["rows"] == len(records_per_user(files))
 
 
-@pytest.mark.parametrize("case", [pytest.param(c, marks=SUMMARY) if "pull_request" in c or c == "three files"
-                                  else c for c in CASES])
+@pytest.mark.parametrize("case", CASES)
 def test_entity_summary_counts_records(build, case):
     files, db, m = build(case)
     # records_in_total: the number of distinct records (payloads) each user is in, across all places
@@ -344,15 +324,14 @@ def test_people_merged_on_request(merged):
     assert people[0]["rows"] == len(records_per_user(files))
 
 
-@SUMMARY
+
 def test_entity_summary_counts_records_merged(merged):
     # one table of users, so only the view's counting is left: 5346 is in 22 payloads' requested_reviewers
     files, db, m = merged
     assert summary_totals(db, m, user_tables(m, files)) == records_per_user(files)
 
 
-@pytest.mark.parametrize("case", [pytest.param(c, marks=WIDE) if "issues" in c or c == "three files"
-                                  else c for c in CASES])
+@pytest.mark.parametrize("case", CASES)
 def test_no_wide_table(build, case):
     files, db, m = build(case)
     payloads = [p for _, ps in files for p in ps]
