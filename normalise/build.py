@@ -18,6 +18,7 @@ from collections import Counter
 from dataclasses import dataclass, field
 from hashlib import blake2b
 from itertools import chain
+from operator import itemgetter
 
 import numpy as np
 
@@ -26,7 +27,7 @@ from .exact import (ABSENT, VALUE_TYPES, expect_cell, expect_element, get, is_ne
                     literal, pointer, same, store, stored_back, value_key)
 from .infer import get_path, match_key, reference_text
 from .plan import NestedColumn, Plan, RecordSource
-from .schema import reference_columns
+from .schema import record_parts, record_row_columns, reference_columns
 from .prove import InputDigests
 
 _MASK = (1 << 63) - 1
@@ -37,7 +38,7 @@ class DuplicateNaturalKey(NormaliseError):
 
 
 class TooManyColumns(NormaliseError):
-    """A planned table has more columns than SQLite allows in one table."""
+    """A planned table has more columns than the database allows in one table."""
 
 
 def _max_columns() -> int:
@@ -48,19 +49,25 @@ def _max_columns() -> int:
         return 2000  # SQLITE_MAX_COLUMN's default (sqlite.org/limits.html)
 
 
-def check_width(plan: Plan) -> None:
-    """Refuse, before anything is written, a table wider than SQLite allows (it would fail half-way)."""
-    if max((len(t.columns) for t in plan.tables), default=0) <= 999:  # below any SQLite build's limit
+def check_width(plan: Plan, limit: int | None = None, backend: str = "SQLite") -> None:
+    """Refuse, before anything is written, a table wider than the database allows (it would fail half-way).
+
+    Record tables are split in the plan (``schema.split_wide_records``); what can still be too wide is a nested
+    table (a single object with thousands of keys) or a record with as many foreign keys. ``limit``: the
+    backend's columns per table (default: this SQLite's).
+    """
+    if limit is None and max((len(t.columns) for t in plan.tables), default=0) <= 999:  # below any SQLite build's
         return
-    limit = _max_columns()
+    limit = _max_columns() if limit is None else limit
     for t in plan.tables:
         if len(t.columns) > limit:
             where = ", ".join(f"{s['file']}" + (f" column {s['column']}" if s.get("column") else "")
                               for s in t.sources) or t.name
             raise TooManyColumns(
-                f"{where}: table {t.name!r} would have {len(t.columns):,} columns, more than the {limit:,} SQLite "
-                f"allows in one table; nothing was written. Split the export's columns into files that share the "
-                f"key column (they are joined by key), or keep a wide nested column as text (--decode COLUMN=text)")
+                f"{where}: table {t.name!r} ({t.role}) would have {len(t.columns):,} columns, more than the "
+                f"{limit:,} {backend} allows in one table; nothing was written. Record tables are split into 1:1 "
+                f"tables, nested ones are not: keep the wide nested column as text (--decode COLUMN=text), or "
+                f"split the export's columns into files that share the key column (they are joined by key)")
 
 
 def key_of(text: str) -> int:
@@ -596,6 +603,7 @@ class Builder:
         self.trace_reasons: Counter = Counter()
         self.rejoined: Counter = Counter()  # "file:column" -> delimited values with a name suffix rejoined
         self.record_references = _References(plan, state)  # values that are natural keys of record tables
+        self.parts = _record_splits(plan)  # wide record tables: how a row is shared among their 1:1 tables
         if state:
             for table, keys in state["natural_keys"].items():
                 self.first_seen[table] = dict(keys)
@@ -686,9 +694,18 @@ class Builder:
                     continue
                 _nested_rows(self, nested, value, sk, export, i, rows, c)
                 self._check_cell(record, nested, value, sk, export, i, columns[nested.column])
+        if record.table in self.parts:
+            self._split_rows(record.table, len(out) - len(kept))
         for nested in columnar:
             self._list_rows(nested, columns[nested.column].values, kept, record_keys, export, c, record,
                             getattr(columns[nested.column], "given", None))
+
+    def _split_rows(self, table: str, start: int) -> None:
+        """Share the record rows made from ``start`` on among the record table and its parts (1:1 tables)."""
+        made = self.rows[table][start:]
+        del self.rows[table][start:]
+        for name, columns in self.parts[table]:
+            self.rows[name] += map(columns, made)
 
     def _keyed_columns(self, record: RecordSource, columns: dict, kept: list[int], record_keys, export) -> dict:
         """The columns with each object keyed by data read as its list (``exact.keyed_items``), once, here.
@@ -1179,6 +1196,19 @@ def occurrence_columns(plan: Plan, table: str, fk_column: str) -> tuple:
     owner = names.index(t.foreign_keys[0].columns[0]) if t.role in ("bridge", "child") else None
     position = names.index(t.position_column) if t.position_column else None
     return 0, owner, position, names.index(fk_column)
+
+
+def _record_splits(plan: Plan) -> dict[str, list[tuple]]:
+    """Per wide record table: (table, the getter of its columns from a whole row) for it and each of its parts
+    (``schema.split_wide_records``); a row is made whole, as for any record, then shared among them."""
+    out = {}
+    for record in plan.records:
+        parts = record_parts(plan, record.table)
+        if parts:
+            at = {name: j for j, name in enumerate(record_row_columns(record))}
+            out[record.table] = [(t.name, itemgetter(*[at[c.name] for c in t.columns]))
+                                 for t in [plan.table(record.table), *parts]]
+    return out
 
 
 def _meta_order(row: tuple):

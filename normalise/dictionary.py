@@ -26,6 +26,7 @@ TYPE_WORDS = {
 
 ROLE_WORDS = {
     "record": "record table",
+    "record_part": "record table (continued)",
     "entity": "entity table",
     "bridge": "bridge table",
     "child": "child table",
@@ -124,6 +125,9 @@ def _table_meaning(table: dict, tables: dict) -> str:
         key = ", ".join(code(c) for c in table["natural_key"])
         return (f"One row per record of the export {where or code(name)}"
                 + (f", identified by its natural key {key}" if key else "") + ".")
+    if role == "record_part" and fk:
+        return (f"The rest of the columns of {code(fk['references'])}, too many for one table: one row per "
+                f"{code(fk['references'])} row, joined on its surrogate key {code(fk['columns'][0])}.")
     if role == "entity":
         ident = ", ".join(code(c) for c in table["natural_key"])
         return (f"One row per distinct {code(name)} found in {where or 'the nested lists'}"
@@ -152,6 +156,7 @@ def _column_meaning(table: dict, column: dict, tables: dict) -> tuple[str, str]:
     if name in table["primary_key"]:
         keys.append("PK")
         how = {"record": "the line on which the record starts in its export",
+               "record_part": "the line on which the record starts in its export (its record table's key)",
                "entity": "a hash of the natural key", "bridge": "a hash of the owner's key and the list position",
                "child": "a hash of the owner's key and the list position"}.get(role) if not table["inferred"] else None
         meaning = ("Surrogate key made by normalise" + (f" from {how}" if how else "")
@@ -173,7 +178,7 @@ def _column_meaning(table: dict, column: dict, tables: dict) -> tuple[str, str]:
     if name == table.get("position_column"):
         return ", ".join(keys), "Position of the element in its list in the input cell, counted from 1."
     source = column.get("source")
-    if role == "record":
+    if role in ("record", "record_part"):
         if name in table["natural_key"]:
             return ", ".join(keys), "Natural key of the record in the export (unique)."
         if source and "." in source:
@@ -210,7 +215,7 @@ def _column_source(table: dict, column: dict) -> str:
         if any(column["name"] in f["columns"] for f in table["foreign_keys"]):
             return "key of the referenced row"
         return "\u2014"
-    if table["role"] == "record":
+    if table["role"] in ("record", "record_part"):
         return "; ".join(f"{code(f)} column {code(source)}" for f, _ in srcs)
     places = "; ".join(f"{code(f)} column {code(c)}" if c else code(f) for f, c in srcs)
     if source is None:

@@ -7,7 +7,7 @@ import json
 import os
 from pathlib import Path
 
-from .build import Builder, build, occurrence_columns, reference_values
+from .build import Builder, build, check_width, occurrence_columns, reference_values
 from .check import check_plan, check_rows
 from .decode import decode, paused_gc
 from .infer import Options, infer_plan
@@ -19,6 +19,7 @@ from .prove import LossDetected, loss_message, prove, sqlite_fetch
 from .planfile import join_settings, plan_from_doc, plan_to_toml, read_plan
 from .read import iter_chunks, read
 from .report import manifest
+from .schema import POSTGRESQL_MAX_COLUMNS
 from .views import add_pick
 from .write import SqliteWriter
 from .write import DEFAULT_SCHEMA, display_url, is_postgresql, write_parquet, write_postgresql, write_sqlite
@@ -138,6 +139,8 @@ def build_database(paths: list[str], database: str, *, options: Options | None =
                                              encoding=encoding, delimiter=delimiter, join_options=join_options,
                                              picks=picks, plan_path=plan_path)
     order = check_plan(plan)
+    if postgresql:  # SQLite's limit is checked by the build, PostgreSQL's here: both before anything is written
+        check_width(plan, POSTGRESQL_MAX_COLUMNS, "PostgreSQL")
     state = None
     if append:
         from .append import offset_record_keys, read_state

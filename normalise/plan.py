@@ -10,8 +10,8 @@ from __future__ import annotations
 
 from dataclasses import asdict, dataclass, field
 
-ROLES = ("record", "entity", "bridge", "child", "set_aside", "quarantine", "variants", "rejected", "unmatched",
-         "names", "traces")
+ROLES = ("record", "record_part", "entity", "bridge", "child", "set_aside", "quarantine", "variants", "rejected",
+         "unmatched", "names", "traces")
 
 
 @dataclass

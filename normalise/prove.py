@@ -20,6 +20,7 @@ from .errors import NormaliseError
 from .exact import (ABSENT, from_literal, keyed_digest, keyed_object, object_back, pointer, pointer_keys, put, same,
                     stored_back)
 from .names import quote_name as _q
+from .schema import record_parts
 
 _MOD = 1 << 128
 
@@ -73,10 +74,10 @@ def rebuild_cells(plan, fetch, impure: set | None = None, only: set | None = Non
         nested_wanted = [n for n in record.nested if only is None or (record.table, n.column) in only]
         if not wanted and not nested_wanted:
             continue
-        table = plan.table(record.table)
-        names = [c.name for c in table.columns]
         needs_rows = wanted or any(n.kind == "object-columns" for n in nested_wanted)
-        rows = fetch(f"SELECT * FROM {_q(record.table)}") if needs_rows else []
+        needed = {f.column for f in wanted} | {f.column for n in nested_wanted if n.kind == "object-columns"
+                                               for f in n.links}
+        names, rows = _record_rows(plan, record.table, fetch, needed) if needs_rows else ([], [])
         at = {n: j for j, n in enumerate(names)}
         for f in wanted:
             j = at[f.column]
@@ -115,6 +116,23 @@ def rebuild_cells(plan, fetch, impure: set | None = None, only: set | None = Non
                 found[sk] = from_literal(original)
                 impure.add((t, column, sk))
     return out
+
+
+def _record_rows(plan, table: str, fetch, needed: set) -> tuple[list[str], list[tuple]]:
+    """The column names and rows of a record table, with the columns of those of its 1:1 parts
+    (``schema.split_wide_records``) that hold a column ``needed``, after its own. Each table is read apart:
+    SQLite limits the columns of a query's result as it limits a table's (sqlite.org/limits.html)."""
+    names = [c.name for c in plan.table(table).columns]
+    rows = fetch(f"SELECT * FROM {_q(table)}")
+    for part in record_parts(plan, table):
+        columns = [c.name for c in part.columns[1:]]
+        if needed.isdisjoint(columns):
+            continue
+        by_key = {r[0]: r[1:] for r in fetch(f"SELECT * FROM {_q(part.name)}")}
+        missing = (None,) * len(columns)  # every record has a row in every part; a lost one shows as NULLs
+        rows = [(*r, *by_key.get(r[0], missing)) for r in rows]
+        names += columns
+    return names, rows
 
 
 def _tables_of(nested) -> set:

@@ -225,7 +225,7 @@ def _table(conn: sqlite3.Connection, name: str, known: dict | None) -> dict:
         order = [(f.get("references"), list(f.get("columns") or [])) for f in known.get("foreign_keys") or []]
         foreign_keys.sort(key=lambda f: order.index((f["references"], f["columns"]))
                           if (f["references"], f["columns"]) in order else len(order))
-        if table["role"] in ("bridge", "child") and foreign_keys:
+        if table["role"] in ("bridge", "child", "record_part") and foreign_keys:
             foreign_keys[0]["owner"] = True
     return table
 
@@ -264,6 +264,8 @@ def _infer_roles(tables: list[dict]) -> None:
         cols = {c["name"] for c in t["columns"]}
         if t["name"] in META_TABLES and not t["foreign_keys"]:
             t["role"] = META_TABLES[t["name"]]
+        elif [f["columns"] for f in t["foreign_keys"]] == [t["primary_key"]]:  # keyed by its record's key: 1:1
+            t["role"] = "record_part"
         elif _owning_keys(t):
             t["role"] = "bridge" if len(_owning_keys(t)) > 1 else "child"
         else:
@@ -922,8 +924,8 @@ svg.er .band text { font-family: system-ui, -apple-system, "Segoe UI", Roboto, A
 svg.er .band-meta rect { fill: #fbfbfb; stroke-dasharray: 4 3; }
 svg.er .box { fill: var(--paper); stroke: #9c9ca3; }
 svg.er .box-head { fill: #ececef; stroke: none; }
-svg.er .role-record .box { stroke: var(--accent); stroke-width: 1.5; }
-svg.er .role-record .box-head { fill: var(--accent-soft); }
+svg.er .role-record .box, svg.er .role-record_part .box { stroke: var(--accent); stroke-width: 1.5; }
+svg.er .role-record .box-head, svg.er .role-record_part .box-head { fill: var(--accent-soft); }
 svg.er .box-name { font-size: 13px; font-weight: 700; }
 svg.er .box-sub, svg.er .box-src { fill: var(--muted); font-size: 10.5px; }
 svg.er .box-rule { stroke: #e3e3e6; }

@@ -7,6 +7,16 @@ from .plan import Column, FieldMap, ForeignKey, NestedColumn, Plan, RecordSource
 
 POSITION = "list_position"
 
+# A table may have 1,600 columns on PostgreSQL (PostgreSQL documentation, "Appendix K. PostgreSQL Limits") and
+# 2,000 on SQLite as built by default (SQLITE_MAX_COLUMN, sqlite.org/limits.html). A record table wider than the
+# lower of the two is split whichever backend is written, so one plan gives the same tables on both.
+POSTGRESQL_MAX_COLUMNS = 1600
+SQLITE_MAX_COLUMNS = 2000
+MAX_COLUMNS = min(POSTGRESQL_MAX_COLUMNS, SQLITE_MAX_COLUMNS)
+# The columns of each table of a split record. PostgreSQL also needs a row to fit in one 8 kB page (Appendix K,
+# "further limited by tuple size fitting on a single page"): 500 eight-byte integers take half of one.
+PART_COLUMNS = 500
+
 
 def add_tables(plan: Plan) -> None:
     """Fill ``plan.tables`` from the record sources and entity groups."""
@@ -44,6 +54,7 @@ def add_tables(plan: Plan) -> None:
                                  sources=[{"file": record.file, "column": None}]))
         for nested in record.nested:
             _nested_tables(plan, nested, record.table, record.key_column)
+    split_wide_records(plan)
     for name, columns in _META.items():
         cols = [Column(f"{singular(name)}_sk", "integer", nullable=False)]
         cols += [Column(c, t, nullable=nullable) for c, t, nullable in columns]
@@ -163,3 +174,52 @@ def _nested_tables(plan: Plan, nested: NestedColumn, owner: str, owner_key: str)
                              foreign_keys=fks, unique=unique, sources=source))
     for child in nested.children:
         _nested_tables(plan, child, nested.table, key)
+
+
+def split_wide_records(plan: Plan) -> None:
+    """Split each record table wider than ``MAX_COLUMNS`` into 1:1 tables of at most ``PART_COLUMNS`` columns.
+
+    The record table keeps its surrogate key, its natural key and every foreign-key column (so joins, views
+    and references find them where they always are), then the other columns in their order until it is
+    full; the rest go, in order, to ``<record>_part_2``, ``<record>_part_3``, ... (role "record_part"), each
+    keyed by the record's surrogate key, which is also its foreign key to the record table. Every record has
+    a row in every part. The split follows from the columns alone, so a replayed plan splits the same way.
+
+    Example:
+        >>> from normalise.plan import Plan, Table, Column
+        >>> plan = Plan(tables=[Table("items", "record", [Column("items_sk", "integer", nullable=False)]
+        ...                           + [Column(f"c{k}", "text") for k in range(1700)], ["items_sk"])])
+        >>> split_wide_records(plan)
+        >>> [(t.name, t.role, len(t.columns)) for t in plan.tables]  # doctest: +NORMALIZE_WHITESPACE
+        [('items', 'record', 500), ('items_part_2', 'record_part', 500), ('items_part_3', 'record_part', 500),
+         ('items_part_4', 'record_part', 204)]
+    """
+    names = Namer([t.name for t in plan.tables] + list(_META))
+    for table in [t for t in plan.tables if t.role == "record" and len(t.columns) > MAX_COLUMNS]:
+        key = table.primary_key[0]
+        held = {key, *table.natural_key, *(c for fk in table.foreign_keys for c in fk.columns)}
+        rest = [c for c in table.columns if c.name not in held]
+        room = max(0, PART_COLUMNS - len(held))
+        kept = held | {c.name for c in rest[:room]}
+        table.columns = [c for c in table.columns if c.name in kept]
+        rest = rest[room:]
+        size = PART_COLUMNS - 1  # and the key
+        parts = [Table(names(f"{table.name}_part_{n}"), "record_part",
+                       [Column(key, "integer", nullable=False), *rest[start:start + size]], [key],
+                       foreign_keys=[ForeignKey([key], table.name, [key])], sources=list(table.sources))
+                 for n, start in enumerate(range(0, len(rest), size), start=2)]
+        at = plan.tables.index(table) + 1
+        plan.tables[at:at] = parts
+
+
+def record_parts(plan: Plan, table: str) -> list[Table]:
+    """The 1:1 tables holding the rest of a wide record table's columns, in order (``split_wide_records``)."""
+    return [t for t in plan.tables if t.role == "record_part" and t.foreign_keys[0].references == table]
+
+
+def record_row_columns(record: RecordSource) -> list[str]:
+    """The columns of a record's row as the build makes it, in order, before a wide one is split: its key,
+    its scalars, the fields of its object columns, the keys of the records its values name."""
+    names = [record.key_column] + [f.column for f in record.scalars]
+    names += [f.column for n in record.nested if n.kind == "object-columns" for f in n.links]
+    return names + [column for _, column in reference_columns(record)]
