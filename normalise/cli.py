@@ -143,7 +143,7 @@ def _run_build(args, options, join_options, progress):
                             parquet_dir=args.parquet, plan_path=args.plan, chunk_rows=args.chunk_rows or None,
                             progress=progress, schema=args.schema,
                             append=args.append, report_path=args.report, dictionary_path=args.dictionary,
-                            allow_lossy=args.allow_lossy)
+                            allow_lossy=args.allow_lossy, wait=args.wait)
 
 
 def cmd_plan(args) -> int:
@@ -188,22 +188,9 @@ def _inference_options(p) -> None:
 
 
 def cmd_report(args) -> int:
-    from .errors import UsageError
-    from .report_html import write_outputs
+    from .report_html import report_existing
 
-    if not args.output and not args.dictionary:
-        raise UsageError("report: give -o PATH.html, --dictionary PATH.md or both")
-    manifest = None
-    if args.manifest:
-        try:
-            with open(args.manifest, encoding="utf-8") as f:
-                manifest = json.load(f)
-        except (OSError, ValueError) as exc:
-            raise UsageError(f"--manifest {args.manifest}: {exc}") from None
-        if not isinstance(manifest, dict) or not isinstance(manifest.get("tables"), list):
-            raise UsageError(f"--manifest {args.manifest}: not a normalise manifest")
-    written = write_outputs(args.database, manifest, report_path=args.output, dictionary_path=args.dictionary,
-                            manifest_origin=f"file {args.manifest}" if args.manifest else None)
+    written = report_existing(args.database, args.manifest, report_path=args.output, dictionary_path=args.dictionary)
     for what, path in written.items():
         print(f"wrote {what} {path}")
     return 0
@@ -239,6 +226,9 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--chunk-rows", type=int, default=5000, metavar="N",
                    help="records read at a time when one CSV/TSV file is built (bounded memory; 0: all at once)")
     p.add_argument("--quiet", action="store_true", help="print nothing but errors (no progress)")
+    p.add_argument("--wait", type=float, default=0.0, metavar="SECONDS",
+                   help="when another run is writing the same database, wait up to this long for it "
+                        "(default 0: refuse at once, exit 1)")
     p.add_argument("--allow-lossy", action="store_true",
                    help="keep the database even when a value rebuilt from it differs from the export "
                         "(the manifest, the summary and the report say so)")
@@ -268,7 +258,7 @@ def main(argv: list[str] | None = None) -> int:
         return args.func(args)
     except NormaliseError as exc:
         print(f"normalise: {exc}", file=sys.stderr)
-        return 2
+        return getattr(exc, "exit_code", 2)  # 1: the run could not be done now (a busy destination)
     except sqlite3.DatabaseError as exc:  # e.g. "database or disk is full"; nothing was moved into place
         print(f"normalise: the database could not be written: {exc}", file=sys.stderr)
         return 2

@@ -371,7 +371,10 @@ def write_dictionary(database, path, manifest: dict | None = None) -> str:
 
     from .report_html import read_database
 
+    from .outputs import staged_outputs
+
     model = read_database(database, manifest)
-    Path(path).parent.mkdir(parents=True, exist_ok=True)
-    Path(path).write_text(render_dictionary(model), encoding="utf-8")
+    with staged_outputs() as staged:  # whole or not at all: a temporary file, renamed when complete
+        Path(staged.file(path)).write_text(render_dictionary(model), encoding="utf-8")
+        staged.commit()
     return str(path)

@@ -15,6 +15,7 @@ from .join import JoinOptions, join
 from .literal import Limits
 from .names import quote_name
 from .options_check import check_option_names
+from .outputs import check_paths, destination_lock, lock_path, staged_outputs, writing
 from .prove import LossDetected, loss_message, prove, sqlite_fetch
 from .planfile import join_settings, plan_from_doc, plan_to_toml, read_plan
 from .read import iter_chunks, read
@@ -80,12 +81,16 @@ def prepare(paths: list[str], *, options: Options | None = None, limits: Limits 
 
 def make_plan(paths: list[str], output: str | None = None, **kwargs) -> str:
     """Infer the plan of the exports and return it (and write it to ``output``) as TOML."""
+    if output:
+        check_paths([("input", p) for p in paths] + [("--plan", kwargs.get("plan_path"))], [("-o", output)])
     plan, _, _, joined = prepare(paths, **kwargs)
     s = joined.settings
     on = {Path(j["right"]).stem: (j["on"][0][1], None) for j in joined.joins}
     text = plan_to_toml(plan, {"how": s.how, "cardinality": s.cardinality, "separate": s.separate, "on": on})
     if output:
-        Path(output).write_text(text, encoding="utf-8")
+        with staged_outputs() as staged:
+            Path(staged.file(output)).write_text(text, encoding="utf-8")
+            staged.commit()
     return text
 
 
@@ -97,7 +102,7 @@ def build_database(paths: list[str], database: str, *, options: Options | None =
                    parquet_dir: str | None = None, plan_path: str | None = None,
                    schema: str | None = None, chunk_rows: int | None = None, progress=None,
                    report_path: str | None = None, dictionary_path: str | None = None,
-                   append: bool = False, allow_lossy: bool = False) -> dict:
+                   append: bool = False, allow_lossy: bool = False, wait: float = 0.0) -> dict:
     """Run every pass on the exports and write a SQLite database; returns the manifest.
 
     ``database`` may instead be a ``postgresql+psycopg://`` URL: the tables then go into
@@ -105,6 +110,11 @@ def build_database(paths: list[str], database: str, *, options: Options | None =
 
     Before a SQLite database is moved into place every loaded cell is rebuilt from its tables and
     compared with the input (``prove.py``); a difference raises ``LossDetected`` unless ``allow_lossy``.
+
+    No output may be an input or another output (``outputs.check_paths``, before anything runs). The run
+    holds its destination's lock throughout (``outputs.destination_lock``: a second run on the same
+    database waits up to ``wait`` seconds, then ``DestinationBusy``), and every output is written under a
+    temporary name, moved into place only when all are complete, the database last.
 
     Example:
         >>> import tempfile, os
@@ -129,12 +139,42 @@ def build_database(paths: list[str], database: str, *, options: Options | None =
         from .errors import UsageError
         raise UsageError("--append adds to an existing SQLite database; it goes with neither --replace nor a "
                          "PostgreSQL --db")
+    if not isinstance(wait, (int, float)) or not 0 <= wait < float("inf"):
+        from .errors import UsageError
+        raise UsageError(f"--wait {wait!r}: expected a number of seconds, 0 or more")
+    sqlite_db = None if postgresql else database
+    check_paths([("input", p) for p in paths] + [("--plan", plan_path)],
+                [("--db", sqlite_db), ("the lock file of --db", sqlite_db and lock_path(sqlite_db)),
+                 ("--manifest", manifest_path), ("--report", report_path), ("--dictionary", dictionary_path)],
+                [("--parquet", parquet_dir)])
+    kwargs = dict(options=options, limits=limits, formats=formats, encoding=encoding, delimiter=delimiter,
+                  replace=replace, join_options=join_options, manifest_path=manifest_path, picks=picks,
+                  parquet_dir=parquet_dir, plan_path=plan_path, schema=schema, chunk_rows=chunk_rows,
+                  progress=progress, report_path=report_path, dictionary_path=dictionary_path, append=append,
+                  allow_lossy=allow_lossy, wait=wait)
+    if postgresql:  # write_postgresql holds an advisory lock of the schema for its transaction
+        with staged_outputs() as staged:
+            result = _build(paths, database, staged=staged, **kwargs)
+            staged.commit()
+        return result
+    # the lock is taken before anything of the destination is read (--append's state, whether it exists)
+    with destination_lock(database, wait), staged_outputs() as staged:
+        result = _build(paths, database, staged=staged, **kwargs)
+        staged.commit()
+    return result
+
+
+def _build(paths: list[str], database: str, *, options, limits, formats, encoding, delimiter, replace,
+           join_options, manifest_path, picks, parquet_dir, plan_path, schema, chunk_rows, progress,
+           report_path, dictionary_path, append, allow_lossy, wait, staged) -> dict:
+    """``build_database`` once its paths are checked and its destination locked; outputs go to ``staged``."""
+    postgresql = is_postgresql(database)
     if chunk_rows and not postgresql and not append and _can_stream(paths, options, join_options, plan_path):
         plan, result = _build_streaming(paths[0], database, options=options, limits=limits, formats=formats,
                                         encoding=encoding, delimiter=delimiter, replace=replace, picks=picks,
                                         plan_path=plan_path, chunk_rows=chunk_rows, progress=progress,
-                                        allow_lossy=allow_lossy)
-        return _outputs(database, plan, result, parquet_dir, manifest_path, report_path, dictionary_path)
+                                        allow_lossy=allow_lossy, staged=staged)
+        return _outputs(staged, database, plan, result, parquet_dir, manifest_path, report_path, dictionary_path)
     plan, exports, decoded, joined = prepare(paths, options=options, limits=limits, formats=formats,
                                              encoding=encoding, delimiter=delimiter, join_options=join_options,
                                              picks=picks, plan_path=plan_path)
@@ -171,21 +211,22 @@ def build_database(paths: list[str], database: str, *, options: Options | None =
 
     if postgresql:
         integrity = write_postgresql(plan, built.rows, order, database, schema=schema or DEFAULT_SCHEMA,
-                                     replace=replace, verify=verifier(plan, built, allow_lossy, locate))
+                                     replace=replace, verify=verifier(plan, built, allow_lossy, locate),
+                                     wait=wait)
         result = manifest(plan, built, display_url(database), integrity, joined)
         result["schema"] = integrity["schema"]
     else:
         integrity = write_sqlite(plan, built.rows, order, database, replace=replace, append=append,
-                                 verify=verifier(plan, built, allow_lossy, locate))
+                                 verify=verifier(plan, built, allow_lossy, locate), staged=staged)
         result = manifest(plan, built, os.fspath(database), integrity, joined)
         if append:  # the manifest counts what the database now holds
             import sqlite3
 
-            with sqlite3.connect(database) as con:
+            with sqlite3.connect(staged.writer.temporary) as con:
                 for t in result["tables"]:
                     t["rows"] = con.execute(f'SELECT count(*) FROM "{t["name"]}"').fetchone()[0]
             result["appended"] = True
-    return _outputs(database, plan, result, parquet_dir, manifest_path, report_path, dictionary_path)
+    return _outputs(staged, database, plan, result, parquet_dir, manifest_path, report_path, dictionary_path)
 
 
 def verifier(plan, built, allow_lossy: bool, locate=None):
@@ -205,22 +246,27 @@ def verifier(plan, built, allow_lossy: bool, locate=None):
     return verify
 
 
-def _outputs(database, plan, result: dict, parquet_dir, manifest_path, report_path, dictionary_path) -> dict:
-    """What a build writes beside the database: Parquet files, the manifest, the report and the dictionary."""
+def _outputs(staged, database, plan, result: dict, parquet_dir, manifest_path, report_path,
+             dictionary_path) -> dict:
+    """What a build writes beside the database: Parquet files, the manifest, the report and the dictionary.
+
+    Each goes to its temporary name in ``staged``, read from the database's committed temporary file
+    (SQLite); ``staged.commit`` moves them into place, and the database after them.
+    """
+    source = staged.writer.temporary if staged.writer is not None else database
     if parquet_dir:
-        result["parquet"] = write_parquet(database, plan, parquet_dir)
+        with writing("--parquet", parquet_dir):
+            written = write_parquet(source, plan, staged.directory(parquet_dir))
+        result["parquet"] = [os.path.join(parquet_dir, os.path.basename(p)) for p in written]
     if manifest_path:
-        with open(manifest_path, "w", encoding="utf-8") as f:
+        with writing("--manifest", manifest_path), open(staged.file(manifest_path), "w", encoding="utf-8") as f:
             json.dump(result, f, indent=2, ensure_ascii=False)
-    _write_reports(database, result, report_path, dictionary_path)
-    return result
-
-
-def _write_reports(database, result: dict, report_path: str | None, dictionary_path: str | None) -> None:
-    """The HTML report and the data dictionary of the written SQLite database (report_html.py, dictionary.py)."""
-    if report_path or dictionary_path:
+    if report_path or dictionary_path:  # report_html.py, dictionary.py
         from .report_html import write_outputs
-        write_outputs(database, result, report_path=report_path, dictionary_path=dictionary_path)
+        with writing("--report" if report_path else "--dictionary", report_path or dictionary_path):
+            write_outputs(source, result, report_path=report_path and staged.file(report_path),
+                          dictionary_path=dictionary_path and staged.file(dictionary_path), shown_as=database)
+    return result
 
 
 def _can_stream(paths: list[str], options: Options | None, join_options: JoinOptions | None,
@@ -239,7 +285,8 @@ def _can_stream(paths: list[str], options: Options | None, join_options: JoinOpt
 
 def _build_streaming(path: str, database: str, *, options: Options | None, limits: Limits, formats: dict | None,
                      encoding: str | None, delimiter: str | None, replace: bool, picks: list[str] | None,
-                     plan_path: str | None, chunk_rows: int, progress, allow_lossy: bool = False) -> tuple:
+                     plan_path: str | None, chunk_rows: int, progress, allow_lossy: bool = False,
+                     staged=None) -> tuple:
     """Build one export in chunks with bounded memory: infer on the first records, then stream."""
     options = options or Options()
     chunks = iter_chunks(path, chunk_rows, encoding=encoding, delimiter=delimiter)
@@ -310,7 +357,9 @@ def _build_streaming(path: str, database: str, *, options: Options | None, limit
             for i, value in zip(rows, reference_values(record, column, columns[column], rows)):
                 yield chunk.lines[i], value, chunk.path, chunk.lines[i]
 
-    integrity = writer.finish(verifier(plan, built, allow_lossy, locate))
+    integrity = writer.finish(verifier(plan, built, allow_lossy, locate), move=staged is None)
+    if staged is not None:
+        staged.database(writer)
     return plan, manifest(plan, built, os.fspath(database), integrity, None, row_counts=writer.row_counts)
 
 

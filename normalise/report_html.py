@@ -32,6 +32,7 @@ from pathlib import Path
 
 import networkx as nx
 from .names import quote_name as _q
+from .errors import NormaliseError
 
 META_TABLES = {"rejected_rows": "rejected", "set_aside_rows": "set_aside", "unmatched_rows": "unmatched",
                "quarantined_cells": "quarantine", "attribute_variants": "variants", "name_map": "names",
@@ -125,12 +126,13 @@ def stored_manifest(conn: sqlite3.Connection) -> dict | None:
 
 
 def read_database(database, manifest: dict | None = None, *, manifest_origin: str | None = None,
-                  head_rows: int = HEAD_ROWS) -> dict:
+                  head_rows: int = HEAD_ROWS, shown_as=None) -> dict:
     """Everything the report and the data dictionary show, read from a SQLite database.
 
     ``manifest`` (the build's) adds roles, sources and the rows read; without it
     the ``run_manifest`` table is used when present, else the roles are inferred
-    from the keys. Returns a plain dict (the *model*).
+    from the keys. Returns a plain dict (the *model*). ``shown_as`` is the database's name in the
+    report when it is read from elsewhere (a build's temporary file, before it is moved into place).
     """
     conn = connect(database)
     try:
@@ -139,7 +141,7 @@ def read_database(database, manifest: dict | None = None, *, manifest_origin: st
             manifest = stored_manifest(conn)
             origin = f"the {RUN_MANIFEST} table" if manifest is not None else None
         model = _catalog(conn, manifest)
-        model["database"] = str(database)
+        model["database"] = str(shown_as or database)
         model["manifest"] = manifest
         model["manifest_origin"] = origin
         model["integrity"] = _integrity(conn)
@@ -1341,23 +1343,119 @@ def _views_section(model: dict) -> str:
 
 def write_report(database, path, manifest: dict | None = None, *, model: dict | None = None) -> str:
     """Write the HTML report of a SQLite database to ``path``; returns the path."""
+    from .outputs import staged_outputs
+
     model = model or read_database(database, manifest)
-    Path(path).parent.mkdir(parents=True, exist_ok=True)
-    Path(path).write_text(render_report(model), encoding="utf-8")
+    with staged_outputs() as staged:  # whole or not at all: a temporary file, renamed when complete
+        Path(staged.file(path)).write_text(render_report(model), encoding="utf-8")
+        staged.commit()
     return str(path)
 
 
 def write_outputs(database, manifest: dict | None = None, *, report_path=None, dictionary_path=None,
-                  manifest_origin: str | None = None) -> dict:
+                  manifest_origin: str | None = None, shown_as=None) -> dict:
     """Write the HTML report and/or the data dictionary from one reading of the database."""
     from .dictionary import render_dictionary
 
-    model = read_database(database, manifest, manifest_origin=manifest_origin)
+    model = read_database(database, manifest, manifest_origin=manifest_origin, shown_as=shown_as)
     written = {}
     if report_path:
         written["report"] = write_report(database, report_path, model=model)
     if dictionary_path:
-        Path(dictionary_path).parent.mkdir(parents=True, exist_ok=True)
-        Path(dictionary_path).write_text(render_dictionary(model), encoding="utf-8")
+        from .outputs import staged_outputs
+
+        with staged_outputs() as staged:
+            Path(staged.file(dictionary_path)).write_text(render_dictionary(model), encoding="utf-8")
+            staged.commit()
         written["dictionary"] = str(dictionary_path)
     return written
+
+
+class UnreadableManifest(NormaliseError):
+    """A manifest that cannot be read, is not JSON or lacks what a normalise manifest holds."""
+
+
+# What the report reads of a manifest, and the JSON type each must have (the rest is optional).
+_MANIFEST_SHAPE = {"tables": list, "views": list, "inputs": list, "joins": list, "integrity": dict}
+
+
+def read_manifest(path) -> dict:
+    """A build's manifest (``build --manifest``), checked for what the report reads; one-line errors.
+
+    Example:
+        >>> import tempfile, os
+        >>> p = os.path.join(tempfile.mkdtemp(), "m.json"); _ = open(p, "w").write('{"tables": 3}')
+        >>> read_manifest(p)  # doctest: +ELLIPSIS
+        Traceback (most recent call last):
+        ...
+        normalise.report_html.UnreadableManifest: --manifest ...m.json: not a normalise manifest: "tables" is a number, not a list
+    """
+    try:
+        with open(path, encoding="utf-8") as f:
+            text = f.read()
+    except (OSError, UnicodeDecodeError) as exc:
+        reason = exc.strerror if isinstance(exc, OSError) and exc.strerror else str(exc)
+        raise UnreadableManifest(f"--manifest {path} could not be read: {reason}") from None
+    try:
+        doc = json.loads(text)
+    except ValueError as exc:
+        raise UnreadableManifest(f"--manifest {path}: not JSON ({exc})") from None
+    problem = _manifest_problem(doc)
+    if problem:
+        raise UnreadableManifest(f"--manifest {path}: not a normalise manifest: {problem}")
+    return doc
+
+
+def _manifest_problem(doc) -> str | None:
+    names = {dict: "an object", list: "a list", str: "a text", int: "a number", float: "a number",
+             bool: "true or false", type(None): "null"}
+    if not isinstance(doc, dict):
+        return f"the document is {names.get(type(doc), type(doc).__name__)}, not an object"
+    if "tables" not in doc:
+        return 'it has no "tables"'
+    for key, kind in _MANIFEST_SHAPE.items():
+        if key in doc and not isinstance(doc[key], kind):
+            return f'"{key}" is {names.get(type(doc[key]), type(doc[key]).__name__)}, not {names[kind]}'
+    for key in ("tables", "views", "inputs"):
+        for n, item in enumerate(doc.get(key, []), 1):
+            field = "path" if key == "inputs" else "name"
+            if not isinstance(item, dict) or not isinstance(item.get(field), str):
+                return f'entry {n} of "{key}" has no "{field}" text'
+    return None
+
+
+def report_existing(database, manifest_path=None, report_path=None, dictionary_path=None) -> dict:
+    """``normalise report``: the report and/or dictionary of an existing database, written whole or not at all.
+
+    Reading (the database, the manifest) and writing fail with different one-line messages; an output
+    path that is the database, the manifest or the other output is refused before anything is read.
+    """
+    from .errors import UsageError
+    from .outputs import check_paths, staged_outputs, writing
+
+    if not report_path and not dictionary_path:
+        raise UsageError("report: give -o PATH.html, --dictionary PATH.md or both")
+    check_paths([("input", database), ("input", manifest_path)], [("-o", report_path),
+                                                                  ("--dictionary", dictionary_path)])
+    manifest = read_manifest(manifest_path) if manifest_path else None
+    with staged_outputs() as staged:
+        try:
+            model = read_database(database, manifest,
+                                  manifest_origin=f"file {manifest_path}" if manifest_path else None)
+        except sqlite3.Error as exc:
+            raise UsageError(f"{database} could not be read as a SQLite database: {exc}") from None
+        written = {}
+        for what, path, render in (("report", report_path, render_report),
+                                   ("dictionary", dictionary_path, _render_dictionary)):
+            if path:
+                with writing("-o" if what == "report" else "--dictionary", path):
+                    Path(staged.file(path)).write_text(render(model), encoding="utf-8")
+                written[what] = str(path)
+        staged.commit()
+    return written
+
+
+def _render_dictionary(model: dict) -> str:
+    from .dictionary import render_dictionary
+    return render_dictionary(model)
+

@@ -75,10 +75,12 @@ def remove_stale_partials(destination: str) -> list[str]:
 
 
 class DestinationLocked(NormaliseError):
-    """Another program is writing to the destination database."""
+    """Another program is writing to the destination database. Exit 1, as a busy destination: try again later."""
+
+    exit_code = 1
 
 
-def refuse_if_locked(destination: str) -> None:
+def refuse_if_locked(destination: str, shown: str | None = None) -> None:
     """Refuse to replace a SQLite database another connection is writing to (it holds a write lock).
 
     A program still writing to the old file would otherwise keep writing to a file no longer at that path.
@@ -96,7 +98,7 @@ def refuse_if_locked(destination: str) -> None:
         con.rollback()
     except sqlite3.OperationalError as exc:
         if "locked" in str(exc) or "busy" in str(exc):
-            raise DestinationLocked(f"{destination} is locked by another program writing to it; "
+            raise DestinationLocked(f"{shown or destination} is locked by another program writing to it; "
                                     "nothing was replaced: try again when it is done") from None
     except sqlite3.DatabaseError:
         pass  # not a SQLite database: nothing can be writing to it through SQLite
@@ -175,6 +177,9 @@ class SqliteWriter:
         if os.path.exists(destination) and not replace and not append:
             raise DestinationExists(f"{destination} exists; use --replace to overwrite it, or --append to add to it")
         self.append = append
+        # through a symlink the file it points to is replaced, and the link stays: the temporary file goes
+        # beside the target (the same filesystem, so the move is one rename)
+        self.shown, destination = destination, os.path.realpath(destination)
         Path(destination).parent.mkdir(parents=True, exist_ok=True)
         self.plan, self.order, self.destination = plan, order, destination
         self.temporary = f"{destination}.partial-{os.getpid()}"
@@ -242,11 +247,13 @@ class SqliteWriter:
             self.cursor.executemany(f"UPDATE {_quote(name)} SET {_quote(column)} = ? WHERE {_quote(key)} = ?",
                                     pairs)
 
-    def finish(self, verify=None) -> dict:
+    def finish(self, verify=None, move: bool = True) -> dict:
         """Indexes, views, commit into the temporary file, SQLite's own checks, and the move into place.
 
         ``verify(path)``, when given, runs on the committed temporary file before the move (the lossless
         proof); what it returns is in the result under ``"proof"``, and what it raises stops the move.
+        With ``move=False`` the checked file stays at ``self.temporary`` until ``move_into_place`` (or
+        ``abort``): the side outputs are written from it first (``outputs.StagedOutputs``).
         """
         try:
             for name in self.order if not self.append else ():  # appended: indexes and views are there
@@ -266,14 +273,27 @@ class SqliteWriter:
             checks = {"foreign_key_violations": len(violations), "integrity_check": integrity[0][0]}
             if verify is not None:
                 checks["proof"] = verify(self.temporary)
-            with open(self.temporary, "rb") as f:
-                os.fsync(f.fileno())
-            refuse_if_locked(self.destination)
-            os.replace(self.temporary, self.destination)
+            if move:
+                self.ready_to_move()
+                self.move_into_place()
         except BaseException:
             self.abort()
             raise
         return checks
+
+    def ready_to_move(self) -> None:
+        """The committed file synced to disk, and no other program writing to the old one (else refused)."""
+        with open(self.temporary, "rb") as f:
+            os.fsync(f.fileno())
+        refuse_if_locked(self.destination, self.shown)
+
+    def move_into_place(self) -> None:
+        """rename(2): the destination is the old file or the new one, never a mix (POSIX, one filesystem)."""
+        try:
+            os.replace(self.temporary, self.destination)
+        except BaseException:
+            self.abort()
+            raise
 
     def abort(self) -> None:
         try:
@@ -308,8 +328,12 @@ def _checks(path: str) -> tuple[list, list]:
 
 
 def write_sqlite(plan: Plan, rows: dict[str, list[tuple]], order: list[str], destination: str,
-                 replace: bool = False, append: bool = False, verify=None) -> dict:
-    """Write a complete SQLite database at ``destination``; returns SQLite's own integrity checks."""
+                 replace: bool = False, append: bool = False, verify=None, staged=None) -> dict:
+    """Write a complete SQLite database at ``destination``; returns SQLite's own integrity checks.
+
+    With ``staged`` (an ``outputs.StagedOutputs``) the checked file is not moved: ``staged`` moves it last,
+    after the side outputs, and until then the database is at ``staged.writer.temporary``.
+    """
     writer = SqliteWriter(plan, order, destination, replace, append=append)
     try:
         for name in order:
@@ -317,7 +341,10 @@ def write_sqlite(plan: Plan, rows: dict[str, list[tuple]], order: list[str], des
     except BaseException:
         writer.abort()
         raise
-    return writer.finish(verify)
+    checks = writer.finish(verify, move=staged is None)
+    if staged is not None:
+        staged.database(writer)
+    return checks
 
 
 def write_parquet(database: str, plan: Plan, directory: str) -> list[str]:
@@ -505,8 +532,27 @@ def _copy_rows(cursor, schema: str, table: sa.Table, data: list[tuple], role: st
                 raise
 
 
+def _pg_try_lock(cursor, key: int, wait: float, shown: str) -> None:
+    """Take the transaction's advisory lock within ``wait`` seconds, or refuse: another run writes there."""
+    import time
+
+    from .outputs import DestinationBusy
+
+    deadline = time.monotonic() + wait
+    while True:
+        cursor.execute("SELECT pg_catalog.pg_try_advisory_xact_lock(%s)", (key,))
+        if cursor.fetchone()[0]:
+            return
+        if time.monotonic() >= deadline:
+            waited = f" after waiting {wait:g} s" if wait > 0 else ""
+            raise DestinationBusy(f"{shown} is being written by another normalise run{waited}; nothing was done: "
+                                  "try again when it is done, or give --wait SECONDS")
+        time.sleep(min(0.25, max(0.0, deadline - time.monotonic())))
+
+
 def write_postgresql(plan: Plan, rows: dict[str, list[tuple]], order: list[str], database: str,
-                     schema: str = DEFAULT_SCHEMA, replace: bool = False, verify=None) -> dict:
+                     schema: str = DEFAULT_SCHEMA, replace: bool = False, verify=None, wait: float | None = None
+                     ) -> dict:
     """Write the tables, rows, indexes and views into one schema of a PostgreSQL database.
 
     Everything happens in one transaction: the schema is created when missing,
@@ -515,8 +561,11 @@ def write_postgresql(plan: Plan, rows: dict[str, list[tuple]], order: list[str],
     foreign keys added (PostgreSQL checks every row as it adds them), the
     foreign-key indexes built, the views created and the tables analysed. A
     failure anywhere rolls everything back: the schema stays as it was, or
-    absent. Concurrent runs on one schema wait for each other (an advisory
-    lock). Returns the counterpart of SQLite's integrity checks.
+    absent. Concurrent runs on one schema are kept apart by an advisory lock of
+    the transaction (its key a hash of the schema name), taken before the schema
+    is read: with ``wait`` (seconds), a run that cannot have it by then is
+    refused (``DestinationBusy``); without, it waits as long as it takes.
+    Returns the counterpart of SQLite's integrity checks.
     """
     try:
         from psycopg import errors as pg_errors
@@ -542,7 +591,10 @@ def write_postgresql(plan: Plan, rows: dict[str, list[tuple]], order: list[str],
             raw.add_notice_handler(lambda d: truncated.append(d.message_primary or "")
                                    if d.sqlstate == pg_errors.NameTooLong.sqlstate else None)
             cursor = raw.cursor()
-            cursor.execute("SELECT pg_catalog.pg_advisory_xact_lock(%s)", (lock,))
+            if wait is None:
+                cursor.execute("SELECT pg_catalog.pg_advisory_xact_lock(%s)", (lock,))
+            else:
+                _pg_try_lock(cursor, lock, wait, f"schema {schema!r} of {shown}")
             existing = _pg_relations(cursor, schema)
             if existing and not replace:
                 names = ", ".join(name for name, _ in existing[:5]) + (", ..." if len(existing) > 5 else "")
