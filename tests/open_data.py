@@ -191,3 +191,23 @@ def npm_package(name: str, version: str, where):
     with tarfile.open(found[0]) as tar:
         tar.extractall(where, filter="data")
     return where / "package"
+
+
+def referred_rows(db, m: dict, stem: str, column: str, own: str, shown: tuple[str, ...]) -> list[tuple]:
+    """Each value of a list column that names records, in list order: (the owner's ``own`` column, the value as
+    stored, then the ``shown`` columns of the record its foreign key leads to, NULL where it leads nowhere)."""
+    record = record_table(m, stem)
+    (pk,) = record["primary_key"]
+    bridge, values, value_fk = element_tables(m, stem, column)
+    (to_record,) = values["foreign_keys"]
+    assert to_record["references"] == record["name"]
+    (value_pk,) = values["primary_key"]
+    (value_column,) = values["natural_key"]
+    picked = ", ".join(f't."{c}"' for c in shown)
+    sql = (f'SELECT r."{own}", v."{value_column}", {picked} FROM "{bridge["name"]}" b '
+           f'JOIN "{record["name"]}" r ON r."{pk}" = b."{pk}" '
+           f'JOIN "{values["name"]}" v ON v."{value_pk}" = b."{value_fk}" '
+           f'LEFT JOIN "{record["name"]}" t ON t."{pk}" = v."{to_record["columns"][0]}" '
+           f'ORDER BY r."{pk}", b."{bridge["position_column"]}"')
+    with sqlite3.connect(db) as con:
+        return con.execute(sql).fetchall()

@@ -14,12 +14,11 @@ from __future__ import annotations
 
 import csv
 import json
-import sqlite3
 
 import pytest
 
 from normalise.pipeline import build_database
-from tests.open_data import check_lossless, check_pragmas, element_tables, npm_package, record_table
+from tests.open_data import check_lossless, check_pragmas, npm_package, record_table, referred_rows
 
 VERSION = "5.1.0"
 
@@ -52,20 +51,7 @@ def build(countries: list[dict], where, delimited: bool):
 
 def border_rows(db, m: dict) -> list[tuple]:
     """(country code, border as stored, code and name of the country row its foreign key leads to), in list order."""
-    record = record_table(m, "countries")
-    (pk,) = record["primary_key"]
-    bridge, values, value_fk = element_tables(m, "countries", "borders")
-    (to_country,) = values["foreign_keys"]
-    assert to_country["references"] == record["name"]
-    (value_pk,) = values["primary_key"]
-    (value_column,) = values["natural_key"]
-    sql = (f'SELECT r.cca3, v."{value_column}", t.cca3, t.name FROM "{bridge["name"]}" b '
-           f'JOIN "{record["name"]}" r ON r."{pk}" = b."{pk}" '
-           f'JOIN "{values["name"]}" v ON v."{value_pk}" = b."{value_fk}" '
-           f'LEFT JOIN "{record["name"]}" t ON t."{pk}" = v."{to_country["columns"][0]}" '
-           f'ORDER BY r."{pk}", b."{bridge["position_column"]}"')
-    with sqlite3.connect(db) as con:
-        return con.execute(sql).fetchall()
+    return referred_rows(db, m, "countries", "borders", "cca3", ("cca3", "name"))
 
 
 def expected(countries: list[dict]) -> list[tuple]:

@@ -17,7 +17,7 @@ import pytest
 from normalise.join import JoinOptions
 from normalise.pipeline import build_database, make_plan
 from normalise.survey import survey
-from tests.open_data import check_lossless, check_pragmas, element_tables, record_table
+from tests.open_data import check_lossless, check_pragmas, record_table, referred_rows
 
 CODES = [f"R{n:02d}" for n in range(1, 25)]
 
@@ -75,20 +75,7 @@ def test_parent_column_names_its_region(built):
 def test_neighbours_name_their_regions(built):
     rows, _, db, m = built
     codes = {r["code"] for r in rows}
-    record = record_table(m, "regions")
-    (pk,) = record["primary_key"]
-    bridge, values, value_fk = element_tables(m, "regions", "neighbours")
-    (to_record,) = values["foreign_keys"]
-    assert to_record["references"] == record["name"]
-    (value_pk,) = values["primary_key"]
-    (value_column,) = values["natural_key"]
-    sql = (f'SELECT r.code, v."{value_column}", t.code FROM "{bridge["name"]}" b '
-           f'JOIN "{record["name"]}" r ON r."{pk}" = b."{pk}" '
-           f'JOIN "{values["name"]}" v ON v."{value_pk}" = b."{value_fk}" '
-           f'LEFT JOIN "{record["name"]}" t ON t."{pk}" = v."{to_record["columns"][0]}" '
-           f'ORDER BY r."{pk}", b."{bridge["position_column"]}"')
-    with sqlite3.connect(db) as con:
-        got = con.execute(sql).fetchall()
+    got = referred_rows(db, m, "regions", "neighbours", "code", ("code",))
     expected = [(r["code"], v, v if v in codes else None) for r in rows for v in json.loads(r["neighbours"])]
     assert got == expected
 
