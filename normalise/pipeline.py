@@ -14,6 +14,7 @@ from .infer import Options, infer_plan
 from .join import JoinOptions, join
 from .literal import Limits
 from .names import quote_name
+from .option_values import check_values
 from .options_check import check_option_names
 from .prove import LossDetected, loss_message, prove, sqlite_fetch
 from .planfile import join_settings, plan_from_doc, plan_to_toml, read_plan
@@ -49,9 +50,11 @@ def head(exports: list, decoded: dict, n: int) -> tuple[list, dict]:
 def prepare(paths: list[str], *, options: Options | None = None, limits: Limits = Limits(),
             formats: dict | None = None, encoding: str | None = None, delimiter: str | None = None,
             join_options: JoinOptions | None = None, picks: list[str] | None = None,
-            plan_path: str | None = None):
+            plan_path: str | None = None, header: bool = True):
     """Read, decode, join and plan; with ``plan_path`` the plan comes from that file, checked against the data."""
-    exports = [read(p, encoding=encoding, delimiter=delimiter) for p in paths]
+    delimiter = check_values(encoding_name=encoding, delimiter_char=delimiter, limits=limits, options=options,
+                             join_options=join_options)
+    exports = [read(p, encoding=encoding, delimiter=delimiter, header=header) for p in paths]
     decoded = {e.path: decode(e, limits, formats) for e in exports}
     options = options or Options()
     check_option_names(exports, decoded, options, formats, join_options or JoinOptions())
@@ -96,7 +99,7 @@ def build_database(paths: list[str], database: str, *, options: Options | None =
                    parquet_dir: str | None = None, plan_path: str | None = None,
                    schema: str | None = None, chunk_rows: int | None = None, progress=None,
                    report_path: str | None = None, dictionary_path: str | None = None,
-                   append: bool = False, allow_lossy: bool = False) -> dict:
+                   append: bool = False, allow_lossy: bool = False, header: bool = True) -> dict:
     """Run every pass on the exports and write a SQLite database; returns the manifest.
 
     ``database`` may instead be a ``postgresql+psycopg://`` URL: the tables then go into
@@ -113,6 +116,8 @@ def build_database(paths: list[str], database: str, *, options: Options | None =
         >>> [(t["name"], t["role"], t["rows"]) for t in m["tables"] if t["rows"]]
         [('person', 'entity', 1), ('books', 'record', 1), ('book_people', 'bridge', 1), ('name_map', 'names', 5)]
     """
+    delimiter = check_values(encoding_name=encoding, delimiter_char=delimiter, limits=limits, chunk_rows=chunk_rows,
+                             options=options, join_options=join_options)
     postgresql = is_postgresql(database)
     if schema is not None and not postgresql:
         from .errors import UsageError
@@ -132,11 +137,11 @@ def build_database(paths: list[str], database: str, *, options: Options | None =
         plan, result = _build_streaming(paths[0], database, options=options, limits=limits, formats=formats,
                                         encoding=encoding, delimiter=delimiter, replace=replace, picks=picks,
                                         plan_path=plan_path, chunk_rows=chunk_rows, progress=progress,
-                                        allow_lossy=allow_lossy)
+                                        allow_lossy=allow_lossy, header=header)
         return _outputs(database, plan, result, parquet_dir, manifest_path, report_path, dictionary_path)
     plan, exports, decoded, joined = prepare(paths, options=options, limits=limits, formats=formats,
                                              encoding=encoding, delimiter=delimiter, join_options=join_options,
-                                             picks=picks, plan_path=plan_path)
+                                             picks=picks, plan_path=plan_path, header=header)
     order = check_plan(plan)
     state = None
     if append:
@@ -236,10 +241,11 @@ def _can_stream(paths: list[str], options: Options | None, join_options: JoinOpt
 
 def _build_streaming(path: str, database: str, *, options: Options | None, limits: Limits, formats: dict | None,
                      encoding: str | None, delimiter: str | None, replace: bool, picks: list[str] | None,
-                     plan_path: str | None, chunk_rows: int, progress, allow_lossy: bool = False) -> tuple:
+                     plan_path: str | None, chunk_rows: int, progress, allow_lossy: bool = False,
+                     header: bool = True) -> tuple:
     """Build one export in chunks with bounded memory: infer on the first records, then stream."""
     options = options or Options()
-    chunks = iter_chunks(path, chunk_rows, encoding=encoding, delimiter=delimiter)
+    chunks = iter_chunks(path, chunk_rows, encoding=encoding, delimiter=delimiter, header=header)
     first = []
     taken = 0
     for chunk in chunks:
@@ -301,7 +307,7 @@ def _build_streaming(path: str, database: str, *, options: Options | None, limit
     def locate(table: str, column: str):
         """Read the file again, only when the proof found a difference, to name the cells that differ."""
         loaded = built.inputs.records.get(table, set())
-        for chunk in iter_chunks(path, chunk_rows, encoding=encoding, delimiter=delimiter):
+        for chunk in iter_chunks(path, chunk_rows, encoding=encoding, delimiter=delimiter, header=header):
             columns = decode(chunk, limits, fixed)
             rows = [i for i, line in enumerate(chunk.lines) if line in loaded]
             for i, value in zip(rows, reference_values(record, column, columns[column], rows)):
