@@ -44,7 +44,8 @@ def _one_line(message: str, prog: str) -> str:
     """argparse's message in the tool's form: ``--option VALUE: expected ..., got ...``.
 
     Example:
-        >>> _one_line("argument --how: invalid choice: 'outer' (choose from 'left', 'inner', 'full')", "normalise build")
+        >>> _one_line("argument --how: invalid choice: 'outer' (choose from 'left', 'inner', 'full')",
+        ...           "normalise build")
         '--how outer: expected one of left, inner, full, got a value not among them'
         >>> _one_line("the following arguments are required: --db", "normalise build")
         'the following arguments are required: --db; see normalise build --help'
@@ -276,7 +277,8 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--json", action="store_true", help="print the survey as JSON")
     p.set_defaults(func=cmd_survey)
 
-    p = sub.add_parser("build", help="build a linked SQLite (or PostgreSQL) database from the exports", **_HELP_END)
+    p = sub.add_parser("build", help="build a linked SQLite (or PostgreSQL) database from the exports",
+                       **_HELP_END)
     _common(p)
     p.add_argument("--db", required=True, metavar="PATH|URL",
                    help="the SQLite database file to write, or a PostgreSQL server: "
@@ -310,7 +312,8 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("-o", "--output", metavar="PLAN.toml", help="write the plan here (default: print it)")
     p.set_defaults(func=cmd_plan)
 
-    p = sub.add_parser("report", help="write the HTML report and/or data dictionary of an existing SQLite database", **_HELP_END)
+    p = sub.add_parser("report", help="write the HTML report and/or data dictionary of an existing SQLite database",
+                       **_HELP_END)
     p.add_argument("database", metavar="DB", help="a SQLite database written by normalise build")
     p.add_argument("-o", "--output", metavar="PATH.html", help="write the HTML report here")
     p.add_argument("--dictionary", metavar="PATH.md", help="write the data dictionary (Markdown) here")
