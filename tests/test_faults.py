@@ -276,7 +276,7 @@ def test_locked_destination_is_not_a_traceback(demo, tmp_path):
     """Locked by another process: no traceback, no temporary file left, the older database intact or replaced whole."""
     result, dest, _ = _build_over_locked(demo, tmp_path)
     assert "Traceback" not in result.stderr, result.stderr
-    assert result.returncode in (0, 2), result.stderr
+    assert result.returncode in (0, 1), result.stderr  # locked: the run stopped, exit 1
     assert partials(tmp_path) == []
     check_complete(dest)
 
@@ -284,7 +284,7 @@ def test_locked_destination_is_not_a_traceback(demo, tmp_path):
 def test_locked_destination_gives_a_message_and_stays_as_it_was(demo, tmp_path):
     result, dest, before = _build_over_locked(demo, tmp_path)
     lines = result.stderr.strip().splitlines()
-    assert result.returncode == 2 and len(lines) == 1 and "lock" in lines[0], result.stderr
+    assert result.returncode == 1 and len(lines) == 1 and "lock" in lines[0], result.stderr
     assert dest.read_bytes() == before
 
 
