@@ -3,26 +3,84 @@
 from __future__ import annotations
 
 import argparse
+import errno
 import json
 import sqlite3
 import re
 import sys
+import warnings
 
+from . import option_values as values
 from .decode import parse_decode_option
-from .errors import NormaliseError
+from .errors import EXIT_DATA, EXIT_USAGE, LooksHeaderless, NormaliseError
 from .literal import DEFAULT_MAX_CELL_CHARS, DEFAULT_MAX_DEPTH, Limits
+from .option_values import as_argument
+
+EXIT_CODES = """\
+exit codes:
+  0  done
+  1  the build stopped on the data or the machine: the lossless proof failed, the counts did not
+     reconcile, repeated keys were refused (--duplicates refuse), a join broke its --cardinality, a table
+     would be wider than SQLite allows, a file's content cannot be read; the disk is full, the database
+     is locked by another program or cannot be written
+  2  usage: an unknown option or a value it cannot take, an option naming a file, column or field the
+     inputs do not have, a plan file that cannot be read or does not fit the data, an input that is not
+     there, a destination that exists (without --replace or --append) or is not a usable database
+"""
+
+
+# every --help ends with the exit codes
+_HELP_END = {"epilog": EXIT_CODES, "formatter_class": argparse.RawDescriptionHelpFormatter}
+
+
+class _Parser(argparse.ArgumentParser):
+    """An argument parser whose every refusal is one line on stderr and exit 2, like the tool's own."""
+
+    def error(self, message: str):
+        self.exit(EXIT_USAGE, f"normalise: {_one_line(message, self.prog)}\n")
+
+
+def _one_line(message: str, prog: str) -> str:
+    """argparse's message in the tool's form: ``--option VALUE: expected ..., got ...``.
+
+    Example:
+        >>> _one_line("argument --how: invalid choice: 'outer' (choose from 'left', 'inner', 'full')",
+        ...           "normalise build")
+        '--how outer: expected one of left, inner, full, got a value not among them'
+        >>> _one_line("the following arguments are required: --db", "normalise build")
+        'the following arguments are required: --db; see normalise build --help'
+    """
+    argument = re.fullmatch(r"argument (\S+): (.*)", message, re.S)
+    if not argument:
+        return f"{message}; see {prog} --help"
+    option, rest = argument.group(1).split("/")[-1], argument.group(2)
+    if rest.startswith(f"{option} "):  # an option_values check: the message is whole
+        return rest
+    choice = re.fullmatch(r"invalid choice: '(.*)' \(choose from (.*)\)", rest, re.S)
+    if choice:
+        named = option if option.startswith("-") else "command"
+        return (f"{named} {choice.group(1)}: expected one of {choice.group(2).replace(chr(39), '')}, "
+                "got a value not among them")
+    return f"{option}: {rest}; see {prog} --help"
 
 
 def _common(p: argparse.ArgumentParser) -> None:
     p.add_argument("files", nargs="+", metavar="FILE", help="CSV, TSV or JSON Lines exports")
     p.add_argument("--decode", action="append", default=[], metavar="COLUMN=FORMAT",
                    help="fix a column's format: json, python-literal, delimited[:SEP] or text")
-    p.add_argument("--encoding", help="text encoding of the files (default UTF-8, with or without BOM)")
-    p.add_argument("--delimiter", help="field delimiter of CSV/TSV files (default: detected)")
-    p.add_argument("--max-depth", type=int, default=DEFAULT_MAX_DEPTH,
-                   help=f"deepest nesting a cell may have (default {DEFAULT_MAX_DEPTH})")
-    p.add_argument("--max-cell-chars", type=int, default=DEFAULT_MAX_CELL_CHARS,
-                   help=f"longest cell in characters (default {DEFAULT_MAX_CELL_CHARS:,})")
+    p.add_argument("--encoding", type=as_argument(values.encoding),
+                   help="text encoding of the files (default UTF-8, with or without BOM)")
+    p.add_argument("--delimiter", type=as_argument(values.delimiter),
+                   help="field delimiter of CSV/TSV files: one character, or tab (default: detected)")
+    p.add_argument("--no-header", action="store_true",
+                   help="CSV/TSV files have no header row: columns are column_1, column_2, ... and the "
+                        "first row is a record")
+    p.add_argument("--max-depth", type=as_argument(values.whole_number, "--max-depth", 1),
+                   default=DEFAULT_MAX_DEPTH, metavar="N",
+                   help=f"deepest nesting a cell may have, at least 1 (default {DEFAULT_MAX_DEPTH})")
+    p.add_argument("--max-cell-chars", type=as_argument(values.whole_number, "--max-cell-chars", 1),
+                   default=DEFAULT_MAX_CELL_CHARS, metavar="N",
+                   help=f"longest cell in characters, at least 1 (default {DEFAULT_MAX_CELL_CHARS:,})")
 
 
 def _limits(args) -> Limits:
@@ -47,7 +105,7 @@ def cmd_survey(args) -> int:
     from .survey import render, survey
 
     result = survey(args.files, limits=_limits(args), formats=_formats(args),
-                    encoding=args.encoding, delimiter=_delimiter(args))
+                    encoding=args.encoding, delimiter=_delimiter(args), header=not args.no_header)
     if args.json:
         print(_escape_surrogates(json.dumps(result, indent=2, ensure_ascii=False, default=str)))
     else:
@@ -143,7 +201,7 @@ def _run_build(args, options, join_options, progress):
                             parquet_dir=args.parquet, plan_path=args.plan, chunk_rows=args.chunk_rows or None,
                             progress=progress, schema=args.schema,
                             append=args.append, report_path=args.report, dictionary_path=args.dictionary,
-                            allow_lossy=args.allow_lossy, wait=args.wait)
+                            allow_lossy=args.allow_lossy, wait=args.wait, header=not args.no_header)
 
 
 def cmd_plan(args) -> int:
@@ -156,7 +214,7 @@ def cmd_plan(args) -> int:
                       match=_pairs(args.match, "--match"))
     text = make_plan(args.files, args.output, options=options, limits=_limits(args), formats=_formats(args),
                      encoding=args.encoding, delimiter=_delimiter(args), picks=args.pick, plan_path=args.plan,
-                     join_options=_join_options(args))
+                     join_options=_join_options(args), header=not args.no_header)
     if not args.output:
         print(text)
     else:
@@ -170,8 +228,8 @@ def _inference_options(p) -> None:
                    help="natural key of a file's records (FILE is the file name without extension)")
     p.add_argument("--duplicates", choices=("first", "last", "refuse"), default="first",
                    help="which record keeps a repeated natural key (others are set aside)")
-    p.add_argument("--threshold", type=float, default=0.05,
-                   help="tolerated share of functional-dependency violations (default 0.05)")
+    p.add_argument("--threshold", type=as_argument(values.share, "--threshold"), default=0.05, metavar="SHARE",
+                   help="tolerated share of functional-dependency violations, from 0 up to 1 (default 0.05)")
     p.add_argument("--identity", action="append", default=[], metavar="COLUMN=FIELD",
                    help="identity field of a nested column's objects (empty: none, objects become child rows)")
     p.add_argument("--merge", action="append", default=[], metavar="FILE:COL,FILE:COL",
@@ -197,15 +255,17 @@ def cmd_report(args) -> int:
 
 
 def build_parser() -> argparse.ArgumentParser:
-    parser = argparse.ArgumentParser(prog="normalise",
-                                     description="Turn flat exports with nested cells into a linked relational database.")
-    sub = parser.add_subparsers(dest="command", required=True)
-    p = sub.add_parser("survey", help="report what each column of the exports holds")
+    parser = _Parser(prog="normalise", **_HELP_END,
+                     description="Turn flat exports with nested cells into a linked relational database.")
+    parser.add_argument("--version", action="version", version=f"normalise {_version()}")
+    sub = parser.add_subparsers(dest="command", required=True, metavar="COMMAND")
+    p = sub.add_parser("survey", help="report what each column of the exports holds", **_HELP_END)
     _common(p)
     p.add_argument("--json", action="store_true", help="print the survey as JSON")
     p.set_defaults(func=cmd_survey)
 
-    p = sub.add_parser("build", help="build a linked SQLite (or PostgreSQL) database from the exports")
+    p = sub.add_parser("build", help="build a linked SQLite (or PostgreSQL) database from the exports",
+                       **_HELP_END)
     _common(p)
     p.add_argument("--db", required=True, metavar="PATH|URL",
                    help="the SQLite database file to write, or a PostgreSQL server: "
@@ -223,7 +283,8 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--report", metavar="PATH.html",
                    help="also write a self-contained HTML report: schema diagram, counts, checks, problems, charts")
     p.add_argument("--dictionary", metavar="PATH.md", help="also write a data dictionary (Markdown)")
-    p.add_argument("--chunk-rows", type=int, default=5000, metavar="N",
+    p.add_argument("--chunk-rows", type=as_argument(values.whole_number, "--chunk-rows", 0), default=5000,
+                   metavar="N",
                    help="records read at a time when one CSV/TSV file is built (bounded memory; 0: all at once)")
     p.add_argument("--quiet", action="store_true", help="print nothing but errors (no progress)")
     p.add_argument("--wait", type=float, default=0.0, metavar="SECONDS",
@@ -234,14 +295,15 @@ def build_parser() -> argparse.ArgumentParser:
                         "(the manifest, the summary and the report say so)")
     p.set_defaults(func=cmd_build)
 
-    p = sub.add_parser("plan", help="write the inferred model as an editable TOML plan")
+    p = sub.add_parser("plan", help="write the inferred model as an editable TOML plan", **_HELP_END)
     _common(p)
     _inference_options(p)
     _join_arguments(p)
     p.add_argument("-o", "--output", metavar="PLAN.toml", help="write the plan here (default: print it)")
     p.set_defaults(func=cmd_plan)
 
-    p = sub.add_parser("report", help="write the HTML report and/or data dictionary of an existing SQLite database")
+    p = sub.add_parser("report", help="write the HTML report and/or data dictionary of an existing SQLite database",
+                       **_HELP_END)
     p.add_argument("database", metavar="DB", help="a SQLite database written by normalise build")
     p.add_argument("-o", "--output", metavar="PATH.html", help="write the HTML report here")
     p.add_argument("--dictionary", metavar="PATH.md", help="write the data dictionary (Markdown) here")
@@ -251,23 +313,65 @@ def build_parser() -> argparse.ArgumentParser:
     return parser
 
 
+def _version() -> str:
+    from importlib.metadata import PackageNotFoundError, version
+
+    try:
+        return version("normalise")
+    except PackageNotFoundError:  # run from a checkout that was never installed
+        return getattr(sys.modules[__package__], "__version__", "(version unknown: not installed)")
+
+
+# an OSError about the path given (missing, a directory, not allowed) is a usage error; others (a full
+# disk, an input/output error) stopped a run that was called right
+_PATH_ERRNOS = frozenset({errno.ENOENT, errno.ENOTDIR, errno.EISDIR, errno.EACCES, errno.EPERM, errno.EROFS,
+                          errno.ENAMETOOLONG, errno.ELOOP})
+
+
+def exit_code(exc: BaseException) -> int:
+    """How the command ends after ``exc``: 2 for usage, 1 for a build stopped on the data or the machine."""
+    if isinstance(exc, NormaliseError):
+        from .append import SchemaMismatch
+        from .planfile import InvalidPlan
+        from .write import DestinationError, DestinationExists
+
+        usage = (InvalidPlan, SchemaMismatch, DestinationExists, DestinationError)
+        return EXIT_USAGE if isinstance(exc, usage) else exc.exit_code
+    if isinstance(exc, OSError) and not isinstance(exc, sqlite3.Error):
+        return EXIT_USAGE if exc.errno in _PATH_ERRNOS else EXIT_DATA
+    return EXIT_DATA
+
+
+def _show_warning(message, category, filename, lineno, file=None, line=None) -> None:
+    if issubclass(category, LooksHeaderless):
+        print(f"normalise: warning: {message}", file=sys.stderr)
+    else:
+        _default_show_warning(message, category, filename, lineno, file, line)
+
+
+_default_show_warning = warnings.showwarning
+
+
 def main(argv: list[str] | None = None) -> int:
     parser = build_parser()
     args = parser.parse_args(argv)
     try:
-        return args.func(args)
+        with warnings.catch_warnings():
+            warnings.showwarning = _show_warning
+            warnings.simplefilter("always", LooksHeaderless)
+            return args.func(args)
     except NormaliseError as exc:
         print(f"normalise: {exc}", file=sys.stderr)
-        return getattr(exc, "exit_code", 2)  # 1: the run could not be done now (a busy destination)
+        return exit_code(exc)
     except sqlite3.DatabaseError as exc:  # e.g. "database or disk is full"; nothing was moved into place
         print(f"normalise: the database could not be written: {exc}", file=sys.stderr)
-        return 2
+        return EXIT_DATA
     except BrokenPipeError:  # output piped into a pager or head that closed early
         sys.stderr.close()
         return 0
     except OSError as exc:  # a full disk, a missing directory, a file that cannot be opened
         print(f"normalise: {exc.strerror or exc}: {exc.filename or ''}".rstrip(": "), file=sys.stderr)
-        return 2
+        return exit_code(exc)
     except KeyboardInterrupt:
         print("normalise: interrupted", file=sys.stderr)
         return 130

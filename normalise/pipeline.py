@@ -14,6 +14,7 @@ from .infer import Options, infer_plan
 from .join import JoinOptions, join
 from .literal import Limits
 from .names import quote_name
+from .option_values import check_values
 from .options_check import check_option_names
 from .outputs import check_paths, destination_lock, lock_path, staged_outputs, writing
 from .prove import LossDetected, loss_message, prove, sqlite_fetch
@@ -51,9 +52,11 @@ def head(exports: list, decoded: dict, n: int) -> tuple[list, dict]:
 def prepare(paths: list[str], *, options: Options | None = None, limits: Limits = Limits(),
             formats: dict | None = None, encoding: str | None = None, delimiter: str | None = None,
             join_options: JoinOptions | None = None, picks: list[str] | None = None,
-            plan_path: str | None = None):
+            plan_path: str | None = None, header: bool = True):
     """Read, decode, join and plan; with ``plan_path`` the plan comes from that file, checked against the data."""
-    exports = [read(p, encoding=encoding, delimiter=delimiter) for p in paths]
+    delimiter = check_values(encoding_name=encoding, delimiter_char=delimiter, limits=limits, options=options,
+                             join_options=join_options)
+    exports = [read(p, encoding=encoding, delimiter=delimiter, header=header) for p in paths]
     decoded = {e.path: decode(e, limits, formats) for e in exports}
     options = options or Options()
     check_option_names(exports, decoded, options, formats, join_options or JoinOptions())
@@ -102,7 +105,7 @@ def build_database(paths: list[str], database: str, *, options: Options | None =
                    parquet_dir: str | None = None, plan_path: str | None = None,
                    schema: str | None = None, chunk_rows: int | None = None, progress=None,
                    report_path: str | None = None, dictionary_path: str | None = None,
-                   append: bool = False, allow_lossy: bool = False, wait: float = 0.0) -> dict:
+                   append: bool = False, allow_lossy: bool = False, wait: float = 0.0, header: bool = True) -> dict:
     """Run every pass on the exports and write a SQLite database; returns the manifest.
 
     ``database`` may instead be a ``postgresql+psycopg://`` URL: the tables then go into
@@ -124,6 +127,8 @@ def build_database(paths: list[str], database: str, *, options: Options | None =
         >>> [(t["name"], t["role"], t["rows"]) for t in m["tables"] if t["rows"]]
         [('person', 'entity', 1), ('books', 'record', 1), ('book_people', 'bridge', 1), ('name_map', 'names', 5)]
     """
+    delimiter = check_values(encoding_name=encoding, delimiter_char=delimiter, limits=limits, chunk_rows=chunk_rows,
+                             options=options, join_options=join_options)
     postgresql = is_postgresql(database)
     if schema is not None and not postgresql:
         from .errors import UsageError
@@ -151,7 +156,7 @@ def build_database(paths: list[str], database: str, *, options: Options | None =
                   replace=replace, join_options=join_options, manifest_path=manifest_path, picks=picks,
                   parquet_dir=parquet_dir, plan_path=plan_path, schema=schema, chunk_rows=chunk_rows,
                   progress=progress, report_path=report_path, dictionary_path=dictionary_path, append=append,
-                  allow_lossy=allow_lossy, wait=wait)
+                  allow_lossy=allow_lossy, wait=wait, header=header)
     if postgresql:  # write_postgresql holds an advisory lock of the schema for its transaction
         with staged_outputs() as staged:
             result = _build(paths, database, staged=staged, **kwargs)
@@ -166,18 +171,18 @@ def build_database(paths: list[str], database: str, *, options: Options | None =
 
 def _build(paths: list[str], database: str, *, options, limits, formats, encoding, delimiter, replace,
            join_options, manifest_path, picks, parquet_dir, plan_path, schema, chunk_rows, progress,
-           report_path, dictionary_path, append, allow_lossy, wait, staged) -> dict:
+           report_path, dictionary_path, append, allow_lossy, wait, staged, header=True) -> dict:
     """``build_database`` once its paths are checked and its destination locked; outputs go to ``staged``."""
     postgresql = is_postgresql(database)
     if chunk_rows and not postgresql and not append and _can_stream(paths, options, join_options, plan_path):
         plan, result = _build_streaming(paths[0], database, options=options, limits=limits, formats=formats,
                                         encoding=encoding, delimiter=delimiter, replace=replace, picks=picks,
                                         plan_path=plan_path, chunk_rows=chunk_rows, progress=progress,
-                                        allow_lossy=allow_lossy, staged=staged)
+                                        allow_lossy=allow_lossy, staged=staged, header=header)
         return _outputs(staged, database, plan, result, parquet_dir, manifest_path, report_path, dictionary_path)
     plan, exports, decoded, joined = prepare(paths, options=options, limits=limits, formats=formats,
                                              encoding=encoding, delimiter=delimiter, join_options=join_options,
-                                             picks=picks, plan_path=plan_path)
+                                             picks=picks, plan_path=plan_path, header=header)
     order = check_plan(plan)
     if postgresql:  # SQLite's limit is checked by the build, PostgreSQL's here: both before anything is written
         check_width(plan, POSTGRESQL_MAX_COLUMNS, "PostgreSQL")
@@ -286,10 +291,10 @@ def _can_stream(paths: list[str], options: Options | None, join_options: JoinOpt
 def _build_streaming(path: str, database: str, *, options: Options | None, limits: Limits, formats: dict | None,
                      encoding: str | None, delimiter: str | None, replace: bool, picks: list[str] | None,
                      plan_path: str | None, chunk_rows: int, progress, allow_lossy: bool = False,
-                     staged=None) -> tuple:
+                     staged=None, header: bool = True) -> tuple:
     """Build one export in chunks with bounded memory: infer on the first records, then stream."""
     options = options or Options()
-    chunks = iter_chunks(path, chunk_rows, encoding=encoding, delimiter=delimiter)
+    chunks = iter_chunks(path, chunk_rows, encoding=encoding, delimiter=delimiter, header=header)
     first = []
     taken = 0
     for chunk in chunks:
@@ -351,7 +356,7 @@ def _build_streaming(path: str, database: str, *, options: Options | None, limit
     def locate(table: str, column: str):
         """Read the file again, only when the proof found a difference, to name the cells that differ."""
         loaded = built.inputs.records.get(table, set())
-        for chunk in iter_chunks(path, chunk_rows, encoding=encoding, delimiter=delimiter):
+        for chunk in iter_chunks(path, chunk_rows, encoding=encoding, delimiter=delimiter, header=header):
             columns = decode(chunk, limits, fixed)
             rows = [i for i, line in enumerate(chunk.lines) if line in loaded]
             for i, value in zip(rows, reference_values(record, column, columns[column], rows)):

@@ -9,16 +9,23 @@ the reason, never dropped and never fatal.
 
 from __future__ import annotations
 
+import atexit
 import codecs
 import csv
 import io
+import itertools
 import json
 import os
+import re
+import shutil
+import stat
 import sys
+import tempfile
 from dataclasses import dataclass, field
 from pathlib import Path
+from warnings import warn
 
-from .errors import UnreadableFile
+from .errors import LooksHeaderless, MissingInput, UnreadableFile
 
 # The csv module refuses fields above 128 KiB by default; cell size is a
 # decoding limit with its own message (see decode.Limits), not a reader crash.
@@ -26,6 +33,8 @@ csv.field_size_limit(sys.maxsize)
 
 DELIMITER_CANDIDATES = ("\t", ",", ";", "|")
 SNIFF_BYTES = 1 << 16
+STDIN = "-"  # the input path that means standard input
+HEADER_CHECK_ROWS = 20  # rows below the header compared with it (looks_headerless)
 
 
 @dataclass
@@ -62,7 +71,7 @@ class Export:
 
     @property
     def name(self) -> str:
-        return Path(self.path).stem
+        return "stdin" if self.path == STDIN else Path(self.path).stem
 
     @property
     def number_of_records(self) -> int:
@@ -75,8 +84,13 @@ class Export:
 
 
 def read(path: str | os.PathLike, *, encoding: str | None = None,
-         delimiter: str | None = None) -> Export:
+         delimiter: str | None = None, header: bool = True) -> Export:
     """Read one export; the format comes from the file's extension and content.
+
+    ``header=False`` says a CSV or TSV file has no header row: its columns are named ``column_1``,
+    ``column_2``, ... and its first row is a record. With a header that looks like data, a
+    ``LooksHeaderless`` warning names the file. A pipe, a FIFO or ``-`` (standard input) is read
+    through a copy (``source_path``).
 
     Example:
         >>> import tempfile, os
@@ -87,21 +101,71 @@ def read(path: str | os.PathLike, *, encoding: str | None = None,
         (['a|b'], [2], ['too few fields: 1 of 2'])
     """
     path = os.fspath(path)
-    if not os.path.exists(path):
-        raise UnreadableFile(f"{path}: no such file")
-    if os.path.isdir(path):
-        raise UnreadableFile(f"{path}: is a directory, expected a CSV, TSV or JSON Lines file")
+    _check_input(path)
     suffix = Path(path).suffix.lower()
     if suffix in (".jsonl", ".ndjson") or (suffix == ".json" and _looks_like_json_lines(path)):
         return _read_json_lines(path, encoding or "utf-8-sig")
     if suffix == ".json" and _json_head(path).startswith(b"["):
         raise UnreadableFile(f"{path}: holds a JSON array, not JSON Lines (one object per line); "
                              "rewrite it with one object per line (e.g. jq -c '.[]') as .jsonl")
-    return _read_delimited(path, encoding or "utf-8-sig", delimiter)
+    return _read_delimited(path, encoding or "utf-8-sig", delimiter, header)
+
+
+def _check_input(path: str) -> None:
+    if path == STDIN:
+        return
+    if not os.path.exists(path):
+        raise MissingInput(f"{path}: no such file")
+    if os.path.isdir(path):
+        raise MissingInput(f"{path}: is a directory, expected a CSV, TSV or JSON Lines file")
+
+
+# input path -> its copy, for inputs that can be read only once (pipes, FIFOs, standard input)
+_COPIES: dict[str, str] = {}
+
+
+def source_path(path: str) -> str:
+    """The file to open for ``path``: itself when it is a regular file, else a copy made once.
+
+    A pipe, a FIFO or standard input can be read once only and cannot seek back, and an export is read
+    more than once (the delimiter is detected on its start; a streamed build reads it again to name a
+    cell that differs). Such an input is copied once, in blocks, into the system's temporary directory,
+    and the copy stands for it for the rest of the process (removed at exit); messages, table names and
+    the manifest keep the path as given.
+
+    Example:
+        >>> import tempfile, os
+        >>> p = os.path.join(tempfile.mkdtemp(), "t.csv"); _ = open(p, "w").write("a\\n1\\n")
+        >>> source_path(p) == p
+        True
+    """
+    if path in _COPIES:
+        return _COPIES[path]
+    if path != STDIN and stat.S_ISREG(os.stat(path).st_mode):
+        return path
+    fd, copy = tempfile.mkstemp(prefix="normalise-input-", suffix=Path(path).suffix)
+    with open(fd, "wb") as out:
+        if path == STDIN:
+            shutil.copyfileobj(sys.stdin.buffer, out, 1 << 20)
+        else:
+            with open(path, "rb") as f:
+                shutil.copyfileobj(f, out, 1 << 20)
+    _COPIES[path] = copy
+    return copy
+
+
+@atexit.register
+def _remove_copies() -> None:
+    for copy in _COPIES.values():
+        try:
+            os.unlink(copy)
+        except OSError:
+            pass
+    _COPIES.clear()
 
 
 def _json_head(path: str) -> bytes:
-    with open(path, "rb") as f:
+    with open(source_path(path), "rb") as f:
         return f.read(1024).lstrip(b"\xef\xbb\xbf \t\r\n")
 
 
@@ -127,7 +191,7 @@ def _open_text(path: str, encoding: str) -> io.TextIOWrapper:
     # Undecodable bytes are kept as lone surrogates; the decode pass then
     # quarantines such cells with their position instead of crashing here.
     _InvalidBytes.seen = False
-    return open(path, "r", encoding=encoding, errors="normalise-invalid-bytes", newline="")
+    return open(source_path(path), "r", encoding=encoding, errors="normalise-invalid-bytes", newline="")
 
 
 def detect_delimiter(sample: str, suffix: str = "") -> str:
@@ -181,6 +245,73 @@ def unique_header(names: list[str]) -> tuple[list[str], list[str]]:
     return out, warnings
 
 
+_NUMBER = re.compile(r"[+-]?(?:\d+(?:\.\d*)?|\.\d+)(?:[eE][+-]?\d+)?")
+_DATE = re.compile(r"\d{4}-\d\d-\d\d(?:[T ]\d\d:\d\d(?::\d\d(?:\.\d+)?)?(?:Z|[+-]\d\d:?\d\d)?)?")
+
+
+def _kind(cell: str) -> str:
+    """What a cell looks like: ``number``, ``date``, ``nested`` (bracketed), ``empty`` or ``text``."""
+    text = cell.strip()
+    if not text:
+        return "empty"
+    if _NUMBER.fullmatch(text):
+        return "number"
+    if _DATE.fullmatch(text):
+        return "date"
+    if (text[0], text[-1]) in (("[", "]"), ("{", "}")):
+        return "nested"
+    return "text"
+
+
+def looks_headerless(header: list[str], rows: list[list[str]]) -> bool:
+    """Whether a header row reads as one more row of data rather than as column names.
+
+    It does when every header cell is a number; when no header cell is text (a name is text) and each is
+    of the kind most of the values below it are (numbers over numbers, dates over dates); or when a header
+    cell is a list or an object over a column of lists or objects, which no column name is. A header whose
+    names are text like the values below (``Ann`` over names) cannot be told from data this way.
+
+    Example:
+        >>> looks_headerless(["id", "tags"], [["1", "[1]"]]), looks_headerless(["7", "12.5"], [])
+        (False, True)
+        >>> looks_headerless(["3", "Moss Ledger", '["maps"]'], [["4", "Salt Almanac", '["essays"]']])
+        True
+    """
+    kinds = [_kind(cell) for cell in header]
+    named = [k for k in kinds if k != "empty"]
+    if not named:
+        return False
+    if all(k == "number" for k in named):
+        return True
+    below = []
+    for i in range(len(header)):
+        seen = [_kind(row[i]) for row in rows if i < len(row)]
+        seen = [k for k in seen if k != "empty"]
+        below.append(max(set(seen), key=seen.count) if seen else None)
+    if "text" not in kinds and all(k == b for k, b in zip(kinds, below) if k != "empty"):
+        return True
+    return any(k == b == "nested" for k, b in zip(kinds, below))
+
+
+def _rows_below(sample: str, delimiter: str) -> list[list[str]]:
+    """The first rows after the header in the file's first bytes (the last, perhaps cut, line left out)."""
+    if len(sample) >= SNIFF_BYTES:
+        sample = sample[:sample.rfind("\n") + 1]
+    try:
+        rows = (r for r in csv.reader(io.StringIO(sample, newline=""), delimiter=delimiter) if r)
+        return list(itertools.islice(rows, 1, HEADER_CHECK_ROWS + 1))
+    except csv.Error:
+        return []
+
+
+def _headerless_warning(path: str, header: list[str]) -> str:
+    shown = ", ".join(repr(c if len(c) <= 20 else c[:20] + "...") for c in header[:3])
+    message = (f"{path}: the first row looks like data, not like column names ({shown}"
+               f"{', ...' if len(header) > 3 else ''}); if the file has no header row, give --no-header")
+    warn(message, LooksHeaderless, stacklevel=4)
+    return message
+
+
 class _LineTap:
     """Iterator over a file's lines that remembers the lines of the current row."""
 
@@ -201,12 +332,12 @@ class _LineTap:
         return line
 
 
-def _read_delimited(path: str, encoding: str, delimiter: str | None) -> Export:
-    return next(_iter_delimited(path, encoding, delimiter, None))
+def _read_delimited(path: str, encoding: str, delimiter: str | None, header: bool = True) -> Export:
+    return next(_iter_delimited(path, encoding, delimiter, None, header))
 
 
 def iter_chunks(path: str | os.PathLike, chunk_rows: int, *, encoding: str | None = None,
-                delimiter: str | None = None):
+                delimiter: str | None = None, header: bool = True):
     """Read a CSV or TSV export as a sequence of Exports of at most ``chunk_rows`` records each.
 
     Line numbers, rejected rows and warnings are those of the whole file; a
@@ -217,33 +348,45 @@ def iter_chunks(path: str | os.PathLike, chunk_rows: int, *, encoding: str | Non
     if suffix in (".jsonl", ".ndjson", ".json"):
         yield read(path, encoding=encoding, delimiter=delimiter)
         return
-    if not os.path.isfile(path):
-        read(path, encoding=encoding, delimiter=delimiter)  # raises the usual error
-    yield from _iter_delimited(path, encoding or "utf-8-sig", delimiter, chunk_rows)
+    _check_input(path)
+    yield from _iter_delimited(path, encoding or "utf-8-sig", delimiter, chunk_rows, header)
 
 
-def _iter_delimited(path: str, encoding: str, delimiter: str | None, chunk_rows: int | None):
+def _iter_delimited(path: str, encoding: str, delimiter: str | None, chunk_rows: int | None,
+                    has_header: bool = True):
     suffix = Path(path).suffix.lower()
     with _open_text(path, encoding) as f:
+        sample = f.read(SNIFF_BYTES)
+        f.seek(0)
         if delimiter is None:
-            delimiter = detect_delimiter(f.read(SNIFF_BYTES), suffix)
-            f.seek(0)
+            delimiter = detect_delimiter(sample, suffix)
         tap = _LineTap(iter(f))
         reader = csv.reader(tap, delimiter=delimiter)
         kind = "tsv" if delimiter == "\t" else "csv"
         header = next(reader, None)
+        first_line = 1
         while header == []:  # blank lines before the header (a file of blank lines is empty)
+            first_line = reader.line_num + 1
             header = next(reader, None)
         if header is None:
             yield Export(path, kind, [], {}, [], warnings=[f"{path}: empty file"],
                          delimiter=delimiter, encoding=encoding)
             return
         if _quote_left_open("".join(tap.taken), delimiter):
-            raise UnreadableFile(f"{path}: a quote opened in the header (line 1) is never closed, "
-                                 "so the whole file reads as the header; close or remove the quote")
-        header, named = _printable_names(header)
-        columns, warnings = unique_header(header)
-        warnings = named + warnings
+            raise UnreadableFile(f"{path}: a quote opened in the {'header' if has_header else 'first row'} "
+                                 f"(line {first_line}) is never closed, so the whole file reads as one row; "
+                                 "close or remove the quote")
+        first_row, first_taken = None, []
+        if has_header:
+            header, named = _printable_names(header)
+            columns, warnings = unique_header(header)
+            warnings = named + warnings
+            if looks_headerless(header, _rows_below(sample, delimiter)):
+                warnings.append(_headerless_warning(path, header))
+        else:  # the first row is a record; its cells are values, not names
+            first_row, first_taken = header, tap.taken
+            columns, warnings = [f"column_{i}" for i in range(1, len(header) + 1)], []
+            header = columns
         header_names = dict(zip(columns, header))
         width = len(columns)
 
@@ -256,11 +399,16 @@ def _iter_delimited(path: str, encoding: str, delimiter: str | None, chunk_rows:
         store = [cells[c].append for c in columns]
         lines: list[int] = []
         rejected: list[RejectedRow] = []
-        tap.taken.clear()
+        tap.taken = []
         line_no = reader.line_num  # lines consumed so far
         blank = 0
         any_rows = False
         last, last_start, last_taken = None, 0, []  # kind, line and lines of the last row
+        if first_row is not None:
+            for put, value in zip(store, first_row):
+                put(value)
+            lines.append(first_line)
+            last, last_start, last_taken = "record", first_line, first_taken
         while True:
             try:
                 row = next(reader)

@@ -1372,7 +1372,10 @@ def write_outputs(database, manifest: dict | None = None, *, report_path=None, d
 
 
 class UnreadableManifest(NormaliseError):
-    """A manifest that cannot be read, is not JSON or lacks what a normalise manifest holds."""
+    """A manifest that cannot be read, is not JSON or lacks what a normalise manifest holds (the wrong file
+    given: a usage error)."""
+
+    exit_code = 2
 
 
 # What the report reads of a manifest, and the JSON type each must have (the rest is optional).

@@ -13,6 +13,7 @@ from .decode import DecodedColumn, decode
 from .infer import (REFERENCE_MIN_SHARE, REFERENCE_MIN_VALUES, detect_natural_key, identity_candidates, is_reference,
                     objects_of, reference_evidence, reference_texts, scalar_column_type, scalar_type)
 from .literal import Limits
+from .option_values import check_values
 from .profile import profile_values
 from .read import Export, read
 
@@ -61,7 +62,7 @@ def survey_column(export: Export, column: DecodedColumn) -> dict:
 
 
 def survey(paths: list[str], *, limits: Limits = Limits(), formats: dict | None = None,
-           encoding: str | None = None, delimiter: str | None = None) -> dict:
+           encoding: str | None = None, delimiter: str | None = None, header: bool = True) -> dict:
     """Survey exports; returns ``{"files": [{"path", "rows", "columns": [...]}, ...]}``.
 
     Example:
@@ -72,10 +73,11 @@ def survey(paths: list[str], *, limits: Limits = Limits(), formats: dict | None 
         >>> col["encoding"], col["shape"], col["identity_candidates"][0]["field"]
         ('python-literal', 'object-list', 'id')
     """
+    delimiter = check_values(encoding_name=encoding, delimiter_char=delimiter, limits=limits)
     files = []
     surveyed = []
     for path in paths:
-        export = read(path, encoding=encoding, delimiter=delimiter)
+        export = read(path, encoding=encoding, delimiter=delimiter, header=header)
         columns = decode(export, limits, formats)
         surveyed.append((export, columns))
         files.append({
