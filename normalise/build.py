@@ -24,7 +24,7 @@ import numpy as np
 
 from .errors import NormaliseError
 from .exact import (ABSENT, VALUE_TYPES, expect_cell, expect_element, get, is_negative_zero, json_text, keyed_items,
-                    literal, pointer, same, store, stored_back, value_key)
+                    literal, pointer, same, store, stored_back, usable_identity, value_key)
 from .infer import get_path, match_key, reference_text
 from .plan import NestedColumn, Plan, RecordSource
 from .schema import record_parts, record_row_columns, reference_columns
@@ -102,18 +102,6 @@ def row_key(source: str, owner_sk: int, position: int) -> int:
 
 
 _INT64_MIN, _INT64_MAX = -(1 << 63), (1 << 63) - 1
-
-
-def usable_identity(value, type_: str) -> bool:
-    """Whether a value can be an entity's identity of that type (stored in a NOT NULL UNIQUE column).
-
-    Example:
-        >>> usable_identity(7, "integer"), usable_identity("7", "integer"), usable_identity(2**64, "integer")
-        (True, False, False)
-    """
-    if value is None or type(value) in (dict, list, tuple, set, bool):
-        return False
-    return type_ != "integer" or (type(value) is int and _INT64_MIN <= value <= _INT64_MAX)
 
 
 def to_sql_value(value, type_: str):

@@ -432,6 +432,18 @@ def expect_cell(nested, value, identity_type: str | None = None, attributes=(), 
     return [expect_element(nested, x, identity_type, attributes, groups) for x in value]
 
 
+def usable_identity(value, type_: str) -> bool:
+    """Whether a value can be an entity's identity of that type (stored in a NOT NULL UNIQUE column).
+
+    Example:
+        >>> usable_identity(7, "integer"), usable_identity("7", "integer"), usable_identity(2**64, "integer")
+        (True, False, False)
+    """
+    if value is None or type(value) in (dict, list, tuple, set, bool):
+        return False
+    return type_ != "integer" or (type(value) is int and -(1 << 63) <= value < (1 << 63))
+
+
 def _referred(obj, f, groups) -> dict | None:
     """The entity object a reference's row gives back for ``obj``: its identity and the attributes as this
     occurrence gave them (the others are traced); None where the build stores no key."""
@@ -440,10 +452,8 @@ def _referred(obj, f, groups) -> dict | None:
         return None
     group = groups[f.entity]
     ident = sub.get(group.identity)
-    if ident is None or ident is ABSENT or type(ident) in (dict, list, tuple, set, bool):
-        return None  # as build.usable_identity: no key is stored
-    if group.identity_type == "integer" and not (type(ident) is int and -(1 << 63) <= ident < (1 << 63)):
-        return None
+    if not usable_identity(ident, group.identity_type):
+        return None  # the build stores no key
     out = {group.identity: ident if type(ident) is (int if group.identity_type == "integer" else str) else NOT_HELD}
     for a in group.attributes:
         v = get(sub, a.path)

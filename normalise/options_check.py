@@ -113,6 +113,13 @@ def _no_column(exports: list, name: str) -> str:
     return f"none of {', '.join(files)} has a column {name!r}"
 
 
+def _require_column(option: str, export, column: str) -> None:
+    """``option`` names ``column`` of ``export``'s file: refused when the file has no such column."""
+    if column not in export.columns:
+        raise UsageError(f"{option}: {Path(export.path).name} has no column {column!r} "
+                         f"(columns: {closest_first(column, export.columns)})")
+
+
 def _check_keys(exports: list, natural_keys: dict) -> None:
     by_stem = {e.name: e for e in exports}
     for stem, column in natural_keys.items():
@@ -121,9 +128,7 @@ def _check_keys(exports: list, natural_keys: dict) -> None:
         if export is None:
             raise UsageError(f"{option}: no input file is called {stem!r}; FILE is the file name without "
                              f"extension (files: {closest_first(stem, by_stem)})")
-        if column not in export.columns:
-            raise UsageError(f"{option}: {Path(export.path).name} has no column {column!r} "
-                             f"(columns: {closest_first(column, export.columns)})")
+        _require_column(option, export, column)
 
 
 def _check_formats(exports: list, formats: dict) -> None:
@@ -144,9 +149,7 @@ def _check_join(exports: list, on: dict) -> None:
         if other is None:
             raise UsageError(f"{option}: no further input file is called {file!r} "
                              f"(further files: {closest_first(file, [e.name for e in further])})")
-        if right not in other.columns:
-            raise UsageError(f"{option}: {Path(other.path).name} has no column {right!r} "
-                             f"(columns: {closest_first(right, other.columns)})")
+        _require_column(option, other, right)
         if left and left not in main.columns:
             raise UsageError(f"{option}: the main file {Path(main.path).name} has no column {left!r} "
                              f"(columns: {closest_first(left, main.columns)})")
