@@ -187,7 +187,6 @@ class Built:
     updates: dict = field(default_factory=dict)  # entity table -> rows to rewrite with their chosen values
     inputs: object = None  # prove.InputDigests of the loaded cells
     trace_reasons: dict = field(default_factory=dict)  # why values were kept in value_traces, and how many
-    kept: dict = field(default_factory=dict)  # export path -> indices of its loaded records
     rejoined: dict = field(default_factory=dict)  # "file:column" -> values whose name suffix was rejoined
     column_updates: dict = field(default_factory=dict)  # (table, column) -> [(value, row sk)] to set at the end
     references: list = field(default_factory=list)  # per reference to a record table: values, matched, unmatched
@@ -584,10 +583,11 @@ class Builder:
         self.counts: dict[str, FileCounts] = {}
         self.quarantined_by_file: Counter = Counter()
         self.first_seen: dict[str, dict] = {}  # record table -> {natural key: line kept}
+        self.last: dict[str, dict] = {}  # record table (duplicates = "last") -> {natural key: (record key, line)}
+        self.refused: dict[str, list] = {}  # record table (duplicates = "refuse") -> [path, repeats, first lines]
         self.audit = _Audit(self.meta["quarantined_cells"])
         self.traces = self.meta["value_traces"]
         self.inputs = InputDigests()  # the digest of every loaded cell, for the lossless proof
-        self.kept: dict[str, list[int]] = {}  # export path -> indices of its loaded records (the last chunk's)
         self.trace_reasons: Counter = Counter()
         self.rejoined: Counter = Counter()  # "file:column" -> delimited values with a name suffix rejoined
         self.record_references = _References(plan, state)  # values that are natural keys of record tables
@@ -603,8 +603,31 @@ class Builder:
                 found = self.values[table] = _ValueTable()
                 found.rows.update(rows)
 
+    def key_columns(self) -> set:
+        """The natural-key columns whose holders must be known before the first record is kept: those of
+        records whose duplicates keep the last (``learn_last``); empty when none does."""
+        return {next(f.path[0] for f in r.scalars if f.column == r.natural_key[0])
+                for r in self.plan.records if r.duplicates == "last" and r.natural_key}
+
+    def learn_last(self, export, columns: dict) -> None:
+        """One partition of a first pass over the records: the last record of each natural key keeps it.
+
+        With duplicates = "last" a record is kept only when no later one repeats its key; knowing the holders
+        beforehand lets every partition decide alone, so one partition or many keep the same records.
+        """
+        record_keys = getattr(export, "record_keys", None) or export.lines
+        inner_unmatched = getattr(export, "inner_unmatched", None) or {}
+        for record in self.plan.records:
+            if record.path != export.path or record.duplicates != "last" or not record.natural_key:
+                continue
+            source = next(f.path[0] for f in record.scalars if f.column == record.natural_key[0])
+            holders = self.last.setdefault(record.table, {})
+            for i, k in enumerate(columns[source].values):
+                if k is not None and i not in inner_unmatched:
+                    holders[k] = (record_keys[i], export.lines[i])
+
     def add(self, export, columns: dict) -> None:
-        """Rows of one chunk of one export (``columns`` is its decoded columns)."""
+        """Rows of one partition of one export (``columns`` is its decoded columns)."""
         for record in self.plan.records:
             if record.path == export.path:
                 self._add_record(record, export, columns)
@@ -625,13 +648,11 @@ class Builder:
                 meta["quarantined_cells"].append((q.file, q.line, q.column, q.position, q.excerpt, q.message))
                 c.cells_quarantined += q.file == export.path
                 self.quarantined_by_file[q.file] += 1
-        first = self.first_seen.setdefault(record.table, {})
-        kept = _keep(record, export, columns, meta["set_aside_rows"], first)
+        record_keys = getattr(export, "record_keys", None) or export.lines
+        kept = self._keep(record, export, columns, record_keys)
         loaded = sum(i < main_rows for i in kept)
         c.records_loaded += loaded
         c.rows_set_aside += main_rows - loaded
-        record_keys = getattr(export, "record_keys", None) or export.lines
-        self.kept[export.path] = kept
         keys = [record_keys[i] for i in kept]
         self.record_references.add_keys(record, columns, kept, keys)
         for name in [f.path[0] for f in record.scalars]:
@@ -687,6 +708,63 @@ class Builder:
         for nested in columnar:
             self._list_rows(nested, columns[nested.column].values, kept, record_keys, export, c, record,
                             getattr(columns[nested.column], "given", None))
+
+    def _keep(self, record: RecordSource, export, columns: dict, record_keys: list) -> list[int]:
+        """Indices of the partition's records to load; the others are set aside (``set_aside_rows``).
+
+        A natural key is judged against every key kept before, in earlier partitions too (and with
+        ``--append`` the database's). With duplicates = "last" the record that keeps each key is known
+        beforehand (``learn_last``); with "refuse" the repeats of every partition are counted and refused
+        once, by ``finish``. So one partition or many keep the same records.
+        """
+        n = export.number_of_records
+        inner_unmatched = getattr(export, "inner_unmatched", None) or {}
+        if not record.natural_key and not inner_unmatched:
+            return list(range(n))
+        keys = [None] * n
+        if record.natural_key:
+            keys = columns[next(f.path[0] for f in record.scalars if f.column == record.natural_key[0])].values
+        first = self.first_seen.setdefault(record.table, {})
+        last = self.last.get(record.table, {}) if record.duplicates == "last" else None
+        kept, dropped = [], []
+        for i in range(n):
+            k = keys[i]
+            if i in inner_unmatched:
+                dropped.append((i, None, inner_unmatched[i]))
+            elif not record.natural_key:
+                kept.append(i)
+            elif k is None:
+                dropped.append((i, None, "no natural key"))
+            elif k in first:
+                dropped.append((i, first[k], f"duplicate natural key {k!r}"))
+            elif last is not None and last[k][0] != record_keys[i]:
+                dropped.append((i, last[k][1], f"duplicate natural key {k!r}"))  # a later record keeps it
+            else:
+                first[k] = export.lines[i]
+                kept.append(i)
+        repeated = [export.lines[i] for i, kept_line, _ in dropped if kept_line is not None]
+        if repeated and record.duplicates == "refuse":
+            found = self.refused.setdefault(record.table, [export.path, 0, []])
+            found[1] += len(repeated)
+            found[2] += repeated[:5 - len(found[2])]
+        set_aside = self.meta["set_aside_rows"]
+        for i, kept_line, reason in dropped:
+            cells = {c: (export.cells[c][i] if isinstance(export.cells[c][i], str) or export.cells[c][i] is None
+                         else json.dumps(export.cells[c][i], ensure_ascii=False)) for c in export.columns}
+            set_aside.append((export.path, export.lines[i], None if keys[i] is None else str(keys[i]),
+                              reason + ("" if kept_line is None else f"; kept line {kept_line}"),
+                              kept_line, json.dumps(cells, ensure_ascii=False)))
+        return kept
+
+    def _refuse_duplicates(self) -> None:
+        """With duplicates = "refuse", records that repeat a natural key stop the build, counted over all of it."""
+        for record in self.plan.records:
+            found = self.refused.get(record.table)
+            if found:
+                path, n, lines = found
+                raise DuplicateNaturalKey(f"{path}: {n} record(s) repeat a natural key ({record.natural_key[0]}): "
+                                          f"{', '.join(f'line {line}' for line in lines)}; use --duplicates first "
+                                          f"or last to keep one and set the others aside")
 
     def _split_rows(self, table: str, start: int) -> None:
         """Share the record rows made from ``start`` on among the record table and its parts (1:1 tables)."""
@@ -1019,6 +1097,7 @@ class Builder:
         refers to one of the entities ``sks`` (``entity_members``): the occurrences whose value an entity
         row no longer holds are traced.
         """
+        self._refuse_duplicates()
         rows = self.take_rows()
         self.audit.report()
         conflicts = 0
@@ -1034,7 +1113,9 @@ class Builder:
                     f = acc.group.attributes[k]
                     stored, exact = store(best, f.type, f.as_text) if found else (None, True)
                     chosen.append(stored)
-                    held[k][text] = value_key(stored_back(stored, f.type, f.as_text) if stored is not None
+                    # appended: an entity already in the database keeps its row, so that row's value is held
+                    kept = first[2 + k] if text in acc.preexisting else stored
+                    held[k][text] = value_key(stored_back(kept, f.type, f.as_text) if kept is not None
                                               else ABSENT if f.null_means == "absent" else None)
                     for v, n, place in found:  # values the attribute's type (from the first records) cannot hold
                         if v is not None and not store(v, f.type, f.as_text)[1]:
@@ -1066,7 +1147,7 @@ class Builder:
                   for r in self.plan.records]
         return Built(rows, counts, conflicts, merges=merges,
                      cells_quarantined_by_file=dict(self.quarantined_by_file), updates=updates,
-                     inputs=self.inputs, trace_reasons=dict(self.trace_reasons), kept=self.kept,
+                     inputs=self.inputs, trace_reasons=dict(self.trace_reasons),
                      rejoined=dict(self.rejoined), column_updates=column_updates, references=references)
 
 
@@ -1204,75 +1285,74 @@ def _meta_order(row: tuple):
     return tuple((0, "") if v is None else (1, v) if isinstance(v, str) else (2, v) for v in row[:4])
 
 
-def build(plan: Plan, exports: list, decoded: dict, extra: dict | None = None, state: dict | None = None) -> Built:
-    """Rows for every table of the plan, and the counts that reconcile them, all in memory.
+def build_partitions(plan: Plan, partitions, rows, extra: dict | None = None, state: dict | None = None,
+                     progress=None) -> Built:
+    """Rows for every table of the plan, made a partition at a time and handed to ``rows`` as they are made.
 
-    ``extra`` holds rows made by earlier passes (the join's set-aside and unmatched rows).
+    The one build path: the records come in partitions of any size (``partitions(columns)`` iterates every
+    record, in order, as ``(export, decoded)``; with ``columns`` only those need decoding), and the rows are
+    the same for any partition size. ``rows`` takes them (``insert``), gives back the occurrences of
+    entities (``occurrences``, see ``Builder.finish``) and applies the rewrites ``finish`` asks for
+    (``complete``): ``InMemory`` holds them, ``pipeline`` writes them to SQLite as they come. ``extra`` holds
+    rows made by earlier passes (the join's set-aside and unmatched rows); ``state`` what an existing database
+    holds (``--append``); ``progress(records and rows rejected so far, characters read)``.
     """
     builder = Builder(plan, extra, state)
-    for export in exports:
-        builder.add(export, decoded[export.path])
-    made = builder.take_rows()
-
-    def occurrences(table: str, fk_column: str, sks: set):
-        at = occurrence_columns(plan, table, fk_column)
-        return [tuple(None if j is None else r[j] for j in at) for r in made.get(table, ()) if r[at[3]] in sks]
-
-    built = builder.finish(occurrences)
-    for name, rows in made.items():
-        built.rows[name] = rows + built.rows.get(name, [])
-    for table, changed in built.updates.items():
-        chosen = {row[0]: row for row in changed}
-        built.rows[table] = [chosen.get(row[0], row) for row in built.rows[table]]
-    built.updates = {}
-    for (table, column), pairs in built.column_updates.items():
-        set_column(plan, built.rows, table, column, pairs)
-    built.column_updates = {}
+    needed = builder.key_columns()
+    if needed:  # duplicates = "last": the record that keeps each key is known before any is kept
+        for export, columns in partitions(needed):
+            builder.learn_last(export, columns)
+    done = 0
+    for export, columns in partitions(None):
+        builder.add(export, columns)
+        rows.insert(builder.take_rows())
+        done += export.number_of_records + len(export.rejected)
+        if progress:
+            progress(done, getattr(export, "chars_read", 0))
+    built = builder.finish(rows.occurrences)
+    rows.complete(built)
     return built
 
 
-def _keep(record: RecordSource, export, columns, set_aside: list, first: dict | None = None) -> list[int]:
-    """Indices of the records to load; duplicates of the natural key are set aside.
+class InMemory:
+    """The rows of a build held in memory (``build_partitions``'s ``rows``), whole once complete."""
 
-    ``first`` maps each natural key already kept (in earlier chunks too) to its line.
+    def __init__(self, plan: Plan):
+        self.plan = plan
+        self.rows: dict[str, list[tuple]] = {}
+
+    def insert(self, made: dict[str, list[tuple]]) -> None:
+        for name, rows in made.items():
+            self.rows.setdefault(name, []).extend(rows)
+
+    def occurrences(self, table: str, fk_column: str, sks: set) -> list[tuple]:
+        at = occurrence_columns(self.plan, table, fk_column)
+        return [tuple(None if j is None else r[j] for j in at) for r in self.rows.get(table, ()) if r[at[3]] in sks]
+
+    def complete(self, built: Built) -> None:
+        """``built.rows`` made whole: every row of the build, rewritten as ``finish`` asked."""
+        self.insert(built.rows)
+        built.rows = self.rows
+        for table, changed in built.updates.items():
+            chosen = {row[0]: row for row in changed}
+            built.rows[table] = [chosen.get(row[0], row) for row in built.rows[table]]
+        built.updates = {}
+        for (table, column), pairs in built.column_updates.items():
+            set_column(self.plan, built.rows, table, column, pairs)
+        built.column_updates = {}
+
+
+def build(plan: Plan, exports: list, decoded: dict, extra: dict | None = None, state: dict | None = None) -> Built:
+    """Rows for every table of the plan, and the counts that reconcile them, all in memory (each export one
+    partition).
+
+    ``extra`` holds rows made by earlier passes (the join's set-aside and unmatched rows).
     """
-    n = export.number_of_records
-    inner_unmatched = getattr(export, "inner_unmatched", {})
-    if not record.natural_key and not inner_unmatched:
-        return list(range(n))
-    if record.natural_key:
-        source = next(f.path[0] for f in record.scalars if f.column == record.natural_key[0])
-        keys = columns[source].values
-    else:
-        keys = list(range(n))
-    first = {} if first is None else first
-    order = range(n) if record.duplicates != "last" else range(n - 1, -1, -1)
-    kept, dropped = [], []
-    for i in order:
-        k = keys[i]
-        if i in inner_unmatched:
-            dropped.append((i, None, inner_unmatched[i]))
-        elif k is None:
-            dropped.append((i, None, "no natural key"))
-        elif k in first:
-            dropped.append((i, first[k], f"duplicate natural key {k!r}"))
-        else:
-            first[k] = export.lines[i]
-            kept.append(i)
-    repeated = [d for d in dropped if d[1] is not None]
-    if repeated and record.duplicates == "refuse":
-        lines = ", ".join(f"line {export.lines[i]}" for i, _, _ in repeated[:5])
-        raise DuplicateNaturalKey(f"{export.path}: {len(repeated)} record(s) repeat a natural key "
-                                  f"({record.natural_key[0]}): {lines}; use --duplicates first or last "
-                                  f"to keep one and set the others aside")
-    for i, kept_line, reason in sorted(dropped):
-        cells = {c: (export.cells[c][i] if isinstance(export.cells[c][i], str) or export.cells[c][i] is None
-                     else json.dumps(export.cells[c][i], ensure_ascii=False)) for c in export.columns}
-        set_aside_key = keys[i]
-        set_aside.append((export.path, export.lines[i], None if set_aside_key is None else str(set_aside_key),
-                          reason + ("" if kept_line is None else f"; kept line {kept_line}"),
-                          kept_line, json.dumps(cells, ensure_ascii=False)))
-    return sorted(kept)
+    def partitions(columns=None):
+        for export in exports:
+            yield export, decoded[export.path]
+
+    return build_partitions(plan, partitions, InMemory(plan), extra, state)
 
 
 def _nested_rows(builder: "Builder", nested: NestedColumn, value, owner_sk: int, export, i: int, rows,

@@ -95,10 +95,32 @@ class DecodedColumn:
     # rows whose value may hold what JSON has not (tuples, sets, bytes, non-text keys): the cells the exact
     # per-cell path decoded; None when not known (then the lossless proof looks at every value)
     impure: set | None = None
+    decision: "ColumnFormat | None" = None  # what the column's first rows decided, for the rest of its file
 
     def __post_init__(self):
         if self.join_separator is None:
             self.join_separator = self.separator
+
+
+@dataclass(frozen=True)
+class ColumnFormat:
+    """What a column's first rows decided, applied to every later cell of its file (``decode``'s ``decided``).
+
+    Detection looks at a whole column (the share of nested cells, the separator that repeats, whether enough
+    cells need the other grammar); a cell decoded with the decisions of the column's first rows decodes the
+    same in any part of the file, so the database does not depend on how the file is cut into chunks.
+    ``format``: json, python-literal, delimited or scalar, as detected (or forced); ``primary``: the grammar a
+    nested cell is read with first; ``mixed``: whether cells of the other grammar are values (enough of them
+    among the first rows) rather than malformed cells; ``separator`` and ``join_separator``: a delimited
+    column's; ``encoding``: the column's ``DecodedColumn.encoding``.
+    """
+
+    format: str
+    separator: str | None = None
+    primary: str | None = None
+    mixed: bool = False
+    join_separator: str | None = None
+    encoding: str = "scalar"
 
 
 def excerpt(text: str, position: int | None, width: int = 24) -> str:
@@ -751,8 +773,11 @@ def parse_decode_option(spec: str) -> tuple[str, str, str | None]:
 
 def decode_column(name: str, cells: list, lines: list[int], file: str,
                   limits: Limits = Limits(), forced: tuple[str, str | None] | None = None,
-                  raw_surrogates: bool = True) -> DecodedColumn:
+                  raw_surrogates: bool = True, decided: ColumnFormat | None = None) -> DecodedColumn:
     """Decode one column of raw cells, detecting its format unless ``forced``.
+
+    ``decided`` (the ``decision`` of the column's first rows, decoded before) replaces detection: the cells
+    are read as those rows decided.
 
     Example:
         >>> c = decode_column("people", ["[{'id': 1}]", "", "[{'id': 2}, {'id': 3}]"], [2, 3, 4], "x.csv")
@@ -760,11 +785,12 @@ def decode_column(name: str, cells: list, lines: list[int], file: str,
         ('python-literal', [[{'id': 1}], None, [{'id': 2}, {'id': 3}]])
     """
     with paused_gc():
-        return _decode_column(name, cells, lines, file, limits, forced, raw_surrogates)
+        return _decode_column(name, cells, lines, file, limits, forced, raw_surrogates, decided)
 
 
 def _decode_column(name: str, cells: list, lines: list[int], file: str, limits: Limits,
-                   forced: tuple[str, str | None] | None, raw_surrogates: bool) -> DecodedColumn:
+                   forced: tuple[str, str | None] | None, raw_surrogates: bool,
+                   decided: ColumnFormat | None = None) -> DecodedColumn:
     n = len(cells)
     values: list = [None] * n
     impure = None  # rows whose value may hold Python-only types; None: not known, every value is looked at
@@ -818,22 +844,31 @@ def _decode_column(name: str, cells: list, lines: list[int], file: str, limits: 
         quarantine(i, json.dumps(cells[i], ensure_ascii=True)[:200],
                    CellError("a string holds a lone surrogate, which is not a character "
                              "(RFC 8259, section 8.2); it cannot be stored as text", None))
-    fmt, sep = forced if forced else _detect_format(texts, kinds)
+    if decided is not None:  # the column's first rows decided (every decision below is theirs)
+        fmt, sep = decided.format, decided.separator
+    else:
+        fmt, sep = forced if forced else _detect_format(texts, kinds)
+    detected, primary, mixed, join_sep = fmt, None, False, None
     if fmt in ("json", "python-literal", "mixed"):
         nested = [k for k, kind in enumerate(kinds) if kind == "nested" or forced]
-        primary = fmt if fmt != "mixed" else _dominant_nested(texts, nested)
+        if decided is not None:
+            primary = decided.primary
+        else:
+            primary = fmt if fmt != "mixed" else _dominant_nested(texts, nested)
         decoded = _decode_many(primary, [texts[k] for k in nested], limits, raw_surrogates)
         other = "python-literal" if primary == "json" else "json"
         failed = [j for j, v in enumerate(decoded) if isinstance(v, CellError)]
         retry = {}
-        if failed and not forced:
+        if failed and not forced and (decided is None or decided.mixed):
             second = _decode_many(other, [texts[nested[j]] for j in failed], limits)
             retry = {j: v for j, v in zip(failed, second) if not isinstance(v, CellError)}
             share = len(retry) / max(1, len(nested))
-            if len(retry) < MIXED_MIN_CELLS or share < MIXED_MIN_SHARE:
+            if decided is not None:
+                pass  # the first rows made the column mixed: every cell of the other grammar is a value
+            elif len(retry) < MIXED_MIN_CELLS or share < MIXED_MIN_SHARE:
                 retry = {}  # a stray cell of the other grammar is a malformed cell, not a format
             else:
-                fmt = "mixed"
+                fmt, mixed = "mixed", True
         if primary == "python-literal" or retry:  # values that may hold what JSON has not, for the proof
             impure = {text_rows[nested[j]] for j in getattr(decoded, "exact", ())} if primary != "json" else set()
             impure |= {text_rows[nested[j]] for j in retry} if other == "python-literal" else set()
@@ -861,7 +896,7 @@ def _decode_column(name: str, cells: list, lines: list[int], file: str, limits: 
     elif fmt == "delimited":
         encoding = "delimited"
         sep = sep or detect_separator(texts) or "|"
-        join_sep = join_separator_of(raws, sep)
+        join_sep = decided.join_separator if decided is not None else join_separator_of(raws, sep)
         # every text cell not given back by joining its values is kept as written ("None", "  " too)
         layout = [cell if isinstance(cell, str) and cell else None for cell in cells]
         rejoined = 0
@@ -893,18 +928,22 @@ def _decode_column(name: str, cells: list, lines: list[int], file: str, limits: 
                 continue
             values[text_rows[k]] = text
             counts["scalar"] += 1
-    if counts.get("json") and encoding == "scalar" and not texts:
+    if decided is not None:
+        encoding = decided.encoding
+    elif counts.get("json") and encoding == "scalar" and not texts:
         encoding = "json"  # JSON Lines fields that arrived decoded
     elif counts.get("json") and encoding in ("scalar", "python-literal") and texts:
         if encoding == "python-literal" or counts["scalar"]:
             encoding = "mixed"
-    if not any(v for k, v in counts.items() if k not in ("empty", "invalid")) and not counts.get("invalid"):
+    if decided is None and not any(v for k, v in counts.items() if k not in ("empty", "invalid")) \
+            and not counts.get("invalid"):
         encoding = "empty"
     if encoding == "json" or encoding == "delimited":
         impure = set()
     column = DecodedColumn(name, encoding, values, quarantined,
                            {k: v for k, v in sorted(counts.items()) if v}, sep if encoding == "delimited" else None,
-                           forced=bool(forced), impure=impure)
+                           forced=bool(forced), impure=impure,
+                           decision=ColumnFormat(detected, sep, primary, mixed, join_sep, encoding))
     if encoding == "delimited":
         column.ambiguity = ambiguity
         column.rejoined = rejoined
@@ -959,14 +998,45 @@ def _detect_format(texts: list[str], kinds: list[str]) -> tuple[str, str | None]
 
 
 def decode(export: Export, limits: Limits = Limits(),
-           formats: dict[str, tuple[str, str | None]] | None = None) -> dict[str, DecodedColumn]:
-    """Decode every column of an export; ``formats`` fixes a column's format by name."""
+           formats: dict[str, tuple[str, str | None]] | None = None, *, sample: int | None = None,
+           decided: dict[str, ColumnFormat] | None = None) -> dict[str, DecodedColumn]:
+    """Decode every column of an export; ``formats`` fixes a column's format by name.
+
+    With ``sample``, each column's format is detected on its first ``sample`` rows only and the rows after
+    them are read as those decided; ``decided`` (``decisions`` of the decoded first part of the same file)
+    reads a later part so. Either way a cell decodes the same whichever part of its file it comes in.
+    """
     formats = formats or {}
+    raw_surrogates = getattr(export, "invalid_bytes", True)
     out = {}
     for name in export.columns:
         forced = formats.get(name)
         if forced and forced[0] == "text":
             forced = ("scalar", None)
-        out[name] = decode_column(name, export.cells[name], export.lines, export.path, limits, forced,
-                                  raw_surrogates=getattr(export, "invalid_bytes", True))
+        cells, lines = export.cells[name], export.lines
+        decision = decided.get(name) if decided else None
+        if decision is None and sample is not None and len(cells) > sample:
+            first = decode_column(name, cells[:sample], lines[:sample], export.path, limits, forced, raw_surrogates)
+            rest = decode_column(name, cells[sample:], lines[sample:], export.path, limits, forced, raw_surrogates,
+                                 first.decision)
+            out[name] = _concatenated(first, rest)
+        else:
+            out[name] = decode_column(name, cells, lines, export.path, limits, forced, raw_surrogates, decision)
     return out
+
+
+def decisions(decoded: dict[str, DecodedColumn]) -> dict[str, ColumnFormat]:
+    """What each decoded column's first rows decided (``decode``'s ``decided`` for the rest of the file)."""
+    return {name: col.decision for name, col in decoded.items() if col.decision is not None}
+
+
+def _concatenated(first: DecodedColumn, rest: DecodedColumn) -> DecodedColumn:
+    """One column from its first rows and the rows after them (decoded as the first rows decided)."""
+    n = len(first.values)
+    counts = Counter(first.format_counts) + Counter(rest.format_counts)
+    layout = None if first.layout is None else first.layout + (rest.layout or [None] * len(rest.values))
+    impure = None if first.impure is None or rest.impure is None else first.impure | {n + i for i in rest.impure}
+    return DecodedColumn(first.name, first.encoding, first.values + rest.values, first.quarantined + rest.quarantined,
+                         dict(sorted(counts.items())), first.separator,
+                         (first.ambiguity + rest.ambiguity)[:AMBIGUITY_SHOWN], first.forced,
+                         first.rejoined + rest.rejoined, first.join_separator, layout, impure, first.decision)

@@ -1,85 +1,84 @@
-"""The passes in order: read -> decode -> infer -> plan -> build -> check -> write -> report."""
+"""The passes in order: read -> decode -> infer -> plan -> build -> check -> write -> report.
+
+There is one build path (``_build``): the inputs are read (``partition.open_inputs``), the plan is made from
+their first ``SAMPLE_ROWS`` records, and the records go to the build a partition of ``chunk_rows`` at a time
+(``build.build_partitions``), whose rows are written as they are made (SQLite) or held until the end
+(PostgreSQL, written in one COPY per table). A build without ``chunk_rows`` is the case of one partition; any
+partition size gives the same database.
+"""
 
 from __future__ import annotations
 
-import gc
 import json
 import os
 from pathlib import Path
 
-from .build import Builder, build, check_width, occurrence_columns, reference_values
+from .build import InMemory, build_partitions, check_width, occurrence_columns, reference_values
 from .check import check_plan, check_rows
-from .decode import decode, paused_gc
+from .decode import paused_gc
 from .infer import Options, infer_plan
-from .join import JoinOptions, join
+from .join import JoinOptions
 from .literal import Limits
 from .names import quote_name
 from .option_values import check_values
-from .options_check import check_option_names
 from .outputs import check_paths, destination_lock, lock_path, staged_outputs, writing
+from .partition import open_inputs
 from .prove import LossDetected, loss_message, prove, sqlite_fetch
 from .planfile import join_settings, plan_from_doc, plan_to_toml, read_plan
-from .read import iter_chunks, read
 from .report import manifest
 from .schema import POSTGRESQL_MAX_COLUMNS
 from .views import add_pick
 from .write import SqliteWriter
-from .write import DEFAULT_SCHEMA, display_url, is_postgresql, write_parquet, write_postgresql, write_sqlite
-
+from .write import DEFAULT_SCHEMA, display_url, is_postgresql, write_parquet, write_postgresql
 
 # The model is inferred from the first SAMPLE_ROWS records of each export, in
 # memory and in chunks alike, so the database never depends on the chunk size.
 SAMPLE_ROWS = 5000
 
 
-def head(exports: list, decoded: dict, n: int) -> tuple[list, dict]:
-    """The first ``n`` records of each export and of its decoded columns."""
-    from dataclasses import replace as copy_with
-
-    out_exports, out_decoded = [], {}
-    for export in exports:
-        if export.number_of_records <= n:
-            out_exports.append(export)
-            out_decoded[export.path] = decoded[export.path]
-            continue
-        out_exports.append(copy_with(export, cells={c: v[:n] for c, v in export.cells.items()},
-                                     lines=export.lines[:n]))
-        out_decoded[export.path] = {name: copy_with(col, values=col.values[:n])
-                                    for name, col in decoded[export.path].items()}
-    return out_exports, out_decoded
-
-
-def prepare(paths: list[str], *, options: Options | None = None, limits: Limits = Limits(),
-            formats: dict | None = None, encoding: str | None = None, delimiter: str | None = None,
-            join_options: JoinOptions | None = None, picks: list[str] | None = None,
-            plan_path: str | None = None, header: bool = True):
-    """Read, decode, join and plan; with ``plan_path`` the plan comes from that file, checked against the data."""
-    delimiter = check_values(encoding_name=encoding, delimiter_char=delimiter, limits=limits, options=options,
-                             join_options=join_options)
-    exports = [read(p, encoding=encoding, delimiter=delimiter, header=header) for p in paths]
-    decoded = {e.path: decode(e, limits, formats) for e in exports}
+def _open(paths: list[str], *, options: Options | None, limits: Limits, formats: dict | None, encoding: str | None,
+          delimiter: str | None, join_options: JoinOptions | None, picks: list[str] | None, plan_path: str | None,
+          header: bool, chunk_rows: int | None = None, streamed: bool = False):
+    """The inputs (``partition.Inputs``) and the plan made from their first records, or read from ``plan_path``
+    and checked against them."""
     options = options or Options()
-    check_option_names(exports, decoded, options, formats, join_options or JoinOptions())
     doc = text = None
-    if plan_path:
+    natural_keys = dict(options.natural_keys)
+    if plan_path:  # the plan's own join settings and natural keys decide, as they do for the build
         doc, text = read_plan(plan_path)
         settings = join_settings(doc)
         records = doc.get("record", [])
         duplicates = records[0].get("duplicates", options.duplicates) if records else options.duplicates
         join_options = JoinOptions(how=settings["how"], cardinality=settings["cardinality"], on=settings["on"],
                                    separate=settings["separate"], duplicates=duplicates)
-        options.natural_keys = {r["file"]: r["natural_key"] for r in doc.get("record", []) if r.get("natural_key")}
-    joined = join(exports, decoded, join_options or JoinOptions(duplicates=options.duplicates),
-                  options.natural_keys)
-    exports, decoded = joined.exports, joined.decoded
+        natural_keys = {r["file"]: r["natural_key"] for r in records if r.get("natural_key")}
+    inputs = open_inputs(paths, sample=SAMPLE_ROWS, limits=limits, formats=formats, encoding=encoding,
+                         delimiter=delimiter, header=header, options=options, join_options=join_options,
+                         natural_keys=natural_keys, chunk_rows=chunk_rows, streamed=streamed)
     if doc is not None:
-        plan = plan_from_doc(doc, text, exports, decoded)
+        plan = plan_from_doc(doc, text, *inputs.sample)
     else:
-        plan = infer_plan(*head(exports, decoded, SAMPLE_ROWS), options)
+        plan = infer_plan(*inputs.sample, options)
     for spec in picks or ():
         add_pick(plan, spec)
-    joined.settings = join_options or JoinOptions(duplicates=options.duplicates)
-    return plan, exports, decoded, joined
+    return plan, inputs
+
+
+def prepare(paths: list[str], *, options: Options | None = None, limits: Limits = Limits(),
+            formats: dict | None = None, encoding: str | None = None, delimiter: str | None = None,
+            join_options: JoinOptions | None = None, picks: list[str] | None = None,
+            plan_path: str | None = None, header: bool = True):
+    """Read, decode, join and plan, all in memory: ``(plan, exports, decoded, joined)``.
+
+    With ``plan_path`` the plan comes from that file, checked against the data.
+    """
+    delimiter = check_values(encoding_name=encoding, delimiter_char=delimiter, limits=limits, options=options,
+                             join_options=join_options)
+    plan, inputs = _open(paths, options=options, limits=limits, formats=formats, encoding=encoding,
+                         delimiter=delimiter, join_options=join_options, picks=picks, plan_path=plan_path,
+                         header=header)
+    joined = inputs.joined
+    return plan, joined.exports, joined.decoded, joined
 
 
 def make_plan(paths: list[str], output: str | None = None, **kwargs) -> str:
@@ -174,64 +173,119 @@ def _build(paths: list[str], database: str, *, options, limits, formats, encodin
            report_path, dictionary_path, append, allow_lossy, wait, staged, header=True) -> dict:
     """``build_database`` once its paths are checked and its destination locked; outputs go to ``staged``."""
     postgresql = is_postgresql(database)
-    if chunk_rows and not postgresql and not append and _can_stream(paths, options, join_options, plan_path):
-        plan, result = _build_streaming(paths[0], database, options=options, limits=limits, formats=formats,
-                                        encoding=encoding, delimiter=delimiter, replace=replace, picks=picks,
-                                        plan_path=plan_path, chunk_rows=chunk_rows, progress=progress,
-                                        allow_lossy=allow_lossy, staged=staged, header=header)
-        return _outputs(staged, database, plan, result, parquet_dir, manifest_path, report_path, dictionary_path)
-    plan, exports, decoded, joined = prepare(paths, options=options, limits=limits, formats=formats,
-                                             encoding=encoding, delimiter=delimiter, join_options=join_options,
-                                             picks=picks, plan_path=plan_path, header=header)
+    plan, inputs = _open(paths, options=options, limits=limits, formats=formats, encoding=encoding,
+                         delimiter=delimiter, join_options=join_options, picks=picks, plan_path=plan_path,
+                         header=header, chunk_rows=chunk_rows, streamed=True)
+    inputs.sample = None  # the model is made: its records need not stay in memory
     order = check_plan(plan)
-    if postgresql:  # SQLite's limit is checked by the build, PostgreSQL's here: both before anything is written
+    # a table wider than the database allows is refused before anything is written (it would fail half-way)
+    if postgresql:
         check_width(plan, POSTGRESQL_MAX_COLUMNS, "PostgreSQL")
+    else:
+        check_width(plan)
     state = None
     if append:
-        from .append import offset_record_keys, read_state
+        from .append import read_state
 
         if not os.path.exists(database):
             from .errors import UsageError
             raise UsageError(f"--append: {database} does not exist; build it first")
         state = read_state(os.fspath(database), plan)
-        offset_record_keys(plan, exports, state)
-    built = build(plan, exports, decoded,
-                  extra={"set_aside_rows": joined.set_aside, "unmatched_rows": joined.unmatched}, state=state)
-    # appended rows may name rows already in the database: foreign_key_check checks those before the move
-    missing = check_rows(plan, built.rows) if not append else 0
-    if missing:
-        from .check import IntegrityError
-        raise IntegrityError(f"{missing} foreign-key values name no row; nothing was written")
-    by_path = {e.path: e for e in exports}
+    joined = inputs.joined
 
-    def locate(table: str, column: str):
-        for record in plan.records:
-            if record.table == table and record.path in built.kept:
-                export = by_path[record.path]
-                keys = getattr(export, "record_keys", None) or export.lines
-                rows = built.kept[record.path]
-                values = reference_values(record, column, decoded[record.path][column], rows)
-                for i, value in zip(rows, values):
-                    yield keys[i], value, export.path, export.lines[i]
+    def partitions(columns=None):
+        """Every record in partitions of ``chunk_rows``; appended records keyed after those already there."""
+        for export, decoded in inputs.partitions(chunk_rows, columns):
+            if state:
+                from .append import offset_record_keys
+                offset_record_keys(plan, [export], state)
+            yield export, decoded
 
-    if postgresql:
+    extra = {"set_aside_rows": joined.set_aside, "unmatched_rows": joined.unmatched}
+    locate = _locator(plan, partitions)
+    if postgresql:  # write_postgresql takes every row at once, in one COPY per table
+        rows = InMemory(plan)
+        built = build_partitions(plan, partitions, rows, extra, state, progress)
+        missing = check_rows(plan, built.rows)
+        if missing:
+            from .check import IntegrityError
+            raise IntegrityError(f"{missing} foreign-key values name no row; nothing was written")
         integrity = write_postgresql(plan, built.rows, order, database, schema=schema or DEFAULT_SCHEMA,
-                                     replace=replace, verify=verifier(plan, built, allow_lossy, locate),
+                                     replace=replace, verify=verifier(plan, built, allow_lossy, locate(built)),
                                      wait=wait)
         result = manifest(plan, built, display_url(database), integrity, joined)
         result["schema"] = integrity["schema"]
-    else:
-        integrity = write_sqlite(plan, built.rows, order, database, replace=replace, append=append,
-                                 verify=verifier(plan, built, allow_lossy, locate), staged=staged)
-        result = manifest(plan, built, os.fspath(database), integrity, joined)
-        if append:  # the manifest counts what the database now holds
-            import sqlite3
+        return _outputs(staged, database, plan, result, parquet_dir, manifest_path, report_path, dictionary_path)
+    writer = SqliteWriter(plan, order, database, replace, append=append)
+    try:
+        built = build_partitions(plan, partitions, _Written(writer, plan, append), extra, state, progress)
+    except BaseException:
+        writer.abort()
+        raise
+    # rows are loaded without per-row foreign-key lookups: PRAGMA foreign_key_check runs before the move
+    # (appended rows may name rows already in the database, which it checks too)
+    integrity = writer.finish(verifier(plan, built, allow_lossy, locate(built)), move=False)
+    staged.database(writer)
+    result = manifest(plan, built, os.fspath(database), integrity, joined, row_counts=writer.row_counts)
+    if append:  # the manifest counts what the database now holds
+        import sqlite3
 
-            with sqlite3.connect(staged.writer.temporary) as con:
-                for t in result["tables"]:
-                    t["rows"] = con.execute(f'SELECT count(*) FROM "{t["name"]}"').fetchone()[0]
-            result["appended"] = True
+        with sqlite3.connect(staged.writer.temporary) as con:
+            for t in result["tables"]:
+                t["rows"] = con.execute(f'SELECT count(*) FROM "{t["name"]}"').fetchone()[0]
+        result["appended"] = True
     return _outputs(staged, database, plan, result, parquet_dir, manifest_path, report_path, dictionary_path)
+
+
+class _Written:
+    """The rows of a build written to SQLite as they are made (``build_partitions``'s ``rows``)."""
+
+    def __init__(self, writer: SqliteWriter, plan, append: bool):
+        self.writer, self.plan = writer, plan
+        # appended: the database holds rows of earlier builds, whose occurrences are not this build's
+        self.written = {} if append else None
+
+    def insert(self, rows: dict) -> None:
+        for name in self.writer.order:  # the load order: referenced tables first
+            made = rows.get(name)
+            if made:
+                self.writer.insert(name, made)
+                if self.written is not None:
+                    self.written.setdefault(name, set()).update(r[0] for r in made)
+
+    def occurrences(self, table: str, fk_column: str, sks: set) -> list[tuple]:
+        names = [c.name for c in self.plan.table(table).columns]
+        picked = ", ".join("NULL" if j is None else quote_name(names[j])
+                           for j in occurrence_columns(self.plan, table, fk_column))
+        mine = self.written.get(table, set()) if self.written is not None else None
+        return [r for r in self.writer.cursor.execute(f"SELECT {picked} FROM {quote_name(table)}")
+                if r[3] in sks and (mine is None or r[0] in mine)]
+
+    def complete(self, built) -> None:
+        """The rows ``finish`` made, and the rewrites it asks for, applied to the rows written before."""
+        self.insert(built.rows)
+        for table, rows in built.updates.items():
+            self.writer.update(table, rows)
+        for (table, column), pairs in built.column_updates.items():
+            self.writer.set_column(table, column, pairs)
+
+
+def _locator(plan, partitions):
+    """``locate`` for the lossless proof: the input cells of a column, read again only when a column differs."""
+    def locate_in(built):
+        def locate(table: str, column: str):
+            loaded = built.inputs.records.get(table, set())
+            paths = {r.path: r for r in plan.records if r.table == table}
+            for export, decoded in partitions({column}):
+                record = paths.get(export.path)
+                if record is None or column not in decoded:
+                    continue
+                keys = getattr(export, "record_keys", None) or export.lines
+                rows = [i for i, k in enumerate(keys) if k in loaded]
+                for i, value in zip(rows, reference_values(record, column, decoded[column], rows)):
+                    yield keys[i], value, export.path, export.lines[i]
+        return locate
+    return locate_in
 
 
 def verifier(plan, built, allow_lossy: bool, locate=None):
@@ -272,116 +326,3 @@ def _outputs(staged, database, plan, result: dict, parquet_dir, manifest_path, r
             write_outputs(source, result, report_path=report_path and staged.file(report_path),
                           dictionary_path=dictionary_path and staged.file(dictionary_path), shown_as=database)
     return result
-
-
-def _can_stream(paths: list[str], options: Options | None, join_options: JoinOptions | None,
-                plan_path: str | None = None) -> bool:
-    """One CSV or TSV file whose duplicates keep the first (or are refused) streams in chunks.
-
-    With a plan, its records' ``duplicates`` decide, as they do for the build (``plan_from_doc``).
-    """
-    if len(paths) != 1 or Path(paths[0]).suffix.lower() in (".jsonl", ".ndjson", ".json"):
-        return False
-    if plan_path:
-        records = read_plan(plan_path)[0].get("record", [])
-        return all(r.get("duplicates", "first") != "last" for r in records)
-    return (options or Options()).duplicates != "last"
-
-
-def _build_streaming(path: str, database: str, *, options: Options | None, limits: Limits, formats: dict | None,
-                     encoding: str | None, delimiter: str | None, replace: bool, picks: list[str] | None,
-                     plan_path: str | None, chunk_rows: int, progress, allow_lossy: bool = False,
-                     staged=None, header: bool = True) -> tuple:
-    """Build one export in chunks with bounded memory: infer on the first records, then stream."""
-    options = options or Options()
-    chunks = iter_chunks(path, chunk_rows, encoding=encoding, delimiter=delimiter, header=header)
-    first = []
-    taken = 0
-    for chunk in chunks:
-        first.append(chunk)
-        taken += chunk.number_of_records
-        if taken >= SAMPLE_ROWS:
-            break
-    start = concat(first)
-    start_decoded = decode(start, limits, formats)
-    check_option_names([start], {start.path: start_decoded}, options, formats)
-    # later chunks are read in the formats found at the start, so every chunk agrees
-    fixed = dict(formats or {})
-    for name, col in start_decoded.items():
-        if name not in fixed and col.encoding in ("json", "python-literal", "delimited", "scalar"):
-            fixed[name] = (col.encoding, col.separator)
-    sample_exports, sample_decoded = head([start], {start.path: start_decoded}, SAMPLE_ROWS)
-    if plan_path:
-        doc, text = read_plan(plan_path)
-        plan = plan_from_doc(doc, text, sample_exports, sample_decoded)
-    else:
-        plan = infer_plan(sample_exports, sample_decoded, options)
-    for spec in picks or ():
-        add_pick(plan, spec)
-    order = check_plan(plan)
-    gc.collect()  # once, while the heap is small: format detection leaves exceptions (and the frames they hold)
-    builder = Builder(plan)
-    writer = SqliteWriter(plan, order, database, replace)
-    try:
-        builder.add(start, start_decoded)
-        _flush(builder, writer)
-        done = start.number_of_records + len(start.rejected)
-        if progress:
-            progress(done, getattr(start, "chars_read", 0))
-        del start, start_decoded, sample_exports, sample_decoded, first
-        for chunk in chunks:
-            builder.add(chunk, decode(chunk, limits, fixed))
-            _flush(builder, writer)
-            done += chunk.number_of_records + len(chunk.rejected)
-            if progress:
-                progress(done, getattr(chunk, "chars_read", 0))
-        def occurrences(table: str, fk_column: str, sks: set):
-            names = [c.name for c in plan.table(table).columns]
-            picked = ", ".join("NULL" if j is None else quote_name(names[j])
-                               for j in occurrence_columns(plan, table, fk_column))
-            return [r for r in writer.cursor.execute(f"SELECT {picked} FROM {quote_name(table)}") if r[3] in sks]
-
-        built = builder.finish(occurrences)
-        for name in order:
-            writer.insert(name, built.rows.get(name, []))
-        for table, rows in built.updates.items():
-            writer.update(table, rows)
-        for (table, column), pairs in built.column_updates.items():
-            writer.set_column(table, column, pairs)
-    except BaseException:
-        writer.abort()
-        raise
-    record = plan.records[0]
-
-    def locate(table: str, column: str):
-        """Read the file again, only when the proof found a difference, to name the cells that differ."""
-        loaded = built.inputs.records.get(table, set())
-        for chunk in iter_chunks(path, chunk_rows, encoding=encoding, delimiter=delimiter, header=header):
-            columns = decode(chunk, limits, fixed)
-            rows = [i for i, line in enumerate(chunk.lines) if line in loaded]
-            for i, value in zip(rows, reference_values(record, column, columns[column], rows)):
-                yield chunk.lines[i], value, chunk.path, chunk.lines[i]
-
-    integrity = writer.finish(verifier(plan, built, allow_lossy, locate), move=staged is None)
-    if staged is not None:
-        staged.database(writer)
-    return plan, manifest(plan, built, os.fspath(database), integrity, None, row_counts=writer.row_counts)
-
-
-def _flush(builder: Builder, writer: SqliteWriter) -> None:
-    rows = builder.take_rows()
-    for name in writer.order:  # the load order: referenced tables first
-        writer.insert(name, rows.get(name, []))
-
-
-def concat(chunks: list):
-    """One Export from consecutive chunks of the same file."""
-    from dataclasses import replace as copy_with
-
-    if len(chunks) == 1:
-        return chunks[0]
-    first = chunks[0]
-    return copy_with(first, cells={c: [v for ch in chunks for v in ch.cells[c]] for c in first.columns},
-                     lines=[n for ch in chunks for n in ch.lines],
-                     rejected=[r for ch in chunks for r in ch.rejected],
-                     warnings=[w for ch in chunks for w in ch.warnings])

@@ -257,7 +257,8 @@ class SqliteWriter:
         """
         try:
             for name in self.order if not self.append else ():  # appended: indexes and views are there
-                for index in self.md.tables[name].indexes:
+                # Table.indexes is a set: sorted, the same input gives the same file (as PostgreSQL's are)
+                for index in sorted(self.md.tables[name].indexes, key=lambda i: str(i.name)):
                     self.cursor.execute(str(sa.schema.CreateIndex(index).compile(dialect=self.dialect)))
             for view in self.plan.views if not self.append else ():
                 self.cursor.execute(f"CREATE VIEW {_quote(view.name)} AS {view_sql(view, self.plan, 'sqlite')}")

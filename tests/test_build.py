@@ -30,7 +30,6 @@ import pytest
 from hypothesis import HealthCheck, given, settings
 
 from demo.generate import generate
-from normalise import pipeline
 from normalise.build import DuplicateNaturalKey
 from normalise.cli import main
 from normalise.errors import NormaliseError
@@ -731,15 +730,17 @@ def test_existing_destination_refused(demo, tmp_path, capsys):
 
 def test_failed_write_leaves_nothing(demo, tmp_path, monkeypatch):
     """A build that fails while writing leaves neither a partial file nor a changed destination."""
+    from normalise import write
+
     out, _ = demo
-    real_build = pipeline.build
+    real_insert = write.SqliteWriter.insert
 
-    def broken_build(*args, **kwargs):
-        built = real_build(*args, **kwargs)
-        built.rows["titles"].append(built.rows["titles"][0])  # a repeated primary key: SQLite refuses it
-        return built
+    def broken_insert(self, name, rows):
+        if name == "titles" and rows:
+            rows = rows + rows[:1]  # a repeated primary key: SQLite refuses it
+        return real_insert(self, name, rows)
 
-    monkeypatch.setattr(pipeline, "build", broken_build)
+    monkeypatch.setattr(write.SqliteWriter, "insert", broken_insert)
     with pytest.raises(sqlite3.IntegrityError):
         build_database([str(out / TITLES)], str(tmp_path / "new.db"))
     assert os.listdir(tmp_path) == []

@@ -1,0 +1,201 @@
+"""The records of a build's inputs, read, decoded and joined, handed to the build in partitions.
+
+A partition is an ``Export`` and its decoded columns holding at most ``chunk_rows`` records of one input, in
+file order; with no ``chunk_rows`` each input is one partition. The build takes every partition the same way
+(``build.build_partitions``) and gives the same rows for any partition size (DEVELOPERS.md, "One build
+path"), so reading the inputs whole is only the case of one partition.
+
+What is decided before the build rests on the first ``sample`` records of each input, however the input is
+read: each column's format (``decode``'s ``sample``: the rest of the file is read as those records decided),
+the option names, and the plan inferred or read from a file (``pipeline``).
+
+One CSV or TSV file is read in chunks, so memory stays bounded whatever its size (``_Streamed``). Several files
+and JSON Lines files are read whole (``_Whole``): the join matches keys across whole files (duplicates set aside
+by first or last, the keys on one side only counted both ways) and a JSON Lines file's columns can first appear
+on any line, so neither can be read a part at a time; their records then go to the build in partitions of the
+same size all the same.
+"""
+
+from __future__ import annotations
+
+import gc
+from dataclasses import dataclass, fields, replace
+from pathlib import Path
+
+from .decode import decisions, decode
+from .join import Joined, JoinOptions, join
+from .literal import Limits
+from .options_check import check_option_names
+from .read import iter_chunks, read
+
+JSON_LINES = (".jsonl", ".ndjson", ".json")
+
+
+@dataclass
+class Inputs:
+    """One build's inputs: the first records of each (what the model is made from) and every record.
+
+    ``sample``: ``(exports, decoded)`` of the first records of each export, after the join; ``joined``: the
+    join's set-aside and unmatched rows and its counts (nothing joined: empty).
+    """
+
+    sample: tuple
+    joined: Joined
+    _blocks: object  # (columns) -> iterator of (export, decoded): every record, in order, in blocks
+
+    def partitions(self, size: int | None, columns: set | None = None):
+        """Every record in partitions of at most ``size`` records, in order: ``(export, decoded)``.
+
+        ``columns``: decode only those (when the input is read again for them); default all.
+        """
+        for export, decoded in self._blocks(columns):
+            yield from split(export, decoded, size)
+
+
+def open_inputs(paths: list[str], *, sample: int, limits: Limits = Limits(), formats: dict | None = None,
+                encoding: str | None = None, delimiter: str | None = None, header: bool = True, options=None,
+                join_options: JoinOptions | None = None, natural_keys: dict | None = None,
+                chunk_rows: int | None = None, streamed: bool = True) -> Inputs:
+    """Read and decode the inputs (and join them), and check the options' names on their first records.
+
+    One CSV or TSV file is read ``chunk_rows`` records at a time unless ``streamed`` is false; anything else,
+    or with ``streamed`` false, is read whole.
+    """
+    join_options = join_options or JoinOptions(duplicates=getattr(options, "duplicates", "first"))
+    if streamed and len(paths) == 1 and Path(paths[0]).suffix.lower() not in JSON_LINES:
+        return _Streamed(paths[0], sample=sample, limits=limits, formats=formats, encoding=encoding,
+                         delimiter=delimiter, header=header, options=options, join_options=join_options,
+                         chunk_rows=chunk_rows).inputs
+    return _Whole(paths, sample=sample, limits=limits, formats=formats, encoding=encoding, delimiter=delimiter,
+                  header=header, options=options, join_options=join_options,
+                  natural_keys=natural_keys or {}).inputs
+
+
+class _Whole:
+    """Inputs read whole, decoded and joined in memory (several files, JSON Lines)."""
+
+    def __init__(self, paths, *, sample, limits, formats, encoding, delimiter, header, options, join_options,
+                 natural_keys):
+        exports = [read(p, encoding=encoding, delimiter=delimiter, header=header) for p in paths]
+        decoded = {e.path: decode(e, limits, formats, sample=sample) for e in exports}
+        check_option_names(*head(exports, decoded, sample), options, formats, join_options)
+        self.joined = join(exports, decoded, join_options, natural_keys)
+        self.joined.settings = join_options
+        self.inputs = Inputs(head(self.joined.exports, self.joined.decoded, sample), self.joined, self.blocks)
+
+    def blocks(self, columns=None):
+        for export in self.joined.exports:
+            yield export, self.joined.decoded[export.path]
+
+
+class _Streamed:
+    """One CSV or TSV file read in chunks: its first records decide its formats and its plan, then the rest
+    is read and decoded a chunk at a time; reading it again (``columns``) reads the file again."""
+
+    def __init__(self, path, *, sample, limits, formats, encoding, delimiter, header, options, join_options,
+                 chunk_rows):
+        self.path, self.limits, self.formats, self.chunk_rows = path, limits, formats, chunk_rows
+        self.reading = dict(encoding=encoding, delimiter=delimiter, header=header)
+        chunks = iter_chunks(path, chunk_rows, **self.reading)
+        first, taken = [], 0
+        for chunk in chunks:
+            first.append(chunk)
+            taken += chunk.number_of_records
+            if taken >= sample:
+                break
+        start = concat(first)
+        del first
+        start_decoded = decode(start, limits, formats, sample=sample)
+        self.decided = decisions(start_decoded)  # later chunks are read as the first records decided
+        exports, decoded = head([start], {start.path: start_decoded}, sample)
+        check_option_names(exports, decoded, options, formats, join_options)  # a --join too: there is no other file
+        self.pending = (start, start_decoded, chunks)
+        self.inputs = Inputs((exports, decoded), Joined([], {}, settings=join_options), self.blocks)
+        gc.collect()  # once, while the heap is small: format detection leaves exceptions (and the frames they hold)
+
+    def blocks(self, columns=None):
+        if columns is None and self.pending is not None:  # the first reading, taken up where the sample stopped
+            start, start_decoded, chunks = self.pending
+            self.pending = None
+            yield start, start_decoded
+            del start, start_decoded
+        else:
+            chunks = iter_chunks(self.path, self.chunk_rows, **self.reading)
+        for chunk in chunks:
+            if columns is not None:
+                chunk = replace(chunk, columns=[c for c in chunk.columns if c in columns])
+            yield chunk, decode(chunk, self.limits, self.formats, decided=self.decided)
+
+
+def split(export, decoded: dict, size: int | None):
+    """``(export, decoded)`` in partitions of at most ``size`` records (one when ``size`` is None).
+
+    Counts and lists that belong to the block as a whole (its rejected rows and warnings, the cells its
+    decoding quarantined, rows read and unmatched by a join) go with its first partition; an export without
+    records is one partition still, for its rejected rows and its counts. The export itself is never
+    changed (``append.offset_record_keys`` sets the keys of a partition).
+    """
+    n = export.number_of_records
+    size = size or n or 1
+    for start in range(0, max(n, 1), size):
+        yield _partition(export, decoded, start, min(start + size, n))
+
+
+def _partition(export, decoded: dict, a: int, b: int) -> tuple:
+    first, whole = a == 0, a == 0 and b == export.number_of_records
+
+    def rows(values: list) -> list:
+        return values if whole else values[a:b]
+
+    changes = {"cells": {c: rows(v) for c, v in export.cells.items()}, "lines": rows(export.lines)}
+    if not first:
+        changes.update(rejected=[], warnings=[])
+    declared = {f.name for f in fields(export)}
+    if "main_rows" in declared:  # a join's combined export: rows from the main file come first
+        changes["main_rows"] = max(0, min(export.main_rows, b) - a)
+    for name in ("main_rows_read", "rows_unmatched"):
+        if name in declared and not first:
+            changes[name] = 0
+    if "origin_lines" in declared:
+        changes["origin_lines"] = {c: rows(v) for c, v in export.origin_lines.items()}
+    part = replace(export, **changes)
+    keys = getattr(export, "record_keys", None)  # a field of a joined export, set on others by --append
+    if keys is not None:
+        part.record_keys = rows(keys)
+    inner = getattr(export, "inner_unmatched", None)
+    if inner is not None:
+        part.inner_unmatched = {i - a: why for i, why in inner.items() if a <= i < b}
+    columns = {}
+    for name, col in decoded.items():
+        impure = col.impure if whole or col.impure is None else {i - a for i in col.impure if a <= i < b}
+        columns[name] = replace(col, values=rows(col.values), layout=None if col.layout is None else rows(col.layout),
+                                impure=impure, quarantined=col.quarantined if first else [],
+                                rejoined=col.rejoined if first else 0, ambiguity=col.ambiguity if first else [])
+    return part, columns
+
+
+def head(exports: list, decoded: dict, n: int) -> tuple[list, dict]:
+    """The first ``n`` records of each export and of its decoded columns."""
+    out_exports, out_decoded = [], {}
+    for export in exports:
+        if export.number_of_records <= n:
+            out_exports.append(export)
+            out_decoded[export.path] = decoded[export.path]
+            continue
+        out_exports.append(replace(export, cells={c: v[:n] for c, v in export.cells.items()},
+                                   lines=export.lines[:n]))
+        out_decoded[export.path] = {name: replace(col, values=col.values[:n])
+                                    for name, col in decoded[export.path].items()}
+    return out_exports, out_decoded
+
+
+def concat(chunks: list):
+    """One Export from consecutive chunks of the same file."""
+    if len(chunks) == 1:
+        return chunks[0]
+    first = chunks[0]
+    return replace(first, cells={c: [v for ch in chunks for v in ch.cells[c]] for c in first.columns},
+                   lines=[n for ch in chunks for n in ch.lines],
+                   rejected=[r for ch in chunks for r in ch.rejected],
+                   warnings=[w for ch in chunks for w in ch.warnings], chars_read=chunks[-1].chars_read,
+                   invalid_bytes=chunks[-1].invalid_bytes)
