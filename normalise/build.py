@@ -229,10 +229,13 @@ class _Audit:
             if isinstance(value, (list, tuple, dict, set)) and not value:
                 continue
             entry = self.unplanned.setdefault((path, nested.column, str(key)), [line, 0])
+            entry[0] = min(entry[0], line)  # the first line in the file, whatever order the columns are read in
             entry[1] += 1
 
     def note_type(self, path: str, column: str, type_: str, value, line: int) -> None:
         entry = self.mismatched.setdefault((path, column, type_), [line, 0, value])
+        if line < entry[0]:  # the first line in the file and its value, whatever order the columns are read in
+            entry[0], entry[2] = line, value
         entry[1] += 1
 
     def report(self) -> None:
@@ -287,11 +290,12 @@ class _Entities:
         self.first_at = [{} for _ in self.keys]  # per attribute: (canonical, value key) -> first place
         self.values = [{} for _ in self.keys]  # per attribute: value key -> the value itself
         # Each occurrence's own value must come back (value_traces keeps those the entity row does not
-        # hold). Per attribute: a reference value key per entity (the first one met), and every occurrence
+        # hold). Per attribute: a reference value key per entity (its first occurrence's), and every occurrence
         # whose value differs from it, with its place; the occurrences holding the reference value are
         # found in the bridges at the end, when the reference is not the value the entity row holds.
         self.reference = [{} for _ in self.keys]  # per attribute: canonical -> value key
         self.differing = [[] for _ in self.keys]  # per attribute: (canonical, value key, value, place)
+        self.pending: list[tuple] = []  # this partition's occurrences, compared with the references by settle
 
     def lookup(self, ident) -> tuple[str, int]:
         seen = self.seen.get(type(ident))
@@ -310,29 +314,11 @@ class _Entities:
             self.first[text] = row
             self.new_rows.append(row)
 
-    def add(self, ident, obj: dict, place: tuple, where: tuple) -> int:
-        """One occurrence (the per-object path); ``where`` is its row: (table, row_sk, owner_sk, position,
-        column, file, line)."""
-        text, sk = self.lookup(ident)
-        self.new_entity(text, sk, ident, obj)
-        for k, (_, key, _) in enumerate(self.keys):
-            v = obj.get(key, ABSENT)
-            h = value_key(v)
-            ref = self.reference[k].setdefault(text, h)
-            if h != ref:
-                self.differing[k].append((text, h, v, where))
-            if v is not ABSENT:
-                pair = (text, h)
-                self.values[k].setdefault(h, v)
-                self.counts[k][pair] += 1
-                if pair not in self.first_at[k] or place < self.first_at[k][pair]:
-                    self.first_at[k][pair] = place
-        return sk
+    def add_column(self, idents: list, objects: list[dict], places: list[tuple], where, rows: list[int]) -> list[int]:
+        """Occurrences of entities, a column at a time: their identities and objects; returns their entity keys.
 
-    def add_column(self, idents: list, objects: list[dict], places: list[tuple], where) -> list[int]:
-        """Many occurrences at once (the columnar path); returns their entity keys.
-
-        ``where(j)`` gives occurrence ``j``'s row, as ``add`` takes it.
+        ``places`` are their (line, column, position) in the file, ``rows`` the partition's record row each is in,
+        ``where(j)`` occurrence ``j``'s row: (table, row_sk, owner_sk, position, column, file, line, path).
         """
         kinds = set(map(type, idents))
         if len(kinds) == 1:  # one type of identity: the values themselves are the lookup keys
@@ -354,19 +340,50 @@ class _Entities:
         if self.keys:
             numbered: dict[str, int] = {}
             entity_codes = np.array([numbered.setdefault(t, len(numbered)) for t in text_col], dtype=np.int64)
-        for k, (_, key, _) in enumerate(self.keys):
-            values = [o.get(key, ABSENT) for o in objects]
-            # text, None and ABSENT are their own keys (exact.value_key): most columns need no call per value
-            hkeys = values if set(map(type, values)) <= _OWN_KEYS else list(map(value_key, values))
-            refs = list(map(self.reference[k].setdefault, text_col, hkeys))
-            if refs != hkeys:
-                for j in [j for j, (a, b) in enumerate(zip(refs, hkeys)) if a != b]:
-                    self.differing[k].append((text_col[j], hkeys[j], values[j], where(j)))
-            known = self.values[k]
-            for h, v in dict(zip(reversed(hkeys), reversed(values))).items():  # each key's first value
-                known.setdefault(h, v)
-            self._count(k, text_col, entity_codes, hkeys, places)
+            attributes = []
+            for k, (_, key, _) in enumerate(self.keys):
+                values = [o.get(key, ABSENT) for o in objects]
+                # text, None and ABSENT are their own keys (exact.value_key): most columns need no call per value
+                hkeys = values if set(map(type, values)) <= _OWN_KEYS else list(map(value_key, values))
+                known = self.values[k]
+                for h, v in dict(zip(reversed(hkeys), reversed(values))).items():  # each key's first value
+                    known.setdefault(h, v)
+                self._count(k, text_col, entity_codes, hkeys, places)
+                attributes.append((hkeys, values))
+            self.pending.append((text_col, attributes, where, rows))
         return [sk for _, sk in keyed]
+
+    def settle(self) -> None:
+        """Compare the partition's occurrences with each entity's reference value, once all its columns are in.
+
+        An entity's reference is the value of its first occurrence in file order: the partition's first row
+        holding it, and in that row the first column read (the order the columns are read in is the same in
+        every partition). So the references, and which occurrences are traced against them, are the same
+        however the records are partitioned.
+        """
+        pending, self.pending = self.pending, []
+        if not pending:
+            return
+        firsts = [dict(zip(reversed(text_col), reversed(range(len(text_col))))) for text_col, *_ in pending]
+        for k in range(len(self.keys)):
+            reference = self.reference[k]
+            new: dict[str, tuple] = {}  # entity first met in this partition -> ((row, column read), value key)
+            for c, ((_, attributes, _, rows), first) in enumerate(zip(pending, firsts)):
+                hkeys = attributes[k][0]
+                for text, j in first.items():
+                    if text not in reference:
+                        at = (rows[j], c)
+                        got = new.get(text)
+                        if got is None or at < got[0]:
+                            new[text] = (at, hkeys[j])
+            for text, (_, h) in new.items():
+                reference[text] = h
+            for text_col, attributes, where, _ in pending:
+                hkeys, values = attributes[k]
+                refs = list(map(reference.__getitem__, text_col))
+                if refs != hkeys:
+                    for j in [j for j, (a, b) in enumerate(zip(refs, hkeys)) if a != b]:
+                        self.differing[k].append((text_col[j], hkeys[j], values[j], where(j)))
 
     def _count(self, k: int, text_col: list, entity_codes, values: list, places: list) -> None:
         """Count attribute ``k``'s (entity, value key) pairs of one column and keep where each was first seen.
@@ -631,6 +648,8 @@ class Builder:
         for record in self.plan.records:
             if record.path == export.path:
                 self._add_record(record, export, columns)
+        for acc in self.entities.values():
+            acc.settle()
 
     def _add_record(self, record: RecordSource, export, columns: dict) -> None:
         rows, meta = self.rows, self.meta
@@ -673,41 +692,33 @@ class Builder:
         columns = self._keyed_columns(record, columns, kept, record_keys, export)
         reference_cols = self.record_references.cell_keys(record, columns, kept, keys)
         out = rows[record.table]
-        object_columns = [n for n in record.nested if n.kind == "object-columns"]
-        columnar = [n for n in record.nested if _is_columnar(n)]
-        per_record = [n for n in record.nested if not _is_columnar(n)]
-        for order, nested in enumerate(record.nested):
-            nested._order = order  # the column's place in the row, for "first seen" (line, column, position)
-        for j, i in enumerate(kept):
-            sk = record_keys[i]
-            row = [sk] + [vals[j] for vals in scalar_cols]
-            for nested in object_columns:
-                obj = columns[nested.column].values[i]
-                obj = obj if isinstance(obj, dict) else {}
-                for f in nested.links:
-                    if f.entity:
-                        row.append(self.reference(f, obj, (export.lines[i], nested._order, 0),
-                                                  (record.table, sk, None, None, nested.column, export.path,
-                                                   export.lines[i], f.path)))
-                        continue
-                    value = get_path(obj, f.path)
-                    stored, exact = store(value, f.type, f.as_text)
-                    row.append(stored)
-                    if not exact:  # the cell is traced whole (_check_cell); the column is named here
-                        self.audit.note_type(export.path, f.column, f.type, value, export.lines[i])
-            row += [vals[j] for vals in reference_cols]
-            out.append(tuple(row))
-            for nested in per_record:
-                value = columns[nested.column].values[i]
-                if value is None:
-                    continue
-                _nested_rows(self, nested, value, sk, export, i, rows, c)
-                self._check_cell(record, nested, value, sk, export, i, columns[nested.column])
+        # a single object made columns of the record: its columns, entity references among them
+        held = [self._object_columns(record, nested, order, columns[nested.column].values, kept, record_keys, export)
+                for order, nested in enumerate(record.nested) if nested.kind == "object-columns"]
+        out += map(tuple, zip(keys, *scalar_cols, *[col for cols in held for col in cols], *reference_cols))
         if record.table in self.parts:
             self._split_rows(record.table, len(out) - len(kept))
-        for nested in columnar:
-            self._list_rows(nested, columns[nested.column].values, kept, record_keys, export, c, record,
-                            getattr(columns[nested.column], "given", None))
+        # Then the rows of every nested column. A cell its rows cannot give back is kept in value_traces: field
+        # by field for a top-level list of plain objects or values (``_by_field``), else the cell whole when it
+        # differs from what its rows give back (``_check_cell``). The columns compared whole come first (a
+        # stable sort): the order in which the value traces of one row are numbered, as before.
+        for order, nested in sorted(enumerate(record.nested), key=lambda on: _by_field(on[1])):
+            col = columns[nested.column]
+            cells = [(col.values[i], record_keys[i], i) for i in kept if col.values[i] is not None]
+            if not cells:
+                continue
+            values, owners, rows_of = map(list, zip(*cells))
+            by_field = _by_field(nested)
+            whole = self._rows(nested, order, values, owners, rows_of, export, c, by_field)
+            given = getattr(col, "given", None) or {}
+            if by_field:
+                for i in sorted(whole):
+                    self.trace(record.table, record_keys[i], None, None, nested.column, "",
+                               "the cell as given (its rows differ)", given.get(i, col.values[i]), export.path,
+                               export.lines[i])
+                continue
+            for value, sk, i in cells:
+                self._check_cell(record, nested, value, sk, export, i, col)
 
     def _keep(self, record: RecordSource, export, columns: dict, record_keys: list) -> list[int]:
         """Indices of the partition's records to load; the others are set aside (``set_aside_rows``).
@@ -836,35 +847,52 @@ class Builder:
                             None if original is ABSENT else literal(original), file, line))
         self.trace_reasons[reason] += 1
 
-    def reference(self, f, obj, place: tuple, where: tuple):
-        """The entity key of the single object a reference (``FieldMap.entity``) finds in ``obj``, or None.
-
-        ``where`` is the row holding it: (table, row_sk, owner_sk, position, column, file, line, path). An
-        object that is not there, or has no usable identity, gives NULL; its cell does not come back from
-        the rows and is kept whole in value_traces.
-        """
-        sub = get(obj, f.path) if f.path else obj
-        if type(sub) is not dict:
-            return None
-        acc = self.entities[f.entity]
-        ident = sub.get(acc.group.identity)
-        if not usable_identity(ident, acc.group.identity_type):
-            return None
-        return acc.add(ident, sub, place, where)
-
-    def _links(self, nested: NestedColumn, item: dict, place: tuple, where: tuple) -> list:
-        """One object's stored link columns, references to entities among them (the per-object path)."""
+    def _object_columns(self, record: RecordSource, nested: NestedColumn, order: int, values: list, kept: list[int],
+                        record_keys, export) -> list[list]:
+        """The record's columns of a single object (``object-columns``) for the kept records, a list per field;
+        a reference among them holds the entity's key (``_refer``)."""
+        objects = [values[i] if isinstance(values[i], dict) else {} for i in kept]
+        lines = export.lines
         out = []
         for f in nested.links:
             if f.entity:
-                out.append(self.reference(f, item, place, where + (f.path,)))
-            else:
-                out.append(store(get_path(item, f.path), f.type, f.as_text)[0])
+                out.append(self._refer(f, objects, [(lines[i], order, 0) for i in kept], lambda j, f=f: (
+                    record.table, record_keys[kept[j]], None, None, nested.column, export.path, lines[kept[j]],
+                    f.path), kept))
+                continue
+            col = []
+            for o, i in zip(objects, kept):
+                value = get_path(o, f.path)
+                stored, exact = store(value, f.type, f.as_text)
+                col.append(stored)
+                if not exact:  # the cell is traced whole (_check_cell); the column is named here
+                    self.audit.note_type(export.path, f.column, f.type, value, lines[i])
+            out.append(col)
+        return out
+
+    def _refer(self, f, objects: list, places: list, where, rows: list) -> list:
+        """The entity key of the single object a reference (``FieldMap.entity``) finds in each object, or None.
+
+        ``where(j)`` is the row holding object ``j``: (table, row_sk, owner_sk, position, column, file, line,
+        path). An object that is not there, or has no usable identity, gives NULL; its cell does not come back
+        from the rows and is kept whole in value_traces.
+        """
+        acc = self.entities[f.entity]
+        identity, identity_type = acc.group.identity, acc.group.identity_type
+        found = [get(o, f.path) if f.path else o for o in objects]
+        picked = [j for j, sub in enumerate(found)
+                  if type(sub) is dict and usable_identity(sub.get(identity), identity_type)]
+        out = [None] * len(objects)
+        if picked:
+            keys = acc.add_column([found[j].get(identity) for j in picked], [found[j] for j in picked],
+                                  [places[j] for j in picked], lambda q: where(picked[q]), [rows[j] for j in picked])
+            for j, sk in zip(picked, keys):
+                out[j] = sk
         return out
 
     def _check_cell(self, record: RecordSource, nested: NestedColumn, value, sk: int, export, i: int,
                     col=None) -> None:
-        """A cell of the per-object path that its rows do not give back exactly is traced whole."""
+        """A cell whose rows do not give it back exactly is traced whole (columns not traced ``_by_field``)."""
         group = self.entities[nested.entity].group if nested.kind == "entity-list" else None
         expected = expect_cell(nested, value, group.identity_type if group else None,
                                group.attributes if group else (), self.groups)
@@ -872,105 +900,153 @@ class Builder:
             self.trace(record.table, sk, None, None, nested.column, "", "the cell as given (its rows differ)",
                        getattr(col, "given", {}).get(i, value), export.path, export.lines[i])
 
-    def _list_rows(self, nested: NestedColumn, values: list, kept: list[int], record_keys: list[int], export,
-                   c: FileCounts, record: RecordSource, given: dict | None = None) -> None:
-        """Bridge or child rows of one list column for a whole chunk, a column at a time.
+    def _rows(self, nested: NestedColumn, order: int, values: list, owners: list[int], rows_of: list[int], export,
+              c: FileCounts, by_field: bool = False) -> set:
+        """Rows of one nested column for a batch of its values, a column at a time: the one row engine.
 
-        Gives exactly the rows the per-object path gives; objects that need
-        care (not objects, no usable identity, unplanned keys, values of another
-        type) are handled one by one.
+        Every shape (lists of values, of objects with or without an identity, a single object as a 1:1 child
+        row or as record columns) at every depth: the batch is a partition's cells of a top-level column
+        (``owners``: their records' keys) or what the objects of an owning column hold at the column's path
+        (``owners``: the owning rows' keys; ``_inside``), and ``rows_of`` the record row of each value. Keys,
+        interned values and entities, references, quarantine and counts are made here, a column at a time;
+        an element that needs care (not an object, no usable identity) is set apart first. ``order``: the
+        top-level column's place in the row, for where an entity was first seen (line, column, position).
+
+        ``by_field`` (``_by_field``): what the rows cannot give back is kept field by field on the element's
+        row (a key the model lacks, null where NULL means absent and the reverse, a value of another type);
+        the record rows whose cell must be kept whole are returned. Otherwise the caller compares each cell
+        whole (``_check_cell``).
         """
-        items, owners, positions, rows_of = [], [], [], []
-        whole = set()  # rows whose cell the rows cannot give back: kept whole in value_traces
-        for i in kept:
-            v = values[i]
-            if v is None:
-                continue
-            if type(v) is not list:
-                whole.add(i)  # a tuple, or one value where a list is expected: the rows hold a list
-            if not isinstance(v, (list, tuple)):
-                v = [v]
-            n = len(v)
-            items.extend(v)
-            owners.extend([record_keys[i]] * n)
-            positions.extend(range(1, n + 1))
-            rows_of.extend([i] * n)
+        kind, lines = nested.kind, export.lines
+        if kind == "object-columns":  # its fields are the record's columns (_object_columns): the lists inside
+            found = [(v, o, i) for v, o, i in zip(values, owners, rows_of) if isinstance(v, dict)]
+            c.elements_decoded += len(found)
+            c.elements_written += len(found)
+            if found:
+                self._inside(nested, order, *map(list, zip(*found)), export, c)
+            return set()
+        whole: set = set()  # record rows whose cell the rows cannot give back (by_field)
+        items, item_owners, positions, item_rows, idents = self._elements(nested, values, owners, rows_of, export,
+                                                                          c, whole)
         if not items:
-            return
-        c.elements_decoded += len(items)
-        lines = export.lines
-        audit = self.audit
-        if nested.kind == "value-list":
-            vt = nested.value_type
-            if vt == "text":
-                bad = [k for k, x in enumerate(items) if x is None or isinstance(x, (dict, list, tuple))]
-            else:  # a value the list's type cannot hold is not a value of the list (its cell is kept whole)
-                bad = [k for k, x in enumerate(items) if x is None or store(x, vt)[0] is None]
+            return whole
+        vt = nested.value_type if kind == "value-list" else None
+        if max(item_owners) < _RECORD_KEY_LIMIT and max(positions) < (1 << _POSITION_BITS):
+            keys = [(o << _POSITION_BITS) | p for o, p in zip(item_owners, positions)]  # row_key, a column at once
         else:
-            bad = [k for k, x in enumerate(items) if type(x) is not dict]
-        idents = None
-        if nested.kind == "entity-list" and not bad:
-            idents = [o.get(nested.identity) for o in items]
-            if nested.matched:
-                idents = [match_key(v) or None for v in idents]
-            identity_type = self.entities[nested.entity].group.identity_type
-            bad = [] if _all_usable(idents, identity_type) else [
-                k for k, v in enumerate(idents) if not usable_identity(v, identity_type)]
-        if nested.kind == "entity-list" and idents is not None:
-            want = int if identity_type == "integer" else str
-            if nested.matched:
-                whole.update(rows_of[k] for k, o in enumerate(items) if type(o.get(nested.identity)) is not str)
-            elif not set(map(type, idents)) <= {want}:
-                whole.update(rows_of[k] for k, v in enumerate(idents) if type(v) is not want)
-        if nested.kind == "value-list":
-            want = VALUE_TYPES[nested.value_type]
-            if not set(map(type, items)) <= {want} or (want is float and 0.0 in items):
-                whole.update(rows_of[k] for k, x in enumerate(items) if type(x) is not want or is_negative_zero(x))
-        if bad:
-            whole.update(rows_of[k] for k in bad)
-            for k in bad:
-                x = items[k]
-                message = ("null element in a list" if x is None else "nested element in a list of values"
-                           if nested.kind == "value-list" else "expected an object in a list of objects"
-                           if type(x) is not dict else f"object without a usable {nested.identity!r}")
-                _quarantine_element(audit.quarantine, export, rows_of[k], nested, positions[k], message, c)
-            keep = sorted(set(range(len(items))) - set(bad))
-            items = [items[k] for k in keep]
-            owners = [owners[k] for k in keep]
-            positions = [positions[k] for k in keep]
-            rows_of = [rows_of[k] for k in keep]
-            if idents is not None:
-                idents = [idents[k] for k in keep]
-        if not items:
-            self._trace_cells(record, nested, values, whole, record_keys, export, given)
-            return
-        if max(owners) < _RECORD_KEY_LIMIT and max(positions) < (1 << _POSITION_BITS):
-            keys = [(o << _POSITION_BITS) | p for o, p in zip(owners, positions)]
-        else:
-            where = f"{nested.file}:{nested.column}"
-            keys = [row_key(where, o, p) for o, p in zip(owners, positions)]
+            source = f"{nested.file}:{nested.column}" + (f".{nested.path}" if nested.path else "")
+            keys = [row_key(source, o, p) for o, p in zip(item_owners, positions)]
         table = self.rows[nested.table]
-        if nested.kind == "value-list":
+        c.elements_written += len(keys)
+        if kind == "value-list":
             found = self.values.get(nested.entity)
             if found is None:
                 found = self.values[nested.entity] = _ValueTable()
-            vt = nested.value_type
             value_keys = [found.key(x, vt) for x in items]
-            if nested.references:
+            if nested.references and nested.entity in self.record_references.used:
                 self.record_references.used[nested.entity].update(value_keys)
-            table.extend(zip(keys, owners, value_keys, positions))
-            c.elements_written += len(keys)
-            self._trace_cells(record, nested, values, whole, record_keys, export, given)
-            return
-        known = audit.known(nested, self.entities)
-        bridge, path = nested.table, export.path
+            table.extend(zip(keys, item_owners, value_keys, positions))
+            return whole
+        links = self._link_columns(nested, order, items, keys, item_owners, positions, item_rows, export, whole,
+                                   by_field)
+        if kind == "entity-list":
+            places = [(lines[i], order, p) for i, p in zip(item_rows, positions)]
+
+            def where(j):
+                return (nested.table, keys[j], item_owners[j], positions[j], nested.column, export.path,
+                        lines[item_rows[j]], [])
+
+            entity_keys = self.entities[nested.entity].add_column(idents, items, places, where, item_rows)
+            table.extend(zip(keys, item_owners, entity_keys, positions, *links))
+        elif kind == "object-child":
+            table.extend(zip(keys, item_owners, *links))
+        else:
+            table.extend(zip(keys, item_owners, positions, *links))
+        if nested.children:
+            self._inside(nested, order, items, keys, item_rows, export, c)
+        return whole
+
+    def _elements(self, nested: NestedColumn, values: list, owners: list[int], rows_of: list[int], export,
+                  c: FileCounts, whole: set) -> tuple:
+        """The elements of a batch of a nested column's values, with their owners, list positions (0: a single
+        object), record rows and identities (entity lists); elements that are no value of the column (null, of
+        another type, not an object, no usable identity) are quarantined and left out. Adds to ``whole`` the record
+        rows whose cells the rows cannot give back (``by_field``)."""
+        kind, audit = nested.kind, self.audit
+        if kind == "object-child":
+            items, item_owners, positions, item_rows = list(values), list(owners), [0] * len(values), list(rows_of)
+        else:
+            items, item_owners, positions, item_rows = [], [], [], []
+            for v, o, i in zip(values, owners, rows_of):
+                if type(v) is not list:
+                    whole.add(i)  # a tuple, or one value where a list is expected: the rows hold a list
+                if not isinstance(v, (list, tuple)):
+                    v = [v]
+                n = len(v)
+                items.extend(v)
+                item_owners.extend([o] * n)
+                positions.extend(range(1, n + 1))
+                item_rows.extend([i] * n)
+        if not items:
+            return [], [], [], [], None
+        c.elements_decoded += len(items)
+        vt = nested.value_type if kind == "value-list" else None
+        if kind == "value-list":  # a value the list's type cannot hold is not a value of the list
+            bad = [k for k, x in enumerate(items) if x is None or isinstance(x, (dict, list, tuple))
+                   or vt != "text" and store(x, vt)[0] is None]
+            want = VALUE_TYPES[vt]
+            if not set(map(type, items)) <= {want} or (want is float and 0.0 in items):
+                whole.update(item_rows[k] for k, x in enumerate(items) if type(x) is not want or is_negative_zero(x))
+        else:
+            bad = [k for k, x in enumerate(items) if type(x) is not dict]
+        idents = None
+        if kind == "entity-list":
+            identity, identity_type = nested.identity, self.entities[nested.entity].group.identity_type
+            given = [o.get(identity) if type(o) is dict else None for o in items]
+            idents = [match_key(v) or None for v in given] if nested.matched else given
+            if not _all_usable(idents, identity_type):
+                bad = sorted(set(bad) | {k for k, v in enumerate(idents) if not usable_identity(v, identity_type)})
+            want = int if identity_type == "integer" else str
+            if nested.matched:
+                whole.update(item_rows[k] for k, v in enumerate(given) if type(v) is not str)
+            elif not set(map(type, idents)) <= {want}:
+                whole.update(item_rows[k] for k, v in enumerate(idents) if type(v) is not want)
+        if bad:
+            whole.update(item_rows[k] for k in bad)
+            for k in bad:
+                x = items[k]
+                if kind == "object-child":
+                    message = "expected an object"
+                elif x is None:
+                    message = "null element in a list"
+                elif kind == "value-list":
+                    message = ("nested element in a list of values" if isinstance(x, (dict, list, tuple))
+                               else f"not {vt}, the list's type")
+                elif type(x) is not dict:
+                    message = "expected an object in a list of objects"
+                else:
+                    message = f"object without a usable {nested.identity!r}"
+                _quarantine_element(audit.quarantine, export, item_rows[k], nested, positions[k] or None, message, c)
+            keep = sorted(set(range(len(items))) - set(bad))
+            items, item_owners, positions, item_rows = ([column[k] for k in keep] for column in
+                                                        (items, item_owners, positions, item_rows))
+            if idents is not None:
+                idents = [idents[k] for k in keep]
+        return items, item_owners, positions, item_rows, idents
+
+    def _link_columns(self, nested: NestedColumn, order: int, items: list[dict], keys: list[int], owners: list[int],
+                      positions: list[int], rows_of: list[int], export, whole: set, by_field: bool) -> list[list]:
+        """The stored link columns of a batch of objects (references to entities among them), a column at a time;
+        ``by_field``, what a column cannot give back is traced on the element's row, or its cell kept whole."""
+        lines, path, audit = export.lines, export.path, self.audit
 
         def keep(k: int, keys_in: list, original, reason: str) -> None:
             """One field of one element, as given, on its bridge or child row (the rows are still checked)."""
-            self.trace(bridge, keys[k], owners[k], positions[k], nested.column, pointer(keys_in), reason, original,
-                       path, lines[rows_of[k]])
+            self.trace(nested.table, keys[k], owners[k], positions[k], nested.column, pointer(keys_in), reason,
+                       original, path, lines[rows_of[k]])
 
-        if any(len(f.path) > 1 or f.entity for f in nested.links):
+        known = audit.known(nested, self.entities)
+        if by_field and any(len(f.path) > 1 or f.entity for f in nested.links):
             # fields of sub-objects: a sub-object that is null, empty or holds more keys than the model cannot be
             # told from its fields, so each element is compared with what its row gives back (exact.expect_cell)
             group = self.entities[nested.entity].group if nested.kind == "entity-list" else None
@@ -979,26 +1055,32 @@ class Builder:
                                       group.attributes if group else (), self.groups)
                 if not same(back, o):
                     whole.add(rows_of[k])
-        if not set(map(type, chain.from_iterable(items))) <= {str}:
+        if by_field and not set(map(type, chain.from_iterable(items))) <= {str}:
             # a key that is not text (a Python literal's {1: 'a'}): the plan names fields by text, so the
             # cell is kept whole
             whole.update(rows_of[k] for k, o in enumerate(items) if not set(map(type, o)) <= {str})
-        if not set(chain.from_iterable(items)) <= known:
+        # A key the model does not have is reported for the objects of a list; a single object's keys may be
+        # the attributes of the entity it is (a reference), which ``known`` does not list, and its cell is
+        # compared whole
+        if nested.kind != "object-child" and not set(chain.from_iterable(items)) <= known:
             for k, (o, i) in enumerate(zip(items, rows_of)):
                 if not o.keys() <= known:
-                    audit.note_keys(nested, o, export.path, lines[i])
-                    for key in o.keys() - known:  # no column for the key: its value is kept as given
-                        keep(k, [key], o[key], "a key the model does not have")
+                    audit.note_keys(nested, o, path, lines[i])
+                    if by_field:
+                        for key in [key for key in o if key not in known]:  # no column: the value as given
+                            keep(k, [key], o[key], "a key the model does not have")
         links = []
         for f in nested.links:
             if f.entity:
-                links.append([self.reference(f, o, (lines[i], nested._order, p),
-                                             (bridge, keys[k], owners[k], p, nested.column, path, lines[i], f.path))
-                              for k, (o, i, p) in enumerate(zip(items, rows_of, positions))])
+                links.append(self._refer(f, items, [(lines[i], order, p) for i, p in zip(rows_of, positions)],
+                                         lambda j, f=f: (nested.table, keys[j], owners[j], positions[j] or None,
+                                                         nested.column, path, lines[rows_of[j]], f.path), rows_of))
                 continue
             col = ([o.get(f.path[0], ABSENT) for o in items] if len(f.path) == 1
                    else [get(o, f.path) for o in items])
-            if f.null_means == "absent" and None in col:
+            if not by_field:
+                pass
+            elif f.null_means == "absent" and None in col:
                 for k in [k for k, v in enumerate(col) if v is None]:
                     keep(k, f.path, None, "null where the column's NULL means an absent key")
             elif f.null_means == "null" and ABSENT in col:
@@ -1011,30 +1093,33 @@ class Builder:
                 for k, (v, i) in enumerate(zip(col, rows_of)):
                     stored, exact = store(v, f.type, f.as_text)
                     converted.append(stored)
-                    if not exact:
-                        audit.note_type(export.path, f"{nested.column}.{f.column}", f.type, v, lines[i])
+                    if exact:
+                        continue
+                    if by_field:  # each such value is kept on its row, and the column reported
+                        audit.note_type(path, f"{nested.column}.{f.column}", f.type, v, lines[i])
                         keep(k, f.path, v, f"not {f.type} as given")
+                    elif stored is None and v is not None and nested.kind != "object-child":
+                        # compared whole, a list's column is reported where it holds NULL for a value
+                        audit.note_type(path, f"{nested.column}.{f.column}", f.type, v, lines[i])
                 col = converted
             links.append(col)
-        if nested.kind == "entity-list":
-            places = [(lines[i], nested._order, p) for i, p in zip(rows_of, positions)]
+        return links
 
-            def where(j):
-                return (bridge, keys[j], owners[j], positions[j], nested.column, path, lines[rows_of[j]], [])
-
-            entity_keys = self.entities[nested.entity].add_column(idents, items, places, where)
-            table.extend(zip(keys, owners, entity_keys, positions, *links))
-        else:
-            table.extend(zip(keys, owners, positions, *links))
-        c.elements_written += len(keys)
-        self._trace_cells(record, nested, values, whole, record_keys, export, given)
-
-    def _trace_cells(self, record, nested: NestedColumn, values: list, rows: set, record_keys, export,
-                     given: dict | None = None) -> None:
-        given = given or {}
-        for i in sorted(rows):
-            self.trace(record.table, record_keys[i], None, None, nested.column, "",
-                       "the cell as given (its rows differ)", given.get(i, values[i]), export.path, export.lines[i])
+    def _inside(self, nested: NestedColumn, order: int, objects: list[dict], owners: list[int], rows_of: list[int],
+                export, c: FileCounts) -> None:
+        """The lists and objects inside a batch of objects, each child column's batch (grandchild tables), owned
+        by the objects' rows (``owners``)."""
+        for child in nested.children:
+            keys = child.path.split(".")
+            batch = []
+            for o, owner, i in zip(objects, owners, rows_of):
+                inner = get_path(o, keys)
+                if child.keyed and isinstance(inner, dict):  # read as its list; one that does not fit is kept whole
+                    inner = keyed_items(inner, child.keyed, child.keyed_value)
+                if inner:
+                    batch.append((inner, owner, i))
+            if batch:
+                self._rows(child, order, *map(list, zip(*batch)), export, c)
 
     def _trace_occurrences(self, table: str, acc: _Entities, held: list, occurrences) -> None:
         """Trace every occurrence whose own value of an attribute is not the one its entity row gives back."""
@@ -1202,8 +1287,10 @@ _STORED_AS_IS = {  # Python types a column stores without conversion (None is NU
 }
 
 
-def _is_columnar(nested: NestedColumn) -> bool:
-    """A top-level list without lists inside its objects takes the columnar path."""
+def _by_field(nested: NestedColumn) -> bool:
+    """A top-level list without lists inside its objects keeps what its rows cannot give back field by field
+    (a key the model lacks, null for absent, a value of another type, each on its bridge or child row); any
+    other nested column, its cell whole when its rows differ from it (``Builder._check_cell``)."""
     return nested.kind in ("entity-list", "child-list", "value-list") and not nested.children and not nested.path
 
 
@@ -1353,93 +1440,6 @@ def build(plan: Plan, exports: list, decoded: dict, extra: dict | None = None, s
             yield export, decoded[export.path]
 
     return build_partitions(plan, partitions, InMemory(plan), extra, state)
-
-
-def _nested_rows(builder: "Builder", nested: NestedColumn, value, owner_sk: int, export, i: int, rows,
-                 c: FileCounts) -> None:
-    """Rows of one nested value (and of the lists inside it), owned by ``owner_sk``.
-
-    What the rows cannot give back is found by comparing the whole cell with
-    ``expect_cell`` afterwards (``Builder._check_cell``) and kept as a trace.
-    """
-    entities, values, audit = builder.entities, builder.values, builder.audit
-    where = f"{nested.file}:{nested.column}" + (f".{nested.path}" if nested.path else "")
-    if nested.kind == "object-columns":
-        if isinstance(value, dict):
-            c.elements_decoded += 1
-            c.elements_written += 1
-            _lists_inside(builder, nested, value, owner_sk, export, i, rows, c)
-        return
-    if nested.kind == "object-child":
-        c.elements_decoded += 1
-        if not isinstance(value, dict):
-            _quarantine_element(audit.quarantine, export, i, nested, None, "expected an object", c)
-            return
-        sk = row_key(where, owner_sk, 0)
-        rows[nested.table].append((sk, owner_sk, *builder._links(
-            nested, value, (export.lines[i], getattr(nested, "_order", 0), 0),
-            (nested.table, sk, owner_sk, None, nested.column, export.path, export.lines[i]))))
-        c.elements_written += 1
-        _lists_inside(builder, nested, value, sk, export, i, rows, c)
-        return
-    items = value if isinstance(value, (list, tuple)) else [value]
-    table = rows[nested.table]
-    for position, item in enumerate(items, start=1):
-        c.elements_decoded += 1
-        sk = row_key(where, owner_sk, position)
-        if nested.kind == "value-list":
-            vt = nested.value_type
-            if item is None or isinstance(item, (dict, list, tuple)) or vt != "text" and store(item, vt)[0] is None:
-                _quarantine_element(audit.quarantine, export, i, nested, position,
-                                    "null element in a list" if item is None else "nested element in a list of values"
-                                    if isinstance(item, (dict, list, tuple)) else f"not {vt}, the list's type", c)
-                continue
-            found = values.get(nested.entity)
-            if found is None:
-                found = values[nested.entity] = _ValueTable()
-            table.append((sk, owner_sk, found.key(item, vt), position))
-            c.elements_written += 1
-            continue
-        if not isinstance(item, dict):
-            _quarantine_element(audit.quarantine, export, i, nested, position, "expected an object in a list of objects", c)
-            continue
-        links = builder._links(nested, item, (export.lines[i], getattr(nested, "_order", 0), position),
-                               (nested.table, sk, owner_sk, position, nested.column, export.path, export.lines[i]))
-        known = audit.known(nested, entities)
-        if not item.keys() <= known:
-            audit.note_keys(nested, item, export.path, export.lines[i])
-        if None in links:
-            for f, out in zip(nested.links, links):
-                if out is None and not f.entity and get_path(item, f.path) is not None:
-                    audit.note_type(export.path, f"{nested.column}.{f.column}", f.type, get_path(item, f.path),
-                                    export.lines[i])
-        if nested.kind == "entity-list":
-            ident = item.get(nested.identity)
-            if nested.matched:
-                ident = match_key(ident) or None
-            if not usable_identity(ident, entities[nested.entity].group.identity_type):
-                _quarantine_element(audit.quarantine, export, i, nested, position,
-                                    f"object without a usable {nested.identity!r}", c)
-                continue
-            entity_sk = entities[nested.entity].add(
-                ident, item, (export.lines[i], getattr(nested, "_order", 0), position),
-                (nested.table, sk, owner_sk, position, nested.column, export.path, export.lines[i], []))
-            table.append((sk, owner_sk, entity_sk, position, *links))
-        else:
-            table.append((sk, owner_sk, position, *links))
-        c.elements_written += 1
-        _lists_inside(builder, nested, item, sk, export, i, rows, c)
-
-
-def _lists_inside(builder: "Builder", nested: NestedColumn, obj: dict, owner_sk: int, export, i: int, rows,
-                  c: FileCounts) -> None:
-    """Rows of the lists inside one object (grandchild tables), owned by ``owner_sk``."""
-    for child in nested.children:
-        inner = get_path(obj, child.path.split("."))
-        if child.keyed and isinstance(inner, dict):  # read as its list; one that does not fit is kept whole
-            inner = keyed_items(inner, child.keyed, child.keyed_value)
-        if inner:
-            _nested_rows(builder, child, inner, owner_sk, export, i, rows, c)
 
 
 def _quarantine_element(quarantine: list, export, i, nested, position, message, c: FileCounts) -> None:
