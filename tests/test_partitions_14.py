@@ -308,3 +308,16 @@ def test_an_entity_shared_by_two_columns_gives_one_database_for_any_chunk_size(t
     assert entity["attributes"] == ["name"] and len(entity["members"]) == 2
     kept = sorted(r[8] for r in found[0][0]["rows"]["value_traces"])
     assert kept == ["'Ann X'", "'P one'"]  # the odd spellings, each on its own occurrence
+
+
+def test_a_non_object_in_an_entity_list_is_quarantined_for_any_chunk_size(tmp_path):
+    """The columnar path of the old second row engine skipped the identity check of an entity list holding a
+    non-object and then failed (TypeError); the one engine quarantines the element and keeps the others."""
+    path = tmp_path / "books.csv"
+    path.write_text('key,people\nb1,"[{""id"": 1, ""name"": ""A""}, 5]"\nb2,"[{""id"": 2, ""name"": ""B""}]"\n'
+                    'b3,"[{""id"": 1, ""name"": ""A""}]"\n', encoding="utf-8")
+    found = builds(tmp_path, [path])
+    assert_all_the_same(found)
+    rows = found[0][0]["rows"]
+    assert [r[3:] for r in rows["quarantined_cells"]] == [("people", 2, "element 2", "expected an object in a list of objects")]
+    assert len(rows["book_people"]) == 3 and found[0][1]["integrity"]["proof"] == "exact"
