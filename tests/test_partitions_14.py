@@ -35,6 +35,7 @@ from normalise.join import JoinOptions
 from normalise.pipeline import build_database, make_plan
 from tests import test_corpus
 from tests.test_corpus import CASES, CORPUS, inputs_for, run_commands
+from tests.test_postgresql import _drop, _new_schema, pg, pg_snapshot, pg_url, relation_names  # noqa: F401 (fixtures)
 
 PARTITIONS = [1, 2, 7, 0]  # records per partition; 0: the input read whole, one partition (the reference)
 # The model is made from the first pipeline.SAMPLE_ROWS records (5,000); from the first three, every case has
@@ -321,3 +322,25 @@ def test_a_non_object_in_an_entity_list_is_quarantined_for_any_chunk_size(tmp_pa
     rows = found[0][0]["rows"]
     assert [r[3:] for r in rows["quarantined_cells"]] == [("people", 2, "element 2", "expected an object in a list of objects")]
     assert len(rows["book_people"]) == 3 and found[0][1]["integrity"]["proof"] == "exact"
+
+
+def test_postgresql_gets_one_database_for_any_chunk_size(tmp_path, pg, pg_url):  # noqa: F811 (fixtures)
+    """PostgreSQL takes the rows whole (write_postgresql), built in partitions all the same: every partition size
+    gives the same relations (read back with psycopg), and the same as SQLite's reference build."""
+    generate(tmp_path / "demo", size=60, seed=14)
+    paths = [str(tmp_path / "demo" / "titles.csv"), str(tmp_path / "demo" / "contributions.csv")]
+    found = []
+    for n in reversed(PARTITIONS):
+        schema = _new_schema()
+        try:
+            m = build_database(paths, pg_url, schema=schema, chunk_rows=n or None)
+            found.append((pg_snapshot(pg, schema, relation_names(m)), without_path(m)))
+        finally:
+            _drop(pg, schema)
+    (want, want_manifest), *others = found
+    for n, (got, m) in zip(reversed(PARTITIONS[:-1]), others):
+        assert got == want, f"{n} a partition"
+        assert {k: v for k, v in m.items() if k != "schema"} == {k: v for k, v in want_manifest.items()
+                                                                 if k != "schema"}, f"{n} a partition"
+    sqlite = build_database(paths, str(tmp_path / "sqlite.db"), chunk_rows=1)
+    assert [t["rows"] for t in sqlite["tables"]] == [t["rows"] for t in want_manifest["tables"]]
