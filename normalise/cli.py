@@ -22,7 +22,7 @@ exit codes:
   1  the build stopped on the data or the machine: the lossless proof failed, the counts did not
      reconcile, repeated keys were refused (--duplicates refuse), a join broke its --cardinality, a table
      would be wider than SQLite allows, a file's content cannot be read; the disk is full, the database
-     is locked by another program or cannot be written
+     is locked by another program or cannot be written, the PostgreSQL server is unreachable or refused
   2  usage: an unknown option or a value it cannot take, an option naming a file, column or field the
      inputs do not have, a plan file that cannot be read or does not fit the data, an input that is not
      there, a destination that exists (without --replace or --append) or is not a usable database
@@ -201,7 +201,8 @@ def _run_build(args, options, join_options, progress):
                             parquet_dir=args.parquet, plan_path=args.plan, chunk_rows=args.chunk_rows or None,
                             progress=progress, schema=args.schema,
                             append=args.append, report_path=args.report, dictionary_path=args.dictionary,
-                            allow_lossy=args.allow_lossy, wait=args.wait, header=not args.no_header)
+                            allow_lossy=args.allow_lossy, wait=args.wait, header=not args.no_header,
+                            share_schema=args.share_schema)
 
 
 def cmd_plan(args) -> int:
@@ -274,7 +275,11 @@ def build_parser() -> argparse.ArgumentParser:
                    help="PostgreSQL only: the schema to write into, created when missing (default normalise)")
     p.add_argument("--manifest", metavar="PATH", help="also write the manifest (JSON) here")
     p.add_argument("--replace", action="store_true",
-                   help="overwrite an existing database (PostgreSQL: drop the tables and views of the schema)")
+                   help="overwrite an existing database (PostgreSQL: drop the tables and views an earlier run made "
+                        "in the schema, as its normalise_register lists them; nothing else)")
+    p.add_argument("--share-schema", action="store_true",
+                   help="PostgreSQL only: write into a schema that also holds tables normalise did not make, "
+                        "keeping them (refused when a name is taken)")
     p.add_argument("--append", action="store_true",
                    help="add the records to an existing database built from the same plan (keys stay as they are)")
     _inference_options(p)

@@ -24,7 +24,8 @@ from .report import manifest
 from .schema import POSTGRESQL_MAX_COLUMNS
 from .views import add_pick
 from .write import SqliteWriter
-from .write import DEFAULT_SCHEMA, display_url, is_postgresql, write_parquet, write_postgresql, write_sqlite
+from .write import (DEFAULT_SCHEMA, display_url, is_postgresql, postgresql_run_lock, write_parquet, write_postgresql,
+                    write_sqlite)
 
 
 # The model is inferred from the first SAMPLE_ROWS records of each export, in
@@ -105,11 +106,13 @@ def build_database(paths: list[str], database: str, *, options: Options | None =
                    parquet_dir: str | None = None, plan_path: str | None = None,
                    schema: str | None = None, chunk_rows: int | None = None, progress=None,
                    report_path: str | None = None, dictionary_path: str | None = None,
-                   append: bool = False, allow_lossy: bool = False, wait: float = 0.0, header: bool = True) -> dict:
+                   append: bool = False, allow_lossy: bool = False, wait: float = 0.0, header: bool = True,
+                   share_schema: bool = False) -> dict:
     """Run every pass on the exports and write a SQLite database; returns the manifest.
 
     ``database`` may instead be a ``postgresql+psycopg://`` URL: the tables then go into
-    ``schema`` (default ``normalise``) of that database, in one transaction.
+    ``schema`` (default ``normalise``) of that database, in one transaction; a schema holding tables
+    normalise did not make is refused unless ``share_schema`` (they are never dropped).
 
     Before a SQLite database is moved into place every loaded cell is rebuilt from its tables and
     compared with the input (``prove.py``); a difference raises ``LossDetected`` unless ``allow_lossy``.
@@ -130,9 +133,10 @@ def build_database(paths: list[str], database: str, *, options: Options | None =
     delimiter = check_values(encoding_name=encoding, delimiter_char=delimiter, limits=limits, chunk_rows=chunk_rows,
                              options=options, join_options=join_options)
     postgresql = is_postgresql(database)
-    if schema is not None and not postgresql:
+    if (schema is not None or share_schema) and not postgresql:
         from .errors import UsageError
-        raise UsageError("--schema applies to a PostgreSQL --db (postgresql+psycopg://...), not to a SQLite file")
+        option = "--schema" if schema is not None else "--share-schema"
+        raise UsageError(f"{option} applies to a PostgreSQL --db (postgresql+psycopg://...), not to a SQLite file")
     if parquet_dir and postgresql:
         from .errors import UsageError
         raise UsageError("--parquet is written from a SQLite database; it is not available with a PostgreSQL --db")
@@ -156,9 +160,9 @@ def build_database(paths: list[str], database: str, *, options: Options | None =
                   replace=replace, join_options=join_options, manifest_path=manifest_path, picks=picks,
                   parquet_dir=parquet_dir, plan_path=plan_path, schema=schema, chunk_rows=chunk_rows,
                   progress=progress, report_path=report_path, dictionary_path=dictionary_path, append=append,
-                  allow_lossy=allow_lossy, wait=wait, header=header)
-    if postgresql:  # write_postgresql holds an advisory lock of the schema for its transaction
-        with staged_outputs() as staged:
+                  allow_lossy=allow_lossy, wait=wait, header=header, share_schema=share_schema)
+    if postgresql:  # a session lock of the schema for the whole run, as the lock file beside a SQLite database
+        with postgresql_run_lock(database, schema or DEFAULT_SCHEMA, wait), staged_outputs() as staged:
             result = _build(paths, database, staged=staged, **kwargs)
             staged.commit()
         return result
@@ -171,7 +175,8 @@ def build_database(paths: list[str], database: str, *, options: Options | None =
 
 def _build(paths: list[str], database: str, *, options, limits, formats, encoding, delimiter, replace,
            join_options, manifest_path, picks, parquet_dir, plan_path, schema, chunk_rows, progress,
-           report_path, dictionary_path, append, allow_lossy, wait, staged, header=True) -> dict:
+           report_path, dictionary_path, append, allow_lossy, wait, staged, header=True,
+           share_schema=False) -> dict:
     """``build_database`` once its paths are checked and its destination locked; outputs go to ``staged``."""
     postgresql = is_postgresql(database)
     if chunk_rows and not postgresql and not append and _can_stream(paths, options, join_options, plan_path):
@@ -217,7 +222,7 @@ def _build(paths: list[str], database: str, *, options, limits, formats, encodin
     if postgresql:
         integrity = write_postgresql(plan, built.rows, order, database, schema=schema or DEFAULT_SCHEMA,
                                      replace=replace, verify=verifier(plan, built, allow_lossy, locate),
-                                     wait=wait)
+                                     wait=wait, share_schema=share_schema)
         result = manifest(plan, built, display_url(database), integrity, joined)
         result["schema"] = integrity["schema"]
     else:
