@@ -16,6 +16,7 @@ forbidden merge): its entity table is then inferred for it alone.
 from __future__ import annotations
 
 import json
+import os
 import re
 import tomllib
 from pathlib import Path
@@ -127,8 +128,13 @@ def _fits(value, spec: str) -> bool:
 def _wrong(text: str, where: str, expected: str, value) -> None:
     key = where.rsplit(".", 1)[-1].split("[")[0]
     shown = _v(value) if isinstance(value, (str, int, float, bool, list)) else type(value).__name__
-    hint = ("names are lower case letters, digits and _ (not first), at most 60 characters"
-            if expected == NAME else f"write {key} = <{expected}>")
+    hint = f"write {key} = <{expected}>"
+    if expected == NAME:  # the name the data would have given it, as the suggestion
+        from .names import sql_name
+
+        cleaned = sql_name(value) if isinstance(value, str) else ""
+        hint = ("names are lower case letters, digits and _ (not first), at most 60 characters"
+                + (f", as {key} = {_v(cleaned)} would be" if cleaned else ""))
     _fail(text, f"{where}: expected {expected}, got {shown[:60]}", hint, f"{key} = {shown}", f"{key} =")
 
 
@@ -287,10 +293,22 @@ def _line_of(text: str, *needles: str, after: str | None = None) -> int | None:
     return None
 
 
+class PlanText(str):
+    """A plan file's text that knows the file it was read from, so that every refusal can name it."""
+
+    path: str = ""
+
+    @classmethod
+    def of(cls, text: str, path: str) -> "PlanText":
+        out = cls(text)
+        out.path = os.fspath(path)
+        return out
+
+
 def _fail(text: str, message: str, hint: str, *needles: str, after: str | None = None):
     line = _line_of(text, *needles, after=after) if needles else None
-    where = f"line {line}: " if line else ""
-    raise InvalidPlan(f"plan {where}{message}\n  hint: {hint}")
+    where = " ".join(filter(None, [getattr(text, "path", ""), f"line {line}" if line else ""]))
+    raise InvalidPlan(f"plan {where + ': ' if where else ''}{message}\n  hint: {hint}")
 
 
 def _maps(text: str, items, where: str) -> list[FieldMap]:
@@ -314,7 +332,7 @@ def _maps(text: str, items, where: str) -> list[FieldMap]:
 def read_plan(path: str) -> tuple[dict, str]:
     """The raw plan document and its text; TOML syntax errors name their line."""
     try:
-        text = Path(path).read_text(encoding="utf-8")
+        text = PlanText.of(Path(path).read_text(encoding="utf-8"), path)
     except UnicodeDecodeError as exc:
         raise InvalidPlan(f"plan {path}: not UTF-8 text (byte {exc.start}: {exc.object[exc.start:exc.start + 1]!r})"
                           "\n  hint: a plan file is UTF-8 TOML; save it as UTF-8") from None

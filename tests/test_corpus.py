@@ -222,14 +222,29 @@ def inputs_for(case_dir: Path, expect: dict, work: Path) -> list[str]:
         target = renamed.get(name, name)
         shutil.copyfile(case_dir / name, work / target)
         out.append(target)
+    for name in expect.get("aside", []):  # files an option names (a plan), not inputs
+        shutil.copyfile(case_dir / name, work / name)
     return out
+
+
+def check_inputs_unchanged(case_dir: Path, expect: dict, work: Path) -> None:
+    """No output replaced an input or a file an option read: each is byte for byte its case file."""
+    if "generate" in expect:
+        return
+    renamed = expect.get("rename", {})
+    for name in (expect.get("files") or sorted(p.name for p in case_dir.iterdir()
+                                               if p.name != "expect.json" and p.is_file())) + expect.get("aside", []):
+        target = work / renamed.get(name, name)
+        assert target.read_bytes() == (case_dir / name).read_bytes(), f"{target.name} was changed by the run"
 
 
 # --- checks ---------------------------------------------------------------------------------
 
 def one_line_message(stderr: str) -> str:
+    """The one ``normalise: ...`` line of a refusal (a ``  hint: ...`` line may follow it)."""
     lines = [line for line in stderr.splitlines() if line.strip()]
-    assert len(lines) == 1 and lines[0].startswith("normalise: "), f"expected one message line: {stderr!r}"
+    hints = lines[1:] == [] or (len(lines) == 2 and lines[1].startswith("  hint: "))
+    assert lines and lines[0].startswith("normalise: ") and hints, f"expected one message line: {stderr!r}"
     return lines[0]
 
 
@@ -368,6 +383,7 @@ def test_corpus_case(case, tmp_path):
     assert peak_mb < expect.get("max_rss_mb", MAX_RSS_MB), f"peak memory {peak_mb:.0f} MiB"
     check_survey(results, expect)
     check_build(results, expect, work, inputs)
+    check_inputs_unchanged(case_dir, expect, work)
     marker = expect.get("marker")
     if marker:  # a hostile cell would have created it, in the folder the commands ran in or here
         for folder in (work, case_dir, Path.cwd(), ROOT):
