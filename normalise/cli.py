@@ -248,8 +248,13 @@ def _inference_options(p) -> None:
 
 def cmd_report(args) -> int:
     from .report_html import report_existing
+    from .write import DestinationError, destination, display_url
 
-    written = report_existing(args.database, args.manifest, report_path=args.output, dictionary_path=args.dictionary)
+    kind, database = destination(args.database)
+    if kind == "postgresql":
+        raise DestinationError(f"normalise report {display_url(database)}: the report is read from a SQLite "
+                               "database (the report of a PostgreSQL build is not available)")
+    written = report_existing(database, args.manifest, report_path=args.output, dictionary_path=args.dictionary)
     for what, path in written.items():
         print(f"wrote {what} {path}")
     return 0

@@ -24,7 +24,7 @@ from .report import manifest
 from .schema import POSTGRESQL_MAX_COLUMNS
 from .views import add_pick
 from .write import SqliteWriter
-from .write import (DEFAULT_SCHEMA, display_url, is_postgresql, postgresql_run_lock, write_parquet, write_postgresql,
+from .write import (DEFAULT_SCHEMA, destination, display_url, is_postgresql, postgresql_run_lock, write_parquet, write_postgresql,
                     write_sqlite)
 
 
@@ -132,7 +132,8 @@ def build_database(paths: list[str], database: str, *, options: Options | None =
     """
     delimiter = check_values(encoding_name=encoding, delimiter_char=delimiter, limits=limits, chunk_rows=chunk_rows,
                              options=options, join_options=join_options)
-    postgresql = is_postgresql(database)
+    kind, database = destination(database)
+    postgresql = kind == "postgresql"
     if (schema is not None or share_schema) and not postgresql:
         from .errors import UsageError
         option = "--schema" if schema is not None else "--share-schema"
