@@ -327,7 +327,7 @@ def _version() -> str:
     from importlib.metadata import PackageNotFoundError, version
 
     try:
-        return version("normalise")
+        return version("normalise-exports")
     except PackageNotFoundError:  # run from a checkout that was never installed
         return getattr(sys.modules[__package__], "__version__", "(version unknown: not installed)")
 
