@@ -667,7 +667,7 @@ def postgresql_run_lock(database: str, schema: str, wait: float | None):
     try:
         import psycopg
     except ImportError:
-        raise DestinationError("writing PostgreSQL needs psycopg 3: pip install 'normalise[postgresql]'") from None
+        raise DestinationError("writing PostgreSQL needs psycopg 3: pip install 'normalise-exports[postgresql]'") from None
     url = postgresql_url(database)
     shown = display_url(database)
     key = _pg_lock_key(b"normalise run ", schema)
@@ -718,7 +718,7 @@ def write_postgresql(plan: Plan, rows: dict[str, list[tuple]], order: list[str],
         from psycopg import errors as pg_errors
         from psycopg import sql
     except ImportError:
-        raise DestinationError("writing PostgreSQL needs psycopg 3: pip install 'normalise[postgresql]'") from None
+        raise DestinationError("writing PostgreSQL needs psycopg 3: pip install 'normalise-exports[postgresql]'") from None
 
     url = postgresql_url(database)
     shown = display_url(database)
