@@ -19,6 +19,7 @@ import json
 import os
 import re
 import tomllib
+from difflib import get_close_matches
 from pathlib import Path
 
 from .errors import NormaliseError
@@ -77,9 +78,11 @@ def _shape(value, spec, where: str, text: str) -> None:
                   *_needles(value))
         for key, inner in value.items():
             if key not in spec or key == REQUIRED:
-                _fail(text, f"{where or 'the plan'}: unknown key {key!r}",
-                      f"use one of: {', '.join(k for k in spec if k != REQUIRED)}; or write a fresh plan with "
-                      "`normalise plan`",
+                known = [k for k in spec if k != REQUIRED]
+                close = get_close_matches(str(key), known, n=1, cutoff=0.6)
+                _fail(text, f"{where or 'the plan'}: unknown key {key!r}"
+                      + (f" (did you mean {close[0]!r}?)" if close else ""),
+                      f"use one of: {', '.join(known)}; or write a fresh plan with `normalise plan`",
                       f"{key} =", f'"{key}"', f"{key}")
             _shape(inner, spec[key], f"{where}.{key}" if where else key, text)
     elif isinstance(spec, list):

@@ -57,6 +57,7 @@ def refused(planned, tmp_path, old: str, new: str, count: int = 1) -> str:
     ('name = "opened_by_desk"', 'name = "ticket_sk"', ["two columns named 'ticket_sk'"]),
     ('table = "ticket_watchers"', 'table = "t\\"; DROP TABLE name_map; --"', ["expected name", "lower case"]),
     ('duplicates = "first"', 'duplicates = "first"\ncolour = "red"', ["unknown key 'colour'", "use one of"]),
+    ('natural_key = ', 'natual_key = ', ["unknown key 'natual_key'", "did you mean 'natural_key'?"]),
     ('type = "text"', "type = 5", ["type", "unknown type 5"]),
 ])
 def test_a_plan_that_cannot_work_is_refused_with_its_line(planned, tmp_path, old, new, words):
