@@ -22,7 +22,8 @@ exit codes:
   1  the build stopped on the data or the machine: the lossless proof failed, the counts did not
      reconcile, repeated keys were refused (--duplicates refuse), a join broke its --cardinality, a table
      would be wider than SQLite allows, a file's content cannot be read; the disk is full, the database
-     is locked by another program or cannot be written, the PostgreSQL server is unreachable or refused
+     is locked by another program or cannot be written, the PostgreSQL server is unreachable or refused;
+     with --strict, also when rows were rejected or cells quarantined (the outputs are written)
   2  usage: an unknown option or a value it cannot take, an option naming a file, column or field the
      inputs do not have, a plan file that cannot be read or does not fit the data, an input that is not
      there, a destination that exists (without --replace or --append) or is not a usable database
@@ -162,7 +163,20 @@ def cmd_build(args) -> int:
         for what, path in (("report", args.report), ("data dictionary", args.dictionary)):
             if path:
                 print(f"  {what}: {path}")
-    return 0 if result["integrity"]["reconciled"] else 1
+    if not result["integrity"]["reconciled"]:
+        return EXIT_DATA
+    return _strict(result) if args.strict else 0
+
+
+def _strict(result: dict) -> int:
+    """--strict: exit 1 (the outputs written, to look into) when any row was rejected or cell quarantined."""
+    rejected = sum(i["rows_rejected"] for i in result["inputs"])
+    quarantined = result["cells_quarantined"]
+    if not rejected and not quarantined:
+        return 0
+    print(f"normalise: --strict: {rejected:,} rows rejected and {quarantined:,} cells quarantined; the database "
+          f"was written, see rejected_rows and quarantined_cells in {result['database']}", file=sys.stderr)
+    return EXIT_DATA
 
 
 def _join_options(args):
@@ -282,6 +296,8 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--replace", action="store_true",
                    help="overwrite an existing database (PostgreSQL: drop the tables and views an earlier run made "
                         "in the schema, as its normalise_register lists them; nothing else)")
+    p.add_argument("--strict", action="store_true",
+                   help="exit 1 when any row was rejected or any cell quarantined (the outputs are still written)")
     p.add_argument("--share-schema", action="store_true",
                    help="PostgreSQL only: write into a schema that also holds tables normalise did not make, "
                         "keeping them (refused when a name is taken)")

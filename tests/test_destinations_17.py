@@ -63,3 +63,16 @@ def test_report_of_a_postgresql_url_is_refused_with_the_password_masked(folder, 
     err = capsys.readouterr().err
     assert "s3cret-41d" not in err and "ann:***@" in err and err.count("\n") == 1
     assert not os.path.exists(folder / "r.html")
+
+
+def test_strict_exits_1_when_rows_are_rejected_and_keeps_the_outputs(folder, capsys):
+    """--strict: a file of which some rows cannot be read (a row with more cells than the header, RFC 4180's
+    "each line should contain the same number of fields") ends with exit 1, the database written."""
+    (folder / "ragged.csv").write_text("key,title\nb1,Tide tables\nb2,Night sky,extra,cells\n", encoding="utf-8")
+    assert main(["build", "ragged.csv", "--db", "ragged.db", "--quiet"]) == 0
+    assert main(["build", "ragged.csv", "--db", "strict.db", "--quiet", "--strict"]) == 1
+    err = capsys.readouterr().err
+    assert "--strict: 1 rows rejected" in err and err.count("\n") == 1
+    with sqlite3.connect(folder / "strict.db") as con:
+        assert con.execute("SELECT count(*) FROM rejected_rows").fetchone()[0] == 1
+    assert main(["build", "books.csv", "--db", "clean.db", "--quiet", "--strict"]) == 0
