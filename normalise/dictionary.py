@@ -157,8 +157,9 @@ def _column_meaning(table: dict, column: dict, tables: dict) -> tuple[str, str]:
         keys.append("PK")
         how = {"record": "the line on which the record starts in its export",
                "record_part": "the line on which the record starts in its export (its record table's key)",
-               "entity": "a hash of the natural key", "bridge": "a hash of the owner's key and the list position",
-               "child": "a hash of the owner's key and the list position"}.get(role) if not table["inferred"] else None
+               "entity": "a 53-bit hash of the natural key",
+               "bridge": "the owner's key times 2^24 plus the list position (a 53-bit hash of them when larger)",
+               "child": "the owner's key times 2^24 plus the list position (a 53-bit hash of them when larger)"}.get(role) if not table["inferred"] else None
         meaning = ("Surrogate key made by normalise" + (f" from {how}" if how else "")
                    + ": the same for the same input on every build; use it to join, not as business data.")
     for f in fks:
@@ -279,7 +280,9 @@ def render_dictionary(model: dict) -> str:
            "",
            "Keys: **PK** primary key (a surrogate key made by normalise), **FK** foreign key (the table and column it "
            "refers to), **NK** natural key (the identifier from the input). Join a table to another through its FK "
-           "columns. Row counts are those of the database when this file was made.", "",
+           "columns. Every surrogate key is at most 2^53 - 1, so a client that reads JSON numbers as doubles "
+           "(JavaScript, spreadsheets) gets it exactly. Row counts are those of the database when this file was "
+           "made.", "",
            "## Contents", "", "| table | kind | rows | from the input |", "| --- | --- | ---: | --- |"]
     for t in model["tables"]:
         kind = plain(ROLE_WORDS.get(t["role"], t["role"] or ""))
