@@ -21,6 +21,7 @@ from .prove import LossDetected, loss_message, prove, sqlite_fetch
 from .planfile import join_settings, plan_from_doc, plan_to_toml, read_plan
 from .read import iter_chunks, read
 from .report import manifest
+from .result import Built
 from .schema import POSTGRESQL_MAX_COLUMNS
 from .views import add_pick
 from .write import SqliteWriter
@@ -83,8 +84,9 @@ def prepare(paths: list[str], *, options: Options | None = None, limits: Limits 
     return plan, exports, decoded, joined
 
 
-def make_plan(paths: list[str], output: str | None = None, **kwargs) -> str:
+def make_plan(paths: str | os.PathLike | list[str], output: str | None = None, **kwargs) -> str:
     """Infer the plan of the exports and return it (and write it to ``output``) as TOML."""
+    paths = path_list(paths)
     if output:
         check_paths([("input", p) for p in paths] + [("--plan", kwargs.get("plan_path"))], [("-o", output)])
     plan, _, _, joined = prepare(paths, **kwargs)
@@ -98,8 +100,15 @@ def make_plan(paths: list[str], output: str | None = None, **kwargs) -> str:
     return text
 
 
+def path_list(paths) -> list[str]:
+    """One path (text or ``os.PathLike``) or many, as a list of texts (a single text is never its characters)."""
+    if isinstance(paths, (str, os.PathLike)):
+        return [os.fspath(paths)]
+    return [os.fspath(p) for p in paths]
+
+
 @paused_gc()
-def build_database(paths: list[str], database: str, *, options: Options | None = None,
+def build_database(paths: str | os.PathLike | list[str], database: str | os.PathLike, *, options: Options | None = None,
                    limits: Limits = Limits(), formats: dict | None = None, encoding: str | None = None,
                    delimiter: str | None = None, replace: bool = False, join_options: JoinOptions | None = None,
                    manifest_path: str | None = None, picks: list[str] | None = None,
@@ -107,8 +116,9 @@ def build_database(paths: list[str], database: str, *, options: Options | None =
                    schema: str | None = None, chunk_rows: int | None = None, progress=None,
                    report_path: str | None = None, dictionary_path: str | None = None,
                    append: bool = False, allow_lossy: bool = False, wait: float = 0.0, header: bool = True,
-                   share_schema: bool = False) -> dict:
-    """Run every pass on the exports and write a SQLite database; returns the manifest.
+                   share_schema: bool = False) -> Built:
+    """Run every pass on the exports and write a SQLite database; returns the manifest as a ``Built``
+    (a dict, its fields also attributes, with ``frame(name)`` giving any table or view as a DataFrame).
 
     ``database`` may instead be a ``postgresql+psycopg://`` URL: the tables then go into
     ``schema`` (default ``normalise``) of that database, in one transaction; a schema holding tables
@@ -130,6 +140,7 @@ def build_database(paths: list[str], database: str, *, options: Options | None =
         >>> [(t["name"], t["role"], t["rows"]) for t in m["tables"] if t["rows"]]
         [('person', 'entity', 1), ('books', 'record', 1), ('book_people', 'bridge', 1), ('name_map', 'names', 5)]
     """
+    paths = path_list(paths)
     delimiter = check_values(encoding_name=encoding, delimiter_char=delimiter, limits=limits, chunk_rows=chunk_rows,
                              options=options, join_options=join_options)
     kind, database = destination(database)
@@ -166,12 +177,12 @@ def build_database(paths: list[str], database: str, *, options: Options | None =
         with postgresql_run_lock(database, schema or DEFAULT_SCHEMA, wait), staged_outputs() as staged:
             result = _build(paths, database, staged=staged, **kwargs)
             staged.commit()
-        return result
+        return Built(result, database, schema or DEFAULT_SCHEMA)
     # the lock is taken before anything of the destination is read (--append's state, whether it exists)
     with destination_lock(database, wait), staged_outputs() as staged:
         result = _build(paths, database, staged=staged, **kwargs)
         staged.commit()
-    return result
+    return Built(result, database)
 
 
 def _build(paths: list[str], database: str, *, options, limits, formats, encoding, delimiter, replace,

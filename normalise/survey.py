@@ -61,7 +61,7 @@ def survey_column(export: Export, column: DecodedColumn) -> dict:
     return entry
 
 
-def survey(paths: list[str], *, limits: Limits = Limits(), formats: dict | None = None,
+def survey(paths, *, limits: Limits = Limits(), formats: dict | None = None,
            encoding: str | None = None, delimiter: str | None = None, header: bool = True) -> dict:
     """Survey exports; returns ``{"files": [{"path", "rows", "columns": [...]}, ...]}``.
 
@@ -73,6 +73,9 @@ def survey(paths: list[str], *, limits: Limits = Limits(), formats: dict | None 
         >>> col["encoding"], col["shape"], col["identity_candidates"][0]["field"]
         ('python-literal', 'object-list', 'id')
     """
+    if isinstance(paths, (str, os.PathLike)):  # one path (never its characters) or many
+        paths = [paths]
+    paths = [os.fspath(p) for p in paths]
     delimiter = check_values(encoding_name=encoding, delimiter_char=delimiter, limits=limits)
     files = []
     surveyed = []
