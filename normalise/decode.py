@@ -116,7 +116,6 @@ _SIMPLE_STRING = re.compile(r"""('[^'\x00\ud800-\udfff]*'|"[^"\x00\ud800-\udfff]
 # What may stand between string tokens in a cell the bulk route accepts.
 _SIMPLE_SKELETON = re.compile(r"(?:[ \t\r\n\[\]{},:0-9.eE+\-]++|None|True|False)*+")
 _WORDS = (("None", "null"), ("True", "true"), ("False", "false"))
-_UNSET = object()
 
 
 def _separator_absent_from(text: str) -> str | None:

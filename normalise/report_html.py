@@ -9,9 +9,9 @@ conflicts, the most frequent entities and the distribution of list lengths.
 Everything is read back from the database itself: the catalog
 (``sqlite_master``, ``PRAGMA table_info``, ``PRAGMA foreign_key_list``,
 ``PRAGMA index_list``), ``count(*)`` of each table and the bookkeeping tables.
-The run's manifest (returned by the build, given as a file, or stored in a
-``run_manifest`` table when there is one) adds what the database cannot say:
-roles, where each table and column came from in the input, and the rows read.
+The run's manifest (returned by the build, or given as a file) adds what the
+database cannot say: roles, where each table and column came from in the input,
+and the rows read.
 Every number is labelled with the table (or the manifest) it comes from.
 
 The file has no script and loads nothing: inline CSS and inline SVG only, and a
@@ -38,7 +38,6 @@ META_TABLES = {"rejected_rows": "rejected", "set_aside_rows": "set_aside", "unma
                "quarantined_cells": "quarantine", "attribute_variants": "variants", "name_map": "names",
                "value_traces": "traces"}
 META_ROLES = set(META_TABLES.values())
-RUN_MANIFEST = "run_manifest"  # optional: one row, the manifest as JSON text
 HEAD_ROWS = 50  # rows of each bookkeeping table shown
 TOP_ENTITIES = 15
 _SQL_TYPES = {"BIGINT": "integer", "INTEGER": "integer", "INT": "integer", "FLOAT": "real", "REAL": "real",
@@ -109,37 +108,17 @@ def connect(database) -> sqlite3.Connection:
     return conn
 
 
-def stored_manifest(conn: sqlite3.Connection) -> dict | None:
-    """The manifest kept in a ``run_manifest`` table (one row, JSON text), when the database has one."""
-    if not conn.execute("SELECT 1 FROM sqlite_master WHERE type = 'table' AND name = ?", (RUN_MANIFEST,)).fetchone():
-        return None
-    for row in conn.execute(f"SELECT * FROM {_q(RUN_MANIFEST)} LIMIT 1"):
-        for value in row:
-            if isinstance(value, str):
-                try:
-                    doc = json.loads(value)
-                except ValueError:
-                    continue
-                if isinstance(doc, dict) and isinstance(doc.get("tables"), list):
-                    return doc
-    return None
-
-
 def read_database(database, manifest: dict | None = None, *, manifest_origin: str | None = None,
                   head_rows: int = HEAD_ROWS, shown_as=None) -> dict:
     """Everything the report and the data dictionary show, read from a SQLite database.
 
     ``manifest`` (the build's) adds roles, sources and the rows read; without it
-    the ``run_manifest`` table is used when present, else the roles are inferred
-    from the keys. Returns a plain dict (the *model*). ``shown_as`` is the database's name in the
+    the roles are inferred from the keys. Returns a plain dict (the *model*). ``shown_as`` is the database's name in the
     report when it is read from elsewhere (a build's temporary file, before it is moved into place).
     """
     conn = connect(database)
     try:
         origin = manifest_origin or ("the build" if manifest is not None else None)
-        if manifest is None:
-            manifest = stored_manifest(conn)
-            origin = f"the {RUN_MANIFEST} table" if manifest is not None else None
         model = _catalog(conn, manifest)
         model["database"] = str(shown_as or database)
         model["manifest"] = manifest
@@ -158,7 +137,7 @@ def _catalog(conn: sqlite3.Connection, manifest: dict | None) -> dict:
                            "AND name NOT LIKE 'sqlite\\_%' ESCAPE '\\' ORDER BY rowid").fetchall()
     tables, views, notes = [], [], []
     for kind, name, sql in objects:
-        if kind == "table" and name != RUN_MANIFEST:
+        if kind == "table":
             tables.append(_table(conn, name, known.get(name)))
         elif kind == "view":
             cols = [{"name": r[1], "type": r[2] or ""} for r in conn.execute(f"PRAGMA table_info({_q(name)})")]
@@ -1164,8 +1143,8 @@ def _reconciliation_section(model: dict) -> str:
                          + _table_html(["main file", "joined file", "on", "how", "#keys only in main",
                                         "#keys only in joined", "#duplicates set aside", "examples"], rows))
     else:
-        parts.append('<p class="note">The database does not record how many rows were read (no manifest was given '
-                     "and it has no run_manifest table); below is what the database holds per input file.</p>")
+        parts.append('<p class="note">The database does not record how many rows were read (no manifest was given); '
+                     "below is what the database holds per input file.</p>")
         rows = []
         for file in sorted(by_file, key=str):
             f = by_file[file]
