@@ -13,6 +13,7 @@ import warnings
 from . import option_values as values
 from .decode import parse_decode_option
 from .errors import EXIT_DATA, EXIT_USAGE, LooksHeaderless, NormaliseError
+from .escapes import escape_surrogates
 from .literal import DEFAULT_MAX_CELL_CHARS, DEFAULT_MAX_DEPTH, Limits
 from .option_values import as_argument
 
@@ -107,26 +108,10 @@ def cmd_survey(args) -> int:
     result = survey(args.files, limits=_limits(args), formats=_formats(args),
                     encoding=args.encoding, delimiter=_delimiter(args), header=not args.no_header)
     if args.json:
-        print(_escape_surrogates(json.dumps(result, indent=2, ensure_ascii=False, default=str)))
+        print(escape_surrogates(json.dumps(result, indent=2, ensure_ascii=False, default=str)))
     else:
-        print(_escape_surrogates(render(result)))
+        print(escape_surrogates(render(result)))
     return 0
-
-
-def _escape_surrogates(text: str) -> str:
-    """Write lone surrogates (undecodable bytes kept by the reader) as ``\\udcXX``.
-
-    A strict UTF-8 stdout cannot encode them; the escape is valid inside a JSON
-    string and readable in the plain report.
-
-    Example:
-        >>> _escape_surrogates('"caf\\udce9"')
-        '"caf\\\\udce9"'
-    """
-    return _SURROGATE.sub(lambda m: f"\\u{ord(m.group()):04x}", text)
-
-
-_SURROGATE = re.compile("[\ud800-\udfff]")
 
 
 def _pairs(specs: list[str], option: str) -> dict:

@@ -12,8 +12,9 @@ from __future__ import annotations
 
 import re
 
+from .escapes import clean
 from .names import singular
-from .report_html import META_ROLES, clean, display_column, owner_fk, source_label
+from .report_html import META_ROLES, display_column, owner_fk, source_label
 
 TYPE_WORDS = {
     "integer": "integer",

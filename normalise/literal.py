@@ -16,6 +16,8 @@ import re
 from dataclasses import dataclass
 from itertools import accumulate
 
+from .escapes import SURROGATE
+
 # CPython's tokenizer refuses more than 200 nested brackets ("too many nested
 # parentheses"); json.loads recurses in C and hits RecursionError near 1,000.
 # The tool's own limit is checked first, so neither parser is ever pushed there.
@@ -48,7 +50,6 @@ _STRING_LITERALS = re.compile(r"""'''(?:[^'\\]|\\.|'(?!''))*'''|\"\"\"(?:[^"\\]|
                               r"""'(?:[^'\\\n]|\\.)*'|"(?:[^"\\\n]|\\.)*"|#[^\r\n]*""", re.S)
 _BRACKETS = re.compile(r"[\[\]{}()]")
 _OPENERS = frozenset("[{(")
-_SURROGATE = re.compile("[\ud800-\udfff]")
 
 
 def nesting_depth(text: str) -> int:
@@ -73,7 +74,7 @@ def lone_surrogate_in(value) -> bool:
     while stack:
         v = stack.pop()
         if isinstance(v, str):
-            if not v.isascii() and _SURROGATE.search(v):
+            if not v.isascii() and SURROGATE.search(v):
                 return True
         elif isinstance(v, dict):
             stack.extend(v.keys())
@@ -139,7 +140,7 @@ def check_limits(text: str, limits: Limits) -> None:
             raise CellError(f"nesting depth {depth} exceeds the limit of {limits.max_depth} "
                             f"(--max-depth)", 1)
     if not text.isascii():
-        bad = _SURROGATE.search(text)
+        bad = SURROGATE.search(text)
         if bad:
             raise CellError("bytes that are not valid in the file's encoding "
                             "(try --encoding)", bad.start() + 1)

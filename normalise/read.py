@@ -26,6 +26,7 @@ from pathlib import Path
 from warnings import warn
 
 from .errors import LooksHeaderless, MissingInput, UnreadableFile
+from .escapes import printable
 
 # The csv module refuses fields above 128 KiB by default; cell size is a
 # decoding limit with its own message (see decode.Limits), not a reader crash.
@@ -481,27 +482,10 @@ def _quote_left_open(raw: str, delimiter: str) -> bool:
     return rows[-1] != [sentinel]
 
 
-def printable_name(name: str) -> str:
-    """A name with bytes the encoding could not read (lone surrogates) written as ``\\xNN`` escapes.
-
-    Names become column names and manifest entries, which must be text.
-
-    Example:
-        >>> printable_name("na\\udcffme"), printable_name("\\ud800"), printable_name("name")
-        ('na\\\\xffme', '\\\\ud800', 'name')
-    """
-    if name.isascii() or not any("\ud800" <= ch <= "\udfff" for ch in name):
-        return name
-    try:
-        return name.encode("utf-8", "surrogateescape").decode("utf-8", "backslashreplace")
-    except UnicodeEncodeError:  # a surrogate from a JSON escape, not from an undecodable byte
-        return name.encode("utf-8", "backslashreplace").decode("utf-8")
-
-
 def _printable_names(header: list[str]) -> tuple[list[str], list[str]]:
     out, warnings = [], []
     for i, name in enumerate(header, start=1):
-        shown = printable_name(name)
+        shown = printable(name)  # names become column names and manifest entries: text
         if shown != name:
             warnings.append(f"header: column {i}'s name holds bytes that are not valid in the file's "
                             f"encoding; named {shown!r} (try --encoding)")
@@ -534,7 +518,7 @@ def _read_json_lines(path: str, encoding: str) -> Export:
                                             f"expected a JSON object, got {type(obj).__name__}"))
                 continue
             if not all(key.isascii() for key in obj):  # keys with undecodable bytes or lone surrogates
-                obj = {printable_name(key): value for key, value in obj.items()}
+                obj = {printable(key): value for key, value in obj.items()}
             for key in obj:
                 if key not in cells:
                     columns.append(key)

@@ -24,7 +24,6 @@ from __future__ import annotations
 import html
 import json
 import math
-import re
 import sqlite3
 from collections import defaultdict
 from dataclasses import dataclass, field
@@ -33,6 +32,7 @@ from pathlib import Path
 import networkx as nx
 from .names import quote_name as _q
 from .errors import NormaliseError
+from .escapes import clean
 
 META_TABLES = {"rejected_rows": "rejected", "set_aside_rows": "set_aside", "unmatched_rows": "unmatched",
                "quarantined_cells": "quarantine", "attribute_variants": "variants", "name_map": "names",
@@ -49,21 +49,6 @@ _DISPLAY_NAMES = ("name", "display_name", "full_name", "title", "label")  # as n
 
 
 # --- text that is safe to show --------------------------------------------------------------------
-
-_UNPRINTABLE = re.compile("[\x00-\x08\x0b\x0c\x0e-\x1f\x7f-\x9f\ud800-\udfff\ufffe\uffff]")
-
-
-def clean(value) -> str:
-    """Text fit to print: control characters and lone surrogates written as escapes.
-
-    Example:
-        >>> clean("a\\x00b"), clean(None), clean("caf\\udce9")
-        ('a\\\\x00b', '', 'caf\\\\udce9')
-    """
-    text = "" if value is None else value if isinstance(value, str) else str(value)
-    return _UNPRINTABLE.sub(lambda m: f"\\x{ord(m.group()):02x}" if ord(m.group()) < 0x100
-                            else f"\\u{ord(m.group()):04x}", text)
-
 
 def shorten(text: str, limit: int | None) -> str:
     if limit and len(text) > limit:

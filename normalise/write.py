@@ -11,13 +11,13 @@ inserted row).
 from __future__ import annotations
 
 import os
-import re
 from pathlib import Path
 
 import sqlalchemy as sa
 from sqlalchemy import event
 
 from .errors import NormaliseError
+from .escapes import SURROGATE as _SURROGATE, printable
 from .plan import Plan
 from .views import view_sql
 from .names import quote_name as _quote
@@ -33,21 +33,6 @@ TYPES = {
 
 
 META_ROLES = ("rejected", "set_aside", "unmatched", "quarantine", "variants", "names", "traces")
-
-
-def printable(value):
-    """Text with undecodable bytes (kept as lone surrogates) written as \\xNN escapes; other values as they are.
-
-    Example:
-        >>> printable("An\\udce9"), printable(7)
-        ('An\\\\xe9', 7)
-    """
-    if not isinstance(value, str):
-        return value
-    try:
-        return value.encode("utf-8", "surrogateescape").decode("utf-8", "backslashreplace")
-    except UnicodeEncodeError:
-        return value.encode("utf-8", "backslashreplace").decode("utf-8")
 
 
 def remove_stale_partials(destination: str) -> list[str]:
@@ -382,7 +367,6 @@ def write_parquet(database: str, plan: Plan, directory: str) -> list[str]:
 DEFAULT_SCHEMA = "normalise"
 PG_MAX_IDENTIFIER = 63  # bytes: NAMEDATALEN - 1; PostgreSQL truncates longer names with only a notice
 _PG_DRIVERS = {"postgresql", "postgres", "postgresql+psycopg"}
-_SURROGATE = re.compile("[\ud800-\udfff]")
 _PG_DROP = {"v": "VIEW", "m": "MATERIALIZED VIEW", "f": "FOREIGN TABLE", "r": "TABLE", "p": "TABLE"}
 
 
