@@ -14,7 +14,7 @@ import sqlite3
 
 from .build import canonical, value_text
 from .errors import NormaliseError
-from .plan import Plan
+from .plan import META_ROLES, Plan
 from .names import quote_name as _q
 
 
@@ -58,7 +58,7 @@ def read_state(database: str, plan: Plan) -> dict:
                 if len(t.columns) > 2:  # a value list whose values name records: which value rows do
                     state.setdefault("value_links", {})[t.name] = dict(
                         con.execute(f"SELECT {_q(t.columns[0].name)}, {_q(t.columns[2].name)} FROM {_q(t.name)}"))
-            if t.role in ("rejected", "set_aside", "unmatched", "quarantine", "variants", "names", "traces"):
+            if t.role in META_ROLES:
                 state["meta_offset"][t.name] = con.execute(
                     f"SELECT coalesce(max({_q(t.primary_key[0])}), 0) FROM {_q(t.name)}").fetchone()[0]
         return state

@@ -14,7 +14,8 @@ import re
 
 from .escapes import clean
 from .names import singular
-from .report_html import META_ROLES, display_column, owner_fk, source_label
+from .plan import META_ROLES
+from .report_html import display_column, owner_fk, source_label
 
 TYPE_WORDS = {
     "integer": "integer",

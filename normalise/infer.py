@@ -18,6 +18,7 @@ from dataclasses import dataclass
 
 from .exact import ABSENT as _ABSENT, get
 from .names import Namer, singular, sql_name
+from .plan import META_TABLES
 
 DEFAULT_VIOLATION_THRESHOLD = 0.05
 _ID_NAME = re.compile(r"(?i)^(id|key|code|uuid|guid|slug)$|(_id|_key|_code|_uuid|Id|ID|_no|_number)$")
@@ -724,9 +725,6 @@ def _keyed_column(nested, values: list, options: "Options", file: str) -> list:
     return [keyed_items(v, key, value_field) if isinstance(v, dict) else None for v in values]
 
 
-META_TABLES = ("rejected_rows", "set_aside_rows", "unmatched_rows", "quarantined_cells", "attribute_variants",
-               "value_traces",
-               "name_map")
 _GENERIC_IDENTITY = frozenset(["id", "key", "code", "uuid", "guid", "slug"])
 
 

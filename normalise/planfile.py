@@ -21,12 +21,11 @@ import tomllib
 from pathlib import Path
 
 from .errors import NormaliseError
-from .plan import EntityGroup, FieldMap, NestedColumn, Plan, RecordSource
+from .plan import META_TABLES, TYPES, EntityGroup, FieldMap, NestedColumn, Plan, RecordSource
 from .views import Pick, View
 
 PLAN_VERSION = 1
 KINDS = ("entity-list", "child-list", "value-list", "object-columns", "object-child")
-TYPES = ("integer", "real", "text", "boolean", "date", "timestamp")
 
 
 class InvalidPlan(NormaliseError):
@@ -184,7 +183,7 @@ def plan_to_toml(plan: Plan, joins: dict | None = None) -> str:
     """The plan as readable, commented TOML."""
     out = ["# normalise plan: the relational model of these exports, as decisions.",
            "# Edit and replay with: normalise build FILE... --plan THIS_FILE --db PATH",
-           "# Types: integer, real, text, boolean, date, timestamp.", "",
+           f"# Types: {', '.join(TYPES)}.", "",
            f"version = {PLAN_VERSION}",
            "# share of functional-dependency violations tolerated when deciding entity attributes",
            f"violation_threshold = {_v(plan.violation_threshold)}", ""]
@@ -503,8 +502,6 @@ def plan_from_doc(doc: dict, text: str, exports: list, decoded: dict) -> Plan:
 def _check_names(text: str, plan: Plan) -> None:
     """Table names unique (and none a bookkeeping table's), column names unique within a table (and none a key
     the tool gives the table itself), so every statement the plan makes can run."""
-    from .build import META_TABLES
-
     seen: set = set()
     for t in plan.tables:
         if t.name in seen:

@@ -33,11 +33,8 @@ import networkx as nx
 from .names import quote_name as _q
 from .errors import NormaliseError
 from .escapes import clean
+from .plan import META_ROLES, META_TABLES
 
-META_TABLES = {"rejected_rows": "rejected", "set_aside_rows": "set_aside", "unmatched_rows": "unmatched",
-               "quarantined_cells": "quarantine", "attribute_variants": "variants", "name_map": "names",
-               "value_traces": "traces"}
-META_ROLES = set(META_TABLES.values())
 HEAD_ROWS = 50  # rows of each bookkeeping table shown
 TOP_ENTITIES = 15
 _SQL_TYPES = {"BIGINT": "integer", "INTEGER": "integer", "INT": "integer", "FLOAT": "real", "REAL": "real",
@@ -229,7 +226,7 @@ def _infer_roles(tables: list[dict]) -> None:
             continue
         cols = {c["name"] for c in t["columns"]}
         if t["name"] in META_TABLES and not t["foreign_keys"]:
-            t["role"] = META_TABLES[t["name"]]
+            t["role"] = META_TABLES[t["name"]].role
         elif [f["columns"] for f in t["foreign_keys"]] == [t["primary_key"]]:  # keyed by its record's key: 1:1
             t["role"] = "record_part"
         elif _owning_keys(t):
@@ -1197,8 +1194,7 @@ def _integrity_section(model: dict) -> str:
     return out
 
 
-_META_LABEL = {"quarantine": "quarantined_cells", "rejected": "rejected_rows", "set_aside": "set_aside_rows",
-               "unmatched": "unmatched_rows", "variants": "attribute_variants"}
+_META_LABEL = {meta.role: name for name, meta in META_TABLES.items()}  # a role's table
 _META_LIMITS = {"raw": 160, "cells": 160, "excerpt": 80, "message": 240}
 
 

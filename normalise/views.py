@@ -15,7 +15,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass, field
 
-from .plan import Plan, Table
+from .plan import TEXT_TYPES, Plan, Table
 from .names import quote_name as _q
 
 LIST_SEPARATOR = "; "
@@ -154,7 +154,7 @@ def _bytewise(dialect: str, expr: str, type_: str) -> str:
     PostgreSQL would otherwise order text by the database's locale ("B" after
     "a" in en_US), so a view's first and last rows would depend on the server.
     """
-    if dialect == "postgresql" and type_ in ("text", "date", "timestamp"):
+    if dialect == "postgresql" and type_ in TEXT_TYPES:
         return f'{expr} COLLATE "C"'
     return expr
 

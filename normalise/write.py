@@ -18,21 +18,18 @@ from sqlalchemy import event
 
 from .errors import NormaliseError
 from .escapes import SURROGATE as _SURROGATE, printable
-from .plan import Plan
+from .plan import META_ROLES, Plan
 from .views import view_sql
 from .names import quote_name as _quote
 
-TYPES = {
+TYPES = {  # the SQL type of each of plan.TYPES
     "integer": sa.BigInteger,
     "real": sa.Float,
     "text": sa.Text,
     "boolean": sa.Boolean,
-    "date": sa.Text,  # ISO 8601 text: SQLite has no date type, and text sorts and compares correctly
+    "date": sa.Text,  # ISO 8601 text (plan.TEXT_TYPES)
     "timestamp": sa.Text,
 }
-
-
-META_ROLES = ("rejected", "set_aside", "unmatched", "quarantine", "variants", "names", "traces")
 
 
 def remove_stale_partials(destination: str) -> list[str]:
