@@ -27,6 +27,7 @@ from warnings import warn
 
 from .errors import LooksHeaderless, MissingInput, UnreadableFile
 from .escapes import printable
+from .names import free_name
 
 # The csv module refuses fields above 128 KiB by default; cell size is a
 # decoding limit with its own message (see decode.Limits), not a reader crash.
@@ -236,10 +237,8 @@ def unique_header(names: list[str]) -> tuple[list[str], list[str]]:
             name = f"column_{i}"
             warnings.append(f"header: column {i} has no name; named {name!r}")
         if name in seen:
-            base, n = name, 2
-            while f"{base}_{n}" in seen or f"{base}_{n}" in names:
-                n += 1
-            name = f"{base}_{n}"
+            base = name
+            name = free_name(base, lambda name: name in seen or name in names)
             warnings.append(f"header: column {i} repeats {base!r}; named {name!r}")
         seen.add(name)
         out.append(name)
