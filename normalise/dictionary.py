@@ -4,18 +4,18 @@ Markdown, one section per table and view: what a row is, its keys, and per
 column the type, whether it may be empty, its key role, where it came from in
 the input (the export, the nested column and the field inside its objects) and
 what it means. It is made from the same reading of the database as the HTML
-report (``report_html.read_database``): the catalog, plus the run's manifest
-for roles and sources when there is one.
+report (``catalog.read_database``): the catalog, plus the run's manifest for
+roles and sources when there is one.
 """
 
 from __future__ import annotations
 
 import re
 
+from .catalog import display_column, owner_fk, source_label
 from .escapes import clean
 from .names import singular
 from .plan import META_ROLES
-from .report_html import display_column, owner_fk, source_label
 
 TYPE_WORDS = {
     "integer": "integer",
@@ -269,7 +269,7 @@ def _view_column_meaning(view: dict, column: str, tables: dict) -> str:
 
 
 def render_dictionary(model: dict) -> str:
-    """The data dictionary of a database read by ``report_html.read_database``, as Markdown."""
+    """The data dictionary of a database read by ``catalog.read_database``, as Markdown."""
     tables = {t["name"]: t for t in model["tables"]}
     data_tables = [t for t in model["tables"] if t["role"] not in META_ROLES]
     meta_tables = [t for t in model["tables"] if t["role"] in META_ROLES]

@@ -1,4 +1,5 @@
-"""Tests of the HTML report and the data dictionary (normalise/report_html.py, normalise/dictionary.py).
+"""Tests of the HTML report and the data dictionary (normalise/report_html.py, normalise/dictionary.py), and of
+the reading of the database both render (normalise/catalog.py).
 
 The references, named beside each check:
 
@@ -37,7 +38,8 @@ from normalise.dictionary import render_dictionary
 from normalise.errors import UsageError
 from normalise.pipeline import build_database
 from normalise.plan import Column, ForeignKey, Plan, Table
-from normalise.report_html import layout_schema, overlaps, read_database, render_report, write_outputs
+from normalise.catalog import read_database
+from normalise.report_html import layout_schema, overlaps, render_report, write_outputs
 from normalise.schema import add_tables
 from normalise.write import write_sqlite
 
