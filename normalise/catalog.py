@@ -61,6 +61,14 @@ def read_database(database, manifest: dict | None = None, *, manifest_origin: st
     return model
 
 
+# The catalog is read with sqlite_master and SQLite's PRAGMAs, not sqlalchemy.inspect, which gives another model of
+# the same database: it lists tables by name, where sqlite_master's order is the order they were made (the load
+# order, which the report keeps without a manifest); it matches foreign keys and UNIQUE constraints against regular
+# expressions over the CREATE TABLE text, which miss a name holding a double quote (those foreign keys then come
+# in another order, with a warning) and an inline UNIQUE after a type with arguments (``varchar(80) UNIQUE``); it
+# sorts indexes by name; and it gives declared types by affinity (``INT`` as ``INTEGER``, an unknown type as
+# ``NUMERIC``), where the model keeps them as declared. Untrusted exports name the tables and columns, so the
+# report reads what SQLite itself says.
 def _catalog(conn: sqlite3.Connection, manifest: dict | None) -> dict:
     known = {t.get("name"): t for t in (manifest or {}).get("tables", []) if isinstance(t, dict)}
     known_views = {v.get("name"): v for v in (manifest or {}).get("views", []) if isinstance(v, dict)}
