@@ -15,13 +15,15 @@ import sqlite3
 import sqlalchemy as sa
 
 from .build import canonical, value_text
-from .errors import NormaliseError
+from .errors import EXIT_USAGE, NormaliseError
 from .plan import META_ROLES, Plan
 from .names import quote_name as _q
 
 
 class SchemaMismatch(NormaliseError):
-    """The database was not built from this plan: --append would mix two models."""
+    """The database was not built from this plan: --append would mix two models (a usage error)."""
+
+    exit_code = EXIT_USAGE
 
 
 def read_state(database: str, plan: Plan) -> dict:

@@ -316,12 +316,7 @@ _PATH_ERRNOS = frozenset({errno.ENOENT, errno.ENOTDIR, errno.EISDIR, errno.EACCE
 def exit_code(exc: BaseException) -> int:
     """How the command ends after ``exc``: 2 for usage, 1 for a build stopped on the data or the machine."""
     if isinstance(exc, NormaliseError):
-        from .append import SchemaMismatch
-        from .planfile import InvalidPlan
-        from .write import DestinationError, DestinationExists
-
-        usage = (InvalidPlan, SchemaMismatch, DestinationExists, DestinationError)
-        return EXIT_USAGE if isinstance(exc, usage) else exc.exit_code
+        return exc.exit_code
     if isinstance(exc, OSError) and not isinstance(exc, sqlite3.Error):
         return EXIT_USAGE if exc.errno in _PATH_ERRNOS else EXIT_DATA
     return EXIT_DATA

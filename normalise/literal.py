@@ -16,6 +16,7 @@ import re
 from dataclasses import dataclass
 from itertools import accumulate
 
+from .errors import NormaliseError
 from .escapes import SURROGATE
 
 # CPython's tokenizer refuses more than 200 nested brackets ("too many nested
@@ -34,13 +35,13 @@ class Limits:
     max_cell_chars: int = DEFAULT_MAX_CELL_CHARS
 
 
-class CellError(ValueError):
-    """A cell that cannot be decoded; ``position`` is a 1-based character offset."""
+class CellError(NormaliseError):
+    """A cell that cannot be decoded; ``position`` is a 1-based character offset (the decoders know the cell,
+    not its place: the quarantine names file, line and column)."""
 
-    def __init__(self, message: str, position: int | None = None):
-        super().__init__(message)
+    def __init__(self, message: str, position: int | None = None, **place):
+        super().__init__(message, position=position, **place)
         self.message = message
-        self.position = position
 
 
 # What the bracket count skips, as Python's tokenizer reads it: triple-quoted

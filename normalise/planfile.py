@@ -20,7 +20,7 @@ import re
 import tomllib
 from pathlib import Path
 
-from .errors import NormaliseError
+from .errors import EXIT_USAGE, NormaliseError
 from .plan import META_TABLES, TYPES, EntityGroup, FieldMap, NestedColumn, Plan, RecordSource
 from .views import Pick, View
 
@@ -29,7 +29,9 @@ KINDS = ("entity-list", "child-list", "value-list", "object-columns", "object-ch
 
 
 class InvalidPlan(NormaliseError):
-    """A plan file that cannot be read or does not fit the data."""
+    """A plan file that cannot be read or does not fit the data (the plan given: a usage error)."""
+
+    exit_code = EXIT_USAGE
 
 
 # --- the plan file's schema: what each block may hold; the reader checks a file against it ---------------
@@ -289,7 +291,7 @@ def _line_of(text: str, *needles: str, after: str | None = None) -> int | None:
 def _fail(text: str, message: str, hint: str, *needles: str, after: str | None = None):
     line = _line_of(text, *needles, after=after) if needles else None
     where = f"line {line}: " if line else ""
-    raise InvalidPlan(f"plan {where}{message}\n  hint: {hint}")
+    raise InvalidPlan(f"plan {where}{message}\n  hint: {hint}", line=line)
 
 
 def _maps(text: str, items, where: str) -> list[FieldMap]:
@@ -316,14 +318,14 @@ def read_plan(path: str) -> tuple[dict, str]:
         text = Path(path).read_text(encoding="utf-8")
     except UnicodeDecodeError as exc:
         raise InvalidPlan(f"plan {path}: not UTF-8 text (byte {exc.start}: {exc.object[exc.start:exc.start + 1]!r})"
-                          "\n  hint: a plan file is UTF-8 TOML; save it as UTF-8") from None
+                          "\n  hint: a plan file is UTF-8 TOML; save it as UTF-8", file=path) from None
     except OSError as exc:
-        raise InvalidPlan(f"plan {path}: cannot be read ({exc.strerror})") from None
+        raise InvalidPlan(f"plan {path}: cannot be read ({exc.strerror})", file=path) from None
     try:
         doc = tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
         raise InvalidPlan(f"plan {path}: {exc}\n  hint: the plan is TOML; check quotes, brackets and "
-                          "commas on that line") from None
+                          "commas on that line", file=path) from None
     check_shape(doc, text)
     if doc.get("version") != PLAN_VERSION:
         _fail(text, f"version {doc.get('version')!r} is not {PLAN_VERSION}", f"set version = {PLAN_VERSION}",

@@ -109,7 +109,7 @@ def read(path: str | os.PathLike, *, encoding: str | None = None,
         return _read_json_lines(path, encoding or "utf-8-sig")
     if suffix == ".json" and _json_head(path).startswith(b"["):
         raise UnreadableFile(f"{path}: holds a JSON array, not JSON Lines (one object per line); "
-                             "rewrite it with one object per line (e.g. jq -c '.[]') as .jsonl")
+                             "rewrite it with one object per line (e.g. jq -c '.[]') as .jsonl", file=path)
     return _read_delimited(path, encoding or "utf-8-sig", delimiter, header)
 
 
@@ -117,9 +117,9 @@ def _check_input(path: str) -> None:
     if path == STDIN:
         return
     if not os.path.exists(path):
-        raise MissingInput(f"{path}: no such file")
+        raise MissingInput(f"{path}: no such file", file=path)
     if os.path.isdir(path):
-        raise MissingInput(f"{path}: is a directory, expected a CSV, TSV or JSON Lines file")
+        raise MissingInput(f"{path}: is a directory, expected a CSV, TSV or JSON Lines file", file=path)
 
 
 # input path -> its copy, for inputs that can be read only once (pipes, FIFOs, standard input)
@@ -375,7 +375,7 @@ def _iter_delimited(path: str, encoding: str, delimiter: str | None, chunk_rows:
         if _quote_left_open("".join(tap.taken), delimiter):
             raise UnreadableFile(f"{path}: a quote opened in the {'header' if has_header else 'first row'} "
                                  f"(line {first_line}) is never closed, so the whole file reads as one row; "
-                                 "close or remove the quote")
+                                 "close or remove the quote", file=path, line=first_line)
         first_row, first_taken = None, []
         if has_header:
             header, named = _printable_names(header)

@@ -31,7 +31,7 @@ import networkx as nx
 
 from .catalog import HEAD_ROWS, owner_fk, read_database, source_label
 from .dictionary import render_dictionary
-from .errors import NormaliseError
+from .errors import EXIT_USAGE, NormaliseError
 from .escapes import clean
 from .plan import META_ROLES, META_TABLES
 
@@ -1054,7 +1054,7 @@ class UnreadableManifest(NormaliseError):
     """A manifest that cannot be read, is not JSON or lacks what a normalise manifest holds (the wrong file
     given: a usage error)."""
 
-    exit_code = 2
+    exit_code = EXIT_USAGE
 
 
 # What the report reads of a manifest, and the JSON type each must have (the rest is optional).

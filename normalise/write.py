@@ -16,7 +16,7 @@ from pathlib import Path
 import sqlalchemy as sa
 from sqlalchemy import event
 
-from .errors import NormaliseError
+from .errors import EXIT_USAGE, NormaliseError
 from .escapes import SURROGATE as _SURROGATE, printable
 from .plan import META_ROLES, Plan
 from .views import view_sql
@@ -89,7 +89,9 @@ def refuse_if_locked(destination: str, shown: str | None = None) -> None:
 
 
 class DestinationExists(NormaliseError):
-    """The destination database exists and --replace was not given."""
+    """The destination database exists and --replace was not given (a usage error)."""
+
+    exit_code = EXIT_USAGE
 
 
 def metadata_for(plan: Plan) -> sa.MetaData:
@@ -412,7 +414,9 @@ def display_url(database: str) -> str:
 
 
 class DestinationError(NormaliseError):
-    """The destination cannot be written as given (not a usable URL or schema name)."""
+    """The destination cannot be written as given (not a usable URL or schema name: a usage error)."""
+
+    exit_code = EXIT_USAGE
 
 
 class UnstorableValue(NormaliseError):
