@@ -26,7 +26,7 @@ from .errors import NormaliseError
 from .exact import (ABSENT, VALUE_TYPES, expect_cell, expect_element, get, is_negative_zero, json_text, keyed_items,
                     literal, pointer, same, store, stored_back, usable_identity, value_key)
 from .infer import get_path, match_key, reference_text
-from .plan import NestedColumn, Plan, RecordSource
+from .plan import META_TABLES, NestedColumn, Plan, RecordSource
 from .schema import record_parts, record_row_columns, reference_columns
 from .prove import InputDigests
 
@@ -471,10 +471,6 @@ class _Entities:
 
 
 _OWN_KEYS = {str, type(None), type(ABSENT)}
-
-META_TABLES = ("rejected_rows", "set_aside_rows", "unmatched_rows", "quarantined_cells", "attribute_variants",
-               "value_traces", "name_map")
-
 
 class _References:
     """Values that are natural keys of record tables (``references`` in the plan), resolved to those records'

@@ -13,6 +13,7 @@ import warnings
 from . import option_values as values
 from .decode import parse_decode_option
 from .errors import EXIT_DATA, EXIT_USAGE, LooksHeaderless, NormaliseError
+from .escapes import escape_surrogates
 from .literal import DEFAULT_MAX_CELL_CHARS, DEFAULT_MAX_DEPTH, Limits
 from .option_values import as_argument
 
@@ -108,26 +109,10 @@ def cmd_survey(args) -> int:
     result = survey(args.files, limits=_limits(args), formats=_formats(args),
                     encoding=args.encoding, delimiter=_delimiter(args), header=not args.no_header)
     if args.json:
-        print(_escape_surrogates(json.dumps(result, indent=2, ensure_ascii=False, default=str)))
+        print(escape_surrogates(json.dumps(result, indent=2, ensure_ascii=False, default=str)))
     else:
-        print(_escape_surrogates(render(result)))
+        print(escape_surrogates(render(result)))
     return 0
-
-
-def _escape_surrogates(text: str) -> str:
-    """Write lone surrogates (undecodable bytes kept by the reader) as ``\\udcXX``.
-
-    A strict UTF-8 stdout cannot encode them; the escape is valid inside a JSON
-    string and readable in the plain report.
-
-    Example:
-        >>> _escape_surrogates('"caf\\udce9"')
-        '"caf\\\\udce9"'
-    """
-    return _SURROGATE.sub(lambda m: f"\\u{ord(m.group()):04x}", text)
-
-
-_SURROGATE = re.compile("[\ud800-\udfff]")
 
 
 def _pairs(specs: list[str], option: str) -> dict:
@@ -357,12 +342,7 @@ _PATH_ERRNOS = frozenset({errno.ENOENT, errno.ENOTDIR, errno.EISDIR, errno.EACCE
 def exit_code(exc: BaseException) -> int:
     """How the command ends after ``exc``: 2 for usage, 1 for a build stopped on the data or the machine."""
     if isinstance(exc, NormaliseError):
-        from .append import SchemaMismatch
-        from .planfile import InvalidPlan
-        from .write import DestinationError, DestinationExists
-
-        usage = (InvalidPlan, SchemaMismatch, DestinationExists, DestinationError)
-        return EXIT_USAGE if isinstance(exc, usage) else exc.exit_code
+        return exc.exit_code
     if isinstance(exc, OSError) and not isinstance(exc, sqlite3.Error):
         return EXIT_USAGE if exc.errno in _PATH_ERRNOS else EXIT_DATA
     return EXIT_DATA

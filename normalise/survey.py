@@ -7,7 +7,6 @@ The survey is the read, decode and infer passes run for information only;
 from __future__ import annotations
 
 import os
-from dataclasses import dataclass, field
 
 from .decode import DecodedColumn, decode
 from .infer import (REFERENCE_MIN_SHARE, REFERENCE_MIN_VALUES, detect_natural_key, identity_candidates, is_reference,
@@ -18,13 +17,6 @@ from .profile import profile_values
 from .read import Export, read
 
 SHOWN_MESSAGES = 5
-
-
-@dataclass
-class FileSurvey:
-    export: Export
-    columns: dict[str, DecodedColumn]
-    report: dict = field(default_factory=dict)
 
 
 def survey_column(export: Export, column: DecodedColumn) -> dict:

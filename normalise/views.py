@@ -15,8 +15,8 @@ from __future__ import annotations
 
 from dataclasses import dataclass, field
 
-from .plan import Plan, Table
-from .names import quote_name as _q
+from .plan import TEXT_TYPES, Plan, Table
+from .names import fit, free_name, quote_name as _q, singular
 
 LIST_SEPARATOR = "; "
 _DISPLAY_NAMES = ("name", "display_name", "full_name", "title", "label", "login", "username")
@@ -126,21 +126,13 @@ def default_views(plan: Plan) -> list[View]:
 
 
 def _free(name: str, taken: set) -> str:
-    from .names import fit
-
-    base, n = name, 2
-    name = fit(name)
-    while name in taken:
-        name = fit(f"{base}_{n}")
-        n += 1
+    name = free_name(name, taken.__contains__, fit)
     taken.add(name)
     return name
 
 
 def _label(name: str) -> str:
     """A view column's name, shortened with a hash when longer than a PostgreSQL name (63 bytes)."""
-    from .names import fit
-
     return fit(name, 63)
 
 
@@ -154,7 +146,7 @@ def _bytewise(dialect: str, expr: str, type_: str) -> str:
     PostgreSQL would otherwise order text by the database's locale ("B" after
     "a" in en_US), so a view's first and last rows would depend on the server.
     """
-    if dialect == "postgresql" and type_ in ("text", "date", "timestamp"):
+    if dialect == "postgresql" and type_ in TEXT_TYPES:
         return f'{expr} COLLATE "C"'
     return expr
 
@@ -250,8 +242,6 @@ def add_pick(plan: Plan, spec: str) -> Pick:
 
 
 def singular_prefix(record_table: str) -> str:
-    from .names import singular
-
     return singular(record_table) + "_"
 
 

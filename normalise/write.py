@@ -11,44 +11,26 @@ inserted row).
 from __future__ import annotations
 
 import os
-import re
 from contextlib import contextmanager
 from pathlib import Path
 
 import sqlalchemy as sa
 from sqlalchemy import event
 
-from .errors import NormaliseError
-from .plan import Plan
+from .errors import EXIT_USAGE, NormaliseError
+from .escapes import SURROGATE as _SURROGATE, printable
+from .plan import META_ROLES, Plan
 from .views import view_sql
 from .names import quote_name as _quote
 
-TYPES = {
+TYPES = {  # the SQL type of each of plan.TYPES
     "integer": sa.BigInteger,
     "real": sa.Float,
     "text": sa.Text,
     "boolean": sa.Boolean,
-    "date": sa.Text,  # ISO 8601 text: SQLite has no date type, and text sorts and compares correctly
+    "date": sa.Text,  # ISO 8601 text (plan.TEXT_TYPES)
     "timestamp": sa.Text,
 }
-
-
-META_ROLES = ("rejected", "set_aside", "unmatched", "quarantine", "variants", "names", "traces")
-
-
-def printable(value):
-    """Text with undecodable bytes (kept as lone surrogates) written as \\xNN escapes; other values as they are.
-
-    Example:
-        >>> printable("An\\udce9"), printable(7)
-        ('An\\\\xe9', 7)
-    """
-    if not isinstance(value, str):
-        return value
-    try:
-        return value.encode("utf-8", "surrogateescape").decode("utf-8", "backslashreplace")
-    except UnicodeEncodeError:
-        return value.encode("utf-8", "backslashreplace").decode("utf-8")
 
 
 def remove_stale_partials(destination: str) -> list[str]:
@@ -108,7 +90,9 @@ def refuse_if_locked(destination: str, shown: str | None = None) -> None:
 
 
 class DestinationExists(NormaliseError):
-    """The destination database exists and --replace was not given."""
+    """The destination database exists and --replace was not given (a usage error)."""
+
+    exit_code = EXIT_USAGE
 
 
 def metadata_for(plan: Plan) -> sa.MetaData:
@@ -383,7 +367,6 @@ def write_parquet(database: str, plan: Plan, directory: str) -> list[str]:
 DEFAULT_SCHEMA = "normalise"
 PG_MAX_IDENTIFIER = 63  # bytes: NAMEDATALEN - 1; PostgreSQL truncates longer names with only a notice
 _PG_DRIVERS = {"postgresql", "postgres", "postgresql+psycopg"}
-_SURROGATE = re.compile("[\ud800-\udfff]")
 # The register of a schema: one row per table and view a run made there (and the register itself), so that
 # --replace drops those and nothing else.
 PG_REGISTER = "normalise_register"
@@ -470,7 +453,9 @@ def display_url(database: str) -> str:
 
 
 class DestinationError(NormaliseError):
-    """The destination cannot be written as given (not a usable URL or schema name)."""
+    """The destination cannot be written as given (not a usable URL or schema name: a usage error)."""
+
+    exit_code = EXIT_USAGE
 
 
 class DestinationFailed(NormaliseError):

@@ -54,8 +54,6 @@ TIME_LIMIT = 60  # seconds for the three commands of one case
 ADDRESS_SPACE = 8 << 30  # bytes: a runaway allocation fails in the child instead of taking the machine
 MAX_RSS_MB = 1536  # peak resident memory of one case, unless its expect.json says otherwise
 SQL_NAME = re.compile(r"[a-z_][a-z0-9_]*")
-# tables the tool itself adds beside the planned ones (the manifest stored in the database)
-TOOL_TABLES = {"run_manifest", "column_names"}
 
 # The child: survey (plain and --json) and build, each through normalise.cli.main, with
 # stdout a strict UTF-8 stream (as a pipe's is) and stderr as Python sets it up.
@@ -287,7 +285,7 @@ def check_names(db: sqlite3.Connection, manifest: dict) -> None:
     tables = {name for kind, name, _ in objects if kind == "table"}
     views = {name for kind, name, _ in objects if kind == "view"}
     planned = {t["name"] for t in manifest["tables"]}
-    assert planned <= tables and tables - planned <= TOOL_TABLES, (sorted(tables), sorted(planned))
+    assert tables == planned, (sorted(tables), sorted(planned))
     assert views == {v["name"] for v in manifest["views"]}, (views, manifest["views"])
     for kind, name, _ in objects:
         if not name.startswith("sqlite_autoindex_"):

@@ -465,3 +465,17 @@ def test_input_file_the_plan_does_not_name(demo, tmp_path):
     with pytest.raises(InvalidPlan) as exc:
         replay(demo, tmp_path, edited)
     assert "contributions" in str(exc.value) and "no [[record]]" in str(exc.value)
+
+
+def test_column_types_and_bookkeeping_tables_are_declared_once():
+    """``plan.TYPES`` and ``plan.META_TABLES`` are the one declaration; what maps them covers them exactly."""
+    from normalise import catalog, dictionary, write
+    from normalise.plan import META_ROLES, META_TABLES, TEXT_TYPES, TYPES, Plan
+    from normalise.schema import add_tables
+
+    assert list(write.TYPES) == list(TYPES) and list(dictionary.TYPE_WORDS) == list(TYPES)
+    assert set(TEXT_TYPES) <= set(TYPES) and set(catalog._SQL_TYPES.values()) <= set(TYPES)
+    plan = Plan()
+    add_tables(plan)  # no records: the bookkeeping tables alone, in their declared order
+    assert [(t.name, t.role) for t in plan.tables] == [(name, m.role) for name, m in META_TABLES.items()]
+    assert {t.role for t in plan.tables} == META_ROLES
