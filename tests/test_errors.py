@@ -71,21 +71,22 @@ def test_a_missing_or_unreadable_input_names_its_file(tmp_path):
 
 def test_a_plan_error_names_its_line(tmp_path):
     books = tmp_path / "books.csv"
-    books.write_text("id,title\n1,Emma\n2,Persuasion\n", encoding="utf-8")
+    books.write_text("id,title\n1,Tide tables\n2,Night sky\n", encoding="utf-8")
     text = make_plan([str(books)]).replace("violation_threshold = 0.05", 'violation_threshold = "abc"')
     line = next(n for n, row in enumerate(text.splitlines(), 1) if row.startswith("violation_threshold"))
     plan = tmp_path / "plan.toml"
     plan.write_text(text, encoding="utf-8")
     with pytest.raises(InvalidPlan) as exc:
         build_database([str(books)], str(tmp_path / "books.db"), plan_path=str(plan))
-    assert exc.value.line == line and f"plan line {line}: " in str(exc.value)
+    assert exc.value.line == line and f"plan {plan} line {line}: " in str(exc.value)
+    assert exc.value.file == str(plan)
     assert exc.value.exit_code == EXIT_USAGE
     assert main(["build", str(books), "--db", str(tmp_path / "books.db"), "--plan", str(plan)]) == EXIT_USAGE
 
 
 def test_a_broken_join_names_the_file_line_and_column(tmp_path):
     books, notes = tmp_path / "books.csv", tmp_path / "notes.csv"
-    books.write_text("book_id,title\n1,Emma\n2,Persuasion\n3,Sanditon\n", encoding="utf-8")
+    books.write_text("book_id,title\n1,Tide tables\n2,Night sky\n3,Sanditon\n", encoding="utf-8")
     notes.write_text("book_id,note\n1,first\n2,second\n2,again\n3,third\n", encoding="utf-8")
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
