@@ -86,7 +86,7 @@ def test_a_plan_error_names_its_line(tmp_path):
 
 def test_a_broken_join_names_the_file_line_and_column(tmp_path):
     books, notes = tmp_path / "books.csv", tmp_path / "notes.csv"
-    books.write_text("book_id,title\n1,Tide tables\n2,Night sky\n3,Sanditon\n", encoding="utf-8")
+    books.write_text("book_id,title\n1,Tide tables\n2,Night sky\n3,Salt marsh\n", encoding="utf-8")
     notes.write_text("book_id,note\n1,first\n2,second\n2,again\n3,third\n", encoding="utf-8")
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
