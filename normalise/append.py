@@ -12,23 +12,28 @@ from __future__ import annotations
 
 import sqlite3
 
+import sqlalchemy as sa
+
 from .build import canonical, value_text
-from .errors import NormaliseError
-from .plan import Plan
+from .errors import EXIT_USAGE, NormaliseError
+from .plan import META_ROLES, Plan
 from .names import quote_name as _q
 
 
 class SchemaMismatch(NormaliseError):
-    """The database was not built from this plan: --append would mix two models."""
+    """The database was not built from this plan: --append would mix two models (a usage error)."""
+
+    exit_code = EXIT_USAGE
 
 
 def read_state(database: str, plan: Plan) -> dict:
     """What the existing database already holds, after checking that its tables are the plan's."""
+    columns = _columns(database, [t.name for t in plan.tables])
     con = sqlite3.connect(database)
     try:
         problems = []
         for t in plan.tables:
-            found = [r[1] for r in con.execute(f"PRAGMA table_info({_q(t.name)})")]
+            found = columns.get(t.name, [])
             wanted = [c.name for c in t.columns]
             if not found:
                 problems.append(f"table {t.name} is missing")
@@ -58,12 +63,24 @@ def read_state(database: str, plan: Plan) -> dict:
                 if len(t.columns) > 2:  # a value list whose values name records: which value rows do
                     state.setdefault("value_links", {})[t.name] = dict(
                         con.execute(f"SELECT {_q(t.columns[0].name)}, {_q(t.columns[2].name)} FROM {_q(t.name)}"))
-            if t.role in ("rejected", "set_aside", "unmatched", "quarantine", "variants", "names", "traces"):
+            if t.role in META_ROLES:
                 state["meta_offset"][t.name] = con.execute(
                     f"SELECT coalesce(max({_q(t.primary_key[0])}), 0) FROM {_q(t.name)}").fetchone()[0]
         return state
     finally:
         con.close()
+
+
+def _columns(database: str, tables: list[str]) -> dict[str, list[str]]:
+    """The columns of each of ``tables`` the database has, in order, from its catalog (``sqlalchemy.inspect``).
+    Generated columns are left out, as ``PRAGMA table_info`` leaves them out: the rows appended never name them."""
+    engine = sa.create_engine(sa.URL.create("sqlite", database=database), poolclass=sa.pool.NullPool)
+    try:
+        catalog = sa.inspect(engine)
+        return {name: [c["name"] for c in catalog.get_columns(name) if "computed" not in c]
+                for name in tables if catalog.has_table(name)}
+    finally:
+        engine.dispose()
 
 
 def offset_record_keys(plan: Plan, exports: list, state: dict) -> None:

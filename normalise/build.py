@@ -26,11 +26,11 @@ from .errors import NormaliseError
 from .exact import (ABSENT, VALUE_TYPES, expect_cell, expect_element, get, is_negative_zero, json_text, keyed_items,
                     literal, pointer, same, store, stored_back, usable_identity, value_key)
 from .infer import get_path, match_key, reference_text
-from .plan import NestedColumn, Plan, RecordSource
+from .plan import META_TABLES, NestedColumn, Plan, RecordSource
 from .schema import record_parts, record_row_columns, reference_columns
 from .prove import InputDigests
 
-_MASK = (1 << 63) - 1
+_MASK = (1 << 53) - 1  # keys of at most 53 bits: exact as IEEE 754 doubles
 
 
 class DuplicateNaturalKey(NormaliseError):
@@ -71,17 +71,61 @@ def check_width(plan: Plan, limit: int | None = None, backend: str = "SQLite") -
 
 
 def key_of(text: str) -> int:
-    """A deterministic 63-bit surrogate key for a text.
+    """A deterministic 53-bit surrogate key for a text: every key is an integer a JSON reader that
+    keeps numbers as IEEE 754 doubles (JavaScript, spreadsheets) reads back exactly (at most 2**53).
 
     Example:
         >>> key_of("integer:7") == key_of("integer:7"), key_of("integer:7") == key_of("text:7")
         (True, False)
+        >>> key_of("integer:7") < 2**53
+        True
     """
     digest = blake2b(text.encode("utf-8", "surrogatepass"), digest_size=8).digest()
     return int.from_bytes(digest, "big") & _MASK
 
 
-_RECORD_KEY_LIMIT = 1 << 39
+class KeySpace:
+    """The surrogate keys of one table's natural keys: ``key_of`` the text, or, in the rare case that
+    another text of the table already has that key (about n**2 / 2**54 for n keys), ``key_of`` the text
+    with a count appended, the first free one. The first text to reach a key (in input order, the
+    same for any chunking) keeps it; ``collisions`` counts the others.
+
+    Example:
+        >>> space = KeySpace()
+        >>> space.claim("integer:7") == key_of("integer:7") == space.claim("integer:7")
+        True
+        >>> space.taken[key_of("text:x")] = "text:other"  # as if another text had that key
+        >>> space.claim("text:x") == key_of("text:x\\x001"), space.collisions
+        (True, 1)
+    """
+
+    def __init__(self):
+        self.taken: dict[int, str] = {}  # key -> text
+        self.keys: dict[str, int] = {}  # text -> key
+        self.collisions = 0
+
+    def claim(self, text: str) -> int:
+        key = self.keys.get(text)
+        if key is not None:
+            return key
+        key, n = key_of(text), 0
+        while self.taken.get(key, text) != text:
+            n += 1
+            key = key_of(f"{text}\x00{n}")
+        self.collisions += n > 0
+        self.taken[key] = text
+        self.keys[text] = key
+        return key
+
+    def holds(self, text: str, key: int) -> None:
+        """A key already in the database (build --append)."""
+        self.taken[key] = text
+        self.keys[text] = key
+
+
+# Rows owned by a record get record key * 2**24 + position: with record keys below 2**29 every such key is
+# below 2**53, like the hashed ones.
+_RECORD_KEY_LIMIT = 1 << 29
 _POSITION_BITS = 24
 
 
@@ -257,6 +301,7 @@ class _ValueTable:
     def __init__(self):
         self.rows: dict[str, tuple] = {}  # canonical -> (sk, value)
         self.new: list[tuple] = []
+        self.space = KeySpace()
 
     def key(self, value, value_type: str) -> int:
         """The surrogate key of a value of the list, its row made when first seen."""
@@ -264,9 +309,15 @@ class _ValueTable:
         entry = self.rows.get(text)
         if entry is None:
             stored = store(value, value_type)[0] if value_type != "text" else to_sql_value(value, "text")
-            entry = self.rows[text] = (key_of(text), stored)
+            entry = self.rows[text] = (self.space.claim(text), stored)
             self.new.append(entry)
         return entry[0]
+
+    def existing(self, rows: dict[str, tuple]) -> None:
+        """The values already in the database (build --append), with their keys."""
+        self.rows.update(rows)
+        for text, (sk, _) in rows.items():
+            self.space.holds(text, sk)
 
 
 class _Entities:
@@ -287,6 +338,7 @@ class _Entities:
         self.keys = [(f.column, f.path[0], f.type) for f in group.attributes]
         self.counts = [Counter() for _ in self.keys]  # per attribute: (canonical, value key) -> occurrences
         self.preexisting: set = set()  # entities already in the database (build --append)
+        self.space = KeySpace()
         self.first_at = [{} for _ in self.keys]  # per attribute: (canonical, value key) -> first place
         self.values = [{} for _ in self.keys]  # per attribute: value key -> the value itself
         # Each occurrence's own value must come back (value_traces keeps those the entity row does not
@@ -304,7 +356,7 @@ class _Entities:
         hit = seen.get(ident)
         if hit is None:
             text = canonical(ident, self.group.identity_type)
-            hit = seen[ident] = (text, key_of(text))
+            hit = seen[ident] = (text, self.space.claim(text))
         return hit
 
     def new_entity(self, text: str, sk: int, ident, obj: dict) -> None:
@@ -435,10 +487,6 @@ class _Entities:
 
 
 _OWN_KEYS = {str, type(None), type(ABSENT)}
-
-META_TABLES = ("rejected_rows", "set_aside_rows", "unmatched_rows", "quarantined_cells", "attribute_variants",
-               "value_traces", "name_map")
-
 
 class _References:
     """Values that are natural keys of record tables (``references`` in the plan), resolved to those records'
@@ -616,9 +664,11 @@ class Builder:
                 acc = self.entities[table]
                 acc.first.update(rows)
                 acc.preexisting = set(rows)
+                for text, row in rows.items():
+                    acc.space.holds(text, row[0])
             for table, rows in state["values"].items():
                 found = self.values[table] = _ValueTable()
-                found.rows.update(rows)
+                found.existing(rows)
 
     def key_columns(self) -> set:
         """The natural-key columns whose holders must be known before the first record is kept: those of

@@ -13,6 +13,7 @@ import warnings
 from . import option_values as values
 from .decode import parse_decode_option
 from .errors import EXIT_DATA, EXIT_USAGE, LooksHeaderless, NormaliseError
+from .escapes import escape_surrogates
 from .literal import DEFAULT_MAX_CELL_CHARS, DEFAULT_MAX_DEPTH, Limits
 from .option_values import as_argument
 
@@ -22,7 +23,8 @@ exit codes:
   1  the build stopped on the data or the machine: the lossless proof failed, the counts did not
      reconcile, repeated keys were refused (--duplicates refuse), a join broke its --cardinality, a table
      would be wider than SQLite allows, a file's content cannot be read; the disk is full, the database
-     is locked by another program or cannot be written
+     is locked by another program or cannot be written, the PostgreSQL server is unreachable or refused;
+     with --strict, also when rows were rejected or cells quarantined (the outputs are written)
   2  usage: an unknown option or a value it cannot take, an option naming a file, column or field the
      inputs do not have, a plan file that cannot be read or does not fit the data, an input that is not
      there, a destination that exists (without --replace or --append) or is not a usable database
@@ -107,26 +109,10 @@ def cmd_survey(args) -> int:
     result = survey(args.files, limits=_limits(args), formats=_formats(args),
                     encoding=args.encoding, delimiter=_delimiter(args), header=not args.no_header)
     if args.json:
-        print(_escape_surrogates(json.dumps(result, indent=2, ensure_ascii=False, default=str)))
+        print(escape_surrogates(json.dumps(result, indent=2, ensure_ascii=False, default=str)))
     else:
-        print(_escape_surrogates(render(result)))
+        print(escape_surrogates(render(result)))
     return 0
-
-
-def _escape_surrogates(text: str) -> str:
-    """Write lone surrogates (undecodable bytes kept by the reader) as ``\\udcXX``.
-
-    A strict UTF-8 stdout cannot encode them; the escape is valid inside a JSON
-    string and readable in the plain report.
-
-    Example:
-        >>> _escape_surrogates('"caf\\udce9"')
-        '"caf\\\\udce9"'
-    """
-    return _SURROGATE.sub(lambda m: f"\\u{ord(m.group()):04x}", text)
-
-
-_SURROGATE = re.compile("[\ud800-\udfff]")
 
 
 def _pairs(specs: list[str], option: str) -> dict:
@@ -162,7 +148,20 @@ def cmd_build(args) -> int:
         for what, path in (("report", args.report), ("data dictionary", args.dictionary)):
             if path:
                 print(f"  {what}: {path}")
-    return 0 if result["integrity"]["reconciled"] else 1
+    if not result["integrity"]["reconciled"]:
+        return EXIT_DATA
+    return _strict(result) if args.strict else 0
+
+
+def _strict(result: dict) -> int:
+    """--strict: exit 1 (the outputs written, to look into) when any row was rejected or cell quarantined."""
+    rejected = sum(i["rows_rejected"] for i in result["inputs"])
+    quarantined = result["cells_quarantined"]
+    if not rejected and not quarantined:
+        return 0
+    print(f"normalise: --strict: {rejected:,} rows rejected and {quarantined:,} cells quarantined; the database "
+          f"was written, see rejected_rows and quarantined_cells in {result['database']}", file=sys.stderr)
+    return EXIT_DATA
 
 
 def _join_options(args):
@@ -201,7 +200,8 @@ def _run_build(args, options, join_options, progress):
                             parquet_dir=args.parquet, plan_path=args.plan, chunk_rows=args.chunk_rows or None,
                             progress=progress, schema=args.schema,
                             append=args.append, report_path=args.report, dictionary_path=args.dictionary,
-                            allow_lossy=args.allow_lossy, wait=args.wait, header=not args.no_header)
+                            allow_lossy=args.allow_lossy, wait=args.wait, header=not args.no_header,
+                            share_schema=args.share_schema)
 
 
 def cmd_plan(args) -> int:
@@ -247,8 +247,13 @@ def _inference_options(p) -> None:
 
 def cmd_report(args) -> int:
     from .report_html import report_existing
+    from .write import DestinationError, destination, display_url
 
-    written = report_existing(args.database, args.manifest, report_path=args.output, dictionary_path=args.dictionary)
+    kind, database = destination(args.database)
+    if kind == "postgresql":
+        raise DestinationError(f"normalise report {display_url(database)}: the report is read from a SQLite "
+                               "database (the report of a PostgreSQL build is not available)")
+    written = report_existing(database, args.manifest, report_path=args.output, dictionary_path=args.dictionary)
     for what, path in written.items():
         print(f"wrote {what} {path}")
     return 0
@@ -274,7 +279,13 @@ def build_parser() -> argparse.ArgumentParser:
                    help="PostgreSQL only: the schema to write into, created when missing (default normalise)")
     p.add_argument("--manifest", metavar="PATH", help="also write the manifest (JSON) here")
     p.add_argument("--replace", action="store_true",
-                   help="overwrite an existing database (PostgreSQL: drop the tables and views of the schema)")
+                   help="overwrite an existing database (PostgreSQL: drop the tables and views an earlier run made "
+                        "in the schema, as its normalise_register lists them; nothing else)")
+    p.add_argument("--strict", action="store_true",
+                   help="exit 1 when any row was rejected or any cell quarantined (the outputs are still written)")
+    p.add_argument("--share-schema", action="store_true",
+                   help="PostgreSQL only: write into a schema that also holds tables normalise did not make, "
+                        "keeping them (refused when a name is taken)")
     p.add_argument("--append", action="store_true",
                    help="add the records to an existing database built from the same plan (keys stay as they are)")
     _inference_options(p)
@@ -317,7 +328,7 @@ def _version() -> str:
     from importlib.metadata import PackageNotFoundError, version
 
     try:
-        return version("normalise")
+        return version("normalise-exports")
     except PackageNotFoundError:  # run from a checkout that was never installed
         return getattr(sys.modules[__package__], "__version__", "(version unknown: not installed)")
 
@@ -331,12 +342,7 @@ _PATH_ERRNOS = frozenset({errno.ENOENT, errno.ENOTDIR, errno.EISDIR, errno.EACCE
 def exit_code(exc: BaseException) -> int:
     """How the command ends after ``exc``: 2 for usage, 1 for a build stopped on the data or the machine."""
     if isinstance(exc, NormaliseError):
-        from .append import SchemaMismatch
-        from .planfile import InvalidPlan
-        from .write import DestinationError, DestinationExists
-
-        usage = (InvalidPlan, SchemaMismatch, DestinationExists, DestinationError)
-        return EXIT_USAGE if isinstance(exc, usage) else exc.exit_code
+        return exc.exit_code
     if isinstance(exc, OSError) and not isinstance(exc, sqlite3.Error):
         return EXIT_USAGE if exc.errno in _PATH_ERRNOS else EXIT_DATA
     return EXIT_DATA

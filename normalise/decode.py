@@ -39,6 +39,7 @@ from contextlib import contextmanager
 from dataclasses import dataclass, field
 from functools import lru_cache
 
+from .escapes import SURROGATE
 from .literal import (CellError, Limits, check_escapes, check_limits, decode_json, decode_python_literal,
                       lone_surrogate_in, surrogate_escape_cells)
 from .read import Export
@@ -138,7 +139,6 @@ _SIMPLE_STRING = re.compile(r"""('[^'\x00\ud800-\udfff]*'|"[^"\x00\ud800-\udfff]
 # What may stand between string tokens in a cell the bulk route accepts.
 _SIMPLE_SKELETON = re.compile(r"(?:[ \t\r\n\[\]{},:0-9.eE+\-]++|None|True|False)*+")
 _WORDS = (("None", "null"), ("True", "true"), ("False", "false"))
-_UNSET = object()
 
 
 def _separator_absent_from(text: str) -> str | None:
@@ -342,7 +342,6 @@ def _no_constant(name):
 # json.loads builds a new decoder whenever it is given options; one shared decoder
 # that refuses NaN and Infinity (RFC 8259, section 6) avoids that per cell.
 _STRICT_JSON = json.JSONDecoder(parse_constant=_no_constant)
-_SURROGATE = re.compile("[\ud800-\udfff]")
 
 
 def _decode_json_column(texts: list[str], limits: Limits, raw_surrogates: bool = True) -> list:
@@ -370,7 +369,7 @@ def _decode_json_column(texts: list[str], limits: Limits, raw_surrogates: bool =
             try:
                 if (len(text) > max_chars
                         or (count_brackets and text.count("[") + text.count("{") > max_depth)
-                        or (raw_surrogates and not text.isascii() and _SURROGATE.search(text))):
+                        or (raw_surrogates and not text.isascii() and SURROGATE.search(text))):
                     check_limits(text, limits)
                 value, end = scan(text, 0)
                 if end == len(text):

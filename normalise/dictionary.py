@@ -4,16 +4,18 @@ Markdown, one section per table and view: what a row is, its keys, and per
 column the type, whether it may be empty, its key role, where it came from in
 the input (the export, the nested column and the field inside its objects) and
 what it means. It is made from the same reading of the database as the HTML
-report (``report_html.read_database``): the catalog, plus the run's manifest
-for roles and sources when there is one.
+report (``catalog.read_database``): the catalog, plus the run's manifest for
+roles and sources when there is one.
 """
 
 from __future__ import annotations
 
 import re
 
+from .catalog import display_column, owner_fk, source_label
+from .escapes import clean
 from .names import singular
-from .report_html import META_ROLES, clean, display_column, owner_fk, source_label
+from .plan import META_ROLES
 
 TYPE_WORDS = {
     "integer": "integer",
@@ -157,8 +159,9 @@ def _column_meaning(table: dict, column: dict, tables: dict) -> tuple[str, str]:
         keys.append("PK")
         how = {"record": "the line on which the record starts in its export",
                "record_part": "the line on which the record starts in its export (its record table's key)",
-               "entity": "a hash of the natural key", "bridge": "a hash of the owner's key and the list position",
-               "child": "a hash of the owner's key and the list position"}.get(role) if not table["inferred"] else None
+               "entity": "a 53-bit hash of the natural key",
+               "bridge": "the owner's key times 2^24 plus the list position (a 53-bit hash of them when larger)",
+               "child": "the owner's key times 2^24 plus the list position (a 53-bit hash of them when larger)"}.get(role) if not table["inferred"] else None
         meaning = ("Surrogate key made by normalise" + (f" from {how}" if how else "")
                    + ": the same for the same input on every build; use it to join, not as business data.")
     for f in fks:
@@ -267,7 +270,7 @@ def _view_column_meaning(view: dict, column: str, tables: dict) -> str:
 
 
 def render_dictionary(model: dict) -> str:
-    """The data dictionary of a database read by ``report_html.read_database``, as Markdown."""
+    """The data dictionary of a database read by ``catalog.read_database``, as Markdown."""
     tables = {t["name"]: t for t in model["tables"]}
     data_tables = [t for t in model["tables"] if t["role"] not in META_ROLES]
     meta_tables = [t for t in model["tables"] if t["role"] in META_ROLES]
@@ -279,7 +282,9 @@ def render_dictionary(model: dict) -> str:
            "",
            "Keys: **PK** primary key (a surrogate key made by normalise), **FK** foreign key (the table and column it "
            "refers to), **NK** natural key (the identifier from the input). Join a table to another through its FK "
-           "columns. Row counts are those of the database when this file was made.", "",
+           "columns. Every surrogate key is at most 2^53 - 1, so a client that reads JSON numbers as doubles "
+           "(JavaScript, spreadsheets) gets it exactly. Row counts are those of the database when this file was "
+           "made.", "",
            "## Contents", "", "| table | kind | rows | from the input |", "| --- | --- | ---: | --- |"]
     for t in model["tables"]:
         kind = plain(ROLE_WORDS.get(t["role"], t["role"] or ""))
@@ -364,17 +369,3 @@ def _view_section(v: dict, tables: dict) -> list[str]:
         out += ["<details><summary>definition</summary>", "", f"{fence}sql", sql, fence, "", "</details>", ""]
     return out
 
-
-def write_dictionary(database, path, manifest: dict | None = None) -> str:
-    """Write the data dictionary of a SQLite database to ``path``; returns the path."""
-    from pathlib import Path
-
-    from .report_html import read_database
-
-    from .outputs import staged_outputs
-
-    model = read_database(database, manifest)
-    with staged_outputs() as staged:  # whole or not at all: a temporary file, renamed when complete
-        Path(staged.file(path)).write_text(render_dictionary(model), encoding="utf-8")
-        staged.commit()
-    return str(path)

@@ -16,8 +16,11 @@ from pathlib import Path
 from collections import Counter, defaultdict
 from dataclasses import dataclass
 
+import networkx as nx
+
 from .exact import ABSENT as _ABSENT, get
 from .names import Namer, singular, sql_name
+from .plan import META_TABLES
 
 DEFAULT_VIOLATION_THRESHOLD = 0.05
 _ID_NAME = re.compile(r"(?i)^(id|key|code|uuid|guid|slug)$|(_id|_key|_code|_uuid|Id|ID|_no|_number)$")
@@ -724,9 +727,6 @@ def _keyed_column(nested, values: list, options: "Options", file: str) -> list:
     return [keyed_items(v, key, value_field) if isinstance(v, dict) else None for v in values]
 
 
-META_TABLES = ("rejected_rows", "set_aside_rows", "unmatched_rows", "quarantined_cells", "attribute_variants",
-               "value_traces",
-               "name_map")
 _GENERIC_IDENTITY = frozenset(["id", "key", "code", "uuid", "guid", "slug"])
 
 
@@ -1197,19 +1197,13 @@ def _group_entities(plan, members: list, options: Options, tables: Namer) -> Non
     """Put the members (entity lists and references) of one identity space into one entity table.
 
     Two members share a table when they have the same identity field and agree on the entities they
-    have in common (union-find over the pairs); ``--merge`` forces members together, ``--no-merge``
-    keeps one apart.
+    have in common; ``--merge`` forces members together, ``--no-merge`` keeps one apart. The tables are
+    the connected components of the graph of those pairs, each in the order of its first member.
     """
     from .plan import EntityGroup, FieldMap
 
-    parent = list(range(len(members)))
-
-    def find(i):
-        while parent[i] != i:
-            parent[i] = parent[parent[i]]
-            i = parent[i]
-        return i
-
+    pairs = nx.Graph()
+    pairs.add_nodes_from(range(len(members)))  # in order: components come out by their first member
     ref = [m.name for m in members]
     forbidden = set(options.no_merge)
     merged = {}  # (i, j) -> the table of both lists: a group of just those two measures on it again
@@ -1221,17 +1215,13 @@ def _group_entities(plan, members: list, options: Options, tables: Namer) -> Non
             both = ObjectTable.concat([a.table, b.table])
             common, agree = _agreement(a.table, b.table, a.identity, both)
             if common and agree >= 1 - options.violation_threshold or not common and _same_shape(a.table, b.table):
-                parent[find(j)] = find(i)
+                pairs.add_edge(i, j)
                 merged[(i, j)] = both
     for group in options.merge:
         chosen = [ref.index(m) for m in group if m in ref]
-        for m in chosen[1:]:
-            parent[find(m)] = find(chosen[0])
+        pairs.add_edges_from((chosen[0], m) for m in chosen[1:])
 
-    groups: dict[int, list[int]] = {}
-    for i in range(len(members)):
-        groups.setdefault(find(i), []).append(i)
-    for chosen in groups.values():
+    for chosen in (sorted(component) for component in nx.connected_components(pairs)):
         first = members[chosen[0]]
         identity = first.identity
         both = merged.get(tuple(chosen))

@@ -170,7 +170,8 @@ def _join_one(result: Joined, combined: JoinedExport, combined_cols: dict, main:
         lines = ", ".join(f"line {other.lines[j]}" for j, _ in sorted(duplicates)[:5])
         raise CardinalityViolation(f"{other.path}: the join on {right_col} is declared one-to-one but "
                                    f"{len(duplicates)} row(s) repeat a key ({lines}); use --duplicates first "
-                                   f"or last to keep one and set the others aside")
+                                   f"or last to keep one and set the others aside", file=other.path,
+                                   line=other.lines[min(duplicates)[0]], column=right_col)
     for j, kept in sorted(duplicates):
         result.set_aside.append((other.path, other.lines[j], right_keys[j],
                                  f"duplicate join key {right_keys[j]!r} in {other.name}; kept line "

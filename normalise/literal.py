@@ -16,6 +16,9 @@ import re
 from dataclasses import dataclass
 from itertools import accumulate
 
+from .errors import NormaliseError
+from .escapes import SURROGATE
+
 # CPython's tokenizer refuses more than 200 nested brackets ("too many nested
 # parentheses"); json.loads recurses in C and hits RecursionError near 1,000.
 # The tool's own limit is checked first, so neither parser is ever pushed there.
@@ -32,13 +35,13 @@ class Limits:
     max_cell_chars: int = DEFAULT_MAX_CELL_CHARS
 
 
-class CellError(ValueError):
-    """A cell that cannot be decoded; ``position`` is a 1-based character offset."""
+class CellError(NormaliseError):
+    """A cell that cannot be decoded; ``position`` is a 1-based character offset (the decoders know the cell,
+    not its place: the quarantine names file, line and column)."""
 
-    def __init__(self, message: str, position: int | None = None):
-        super().__init__(message)
+    def __init__(self, message: str, position: int | None = None, **place):
+        super().__init__(message, position=position, **place)
         self.message = message
-        self.position = position
 
 
 # What the bracket count skips, as Python's tokenizer reads it: triple-quoted
@@ -48,7 +51,6 @@ _STRING_LITERALS = re.compile(r"""'''(?:[^'\\]|\\.|'(?!''))*'''|\"\"\"(?:[^"\\]|
                               r"""'(?:[^'\\\n]|\\.)*'|"(?:[^"\\\n]|\\.)*"|#[^\r\n]*""", re.S)
 _BRACKETS = re.compile(r"[\[\]{}()]")
 _OPENERS = frozenset("[{(")
-_SURROGATE = re.compile("[\ud800-\udfff]")
 
 
 def nesting_depth(text: str) -> int:
@@ -73,7 +75,7 @@ def lone_surrogate_in(value) -> bool:
     while stack:
         v = stack.pop()
         if isinstance(v, str):
-            if not v.isascii() and _SURROGATE.search(v):
+            if not v.isascii() and SURROGATE.search(v):
                 return True
         elif isinstance(v, dict):
             stack.extend(v.keys())
@@ -139,7 +141,7 @@ def check_limits(text: str, limits: Limits) -> None:
             raise CellError(f"nesting depth {depth} exceeds the limit of {limits.max_depth} "
                             f"(--max-depth)", 1)
     if not text.isascii():
-        bad = _SURROGATE.search(text)
+        bad = SURROGATE.search(text)
         if bad:
             raise CellError("bytes that are not valid in the file's encoding "
                             "(try --encoding)", bad.start() + 1)

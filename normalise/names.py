@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import re
 import unicodedata
+from collections.abc import Callable
 
 _UNSAFE = re.compile(r"[^a-z0-9_]+")
 MAX_NAME = 60
@@ -97,6 +98,21 @@ def singular(name: str) -> str:
     return name
 
 
+def free_name(base: str, is_taken: Callable[[str], bool], shorten: Callable[[str], str] = str) -> str:
+    """``base``, else ``base_2``, ``base_3``, ...: the first that ``is_taken`` does not refuse, each made by
+    ``shorten`` from the full name (``fit``, so that a suffix survives a cut).
+
+    Example:
+        >>> free_name("id", {"id", "id_2"}.__contains__), free_name("name", {"id"}.__contains__)
+        ('id_3', 'name')
+    """
+    name, n = shorten(base), 2
+    while is_taken(name):
+        name = shorten(f"{base}_{n}")
+        n += 1
+    return name
+
+
 class Namer:
     """Hands out names unique within one scope (case-insensitively, as SQL compares them)."""
 
@@ -104,10 +120,6 @@ class Namer:
         self.taken = {t.lower() for t in taken}
 
     def __call__(self, wanted: str) -> str:
-        base = sql_name(wanted)
-        name, n = base, 2
-        while name.lower() in self.taken:
-            name = fit(f"{base}_{n}")
-            n += 1
+        name = free_name(sql_name(wanted), lambda name: name.lower() in self.taken, fit)
         self.taken.add(name.lower())
         return name

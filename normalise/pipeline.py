@@ -26,10 +26,12 @@ from .partition import open_inputs
 from .prove import LossDetected, loss_message, prove, sqlite_fetch
 from .planfile import join_settings, plan_from_doc, plan_to_toml, read_plan
 from .report import manifest
+from .result import Built
 from .schema import POSTGRESQL_MAX_COLUMNS
 from .views import add_pick
 from .write import SqliteWriter
-from .write import DEFAULT_SCHEMA, display_url, is_postgresql, write_parquet, write_postgresql
+from .write import (DEFAULT_SCHEMA, destination, display_url, is_postgresql, postgresql_run_lock, write_parquet,
+                    write_postgresql)
 
 # The model is inferred from the first SAMPLE_ROWS records of each export, in
 # memory and in chunks alike, so the database never depends on the chunk size.
@@ -81,8 +83,9 @@ def prepare(paths: list[str], *, options: Options | None = None, limits: Limits 
     return plan, joined.exports, joined.decoded, joined
 
 
-def make_plan(paths: list[str], output: str | None = None, **kwargs) -> str:
+def make_plan(paths: str | os.PathLike | list[str], output: str | None = None, **kwargs) -> str:
     """Infer the plan of the exports and return it (and write it to ``output``) as TOML."""
+    paths = path_list(paths)
     if output:
         check_paths([("input", p) for p in paths] + [("--plan", kwargs.get("plan_path"))], [("-o", output)])
     plan, _, _, joined = prepare(paths, **kwargs)
@@ -96,19 +99,29 @@ def make_plan(paths: list[str], output: str | None = None, **kwargs) -> str:
     return text
 
 
+def path_list(paths) -> list[str]:
+    """One path (text or ``os.PathLike``) or many, as a list of texts (a single text is never its characters)."""
+    if isinstance(paths, (str, os.PathLike)):
+        return [os.fspath(paths)]
+    return [os.fspath(p) for p in paths]
+
+
 @paused_gc()
-def build_database(paths: list[str], database: str, *, options: Options | None = None,
+def build_database(paths: str | os.PathLike | list[str], database: str | os.PathLike, *, options: Options | None = None,
                    limits: Limits = Limits(), formats: dict | None = None, encoding: str | None = None,
                    delimiter: str | None = None, replace: bool = False, join_options: JoinOptions | None = None,
                    manifest_path: str | None = None, picks: list[str] | None = None,
                    parquet_dir: str | None = None, plan_path: str | None = None,
                    schema: str | None = None, chunk_rows: int | None = None, progress=None,
                    report_path: str | None = None, dictionary_path: str | None = None,
-                   append: bool = False, allow_lossy: bool = False, wait: float = 0.0, header: bool = True) -> dict:
-    """Run every pass on the exports and write a SQLite database; returns the manifest.
+                   append: bool = False, allow_lossy: bool = False, wait: float = 0.0, header: bool = True,
+                   share_schema: bool = False) -> Built:
+    """Run every pass on the exports and write a SQLite database; returns the manifest as a ``Built``
+    (a dict, its fields also attributes, with ``frame(name)`` giving any table or view as a DataFrame).
 
     ``database`` may instead be a ``postgresql+psycopg://`` URL: the tables then go into
-    ``schema`` (default ``normalise``) of that database, in one transaction.
+    ``schema`` (default ``normalise``) of that database, in one transaction; a schema holding tables
+    normalise did not make is refused unless ``share_schema`` (they are never dropped).
 
     Before a SQLite database is moved into place every loaded cell is rebuilt from its tables and
     compared with the input (``prove.py``); a difference raises ``LossDetected`` unless ``allow_lossy``.
@@ -126,12 +139,15 @@ def build_database(paths: list[str], database: str, *, options: Options | None =
         >>> [(t["name"], t["role"], t["rows"]) for t in m["tables"] if t["rows"]]
         [('person', 'entity', 1), ('books', 'record', 1), ('book_people', 'bridge', 1), ('name_map', 'names', 5)]
     """
+    paths = path_list(paths)
     delimiter = check_values(encoding_name=encoding, delimiter_char=delimiter, limits=limits, chunk_rows=chunk_rows,
                              options=options, join_options=join_options)
-    postgresql = is_postgresql(database)
-    if schema is not None and not postgresql:
+    kind, database = destination(database)
+    postgresql = kind == "postgresql"
+    if (schema is not None or share_schema) and not postgresql:
         from .errors import UsageError
-        raise UsageError("--schema applies to a PostgreSQL --db (postgresql+psycopg://...), not to a SQLite file")
+        option = "--schema" if schema is not None else "--share-schema"
+        raise UsageError(f"{option} applies to a PostgreSQL --db (postgresql+psycopg://...), not to a SQLite file")
     if parquet_dir and postgresql:
         from .errors import UsageError
         raise UsageError("--parquet is written from a SQLite database; it is not available with a PostgreSQL --db")
@@ -155,22 +171,23 @@ def build_database(paths: list[str], database: str, *, options: Options | None =
                   replace=replace, join_options=join_options, manifest_path=manifest_path, picks=picks,
                   parquet_dir=parquet_dir, plan_path=plan_path, schema=schema, chunk_rows=chunk_rows,
                   progress=progress, report_path=report_path, dictionary_path=dictionary_path, append=append,
-                  allow_lossy=allow_lossy, wait=wait, header=header)
-    if postgresql:  # write_postgresql holds an advisory lock of the schema for its transaction
-        with staged_outputs() as staged:
+                  allow_lossy=allow_lossy, wait=wait, header=header, share_schema=share_schema)
+    if postgresql:  # a session lock of the schema for the whole run, as the lock file beside a SQLite database
+        with postgresql_run_lock(database, schema or DEFAULT_SCHEMA, wait), staged_outputs() as staged:
             result = _build(paths, database, staged=staged, **kwargs)
             staged.commit()
-        return result
+        return Built(result, database, schema or DEFAULT_SCHEMA)
     # the lock is taken before anything of the destination is read (--append's state, whether it exists)
     with destination_lock(database, wait), staged_outputs() as staged:
         result = _build(paths, database, staged=staged, **kwargs)
         staged.commit()
-    return result
+    return Built(result, database)
 
 
 def _build(paths: list[str], database: str, *, options, limits, formats, encoding, delimiter, replace,
            join_options, manifest_path, picks, parquet_dir, plan_path, schema, chunk_rows, progress,
-           report_path, dictionary_path, append, allow_lossy, wait, staged, header=True) -> dict:
+           report_path, dictionary_path, append, allow_lossy, wait, staged, header=True,
+           share_schema=False) -> dict:
     """``build_database`` once its paths are checked and its destination locked; outputs go to ``staged``."""
     postgresql = is_postgresql(database)
     plan, inputs = _open(paths, options=options, limits=limits, formats=formats, encoding=encoding,
@@ -212,7 +229,7 @@ def _build(paths: list[str], database: str, *, options, limits, formats, encodin
             raise IntegrityError(f"{missing} foreign-key values name no row; nothing was written")
         integrity = write_postgresql(plan, built.rows, order, database, schema=schema or DEFAULT_SCHEMA,
                                      replace=replace, verify=verifier(plan, built, allow_lossy, locate(built)),
-                                     wait=wait)
+                                     wait=wait, share_schema=share_schema)
         result = manifest(plan, built, display_url(database), integrity, joined)
         result["schema"] = integrity["schema"]
         return _outputs(staged, database, plan, result, parquet_dir, manifest_path, report_path, dictionary_path)

@@ -9,15 +9,58 @@ lists, so a plan can be printed, compared, saved and replayed.
 from __future__ import annotations
 
 from dataclasses import asdict, dataclass, field
+from typing import NamedTuple
 
-ROLES = ("record", "record_part", "entity", "bridge", "child", "set_aside", "quarantine", "variants", "rejected",
-         "unmatched", "names", "traces")
+# A column's type, as plans and plan files name it (``write.TYPES`` gives each its SQL type). Dates and timestamps
+# are ISO 8601 text: SQLite has no date type, and such text sorts and compares correctly.
+TYPES = ("integer", "real", "text", "boolean", "date", "timestamp")
+TEXT_TYPES = ("text", "date", "timestamp")  # the types whose values are text
+
+
+class MetaTable(NamedTuple):
+    """A bookkeeping table: its role, and its columns after the surrogate key as (name, type, nullable)."""
+
+    role: str
+    columns: tuple[tuple[str, str, bool], ...]
+
+
+# The bookkeeping tables every database has, in the order they are made and loaded: what the run did not
+# load as data, kept so that every input row, nested element and value is accounted for.
+META_TABLES = {
+    "rejected_rows": MetaTable("rejected", (("file", "text", False), ("line", "integer", False),
+                                            ("reason", "text", False), ("raw", "text", False))),
+    "set_aside_rows": MetaTable("set_aside", (("file", "text", False), ("line", "integer", False),
+                                              ("natural_key", "text", True), ("reason", "text", False),
+                                              ("kept_line", "integer", True), ("cells", "text", False))),
+    "unmatched_rows": MetaTable("unmatched", (("file", "text", False), ("line", "integer", False),
+                                              ("join_key", "text", True), ("reason", "text", False),
+                                              ("cells", "text", False))),
+    "quarantined_cells": MetaTable("quarantine", (("file", "text", False), ("line", "integer", False),
+                                                  ("column_name", "text", False), ("position", "integer", True),
+                                                  ("excerpt", "text", False), ("message", "text", False))),
+    "attribute_variants": MetaTable("variants", (("entity_table", "text", False), ("entity_sk", "integer", False),
+                                                 ("natural_key", "text", False), ("attribute", "text", False),
+                                                 ("value", "text", True), ("occurrences", "integer", False),
+                                                 ("chosen", "boolean", False))),
+    # a value the model's columns cannot give back exactly, kept verbatim (original: Python literal text
+    # that ast.literal_eval reads back; NULL when the key was absent), at its place in a row
+    "value_traces": MetaTable("traces", (("table_name", "text", False), ("row_sk", "integer", False),
+                                         ("owner_sk", "integer", True), ("position", "integer", True),
+                                         ("column_name", "text", False), ("path", "text", False),
+                                         ("reason", "text", False), ("original", "text", True),
+                                         ("file", "text", True), ("line", "integer", True))),
+    # every name taken from the data (file, header, object key) and the SQL name it was given
+    "name_map": MetaTable("names", (("table_name", "text", False), ("column_name", "text", True),
+                                    ("name_in_input", "text", False), ("found_in", "text", False))),
+}
+META_ROLES = frozenset(t.role for t in META_TABLES.values())
+ROLES = ("record", "record_part", "entity", "bridge", "child", *(t.role for t in META_TABLES.values()))
 
 
 @dataclass
 class Column:
     name: str
-    type: str  # integer | real | text | boolean | date | timestamp
+    type: str  # one of TYPES
     nullable: bool = True
     unique: bool = False
     source: str | None = None  # where the values come from: "file:column" or a path inside it

@@ -16,21 +16,24 @@ forbidden merge): its entity table is then inferred for it alone.
 from __future__ import annotations
 
 import json
+import os
 import re
 import tomllib
+from difflib import get_close_matches
 from pathlib import Path
 
-from .errors import NormaliseError
-from .plan import EntityGroup, FieldMap, NestedColumn, Plan, RecordSource
+from .errors import EXIT_USAGE, NormaliseError
+from .plan import META_TABLES, TYPES, EntityGroup, FieldMap, NestedColumn, Plan, RecordSource
 from .views import Pick, View
 
 PLAN_VERSION = 1
 KINDS = ("entity-list", "child-list", "value-list", "object-columns", "object-child")
-TYPES = ("integer", "real", "text", "boolean", "date", "timestamp")
 
 
 class InvalidPlan(NormaliseError):
-    """A plan file that cannot be read or does not fit the data."""
+    """A plan file that cannot be read or does not fit the data (the plan given: a usage error)."""
+
+    exit_code = EXIT_USAGE
 
 
 # --- the plan file's schema: what each block may hold; the reader checks a file against it ---------------
@@ -76,9 +79,11 @@ def _shape(value, spec, where: str, text: str) -> None:
                   *_needles(value))
         for key, inner in value.items():
             if key not in spec or key == REQUIRED:
-                _fail(text, f"{where or 'the plan'}: unknown key {key!r}",
-                      f"use one of: {', '.join(k for k in spec if k != REQUIRED)}; or write a fresh plan with "
-                      "`normalise plan`",
+                known = [k for k in spec if k != REQUIRED]
+                close = get_close_matches(str(key), known, n=1, cutoff=0.6)
+                _fail(text, f"{where or 'the plan'}: unknown key {key!r}"
+                      + (f" (did you mean {close[0]!r}?)" if close else ""),
+                      f"use one of: {', '.join(known)}; or write a fresh plan with `normalise plan`",
                       f"{key} =", f'"{key}"', f"{key}")
             _shape(inner, spec[key], f"{where}.{key}" if where else key, text)
     elif isinstance(spec, list):
@@ -127,8 +132,13 @@ def _fits(value, spec: str) -> bool:
 def _wrong(text: str, where: str, expected: str, value) -> None:
     key = where.rsplit(".", 1)[-1].split("[")[0]
     shown = _v(value) if isinstance(value, (str, int, float, bool, list)) else type(value).__name__
-    hint = ("names are lower case letters, digits and _ (not first), at most 60 characters"
-            if expected == NAME else f"write {key} = <{expected}>")
+    hint = f"write {key} = <{expected}>"
+    if expected == NAME:  # the name the data would have given it, as the suggestion
+        from .names import sql_name
+
+        cleaned = sql_name(value) if isinstance(value, str) else ""
+        hint = ("names are lower case letters, digits and _ (not first), at most 60 characters"
+                + (f", as {key} = {_v(cleaned)} would be" if cleaned else ""))
     _fail(text, f"{where}: expected {expected}, got {shown[:60]}", hint, f"{key} = {shown}", f"{key} =")
 
 
@@ -184,7 +194,7 @@ def plan_to_toml(plan: Plan, joins: dict | None = None) -> str:
     """The plan as readable, commented TOML."""
     out = ["# normalise plan: the relational model of these exports, as decisions.",
            "# Edit and replay with: normalise build FILE... --plan THIS_FILE --db PATH",
-           "# Types: integer, real, text, boolean, date, timestamp.", "",
+           f"# Types: {', '.join(TYPES)}.", "",
            f"version = {PLAN_VERSION}",
            "# share of functional-dependency violations tolerated when deciding entity attributes",
            f"violation_threshold = {_v(plan.violation_threshold)}", ""]
@@ -287,10 +297,23 @@ def _line_of(text: str, *needles: str, after: str | None = None) -> int | None:
     return None
 
 
+class PlanText(str):
+    """A plan file's text that knows the file it was read from, so that every refusal can name it."""
+
+    path: str = ""
+
+    @classmethod
+    def of(cls, text: str, path: str) -> "PlanText":
+        out = cls(text)
+        out.path = os.fspath(path)
+        return out
+
+
 def _fail(text: str, message: str, hint: str, *needles: str, after: str | None = None):
     line = _line_of(text, *needles, after=after) if needles else None
-    where = f"line {line}: " if line else ""
-    raise InvalidPlan(f"plan {where}{message}\n  hint: {hint}")
+    where = " ".join(filter(None, [getattr(text, "path", ""), f"line {line}" if line else ""]))
+    raise InvalidPlan(f"plan {where + ': ' if where else ''}{message}\n  hint: {hint}", line=line,
+                      file=getattr(text, "path", None) or None)
 
 
 def _maps(text: str, items, where: str) -> list[FieldMap]:
@@ -314,17 +337,17 @@ def _maps(text: str, items, where: str) -> list[FieldMap]:
 def read_plan(path: str) -> tuple[dict, str]:
     """The raw plan document and its text; TOML syntax errors name their line."""
     try:
-        text = Path(path).read_text(encoding="utf-8")
+        text = PlanText.of(Path(path).read_text(encoding="utf-8"), path)
     except UnicodeDecodeError as exc:
         raise InvalidPlan(f"plan {path}: not UTF-8 text (byte {exc.start}: {exc.object[exc.start:exc.start + 1]!r})"
-                          "\n  hint: a plan file is UTF-8 TOML; save it as UTF-8") from None
+                          "\n  hint: a plan file is UTF-8 TOML; save it as UTF-8", file=path) from None
     except OSError as exc:
-        raise InvalidPlan(f"plan {path}: cannot be read ({exc.strerror})") from None
+        raise InvalidPlan(f"plan {path}: cannot be read ({exc.strerror})", file=path) from None
     try:
         doc = tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
         raise InvalidPlan(f"plan {path}: {exc}\n  hint: the plan is TOML; check quotes, brackets and "
-                          "commas on that line") from None
+                          "commas on that line", file=path) from None
     check_shape(doc, text)
     if doc.get("version") != PLAN_VERSION:
         _fail(text, f"version {doc.get('version')!r} is not {PLAN_VERSION}", f"set version = {PLAN_VERSION}",
@@ -503,8 +526,6 @@ def plan_from_doc(doc: dict, text: str, exports: list, decoded: dict) -> Plan:
 def _check_names(text: str, plan: Plan) -> None:
     """Table names unique (and none a bookkeeping table's), column names unique within a table (and none a key
     the tool gives the table itself), so every statement the plan makes can run."""
-    from .build import META_TABLES
-
     seen: set = set()
     for t in plan.tables:
         if t.name in seen:

@@ -11,8 +11,6 @@ from collections import Counter
 from dataclasses import dataclass, field
 from statistics import median
 
-SHAPES = ("object-list", "object", "scalar-list", "scalar")
-
 
 def type_name(value) -> str:
     """The JSON-ish name of a decoded value's type.

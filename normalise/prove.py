@@ -20,6 +20,7 @@ from .errors import NormaliseError
 from .exact import (ABSENT, from_literal, keyed_digest, keyed_object, object_back, pointer, pointer_keys, put, same,
                     stored_back)
 from .names import quote_name as _q
+from .plan import TEXT_TYPES
 from .schema import record_parts
 
 _MOD = 1 << 128
@@ -176,7 +177,7 @@ def row_objects(fields, start: int, entities: dict | None = None):
     if any(f.entity for f in fields):
         return lambda r: object_back(fields, r[start:], entities)
     keys = [f.path[0] for f in fields]
-    plain = all(len(f.path) == 1 and (f.type in ("text", "date", "timestamp") or
+    plain = all(len(f.path) == 1 and (f.type in TEXT_TYPES or
                                       f.type in ("integer", "real") and not f.as_text) for f in fields)
     if not plain:
         return lambda r: object_back(fields, r[start:])

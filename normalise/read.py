@@ -26,6 +26,8 @@ from pathlib import Path
 from warnings import warn
 
 from .errors import LooksHeaderless, MissingInput, UnreadableFile
+from .escapes import printable
+from .names import free_name
 
 # The csv module refuses fields above 128 KiB by default; cell size is a
 # decoding limit with its own message (see decode.Limits), not a reader crash.
@@ -107,7 +109,7 @@ def read(path: str | os.PathLike, *, encoding: str | None = None,
         return _read_json_lines(path, encoding or "utf-8-sig")
     if suffix == ".json" and _json_head(path).startswith(b"["):
         raise UnreadableFile(f"{path}: holds a JSON array, not JSON Lines (one object per line); "
-                             "rewrite it with one object per line (e.g. jq -c '.[]') as .jsonl")
+                             "rewrite it with one object per line (e.g. jq -c '.[]') as .jsonl", file=path)
     return _read_delimited(path, encoding or "utf-8-sig", delimiter, header)
 
 
@@ -115,9 +117,9 @@ def _check_input(path: str) -> None:
     if path == STDIN:
         return
     if not os.path.exists(path):
-        raise MissingInput(f"{path}: no such file")
+        raise MissingInput(f"{path}: no such file", file=path)
     if os.path.isdir(path):
-        raise MissingInput(f"{path}: is a directory, expected a CSV, TSV or JSON Lines file")
+        raise MissingInput(f"{path}: is a directory, expected a CSV, TSV or JSON Lines file", file=path)
 
 
 # input path -> its copy, for inputs that can be read only once (pipes, FIFOs, standard input)
@@ -235,10 +237,8 @@ def unique_header(names: list[str]) -> tuple[list[str], list[str]]:
             name = f"column_{i}"
             warnings.append(f"header: column {i} has no name; named {name!r}")
         if name in seen:
-            base, n = name, 2
-            while f"{base}_{n}" in seen or f"{base}_{n}" in names:
-                n += 1
-            name = f"{base}_{n}"
+            base = name
+            name = free_name(base, lambda name: name in seen or name in names)
             warnings.append(f"header: column {i} repeats {base!r}; named {name!r}")
         seen.add(name)
         out.append(name)
@@ -375,7 +375,7 @@ def _iter_delimited(path: str, encoding: str, delimiter: str | None, chunk_rows:
         if _quote_left_open("".join(tap.taken), delimiter):
             raise UnreadableFile(f"{path}: a quote opened in the {'header' if has_header else 'first row'} "
                                  f"(line {first_line}) is never closed, so the whole file reads as one row; "
-                                 "close or remove the quote")
+                                 "close or remove the quote", file=path, line=first_line)
         first_row, first_taken = None, []
         if has_header:
             header, named = _printable_names(header)
@@ -481,27 +481,10 @@ def _quote_left_open(raw: str, delimiter: str) -> bool:
     return rows[-1] != [sentinel]
 
 
-def printable_name(name: str) -> str:
-    """A name with bytes the encoding could not read (lone surrogates) written as ``\\xNN`` escapes.
-
-    Names become column names and manifest entries, which must be text.
-
-    Example:
-        >>> printable_name("na\\udcffme"), printable_name("\\ud800"), printable_name("name")
-        ('na\\\\xffme', '\\\\ud800', 'name')
-    """
-    if name.isascii() or not any("\ud800" <= ch <= "\udfff" for ch in name):
-        return name
-    try:
-        return name.encode("utf-8", "surrogateescape").decode("utf-8", "backslashreplace")
-    except UnicodeEncodeError:  # a surrogate from a JSON escape, not from an undecodable byte
-        return name.encode("utf-8", "backslashreplace").decode("utf-8")
-
-
 def _printable_names(header: list[str]) -> tuple[list[str], list[str]]:
     out, warnings = [], []
     for i, name in enumerate(header, start=1):
-        shown = printable_name(name)
+        shown = printable(name)  # names become column names and manifest entries: text
         if shown != name:
             warnings.append(f"header: column {i}'s name holds bytes that are not valid in the file's "
                             f"encoding; named {shown!r} (try --encoding)")
@@ -534,7 +517,7 @@ def _read_json_lines(path: str, encoding: str) -> Export:
                                             f"expected a JSON object, got {type(obj).__name__}"))
                 continue
             if not all(key.isascii() for key in obj):  # keys with undecodable bytes or lone surrogates
-                obj = {printable_name(key): value for key, value in obj.items()}
+                obj = {printable(key): value for key, value in obj.items()}
             for key in obj:
                 if key not in cells:
                     columns.append(key)

@@ -6,13 +6,11 @@ reconciliation of rows and nested elements, SQLite's integrity checks, the
 quarantined cells, rejected, set-aside and unmatched rows, the attribute
 conflicts, the most frequent entities and the distribution of list lengths.
 
-Everything is read back from the database itself: the catalog
-(``sqlite_master``, ``PRAGMA table_info``, ``PRAGMA foreign_key_list``,
-``PRAGMA index_list``), ``count(*)`` of each table and the bookkeeping tables.
-The run's manifest (returned by the build, given as a file, or stored in a
-``run_manifest`` table when there is one) adds what the database cannot say:
-roles, where each table and column came from in the input, and the rows read.
-Every number is labelled with the table (or the manifest) it comes from.
+Everything is read back from the database itself (``catalog.read_database``:
+the catalog, ``count(*)`` of each table and the bookkeeping tables). The run's
+manifest (returned by the build, or given as a file) adds what the database
+cannot say: roles, where each table and column came from in the input, and the
+rows read. Every number is labelled with the table (or the manifest) it comes from.
 
 The file has no script and loads nothing: inline CSS and inline SVG only, and a
 Content-Security-Policy that forbids any other source. Every text taken from the
@@ -24,47 +22,24 @@ from __future__ import annotations
 import html
 import json
 import math
-import re
 import sqlite3
 from collections import defaultdict
 from dataclasses import dataclass, field
 from pathlib import Path
 
 import networkx as nx
-from .names import quote_name as _q
-from .errors import NormaliseError
 
-META_TABLES = {"rejected_rows": "rejected", "set_aside_rows": "set_aside", "unmatched_rows": "unmatched",
-               "quarantined_cells": "quarantine", "attribute_variants": "variants", "name_map": "names",
-               "value_traces": "traces"}
-META_ROLES = set(META_TABLES.values())
-RUN_MANIFEST = "run_manifest"  # optional: one row, the manifest as JSON text
-HEAD_ROWS = 50  # rows of each bookkeeping table shown
-TOP_ENTITIES = 15
-_SQL_TYPES = {"BIGINT": "integer", "INTEGER": "integer", "INT": "integer", "FLOAT": "real", "REAL": "real",
-              "DOUBLE": "real", "TEXT": "text", "VARCHAR": "text", "BOOLEAN": "boolean", "DATE": "date",
-              "TIMESTAMP": "timestamp", "DATETIME": "timestamp"}
+from .catalog import HEAD_ROWS, owner_fk, read_database, source_label
+from .dictionary import render_dictionary
+from .errors import EXIT_USAGE, NormaliseError
+from .escapes import clean
+from .plan import META_ROLES, META_TABLES
+
 _NONE = "<span class=null>\u2014</span>"
 _NE, _DASH = "\u2260", "\u2014"
-_DISPLAY_NAMES = ("name", "display_name", "full_name", "title", "label")  # as normalise/views.py chooses
 
 
 # --- text that is safe to show --------------------------------------------------------------------
-
-_UNPRINTABLE = re.compile("[\x00-\x08\x0b\x0c\x0e-\x1f\x7f-\x9f\ud800-\udfff\ufffe\uffff]")
-
-
-def clean(value) -> str:
-    """Text fit to print: control characters and lone surrogates written as escapes.
-
-    Example:
-        >>> clean("a\\x00b"), clean(None), clean("caf\\udce9")
-        ('a\\\\x00b', '', 'caf\\\\udce9')
-    """
-    text = "" if value is None else value if isinstance(value, str) else str(value)
-    return _UNPRINTABLE.sub(lambda m: f"\\x{ord(m.group()):02x}" if ord(m.group()) < 0x100
-                            else f"\\u{ord(m.group()):04x}", text)
-
 
 def shorten(text: str, limit: int | None) -> str:
     if limit and len(text) > limit:
@@ -94,289 +69,6 @@ def _n(count: int, noun: str) -> str:
 
 def _num(n) -> str:
     return f"{n:,}" if isinstance(n, int) and not isinstance(n, bool) else esc(n)
-
-
-# --- reading the database -------------------------------------------------------------------------
-
-def connect(database) -> sqlite3.Connection:
-    """A read-only connection to an existing SQLite file; text that is not UTF-8 is kept as escapes."""
-    path = Path(database)
-    if not path.is_file():
-        from .errors import UsageError
-        raise UsageError(f"{database}: no such SQLite database file")
-    conn = sqlite3.connect(path.resolve().as_uri() + "?mode=ro", uri=True)
-    conn.text_factory = lambda b: b.decode("utf-8", "surrogateescape")
-    return conn
-
-
-def stored_manifest(conn: sqlite3.Connection) -> dict | None:
-    """The manifest kept in a ``run_manifest`` table (one row, JSON text), when the database has one."""
-    if not conn.execute("SELECT 1 FROM sqlite_master WHERE type = 'table' AND name = ?", (RUN_MANIFEST,)).fetchone():
-        return None
-    for row in conn.execute(f"SELECT * FROM {_q(RUN_MANIFEST)} LIMIT 1"):
-        for value in row:
-            if isinstance(value, str):
-                try:
-                    doc = json.loads(value)
-                except ValueError:
-                    continue
-                if isinstance(doc, dict) and isinstance(doc.get("tables"), list):
-                    return doc
-    return None
-
-
-def read_database(database, manifest: dict | None = None, *, manifest_origin: str | None = None,
-                  head_rows: int = HEAD_ROWS, shown_as=None) -> dict:
-    """Everything the report and the data dictionary show, read from a SQLite database.
-
-    ``manifest`` (the build's) adds roles, sources and the rows read; without it
-    the ``run_manifest`` table is used when present, else the roles are inferred
-    from the keys. Returns a plain dict (the *model*). ``shown_as`` is the database's name in the
-    report when it is read from elsewhere (a build's temporary file, before it is moved into place).
-    """
-    conn = connect(database)
-    try:
-        origin = manifest_origin or ("the build" if manifest is not None else None)
-        if manifest is None:
-            manifest = stored_manifest(conn)
-            origin = f"the {RUN_MANIFEST} table" if manifest is not None else None
-        model = _catalog(conn, manifest)
-        model["database"] = str(shown_as or database)
-        model["manifest"] = manifest
-        model["manifest_origin"] = origin
-        model["integrity"] = _integrity(conn)
-        model["data"] = _collect(conn, model, head_rows)
-    finally:
-        conn.close()
-    return model
-
-
-def _catalog(conn: sqlite3.Connection, manifest: dict | None) -> dict:
-    known = {t.get("name"): t for t in (manifest or {}).get("tables", []) if isinstance(t, dict)}
-    known_views = {v.get("name"): v for v in (manifest or {}).get("views", []) if isinstance(v, dict)}
-    objects = conn.execute("SELECT type, name, sql FROM sqlite_master WHERE type IN ('table', 'view') "
-                           "AND name NOT LIKE 'sqlite\\_%' ESCAPE '\\' ORDER BY rowid").fetchall()
-    tables, views, notes = [], [], []
-    for kind, name, sql in objects:
-        if kind == "table" and name != RUN_MANIFEST:
-            tables.append(_table(conn, name, known.get(name)))
-        elif kind == "view":
-            cols = [{"name": r[1], "type": r[2] or ""} for r in conn.execute(f"PRAGMA table_info({_q(name)})")]
-            v = known_views.get(name, {})
-            views.append({"name": name, "kind": v.get("kind"), "table": v.get("table"), "columns": cols, "sql": sql})
-    if manifest is not None:
-        missing = [n for n in known if n not in {t["name"] for t in tables}]
-        if missing:
-            notes.append("the manifest names tables the database does not have: " + ", ".join(map(clean, missing)))
-    if known:  # keep the manifest's order (the plan's), tables it does not know at the end
-        order = {n: i for i, n in enumerate(known)}
-        tables.sort(key=lambda t: order.get(t["name"], len(order)))
-    _infer_roles(tables)
-    if not known:  # the catalog's order is the load order: data tables first, the bookkeeping after them
-        tables.sort(key=lambda t: t["role"] in META_ROLES)
-    by_name = {t["name"]: t for t in tables}
-    for v in views:  # a view's table, when the manifest does not say: the name before "_summary"
-        if not v["table"] and v["name"].endswith("_summary") and v["name"][:-8] in by_name:
-            v["table"] = v["name"][:-8]
-            role = by_name[v["table"]]["role"]
-            v["kind"] = {"record": "record_summary", "entity": "entity_summary"}.get(role)
-    return {"tables": tables, "views": views, "notes": notes}
-
-
-def _table(conn: sqlite3.Connection, name: str, known: dict | None) -> dict:
-    info = conn.execute(f"PRAGMA table_info({_q(name)})").fetchall()
-    pk = [r[1] for r in sorted((r for r in info if r[5]), key=lambda r: r[5])]
-    fks: dict[int, dict] = {}
-    for fid, seq, parent, src, dst, *_ in conn.execute(f"PRAGMA foreign_key_list({_q(name)})"):
-        fk = fks.setdefault(fid, {"columns": [], "references": parent, "ref_columns": []})
-        fk["columns"].append(src)
-        fk["ref_columns"].append(dst)
-    uniques = []
-    for row in conn.execute(f"PRAGMA index_list({_q(name)})"):
-        if row[2] and row[3] != "pk":
-            cols = [r[2] for r in conn.execute(f"PRAGMA index_info({_q(row[1])})")]
-            if None not in cols:
-                uniques.append(cols)
-    foreign_keys = [fks[i] for i in sorted(fks, reverse=True)]  # SQLite lists them last declared first
-    for fk in foreign_keys:
-        if None in fk["ref_columns"]:  # REFERENCES parent without columns: the parent's primary key
-            parent_pk = [r[1] for r in sorted((r for r in conn.execute(f"PRAGMA table_info({_q(fk['references'])})")
-                                               if r[5]), key=lambda r: r[5])]
-            fk["ref_columns"] = parent_pk or fk["ref_columns"]
-        fk["unique"] = any(set(u) == set(fk["columns"]) for u in uniques) or set(pk) == set(fk["columns"])
-        fk["owner"] = False
-    rows = conn.execute(f"SELECT count(*) FROM {_q(name)}").fetchone()[0]
-    known_cols = {c.get("name"): c for c in (known or {}).get("columns", []) if isinstance(c, dict)}
-    columns = []
-    for _cid, cname, ctype, notnull, _default, in_pk in info:
-        k = known_cols.get(cname, {})
-        base = (ctype or "").split("(")[0].strip().upper()
-        columns.append({"name": cname, "sql_type": ctype or "",
-                        "type": k.get("type") or _SQL_TYPES.get(base, base.lower()),
-                        "nullable": not notnull and not in_pk, "source": k.get("source"),
-                        "unique": [cname] in uniques})
-    table = {"name": name, "rows": rows, "columns": columns, "primary_key": pk, "foreign_keys": foreign_keys,
-             "unique": uniques, "role": None, "sources": [], "natural_key": [], "position_column": None,
-             "manifest_rows": None, "inferred": known is None}
-    if known:
-        table["role"] = known.get("role")
-        table["sources"] = [s for s in known.get("sources") or [] if isinstance(s, dict)]
-        table["natural_key"] = [c for c in known.get("natural_key") or [] if c in {x["name"] for x in columns}]
-        table["position_column"] = known.get("position_column")
-        table["manifest_rows"] = known.get("rows")
-        order = [(f.get("references"), list(f.get("columns") or [])) for f in known.get("foreign_keys") or []]
-        foreign_keys.sort(key=lambda f: order.index((f["references"], f["columns"]))
-                          if (f["references"], f["columns"]) in order else len(order))
-        if table["role"] in ("bridge", "child", "record_part") and foreign_keys:
-            foreign_keys[0]["owner"] = True
-    return table
-
-
-def _owning_keys(table: dict) -> list[dict]:
-    """The foreign keys that may own a row or link it to an entity: NOT NULL ones. A nullable foreign key names
-    the record a value refers to (a region's parent), which makes its table neither a child nor a bridge."""
-    nullable = {c["name"] for c in table["columns"] if c["nullable"]}
-    return [f for f in table["foreign_keys"] if not set(f["columns"]) <= nullable]
-
-
-def _infer_roles(tables: list[dict]) -> None:
-    """Roles, owners and natural keys of the tables the manifest does not describe, from their keys.
-
-    The owner of a nested table is the foreign key that leads a UNIQUE
-    constraint (owner, list_position) or is the only one; a table another table
-    refers to through a non-owner key is an entity; a table with no foreign key
-    that no one refers to that way is a record table.
-    """
-    for t in tables:
-        if not t["inferred"] or not t["foreign_keys"] or any(f["owner"] for f in t["foreign_keys"]):
-            continue
-        owning = _owning_keys(t)
-        if not owning:
-            continue
-        leading = [f for f in owning
-                   if any(u[:len(f["columns"])] == f["columns"] and u != f["columns"] for u in t["unique"])
-                   or f["unique"]]
-        owner = leading[0] if leading else owning[0]
-        owner["owner"] = True
-        t["foreign_keys"].sort(key=lambda f: not f["owner"])
-    referenced = {f["references"] for t in tables for f in _owning_keys(t) if not f["owner"]}
-    for t in tables:
-        if not t["inferred"] or t["role"]:
-            continue
-        cols = {c["name"] for c in t["columns"]}
-        if t["name"] in META_TABLES and not t["foreign_keys"]:
-            t["role"] = META_TABLES[t["name"]]
-        elif [f["columns"] for f in t["foreign_keys"]] == [t["primary_key"]]:  # keyed by its record's key: 1:1
-            t["role"] = "record_part"
-        elif _owning_keys(t):
-            t["role"] = "bridge" if len(_owning_keys(t)) > 1 else "child"
-        else:
-            t["role"] = "entity" if t["name"] in referenced else "record"
-        if t["role"] in ("record", "entity"):
-            single = [u for u in t["unique"] if len(u) == 1 and u != t["primary_key"]]
-            t["natural_key"] = single[0] if single else []
-        if "list_position" in cols and t["role"] in ("bridge", "child"):
-            t["position_column"] = "list_position"
-
-
-def _integrity(conn: sqlite3.Connection) -> dict:
-    violations = conn.execute("PRAGMA foreign_key_check").fetchall()
-    check = [r[0] for r in conn.execute("PRAGMA integrity_check")]
-    return {"foreign_key_violations": len(violations), "violations": violations[:HEAD_ROWS],
-            "integrity_check": "ok" if check == ["ok"] else "; ".join(map(clean, check))}
-
-
-# --- the numbers shown, each from one query ---------------------------------------------------------
-
-def owner_fk(table: dict) -> dict | None:
-    return next((f for f in table["foreign_keys"] if f["owner"]), None)
-
-
-def display_column(table: dict) -> str:
-    """The column that names a row for people (normalise/views.py chooses the same)."""
-    names = {c["name"]: c for c in table["columns"]}
-    for wanted in _DISPLAY_NAMES:
-        if wanted in names:
-            return wanted
-    for c in table["columns"]:
-        if c["type"] == "text" and c["name"] not in table["primary_key"] and c["name"].endswith("name"):
-            return c["name"]
-    if table["natural_key"]:
-        return table["natural_key"][0]
-    return table["primary_key"][0] if table["primary_key"] else table["columns"][0]["name"]
-
-
-def _collect(conn: sqlite3.Connection, model: dict, head_rows: int) -> dict:
-    tables = {t["name"]: t for t in model["tables"]}
-    data: dict = {"meta": {}, "entities": [], "lists": [], "by_file": {}}
-    for name, table in tables.items():
-        if table["role"] not in META_ROLES:
-            continue
-        cols = [c["name"] for c in table["columns"]]
-        order = ", ".join(_q(c) for c in ("file", "line") if c in cols) or "rowid"
-        if table["role"] == "variants" and {"entity_table", "natural_key", "attribute"} <= set(cols):
-            order = "entity_table, natural_key, attribute" + (", chosen DESC" if "chosen" in cols else "") \
-                    + (", occurrences DESC" if "occurrences" in cols else "")
-        limit = head_rows * 10 if table["role"] == "variants" else head_rows
-        cur = conn.execute(f"SELECT * FROM {_q(name)} ORDER BY {order} LIMIT ?", (limit,))
-        shown = [d[0] for d in cur.description]
-        data["meta"][table["role"]] = {"table": name, "columns": shown, "rows": cur.fetchall(), "total": table["rows"]}
-        if "file" in cols:
-            for file, n in conn.execute(f"SELECT file, count(*) FROM {_q(name)} GROUP BY file ORDER BY file"):
-                data["by_file"].setdefault(file, {})[table["role"]] = n
-        if table["role"] == "variants" and {"entity_table", "entity_sk", "attribute"} <= set(cols):
-            data["meta"]["variants"]["conflicts"] = conn.execute(
-                f"SELECT count(*) FROM (SELECT DISTINCT entity_table, entity_sk, attribute FROM {_q(name)})"
-            ).fetchone()[0]
-    for entity in (t for t in model["tables"] if t["role"] == "entity" and len(t["primary_key"]) == 1):
-        refs = [(t["name"], f["columns"][0]) for t in model["tables"] for f in t["foreign_keys"]
-                if f["references"] == entity["name"] and not f["owner"] and len(f["columns"]) == 1
-                and f["ref_columns"] == entity["primary_key"]]
-        if refs:
-            data["entities"].append(_entity_frequency(conn, entity, refs))
-    for table in model["tables"]:
-        fk = owner_fk(table)
-        if fk and len(fk["columns"]) == 1 and fk["references"] in tables and len(fk["ref_columns"]) == 1:
-            data["lists"].append(_list_lengths(conn, table, fk))
-    return data
-
-
-def _entity_frequency(conn, entity: dict, refs: list[tuple[str, str]]) -> dict:
-    key = entity["primary_key"][0]
-    shown = display_column(entity)
-    natural = entity["natural_key"][0] if entity["natural_key"] else key
-    union = " UNION ALL ".join(f"SELECT {_q(col)} AS k FROM {_q(t)}" for t, col in refs)
-    top = conn.execute(
-        f"SELECT e.{_q(key)}, e.{_q(shown)}, e.{_q(natural)}, c.n FROM (SELECT k, count(*) AS n FROM ({union}) "
-        f"GROUP BY k) c JOIN {_q(entity['name'])} e ON e.{_q(key)} = c.k "
-        f"ORDER BY c.n DESC, CAST(e.{_q(shown)} AS TEXT), e.{_q(key)} LIMIT ?", (TOP_ENTITIES,)).fetchall()
-    referenced = conn.execute(f"SELECT count(DISTINCT k), count(*) FROM ({union})").fetchone()
-    per_ref = defaultdict(dict)
-    keys = [r[0] for r in top]
-    if keys and len(refs) > 1:
-        marks = ", ".join("?" * len(keys))
-        for t, col in refs:
-            for k, n in conn.execute(f"SELECT {_q(col)}, count(*) FROM {_q(t)} WHERE {_q(col)} IN ({marks}) "
-                                     f"GROUP BY {_q(col)}", keys):
-                per_ref[k][t] = n
-    return {"table": entity["name"], "display": shown, "natural": natural, "refs": refs,
-            "top": [{"key": k, "label": label, "natural": nat, "count": n, "by": per_ref.get(k, {})}
-                    for k, label, nat, n in top],
-            "entities": entity["rows"], "referenced": referenced[0], "references": referenced[1]}
-
-
-def _list_lengths(conn, table: dict, fk: dict) -> dict:
-    owner = fk["references"]
-    col, ref = fk["columns"][0], fk["ref_columns"][0]
-    rows = conn.execute(
-        f"SELECT n, count(*) FROM (SELECT count(b.{_q(col)}) AS n FROM {_q(owner)} o "
-        f"LEFT JOIN {_q(table['name'])} b ON b.{_q(col)} = o.{_q(ref)} GROUP BY o.{_q(ref)}) "
-        f"GROUP BY n ORDER BY n").fetchall()
-    owners = sum(c for _, c in rows)
-    elements = sum(n * c for n, c in rows)
-    return {"table": table["name"], "owner": owner, "column": col, "distribution": rows, "owners": owners,
-            "elements": elements, "empty": dict(rows).get(0, 0), "longest": rows[-1][0] if rows else 0,
-            "sources": table["sources"]}
 
 
 # --- the diagram's layout ---------------------------------------------------------------------------
@@ -424,16 +116,6 @@ class Layout:
     columns: list[tuple[float, float]] = field(default_factory=list)  # (x, width) of the nesting columns
     width: float = 0.0
     height: float = 0.0
-
-
-def source_label(table: dict) -> str:
-    """Where a table came from: "export" or "export · column, column"."""
-    by_file: dict[str, list[str]] = {}
-    for s in table.get("sources") or []:
-        files = by_file.setdefault(str(s.get("file") or "?"), [])
-        if s.get("column"):
-            files.append(str(s["column"]))
-    return "; ".join(f + (" \u00b7 " + ", ".join(cols) if cols else "") for f, cols in by_file.items())
 
 
 def _box(table: dict) -> Box:
@@ -1164,8 +846,8 @@ def _reconciliation_section(model: dict) -> str:
                          + _table_html(["main file", "joined file", "on", "how", "#keys only in main",
                                         "#keys only in joined", "#duplicates set aside", "examples"], rows))
     else:
-        parts.append('<p class="note">The database does not record how many rows were read (no manifest was given '
-                     "and it has no run_manifest table); below is what the database holds per input file.</p>")
+        parts.append('<p class="note">The database does not record how many rows were read (no manifest was given); '
+                     "below is what the database holds per input file.</p>")
         rows = []
         for file in sorted(by_file, key=str):
             f = by_file[file]
@@ -1233,8 +915,7 @@ def _integrity_section(model: dict) -> str:
     return out
 
 
-_META_LABEL = {"quarantine": "quarantined_cells", "rejected": "rejected_rows", "set_aside": "set_aside_rows",
-               "unmatched": "unmatched_rows", "variants": "attribute_variants"}
+_META_LABEL = {meta.role: name for name, meta in META_TABLES.items()}  # a role's table
 _META_LIMITS = {"raw": 160, "cells": 160, "excerpt": 80, "message": 240}
 
 
@@ -1355,8 +1036,6 @@ def write_report(database, path, manifest: dict | None = None, *, model: dict | 
 def write_outputs(database, manifest: dict | None = None, *, report_path=None, dictionary_path=None,
                   manifest_origin: str | None = None, shown_as=None) -> dict:
     """Write the HTML report and/or the data dictionary from one reading of the database."""
-    from .dictionary import render_dictionary
-
     model = read_database(database, manifest, manifest_origin=manifest_origin, shown_as=shown_as)
     written = {}
     if report_path:
@@ -1375,7 +1054,7 @@ class UnreadableManifest(NormaliseError):
     """A manifest that cannot be read, is not JSON or lacks what a normalise manifest holds (the wrong file
     given: a usage error)."""
 
-    exit_code = 2
+    exit_code = EXIT_USAGE
 
 
 # What the report reads of a manifest, and the JSON type each must have (the rest is optional).
@@ -1449,16 +1128,10 @@ def report_existing(database, manifest_path=None, report_path=None, dictionary_p
             raise UsageError(f"{database} could not be read as a SQLite database: {exc}") from None
         written = {}
         for what, path, render in (("report", report_path, render_report),
-                                   ("dictionary", dictionary_path, _render_dictionary)):
+                                   ("dictionary", dictionary_path, render_dictionary)):
             if path:
                 with writing("-o" if what == "report" else "--dictionary", path):
                     Path(staged.file(path)).write_text(render(model), encoding="utf-8")
                 written[what] = str(path)
         staged.commit()
     return written
-
-
-def _render_dictionary(model: dict) -> str:
-    from .dictionary import render_dictionary
-    return render_dictionary(model)
-

@@ -3,7 +3,7 @@
 from __future__ import annotations
 
 from .names import Namer, singular
-from .plan import Column, FieldMap, ForeignKey, NestedColumn, Plan, RecordSource, Table
+from .plan import META_TABLES, Column, FieldMap, ForeignKey, NestedColumn, Plan, RecordSource, Table
 
 POSITION = "list_position"
 
@@ -55,37 +55,10 @@ def add_tables(plan: Plan) -> None:
         for nested in record.nested:
             _nested_tables(plan, nested, record.table, record.key_column)
     split_wide_records(plan)
-    for name, columns in _META.items():
+    for name, meta in META_TABLES.items():
         cols = [Column(f"{singular(name)}_sk", "integer", nullable=False)]
-        cols += [Column(c, t, nullable=nullable) for c, t, nullable in columns]
-        plan.tables.append(Table(name, _META_ROLE[name], cols, [f"{singular(name)}_sk"]))
-
-
-_META = {
-    "rejected_rows": [("file", "text", False), ("line", "integer", False), ("reason", "text", False),
-                      ("raw", "text", False)],
-    "set_aside_rows": [("file", "text", False), ("line", "integer", False), ("natural_key", "text", True),
-                       ("reason", "text", False), ("kept_line", "integer", True), ("cells", "text", False)],
-    "unmatched_rows": [("file", "text", False), ("line", "integer", False), ("join_key", "text", True),
-                       ("reason", "text", False), ("cells", "text", False)],
-    "quarantined_cells": [("file", "text", False), ("line", "integer", False), ("column_name", "text", False),
-                          ("position", "integer", True), ("excerpt", "text", False), ("message", "text", False)],
-    "attribute_variants": [("entity_table", "text", False), ("entity_sk", "integer", False),
-                           ("natural_key", "text", False), ("attribute", "text", False), ("value", "text", True),
-                           ("occurrences", "integer", False), ("chosen", "boolean", False)],
-    # a value the model's columns cannot give back exactly, kept verbatim (original: Python literal text
-    # that ast.literal_eval reads back; NULL when the key was absent), at its place in a row
-    "value_traces": [("table_name", "text", False), ("row_sk", "integer", False), ("owner_sk", "integer", True),
-                     ("position", "integer", True), ("column_name", "text", False), ("path", "text", False),
-                     ("reason", "text", False), ("original", "text", True), ("file", "text", True),
-                     ("line", "integer", True)],
-    # every name taken from the data (file, header, object key) and the SQL name it was given
-    "name_map": [("table_name", "text", False), ("column_name", "text", True), ("name_in_input", "text", False),
-                 ("found_in", "text", False)],
-}
-_META_ROLE = {"rejected_rows": "rejected", "set_aside_rows": "set_aside", "unmatched_rows": "unmatched",
-              "quarantined_cells": "quarantine", "attribute_variants": "variants", "name_map": "names",
-              "value_traces": "traces"}
+        cols += [Column(c, t, nullable=nullable) for c, t, nullable in meta.columns]
+        plan.tables.append(Table(name, meta.role, cols, [f"{singular(name)}_sk"]))
 
 
 def _source(member: str, path: str = "") -> dict:
@@ -194,7 +167,7 @@ def split_wide_records(plan: Plan) -> None:
         [('items', 'record', 500), ('items_part_2', 'record_part', 500), ('items_part_3', 'record_part', 500),
          ('items_part_4', 'record_part', 204)]
     """
-    names = Namer([t.name for t in plan.tables] + list(_META))
+    names = Namer([t.name for t in plan.tables] + list(META_TABLES))
     for table in [t for t in plan.tables if t.role == "record" and len(t.columns) > MAX_COLUMNS]:
         key = table.primary_key[0]
         held = {key, *table.natural_key, *(c for fk in table.foreign_keys for c in fk.columns)}

@@ -7,7 +7,6 @@ The survey is the read, decode and infer passes run for information only;
 from __future__ import annotations
 
 import os
-from dataclasses import dataclass, field
 
 from .decode import DecodedColumn, decode
 from .infer import (REFERENCE_MIN_SHARE, REFERENCE_MIN_VALUES, detect_natural_key, identity_candidates, is_reference,
@@ -18,13 +17,6 @@ from .profile import profile_values
 from .read import Export, read
 
 SHOWN_MESSAGES = 5
-
-
-@dataclass
-class FileSurvey:
-    export: Export
-    columns: dict[str, DecodedColumn]
-    report: dict = field(default_factory=dict)
 
 
 def survey_column(export: Export, column: DecodedColumn) -> dict:
@@ -61,7 +53,7 @@ def survey_column(export: Export, column: DecodedColumn) -> dict:
     return entry
 
 
-def survey(paths: list[str], *, limits: Limits = Limits(), formats: dict | None = None,
+def survey(paths, *, limits: Limits = Limits(), formats: dict | None = None,
            encoding: str | None = None, delimiter: str | None = None, header: bool = True) -> dict:
     """Survey exports; returns ``{"files": [{"path", "rows", "columns": [...]}, ...]}``.
 
@@ -73,6 +65,9 @@ def survey(paths: list[str], *, limits: Limits = Limits(), formats: dict | None 
         >>> col["encoding"], col["shape"], col["identity_candidates"][0]["field"]
         ('python-literal', 'object-list', 'id')
     """
+    if isinstance(paths, (str, os.PathLike)):  # one path (never its characters) or many
+        paths = [paths]
+    paths = [os.fspath(p) for p in paths]
     delimiter = check_values(encoding_name=encoding, delimiter_char=delimiter, limits=limits)
     files = []
     surveyed = []

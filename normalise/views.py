@@ -15,8 +15,8 @@ from __future__ import annotations
 
 from dataclasses import dataclass, field
 
-from .plan import Plan, Table
-from .names import quote_name as _q
+from .plan import TEXT_TYPES, Plan, Table
+from .names import fit, free_name, quote_name as _q, singular
 
 LIST_SEPARATOR = "; "
 _DISPLAY_NAMES = ("name", "display_name", "full_name", "title", "label", "login", "username")
@@ -126,21 +126,13 @@ def default_views(plan: Plan) -> list[View]:
 
 
 def _free(name: str, taken: set) -> str:
-    from .names import fit
-
-    base, n = name, 2
-    name = fit(name)
-    while name in taken:
-        name = fit(f"{base}_{n}")
-        n += 1
+    name = free_name(name, taken.__contains__, fit)
     taken.add(name)
     return name
 
 
 def _label(name: str) -> str:
     """A view column's name, shortened with a hash when longer than a PostgreSQL name (63 bytes)."""
-    from .names import fit
-
     return fit(name, 63)
 
 
@@ -154,7 +146,7 @@ def _bytewise(dialect: str, expr: str, type_: str) -> str:
     PostgreSQL would otherwise order text by the database's locale ("B" after
     "a" in en_US), so a view's first and last rows would depend on the server.
     """
-    if dialect == "postgresql" and type_ in ("text", "date", "timestamp"):
+    if dialect == "postgresql" and type_ in TEXT_TYPES:
         return f'{expr} COLLATE "C"'
     return expr
 
@@ -250,12 +242,16 @@ def add_pick(plan: Plan, spec: str) -> Pick:
 
 
 def singular_prefix(record_table: str) -> str:
-    from .names import singular
-
     return singular(record_table) + "_"
 
 
 def _entity_summary(view: View, plan: Plan, dialect: str) -> str:
+    """One row per entity: the distinct records it appears in, per list and in total, and its first and
+    last record by date. SQLite answers subqueries per entity through the bridges' foreign-key indexes
+    faster than aggregates over whole tables (measured: benchmarks/bench_views.py, docs/performance.md);
+    PostgreSQL the other way round."""
+    if dialect == "postgresql":
+        return _entity_summary_joined(view, plan, dialect)
     entity = plan.table(view.table)
     key = entity.primary_key[0]
     cols = [f"e.{_q(key)}"] + [f"e.{_q(c)}" for c in entity.natural_key]
@@ -290,3 +286,45 @@ def _entity_summary(view: View, plan: Plan, dialect: str) -> str:
                         f"FROM {_q(owner.name)} r WHERE r.{_q(owner_key)} IN ({inner})) "
                         f"AS {_q(_label(f'{which}_{view.date_column}'))}")
     return f"SELECT {', '.join(cols)} FROM {_q(entity.name)} e"
+
+
+def _entity_summary_joined(view: View, plan: Plan, dialect: str) -> str:
+    """PostgreSQL's entity summary: counts and first and last records joined from aggregates (one GROUP BY
+    per list over its whole table, not one subquery per entity), which PostgreSQL's hash joins answer in
+    about the same time for ``LIMIT 1000`` as for a GROUP BY over the whole view."""
+    entity = plan.table(view.table)
+    key = entity.primary_key[0]
+    cols = [f"e.{_q(key)}"] + [f"e.{_q(c)}" for c in entity.natural_key]
+    shown = display_column(entity)
+    if shown not in entity.natural_key:
+        cols.append(f"e.{_q(shown)}")
+    joins, unions = [], []
+    for n, entry in enumerate(view.lists):
+        source, owner, record_key, link = occurrence(plan, entry)
+        label = entry.replace(".", "_")
+        label = label[:-3] if "." in entry and label.endswith("_sk") else label
+        joins.append(f"LEFT JOIN (SELECT {link} AS ek, count(DISTINCT {record_key}) AS n FROM {source} "
+                     f"GROUP BY {link}) c{n} ON c{n}.ek = e.{_q(key)}")
+        cols.append(f"coalesce(c{n}.n, 0) AS {_q(_label('records_in_' + label))}")
+        unions.append(f"SELECT {_lit(owner)} AS t, {record_key} AS k, {link} AS ek FROM {source}")
+    # distinct records: an entity twice in one record's list is one record (UNION drops the repeats)
+    occurrences = " UNION ".join(unions)
+    joins.append(f"LEFT JOIN (SELECT ek, count(*) AS n FROM ({occurrences}) u GROUP BY ek) tot "
+                 f"ON tot.ek = e.{_q(key)}")
+    cols.append(f"coalesce(tot.n, 0) AS {_q('records_in_total')}")
+    if view.date_column:
+        owner = plan.table(occurrence(plan, view.lists[0])[1])
+        owner_key = owner.primary_key[0]
+        label = owner.natural_key[0] if owner.natural_key else owner_key
+        date = _bytewise(dialect, f"r.{_q(view.date_column)}", owner.column(view.date_column).type)
+        shown_label = _bytewise(dialect, f"r.{_q(label)}", owner.column(label).type)
+        for which, direction in (("first", "ASC"), ("last", "DESC")):
+            ranked = (f"SELECT o.ek, r.{_q(label)} AS shown, {date} AS d, ROW_NUMBER() OVER (PARTITION BY o.ek "
+                      f"ORDER BY {date} {direction}, {shown_label} {direction}) AS place "
+                      f"FROM (SELECT DISTINCT k, ek FROM ({occurrences}) u) o "
+                      f"JOIN {_q(owner.name)} r ON r.{_q(owner_key)} = o.k WHERE r.{_q(view.date_column)} IS NOT NULL")
+            joins.append(f"LEFT JOIN (SELECT ek, shown, d FROM ({ranked}) x WHERE place = 1) {which} "
+                         f"ON {which}.ek = e.{_q(key)}")
+            cols.append(f"{which}.shown AS {_q(_label(f'{which}_{singular_prefix(owner.name)[:-1]}'))}")
+            cols.append(f"{which}.d AS {_q(_label(f'{which}_{view.date_column}'))}")
+    return f"SELECT {', '.join(cols)} FROM {_q(entity.name)} e {' '.join(joins)}"

@@ -54,8 +54,6 @@ TIME_LIMIT = 60  # seconds for the three commands of one case
 ADDRESS_SPACE = 8 << 30  # bytes: a runaway allocation fails in the child instead of taking the machine
 MAX_RSS_MB = 1536  # peak resident memory of one case, unless its expect.json says otherwise
 SQL_NAME = re.compile(r"[a-z_][a-z0-9_]*")
-# tables the tool itself adds beside the planned ones (the manifest stored in the database)
-TOOL_TABLES = {"run_manifest", "column_names"}
 
 # The child: survey (plain and --json) and build, each through normalise.cli.main, with
 # stdout a strict UTF-8 stream (as a pipe's is) and stderr as Python sets it up.
@@ -222,14 +220,29 @@ def inputs_for(case_dir: Path, expect: dict, work: Path) -> list[str]:
         target = renamed.get(name, name)
         shutil.copyfile(case_dir / name, work / target)
         out.append(target)
+    for name in expect.get("aside", []):  # files an option names (a plan), not inputs
+        shutil.copyfile(case_dir / name, work / name)
     return out
+
+
+def check_inputs_unchanged(case_dir: Path, expect: dict, work: Path) -> None:
+    """No output replaced an input or a file an option read: each is byte for byte its case file."""
+    if "generate" in expect:
+        return
+    renamed = expect.get("rename", {})
+    for name in (expect.get("files") or sorted(p.name for p in case_dir.iterdir()
+                                               if p.name != "expect.json" and p.is_file())) + expect.get("aside", []):
+        target = work / renamed.get(name, name)
+        assert target.read_bytes() == (case_dir / name).read_bytes(), f"{target.name} was changed by the run"
 
 
 # --- checks ---------------------------------------------------------------------------------
 
 def one_line_message(stderr: str) -> str:
+    """The one ``normalise: ...`` line of a refusal (a ``  hint: ...`` line may follow it)."""
     lines = [line for line in stderr.splitlines() if line.strip()]
-    assert len(lines) == 1 and lines[0].startswith("normalise: "), f"expected one message line: {stderr!r}"
+    hints = lines[1:] == [] or (len(lines) == 2 and lines[1].startswith("  hint: "))
+    assert lines and lines[0].startswith("normalise: ") and hints, f"expected one message line: {stderr!r}"
     return lines[0]
 
 
@@ -272,7 +285,7 @@ def check_names(db: sqlite3.Connection, manifest: dict) -> None:
     tables = {name for kind, name, _ in objects if kind == "table"}
     views = {name for kind, name, _ in objects if kind == "view"}
     planned = {t["name"] for t in manifest["tables"]}
-    assert planned <= tables and tables - planned <= TOOL_TABLES, (sorted(tables), sorted(planned))
+    assert tables == planned, (sorted(tables), sorted(planned))
     assert views == {v["name"] for v in manifest["views"]}, (views, manifest["views"])
     for kind, name, _ in objects:
         if not name.startswith("sqlite_autoindex_"):
@@ -368,6 +381,7 @@ def test_corpus_case(case, tmp_path):
     assert peak_mb < expect.get("max_rss_mb", MAX_RSS_MB), f"peak memory {peak_mb:.0f} MiB"
     check_survey(results, expect)
     check_build(results, expect, work, inputs)
+    check_inputs_unchanged(case_dir, expect, work)
     marker = expect.get("marker")
     if marker:  # a hostile cell would have created it, in the folder the commands ran in or here
         for folder in (work, case_dir, Path.cwd(), ROOT):

@@ -18,7 +18,8 @@ from hypothesis import strategies as st
 from fuzz.checks import MODES, SUFFIXES, check_decode, check_read
 from normalise.build import TooManyColumns, check_width, to_sql_value, usable_identity
 from normalise.decode import decode_column, split_delimited
-from normalise.read import printable_name, read
+from normalise.escapes import printable
+from normalise.read import read
 from tests.strategies import json_cells, python_cells, random_cells
 
 BOUNDED = settings(max_examples=200, deadline=None, derandomize=True,
@@ -50,7 +51,7 @@ def test_header_and_json_lines_keys_with_undecodable_bytes_are_named_printably(t
     jsonl = tmp_path / "h.jsonl"
     jsonl.write_bytes(b'{"id": 1, "w\xfeo": 2, "\\ud800": 3}\n')
     assert read(jsonl).columns == ["id", "w\\xfeo", "\\ud800"]
-    assert printable_name("plain") == "plain"
+    assert printable("plain") == "plain"
 
 
 def test_blank_lines_before_the_header_are_skipped(tmp_path):

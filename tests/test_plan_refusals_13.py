@@ -57,18 +57,19 @@ def refused(planned, tmp_path, old: str, new: str, count: int = 1) -> str:
     ('name = "opened_by_desk"', 'name = "ticket_sk"', ["two columns named 'ticket_sk'"]),
     ('table = "ticket_watchers"', 'table = "t\\"; DROP TABLE name_map; --"', ["expected name", "lower case"]),
     ('duplicates = "first"', 'duplicates = "first"\ncolour = "red"', ["unknown key 'colour'", "use one of"]),
+    ('natural_key = ', 'natual_key = ', ["unknown key 'natual_key'", "did you mean 'natural_key'?"]),
     ('type = "text"', "type = 5", ["type", "unknown type 5"]),
 ])
 def test_a_plan_that_cannot_work_is_refused_with_its_line(planned, tmp_path, old, new, words):
     message = refused(planned, tmp_path, old, new)
-    assert re.match(r"plan line \d+: ", message), message
+    assert re.match(r"plan \S+\.toml line \d+: ", message), message
     for w in words:
         assert w in message, message
 
 
 def test_a_block_of_the_wrong_kind_is_refused(planned, tmp_path):
     path, _ = planned
-    with pytest.raises(InvalidPlan, match=r"plan line 2: record: expected a list of"):
+    with pytest.raises(InvalidPlan, match=r"plan \S+\.toml line 2: record: expected a list of"):
         replay(path, "version = 1\nrecord = 5\n", tmp_path)
     assert not (tmp_path / "edited.db").exists()
 

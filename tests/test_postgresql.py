@@ -28,12 +28,18 @@ import uuid
 import pytest
 import sqlalchemy as sa
 
+try:
+    from psycopg import sql
+except ImportError:  # the module is skipped below without psycopg
+    sql = None
+
 from demo.generate import generate
 from normalise import write as write_module
-from normalise.cli import main
+from normalise.cli import exit_code, main
 from normalise.errors import NormaliseError, UsageError
 from normalise.pipeline import build_database
-from normalise.write import DestinationError, DestinationExists, UnstorableValue
+from normalise.write import (PG_REGISTER, DestinationError, DestinationExists, DestinationFailed,
+                             UnstorableValue)
 
 URL_VARIABLE = "NORMALISE_TEST_POSTGRES_URL"
 TITLES, CONTRIBUTIONS = "titles.csv", "contributions.csv"
@@ -182,7 +188,11 @@ def test_tables_and_views_match_sqlite(pg, built, reference):
     db, m_sqlite = reference
     assert relation_names(m) == relation_names(m_sqlite)
     assert len(m["views"]) >= 2 and any(v["kind"] == "entity_summary" for v in m["views"])
-    assert pg_relations(pg, schema) == ({t["name"]: "r" for t in m["tables"]} | {v["name"]: "v" for v in m["views"]})
+    made = {t["name"]: "r" for t in m["tables"]} | {v["name"]: "v" for v in m["views"]}
+    assert pg_relations(pg, schema) == made | {PG_REGISTER: "r"}
+    # the register lists exactly what the run made, itself included (what --replace may drop)
+    register = dict(pg.execute(sql.SQL("SELECT relation, kind FROM {}").format(sql.Identifier(schema, PG_REGISTER))))
+    assert register == {name: {"r": "table", "v": "view"}[kind] for name, kind in made.items()} | {PG_REGISTER: "table"}
     assert_same_as_sqlite(pg, schema, db, relation_names(m))
     # the demo is not trivially empty: every record, bridge and entity table has rows
     assert all(t["rows"] for t in m["tables"] if t["role"] in ("record", "entity", "bridge"))
@@ -291,20 +301,47 @@ def test_constraints_and_indexes_match_sqlite(pg, built, reference):
 # --- re-running: --replace, refusal, one transaction -------------------------------------------
 
 def test_replace_rebuilds_the_same_content(pg, pg_url, schema, demo, reference):
-    """--replace drops the schema's tables and views (strays included) and writes the same content."""
-    from psycopg import sql
-
+    """--replace drops what the earlier run made and writes the same content."""
     db, m_sqlite = reference
     m = build_database(demo, pg_url, schema=schema, picks=PICKS)
     first = pg_snapshot(pg, schema, relation_names(m))
-    pg.execute(sql.SQL("CREATE TABLE {} (x int)").format(sql.Identifier(schema, "stray")))
-    pg.execute(sql.SQL("CREATE VIEW {} AS SELECT count(*) AS n FROM {}").format(
-        sql.Identifier(schema, "stray_view"), sql.Identifier(schema, "titles")))
     m2 = build_database(demo, pg_url, schema=schema, picks=PICKS, replace=True)
     assert m2 == m
     assert pg_snapshot(pg, schema, relation_names(m)) == first
-    assert set(pg_relations(pg, schema)) == set(relation_names(m))  # the strays are gone
+    assert set(pg_relations(pg, schema)) == set(relation_names(m)) | {PG_REGISTER}
     assert_same_as_sqlite(pg, schema, db, relation_names(m_sqlite))
+
+
+def test_replace_never_drops_what_the_tool_did_not_make(pg, pg_url, schema, demo):
+    """A table and a view the user made in the schema stop --replace (nothing changes); with
+    --share-schema the run writes beside them and a later --replace drops only the run's own."""
+    m = build_database(demo, pg_url, schema=schema, picks=PICKS)
+    pg.execute(sql.SQL("CREATE TABLE {} (x int)").format(sql.Identifier(schema, "stray")))
+    pg.execute(sql.SQL("INSERT INTO {} VALUES (7)").format(sql.Identifier(schema, "stray")))
+    pg.execute(sql.SQL("CREATE VIEW {} AS SELECT 1 AS one").format(sql.Identifier(schema, "stray_view")))
+    before = pg_snapshot(pg, schema, relation_names(m) + ["stray"])
+    with pytest.raises(DestinationExists) as caught:
+        build_database(demo, pg_url, schema=schema, picks=PICKS, replace=True)
+    assert "stray" in str(caught.value) and "--share-schema" in str(caught.value)
+    assert exit_code(caught.value) == 2
+    assert pg_snapshot(pg, schema, relation_names(m) + ["stray"]) == before
+    m2 = build_database(demo, pg_url, schema=schema, picks=PICKS, replace=True, share_schema=True)
+    assert m2 == m
+    assert pg_snapshot(pg, schema, relation_names(m) + ["stray"]) == before
+    assert set(pg_relations(pg, schema)) == set(relation_names(m)) | {PG_REGISTER, "stray", "stray_view"}
+
+
+def test_shared_schema_refuses_a_name_already_taken(pg, pg_url, demo):
+    """A table of the user's named like a planned one is never dropped: the run is refused."""
+    other = _new_schema()
+    try:
+        pg.execute(sql.SQL("CREATE SCHEMA {}").format(sql.Identifier(other)))
+        pg.execute(sql.SQL("CREATE TABLE {} (x int)").format(sql.Identifier(other, "name_map")))
+        with pytest.raises(DestinationExists, match="name_map"):
+            build_database(demo, pg_url, schema=other, share_schema=True, replace=True)
+        assert set(pg_relations(pg, other)) == {"name_map"}
+    finally:
+        pg.execute(sql.SQL("DROP SCHEMA {} CASCADE").format(sql.Identifier(other)))
 
 
 def test_refuses_a_schema_that_holds_tables(pg, pg_url, schema, demo):
@@ -366,9 +403,9 @@ def test_failed_replace_leaves_the_schema_unchanged(pg, pg_url, schema, demo, re
     before = pg_snapshot(pg, schema, relation_names(m) + ["stray"])
     _failing_copy(monkeypatch, after=5)
     with pytest.raises(RuntimeError, match="injected"):
-        build_database(demo, pg_url, schema=schema, replace=True)
+        build_database(demo, pg_url, schema=schema, replace=True, share_schema=True)
     assert pg_snapshot(pg, schema, relation_names(m) + ["stray"]) == before
-    assert set(pg_relations(pg, schema)) == set(relation_names(m)) | {"stray"}
+    assert set(pg_relations(pg, schema)) == set(relation_names(m)) | {"stray", PG_REGISTER}
 
 
 def test_replace_does_not_cascade_into_other_schemas(pg, pg_url, schema, demo):
@@ -439,9 +476,11 @@ def test_schema_option_needs_postgresql(demo, tmp_path):
 
 def test_refused_connection_is_a_clear_error_without_the_password(pg_url, demo):
     url = sa.engine.make_url(pg_url).set(password="wrong-pw-5f2a").render_as_string(hide_password=False)
-    with pytest.raises(DestinationError) as caught:
+    with pytest.raises(DestinationFailed) as caught:
         build_database(demo, url)
-    assert "nothing was written" in str(caught.value) and "wrong-pw-5f2a" not in str(caught.value)
+    message = str(caught.value)
+    assert "nothing was done" in message and "wrong-pw-5f2a" not in message and "\n" not in message
+    assert exit_code(caught.value) == 1  # the call was right; the server refused it
 
 
 def test_other_drivers_are_refused(demo):
@@ -457,6 +496,41 @@ def test_nul_character_is_refused_and_nothing_written(pg, pg_url, schema, tmp_pa
         build_database([str(path)], pg_url, schema=schema)
     assert isinstance(caught.value, NormaliseError)
     assert not schema_exists(pg, schema)
+
+
+def test_nul_in_a_header_is_written_escaped_in_name_map(pg, pg_url, schema, tmp_path):
+    """A header with NUL can be written: the column gets a clean name, name_map quotes the header with
+    NUL as \\x00 (as it quotes undecodable bytes); the data round-trips (the lossless proof ran)."""
+    path = tmp_path / "books.csv"
+    path.write_bytes(b'key,no\x00te,tags\nb1,x,"[""a"", ""b""]"\nb2,y,"[""a""]"\n')
+    m = build_database([str(path)], pg_url, schema=schema)
+    assert m["integrity"]["proof"] == "exact" and m["integrity"]["cells_differing"] == 0
+    names = pg.execute(sql.SQL("SELECT column_name, name_in_input FROM {} WHERE column_name IS NOT NULL").format(
+        sql.Identifier(schema, "name_map"))).fetchall()
+    assert ("no_te", "no\\x00te") in names
+
+
+def test_a_second_run_on_the_schema_is_refused_while_one_runs(pg, pg_url, schema, demo, tmp_path):
+    """One run per schema for the whole run: a session advisory lock (PostgreSQL's pg_advisory_lock)
+    held elsewhere makes a build refuse at once, or after --wait seconds, before it reads anything."""
+    import time
+
+    import psycopg
+
+    from normalise.outputs import DestinationBusy
+
+    key = write_module._pg_lock_key(b"normalise run ", schema)
+    with psycopg.connect(_libpq(pg_url), autocommit=True) as holder:
+        holder.execute("SELECT pg_advisory_lock(%s)", (key,))
+        with pytest.raises(DestinationBusy) as caught:
+            build_database(demo, pg_url, schema=schema)
+        assert exit_code(caught.value) == 1 and "another normalise run" in str(caught.value)
+        started = time.monotonic()
+        with pytest.raises(DestinationBusy, match="after waiting 1 s"):
+            build_database(demo, pg_url, schema=schema, wait=1)
+        assert time.monotonic() - started >= 1
+    assert not schema_exists(pg, schema)
+    build_database(demo, pg_url, schema=schema)  # the lock went with the holder's connection
 
 
 def _long_named(tmp_path, stem: str, column: str):

@@ -1,4 +1,5 @@
-"""Tests of the HTML report and the data dictionary (normalise/report_html.py, normalise/dictionary.py).
+"""Tests of the HTML report and the data dictionary (normalise/report_html.py, normalise/dictionary.py), and of
+the reading of the database both render (normalise/catalog.py).
 
 The references, named beside each check:
 
@@ -37,7 +38,8 @@ from normalise.dictionary import render_dictionary
 from normalise.errors import UsageError
 from normalise.pipeline import build_database
 from normalise.plan import Column, ForeignKey, Plan, Table
-from normalise.report_html import layout_schema, overlaps, read_database, render_report, write_outputs
+from normalise.catalog import read_database
+from normalise.report_html import layout_schema, overlaps, render_report, write_outputs
 from normalise.schema import add_tables
 from normalise.write import write_sqlite
 
@@ -64,7 +66,7 @@ def demo(tmp_path_factory):
 def tables_of(db) -> list[str]:
     with sqlite3.connect(db) as con:
         return [r[0] for r in con.execute("SELECT name FROM sqlite_master WHERE type = 'table' "
-                                          "AND name NOT LIKE 'sqlite_%' AND name != 'run_manifest'")]
+                                          "AND name NOT LIKE 'sqlite_%'")]
 
 
 def views_of(db) -> list[str]:
@@ -297,19 +299,6 @@ def test_report_of_an_existing_database_reads_the_catalog(demo, tmp_path):
                  str(demo["dir"] / "demo.json")]) == 0
     assert main(["report", str(db)]) == 2  # neither -o nor --dictionary
     assert main(["report", str(tmp_path / "missing.db"), "-o", str(tmp_path / "x.html")]) == 2
-
-
-def test_run_manifest_table_is_used_when_present(demo, tmp_path):
-    copy = tmp_path / "with_manifest.db"
-    shutil.copy(demo["db"], copy)
-    with sqlite3.connect(copy) as con:
-        con.execute("CREATE TABLE run_manifest (manifest TEXT NOT NULL)")
-        con.execute("INSERT INTO run_manifest VALUES (?)", (json.dumps(demo["manifest"]),))
-    model = read_database(copy)
-    assert "run_manifest" in model["manifest_origin"]
-    assert "run_manifest" not in [t["name"] for t in model["tables"]]
-    bridge = next(t for t in model["tables"] if t["name"] == "title_contributors")
-    assert bridge["sources"] == [{"file": "contributions", "column": "contributors"}]
 
 
 def test_report_is_deterministic(demo):
