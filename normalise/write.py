@@ -29,7 +29,7 @@ TYPES = {
     "text": sa.Text,
     "boolean": sa.Boolean,
     "date": sa.Text,  # ISO 8601 text: SQLite has no date type, and text sorts and compares correctly
-    "timestamp": sa.Text,
+    "timestamp": sa.Text,  # (on PostgreSQL, DATE and TIMESTAMP where the text comes back exactly: native_forms)
 }
 
 
@@ -111,14 +111,21 @@ class DestinationExists(NormaliseError):
     """The destination database exists and --replace was not given."""
 
 
-def metadata_for(plan: Plan) -> sa.MetaData:
-    """SQLAlchemy tables with PRIMARY KEY, FOREIGN KEY, UNIQUE, NOT NULL and foreign-key indexes."""
+def metadata_for(plan: Plan, forms: dict | None = None) -> sa.MetaData:
+    """SQLAlchemy tables with PRIMARY KEY, FOREIGN KEY, UNIQUE, NOT NULL and foreign-key indexes.
+
+    ``forms`` maps (table, column) to the ``datetimes.TextForm`` of the date and timestamp columns
+    PostgreSQL holds in its own types (``native_forms``); every other column has its plan type's ``TYPES``.
+    """
     md = sa.MetaData()
+    forms = forms or {}
     for t in plan.tables:
         cols = []
         for c in t.columns:
             kind = TYPES[c.type]
             col_type = kind(create_constraint=False) if kind is sa.Boolean else kind()
+            if (t.name, c.name) in forms:
+                col_type = _NATIVE[forms[(t.name, c.name)].sql_type]
             if t.primary_key == [c.name] and c.type == "integer":
                 # SQLite makes an INTEGER PRIMARY KEY the table's rowid: no second index to maintain
                 col_type = sa.BigInteger().with_variant(sa.INTEGER(), "sqlite")
@@ -137,6 +144,44 @@ def metadata_for(plan: Plan) -> sa.MetaData:
                 continue  # a key that starts with these columns already indexes them
             sa.Index(f"ix_{t.name}_{'_'.join(fk.columns)}", *[table.c[c] for c in fk.columns])
     return md
+
+
+_NATIVE = {"DATE": sa.Date(), "TIMESTAMP": sa.DateTime(), "TIMESTAMP WITH TIME ZONE": sa.DateTime(timezone=True)}
+
+
+def native_forms(plan: Plan, rows: dict[str, list[tuple]]) -> tuple[dict, dict]:
+    """The date and timestamp columns PostgreSQL can hold in its own types and give back exactly.
+
+    Returns ``(forms, kept)``: (table, column) -> the ``datetimes.TextForm`` all its values are written in,
+    and (table, column) -> why a column keeps TEXT (its values take several forms or offsets, or one is
+    not a date PostgreSQL holds: the types were inferred from a sample). Decided on every value written.
+    """
+    from .datetimes import text_form
+
+    forms, kept = {}, {}
+    for t in plan.tables:
+        for j, c in enumerate(t.columns):
+            if c.type in ("date", "timestamp"):
+                form, why = text_form(c.type, (row[j] for row in rows.get(t.name, ())))
+                if form is None:
+                    kept[(t.name, c.name)] = why
+                else:
+                    forms[(t.name, c.name)] = form
+    return forms, kept
+
+
+def proof_queries(plan: Plan, forms: dict) -> dict[str, str]:
+    """The lossless proof's whole-table queries (``prove.table_query``) of the tables with native date and
+    timestamp columns, each with a query giving those columns as the text they came in (``TextForm.text_sql``)."""
+    from .prove import table_query
+
+    out = {}
+    for t in plan.tables:
+        if any((t.name, c.name) in forms for c in t.columns):
+            columns = ", ".join(f"{forms[(t.name, c.name)].text_sql(_quote(c.name))} AS {_quote(c.name)}"
+                                if (t.name, c.name) in forms else _quote(c.name) for c in t.columns)
+            out[table_query(t.name)] = f"SELECT {columns} FROM {_quote(t.name)}"
+    return out
 
 
 def _foreign_keys_on(dbapi_connection, _record) -> None:
@@ -712,7 +757,12 @@ def write_postgresql(plan: Plan, rows: dict[str, list[tuple]], order: list[str],
     schema holding tables or views no run made is refused (they are never
     dropped) unless ``share_schema``: the run then writes beside them, names
     apart. The register is written last, listing what this run made.
-    Returns the counterpart of SQLite's integrity checks.
+
+    Columns are BIGINT, DOUBLE PRECISION, BOOLEAN and TEXT by their plan types; a date or timestamp
+    column is DATE, TIMESTAMP or TIMESTAMP WITH TIME ZONE when every value it holds comes back as the
+    text it came in (``native_forms``; the proof reads it so), and TEXT otherwise.
+    Returns the counterpart of SQLite's integrity checks, and under ``"kept_as_text"`` the date and
+    timestamp columns kept as TEXT ("table.column": why).
     """
     try:
         from psycopg import errors as pg_errors
@@ -723,7 +773,8 @@ def write_postgresql(plan: Plan, rows: dict[str, list[tuple]], order: list[str],
     url = postgresql_url(database)
     shown = display_url(database)
     _pg_check_names(plan, schema)
-    md = metadata_for(plan)
+    forms, kept = native_forms(plan, rows)
+    md = metadata_for(plan, forms)
     _pg_names(md, {t.name for t in plan.tables} | {v.name for v in plan.views})
     engine = sa.create_engine(url, poolclass=sa.pool.NullPool)
     lock = _pg_lock_key(b"normalise schema ", schema)
@@ -765,7 +816,7 @@ def write_postgresql(plan: Plan, rows: dict[str, list[tuple]], order: list[str],
                     conn.execute(sa.schema.CreateIndex(index))
             for view in plan.views:
                 cursor.execute(sql.SQL("CREATE VIEW {} AS ").format(sql.Identifier(schema, view.name))
-                               + sql.SQL(view_sql(view, plan, "postgresql")))
+                               + sql.SQL(view_sql(view, plan, "postgresql", forms)))
             _pg_register(cursor, schema, order, plan)
             if truncated:
                 raise DestinationError(
@@ -774,8 +825,10 @@ def write_postgresql(plan: Plan, rows: dict[str, list[tuple]], order: list[str],
                     "(normalise plan -o plan.toml, rename, then build --plan plan.toml); nothing was written")
             proof = None
             if verify is not None:  # the lossless proof, on the rows as PostgreSQL holds them, before the commit
+                queries = proof_queries(plan, forms)
+
                 def fetch(query: str) -> list:
-                    cursor.execute(query)
+                    cursor.execute(queries.get(query, query))
                     return cursor.fetchall()
                 proof = verify(fetch)
             for name in order:
@@ -790,7 +843,8 @@ def write_postgresql(plan: Plan, rows: dict[str, list[tuple]], order: list[str],
         engine.dispose()
     # Every foreign key was added, and so checked by PostgreSQL against every row, before
     # the commit; PostgreSQL has no counterpart of SQLite's PRAGMA integrity_check.
-    result = {"foreign_key_violations": 0, "integrity_check": None, "schema": schema}
+    result = {"foreign_key_violations": 0, "integrity_check": None, "schema": schema,
+              "kept_as_text": {f"{t}.{c}": why for (t, c), why in kept.items()}}
     if verify is not None:
         result["proof"] = proof
     return result

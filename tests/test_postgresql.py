@@ -20,6 +20,7 @@ quote), and drops it afterwards.
 
 from __future__ import annotations
 
+import datetime
 import json
 import os
 import sqlite3
@@ -124,11 +125,14 @@ def built(demo, pg, pg_url):
 # --- reading both sides ------------------------------------------------------------------------
 
 def _value(v):
-    """One value in a comparable form: booleans as 0/1 (SQLite stores them so), floats to 12 digits."""
+    """One value in a comparable form: booleans as 0/1 (SQLite stores them so), floats to 12 digits, a
+    PostgreSQL DATE as ISO 8601 text (SQLite keeps that text; ``date.isoformat`` writes YYYY-MM-DD)."""
     if isinstance(v, bool):
         return int(v)
     if isinstance(v, float):
         return float(f"{v:.12g}")
+    if type(v) is datetime.date:
+        return v.isoformat()
     return v
 
 
@@ -209,7 +213,7 @@ def test_manifest_matches_sqlite_build(built, reference):
 
 
 PG_TYPES = {"integer": "bigint", "real": "double precision", "boolean": "boolean",
-            "text": "text", "date": "text", "timestamp": "text"}
+            "text": "text", "date": "date", "timestamp": "timestamp without time zone"}
 
 
 def test_column_types_and_not_null(pg, built, reference):
