@@ -473,7 +473,7 @@ class _Entities:
 _OWN_KEYS = {str, type(None), type(ABSENT)}
 
 META_TABLES = ("rejected_rows", "set_aside_rows", "unmatched_rows", "quarantined_cells", "attribute_variants",
-               "value_traces", "name_map")
+               "value_traces", "name_map", "descriptions")
 
 
 class _References:

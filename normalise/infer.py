@@ -726,7 +726,7 @@ def _keyed_column(nested, values: list, options: "Options", file: str) -> list:
 
 META_TABLES = ("rejected_rows", "set_aside_rows", "unmatched_rows", "quarantined_cells", "attribute_variants",
                "value_traces",
-               "name_map")
+               "name_map", "descriptions")
 _GENERIC_IDENTITY = frozenset(["id", "key", "code", "uuid", "guid", "slug"])
 
 

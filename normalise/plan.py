@@ -11,7 +11,7 @@ from __future__ import annotations
 from dataclasses import asdict, dataclass, field
 
 ROLES = ("record", "record_part", "entity", "bridge", "child", "set_aside", "quarantine", "variants", "rejected",
-         "unmatched", "names", "traces")
+         "unmatched", "names", "traces", "descriptions")
 
 
 @dataclass

@@ -36,7 +36,7 @@ from .errors import NormaliseError
 
 META_TABLES = {"rejected_rows": "rejected", "set_aside_rows": "set_aside", "unmatched_rows": "unmatched",
                "quarantined_cells": "quarantine", "attribute_variants": "variants", "name_map": "names",
-               "value_traces": "traces"}
+               "value_traces": "traces", "descriptions": "descriptions"}
 META_ROLES = set(META_TABLES.values())
 RUN_MANIFEST = "run_manifest"  # optional: one row, the manifest as JSON text
 HEAD_ROWS = 50  # rows of each bookkeeping table shown

@@ -82,10 +82,12 @@ _META = {
     # every name taken from the data (file, header, object key) and the SQL name it was given
     "name_map": [("table_name", "text", False), ("column_name", "text", True), ("name_in_input", "text", False),
                  ("found_in", "text", False)],
+    # what the data dictionary says of every table, view and column (dictionary.descriptions); SQLite keeps no comments
+    "descriptions": [("table_name", "text", False), ("column_name", "text", True), ("description", "text", False)],
 }
 _META_ROLE = {"rejected_rows": "rejected", "set_aside_rows": "set_aside", "unmatched_rows": "unmatched",
               "quarantined_cells": "quarantine", "attribute_variants": "variants", "name_map": "names",
-              "value_traces": "traces"}
+              "value_traces": "traces", "descriptions": "descriptions"}
 
 
 def _source(member: str, path: str = "") -> dict:

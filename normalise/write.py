@@ -33,7 +33,7 @@ TYPES = {
 }
 
 
-META_ROLES = ("rejected", "set_aside", "unmatched", "quarantine", "variants", "names", "traces")
+META_ROLES = ("rejected", "set_aside", "unmatched", "quarantine", "variants", "names", "traces", "descriptions")
 
 
 def printable(value):
