@@ -127,7 +127,7 @@ def build_database(paths: list[str], database: str, *, options: Options | None =
         >>> d = tempfile.mkdtemp(); p = os.path.join(d, "books.csv")
         >>> _ = open(p, "w").write('key,people\\nb1,"[{\\'id\\': 7, \\'name\\': \\'Ann\\'}]"\\n')
         >>> m = build_database([p], os.path.join(d, "out.db"))
-        >>> [(t["name"], t["role"], t["rows"]) for t in m["tables"] if t["rows"]]
+        >>> [(t["name"], t["role"], t["rows"]) for t in m["tables"] if t["rows"] and t["role"] != "descriptions"]
         [('person', 'entity', 1), ('books', 'record', 1), ('book_people', 'bridge', 1), ('name_map', 'names', 5)]
     """
     delimiter = check_values(encoding_name=encoding, delimiter_char=delimiter, limits=limits, chunk_rows=chunk_rows,

@@ -687,6 +687,39 @@ def _some(names: list[str], shown: int = 5) -> str:
     return ", ".join(names[:shown]) + (", ..." if len(names) > shown else "")
 
 
+def column_notes(forms: dict, kept: dict) -> dict[tuple[str, str], str]:
+    """What a PostgreSQL comment adds to the description of a date or timestamp column: its type, and how its
+    text comes back (``TextForm.text_sql``), or why it kept TEXT (``native_forms``)."""
+    notes = {(t, c): f"Stored as {form.sql_type}; {form.text_sql(_quote(c))} gives each value as it came in."
+             for (t, c), form in forms.items()}
+    notes.update({(t, c): f"Kept as TEXT, ISO 8601 as written: {why}." for (t, c), why in kept.items()})
+    return notes
+
+
+def _pg_comment(cursor, schema: str, plan: Plan, forms: dict, kept: dict) -> None:
+    """COMMENT ON every table, view and column: what the data dictionary says of it (``dictionary.descriptions``,
+    made from the plan, as the ``descriptions`` table holds it), with a note on each date and timestamp column."""
+    from psycopg import sql
+
+    from .dictionary import descriptions
+
+    views = {v.name for v in plan.views}
+    notes = column_notes(forms, kept)
+    by_relation: dict[str, list] = {}
+    for relation, column, text in descriptions(plan):
+        if (relation, column) in notes:
+            text = f"{text} {notes[(relation, column)]}"
+        what = sql.Literal(_without_nul(printable(text)))
+        if column is None:
+            kind = sql.SQL("VIEW" if relation in views else "TABLE")
+            statement = sql.SQL("COMMENT ON {} {} IS {}").format(kind, sql.Identifier(schema, relation), what)
+        else:
+            statement = sql.SQL("COMMENT ON COLUMN {} IS {}").format(sql.Identifier(schema, relation, column), what)
+        by_relation.setdefault(relation, []).append(statement)
+    for statements in by_relation.values():  # one round trip per table (no parameters: several statements run)
+        cursor.execute(sql.SQL("; ").join(statements))
+
+
 def _pg_register(cursor, schema: str, order: list[str], plan: Plan) -> None:
     """Write the schema's register: every table and view this run made, and the register itself."""
     from psycopg import sql
@@ -699,6 +732,10 @@ def _pg_register(cursor, schema: str, order: list[str], plan: Plan) -> None:
             copy.write_row(row)
     cursor.execute(sql.SQL("COMMENT ON TABLE {} IS {}").format(
         table, sql.Literal("what normalise made in this schema: --replace drops these and nothing else")))
+    for column, text in (("relation", "The name of a table or view a run made in this schema."),
+                         ("kind", "table or view.")):
+        cursor.execute(sql.SQL("COMMENT ON COLUMN {} IS {}").format(sql.Identifier(schema, PG_REGISTER, column),
+                                                                   sql.Literal(text)))
 
 
 @contextmanager
@@ -817,6 +854,7 @@ def write_postgresql(plan: Plan, rows: dict[str, list[tuple]], order: list[str],
             for view in plan.views:
                 cursor.execute(sql.SQL("CREATE VIEW {} AS ").format(sql.Identifier(schema, view.name))
                                + sql.SQL(view_sql(view, plan, "postgresql", forms)))
+            _pg_comment(cursor, schema, plan, forms, kept)
             _pg_register(cursor, schema, order, plan)
             if truncated:
                 raise DestinationError(

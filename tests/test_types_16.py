@@ -131,27 +131,15 @@ def test_native_values_are_the_instants_the_text_names(pg, events, events_pg):
             assert held[column] == row[column]
 
 
-def test_kept_as_text_says_why(events, pg_url, pg, monkeypatch):
-    """The write names each date or timestamp column it kept as TEXT, with why (issue 16: faithful first)."""
-    import normalise.pipeline as pipeline
-
-    path, _, _, _ = events
-    seen = {}
-
-    def keep(*args, original=pipeline.write_postgresql, **kwargs):
-        seen.update(original(*args, **kwargs))
-        return seen
-
-    monkeypatch.setattr(pipeline, "write_postgresql", keep)
-    name = _new_schema()
-    try:
-        build_database([path], pg_url, schema=name)
-    finally:
-        _drop(pg, name)
-    kept = seen["kept_as_text"]
-    assert sorted(kept) == sorted(f"events.{c}" for c in KEPT_TEXT)
+def test_each_date_and_timestamp_column_says_how_it_is_stored(pg, events_pg):
+    """The comment of each date and timestamp column (reference: PostgreSQL's col_description) names its type and
+    the to_char expression that gives its text back, or why it kept TEXT (issue 16: faithful first)."""
+    schema, _ = events_pg
+    comments = {c: text for (t, c), text in _pg_comments(pg, schema).items() if t == "events"}
+    for column, type_ in NATIVE.items():
+        assert f"Stored as {type_.replace(' without time zone', '').upper()}; to_char(" in comments[column], column
     for column, why in KEPT_TEXT.items():
-        assert why in kept[f"events.{column}"], kept
+        assert "Kept as TEXT, ISO 8601 as written: " in comments[column] and why in comments[column], column
 
 
 def _same(p, s) -> bool:
@@ -254,3 +242,88 @@ def test_values_refused_are_those_postgresql_does_not_give_back(pg, kind, text, 
     except (errors.DatetimeFieldOverflow, errors.InvalidDatetimeFormat, errors.InvalidTimeZoneDisplacementValue):
         back = None
     assert (parse(kind, text) is not None) == (back == text), (text, back)
+
+
+# --- descriptions: COMMENT ON in PostgreSQL, the descriptions table in SQLite ----------------------------------
+
+@pytest.fixture(scope="module")
+def demo_both(tmp_path_factory, pg, pg_url):
+    """The demo (demo/generate.py) built into SQLite, with its data dictionary, and into PostgreSQL."""
+    from demo.generate import generate
+
+    out = tmp_path_factory.mktemp("demo16")
+    generate(out, size=120, seed=16)
+    paths = [str(out / "titles.csv"), str(out / "contributions.csv")]
+    db, dictionary = str(out / "demo.db"), out / "dictionary.md"
+    m_sqlite = build_database(paths, db, picks=["first_editor=contributors:role=editor"],
+                              dictionary_path=str(dictionary))
+    name = _new_schema()
+    m = build_database(paths, pg_url, schema=name, picks=["first_editor=contributors:role=editor"])
+    yield db, m_sqlite, dictionary.read_text(encoding="utf-8"), name, m
+    _drop(pg, name)
+
+
+def _pg_comments(pg, schema: str) -> dict[tuple[str, str | None], str | None]:
+    """Reference: PostgreSQL's catalogue, obj_description of each table and view (pg_class) and col_description
+    of each of their columns (pg_attribute)."""
+    out = {}
+    for relation, oid in pg.execute(
+            "SELECT c.relname, c.oid FROM pg_catalog.pg_class c JOIN pg_catalog.pg_namespace n ON n.oid = c.relnamespace "
+            "WHERE n.nspname = %s AND c.relkind IN ('r', 'v')", (schema,)).fetchall():
+        out[(relation, None)] = pg.execute("SELECT pg_catalog.obj_description(%s, 'pg_class')", (oid,)).fetchone()[0]
+        for column, text in pg.execute(
+                "SELECT a.attname, pg_catalog.col_description(a.attrelid, a.attnum) FROM pg_catalog.pg_attribute a "
+                "WHERE a.attrelid = %s AND a.attnum > 0 AND NOT a.attisdropped", (oid,)).fetchall():
+            out[(relation, column)] = text
+    return out
+
+
+def _sqlite_catalogue(db: str) -> set[tuple[str, str | None]]:
+    """Reference: SQLite's catalogue, every table and view (sqlite_master) and their columns (PRAGMA table_info)."""
+    with sqlite3.connect(db) as lite:
+        names = [n for (n,) in lite.execute("SELECT name FROM sqlite_master WHERE type IN ('table', 'view')")]
+        return {(n, None) for n in names} | {(n, r[1]) for n in names for r in lite.execute(f'PRAGMA table_info("{n}")')}
+
+
+def test_every_table_view_and_column_has_a_comment(pg, demo_both):
+    """COMMENT ON every table, view and column PostgreSQL's catalogue lists, each the text the build's
+    ``descriptions`` table holds for it (a date column with its type noted); the register says what it is."""
+    from psycopg import sql
+
+    from normalise.write import PG_REGISTER
+
+    _, _, _, schema, _ = demo_both
+    comments = _pg_comments(pg, schema)
+    held = {(t, c): d for t, c, d in pg.execute(sql.SQL("SELECT table_name, column_name, description FROM {}").format(
+        sql.Identifier(schema, "descriptions")))}
+    ours = {k: v for k, v in comments.items() if k[0] != PG_REGISTER}
+    assert set(ours) == set(held) and all(comments.values())
+    for key, text in ours.items():
+        assert text == held[key] or text.startswith(held[key] + " Stored as DATE;"), key
+    assert comments[("titles", "release_date")].endswith(
+        "Stored as DATE; to_char(\"release_date\", 'YYYY-MM-DD') gives each value as it came in.")
+
+
+def test_the_descriptions_table_covers_the_database_and_says_what_the_dictionary_says(demo_both):
+    """SQLite keeps no comments: the ``descriptions`` table has one row for each table, view and column of the
+    database (reference: SQLite's catalogue), and each column's description is its meaning in the data
+    dictionary (the Markdown file the same build wrote), names quoted instead of marked as code."""
+    import re
+
+    db, m, dictionary, _, _ = demo_both
+    with sqlite3.connect(db) as lite:
+        rows = lite.execute("SELECT table_name, column_name, description FROM descriptions").fetchall()
+    held = {(t, c): d for t, c, d in rows}
+    assert len(held) == len(rows) and set(held) == _sqlite_catalogue(db)
+    assert "descriptions" in [t["name"] for t in m["tables"] if t["role"] == "descriptions"]
+    section, checked = None, 0
+    for line in dictionary.splitlines():
+        if line.startswith("### "):
+            section = line[4:].strip("`")
+        cells = [c.strip() for c in line.strip("|").split(" | ")] if line.startswith("| `") else []
+        if section and len(cells) >= 2 and (section, cells[0].strip("`")) in held:
+            meaning = cells[-1]
+            if meaning:
+                assert re.sub(r"`([^`]*)`", r'"\1"', meaning).replace("\\|", "|") == held[(section, cells[0].strip("`"))]
+                checked += 1
+    assert checked > 100
