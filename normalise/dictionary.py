@@ -20,8 +20,8 @@ TYPE_WORDS = {
     "real": "decimal number",
     "text": "text",
     "boolean": "boolean (0 or 1)",
-    "date": "date (ISO 8601 text, YYYY-MM-DD)",
-    "timestamp": "timestamp (ISO 8601 text)",
+    "date": "date (ISO 8601 text, YYYY-MM-DD: SQLite has no date type)",
+    "timestamp": "timestamp (ISO 8601 text: SQLite has no timestamp type)",
 }
 
 ROLE_WORDS = {
@@ -298,6 +298,11 @@ def render_dictionary(model: dict) -> str:
            "columns. Every surrogate key is at most 2^53 - 1, so a client that reads JSON numbers as doubles "
            "(JavaScript, spreadsheets) gets it exactly. Row counts are those of the database when this file was "
            "made.", "",
+           "Dates and timestamps are ISO 8601 text, as SQLite keeps them (it has no date type; the text sorts and "
+           "compares correctly). A PostgreSQL build of the same exports holds them as DATE, TIMESTAMP or TIMESTAMP "
+           "WITH TIME ZONE where every value of the column comes back as written, and says so in each column's "
+           "comment. What this file says of each table, view and column is also in the database: the "
+           f"{code('descriptions')} table (and PostgreSQL's comments).", "",
            "## Contents", "", "| table | kind | rows | from the input |", "| --- | --- | ---: | --- |"]
     for t in model["tables"]:
         kind = plain(ROLE_WORDS.get(t["role"], t["role"] or ""))

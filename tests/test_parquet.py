@@ -82,7 +82,7 @@ def _is_date(text: str) -> bool:
 
 
 def _comparable(value):
-    """A value as SQLite holds it: booleans 0 and 1, dates and instants as the ISO 8601 text they are read from."""
+    """A value as SQLite holds it: a boolean as 0 or 1."""
     if isinstance(value, bool):
         return int(value)
     return value
