@@ -1273,6 +1273,8 @@ class Builder:
                     updates.setdefault(table, []).append(row)
             self._trace_occurrences(table, acc, held, occurrences)
         self.meta["name_map"] = name_map(self.plan) if not self.state else []  # appended: the map is there
+        from .dictionary import descriptions  # what the data dictionary says, kept in the database (issue 16)
+        self.meta["descriptions"] = descriptions(self.plan) if not self.state else []
         offsets = self.state["meta_offset"] if self.state else {}
         for name in META_TABLES:
             if name != "attribute_variants":  # variants are already in a fixed order

@@ -22,8 +22,8 @@ TYPE_WORDS = {
     "real": "decimal number",
     "text": "text",
     "boolean": "boolean (0 or 1)",
-    "date": "date (ISO 8601 text, YYYY-MM-DD)",
-    "timestamp": "timestamp (ISO 8601 text)",
+    "date": "date (ISO 8601 text, YYYY-MM-DD: SQLite has no date type)",
+    "timestamp": "timestamp (ISO 8601 text: SQLite has no timestamp type)",
 }
 
 ROLE_WORDS = {
@@ -37,6 +37,9 @@ ROLE_WORDS = {
     "unmatched": "bookkeeping",
     "quarantine": "bookkeeping",
     "variants": "bookkeeping",
+    "names": "bookkeeping",
+    "traces": "bookkeeping",
+    "descriptions": "bookkeeping",
 }
 
 META_MEANING = {
@@ -74,6 +77,18 @@ META_MEANING = {
                          "reason": "Why the columns cannot hold it.",
                          "original": "The value as given (Python literal text; NULL: the key was absent).",
                          "file": "The input file.", "line": "Line of the record in its file."}),
+    "name_map": ("One row per name taken from the input (a file, a column header, an object key) and the SQL name "
+                 "it was given, so that every table and column can be traced back to what the export called it.", {
+                     "table_name": "The table the name became, or the table holding the column.",
+                     "column_name": "The column the name became (NULL: the name became a table).",
+                     "name_in_input": "The name as the input wrote it.",
+                     "found_in": "Where the name was found (a file, a column of a file, a path inside a column)."}),
+    # issue 16: what the data dictionary says of every table, view and column, kept in the database itself
+    "descriptions": ("One row per table, view and column of this database with its description, as the data "
+                     "dictionary gives it (SQLite keeps no comments; PostgreSQL also has them as COMMENT ON).", {
+                         "table_name": "The table or view described.",
+                         "column_name": "The column described (NULL: the table or view itself).",
+                         "description": "What it holds."}),
     "attribute_variants": ("One row per value seen for an entity attribute that was written with different values "
                            "in different places (a conflict); the chosen value is the one in the entity table.", {
                                "entity_table": "The entity table.", "entity_sk": "The entity's surrogate key.",
@@ -112,44 +127,44 @@ def _sources(table: dict) -> list[tuple[str, str | None]]:
     return [(str(s.get("file") or "?"), s.get("column")) for s in table.get("sources") or []]
 
 
-def _where(file: str, column: str | None) -> str:
-    return f"{code(file)}" + (f" column {code(column)}" if column else "")
+def _where(file: str, column: str | None, quote=code) -> str:
+    return f"{quote(file)}" + (f" column {quote(column)}" if column else "")
 
 
-def _table_meaning(table: dict, tables: dict) -> str:
+def _table_meaning(table: dict, tables: dict, quote=code) -> str:
     role, name = table["role"], table["name"]
     srcs = _sources(table)
-    where = ", ".join(_where(f, c) for f, c in srcs)
+    where = ", ".join(_where(f, c, quote) for f, c in srcs)
     fk = owner_fk(table)
     if name in META_MEANING and role in META_ROLES:
         return META_MEANING[name][0]
     if role == "record":
-        key = ", ".join(code(c) for c in table["natural_key"])
-        return (f"One row per record of the export {where or code(name)}"
+        key = ", ".join(quote(c) for c in table["natural_key"])
+        return (f"One row per record of the export {where or quote(name)}"
                 + (f", identified by its natural key {key}" if key else "") + ".")
     if role == "record_part" and fk:
-        return (f"The rest of the columns of {code(fk['references'])}, too many for one table: one row per "
-                f"{code(fk['references'])} row, joined on its surrogate key {code(fk['columns'][0])}.")
+        return (f"The rest of the columns of {quote(fk['references'])}, too many for one table: one row per "
+                f"{quote(fk['references'])} row, joined on its surrogate key {quote(fk['columns'][0])}.")
     if role == "entity":
-        ident = ", ".join(code(c) for c in table["natural_key"])
-        return (f"One row per distinct {code(name)} found in {where or 'the nested lists'}"
+        ident = ", ".join(quote(c) for c in table["natural_key"])
+        return (f"One row per distinct {quote(name)} found in {where or 'the nested lists'}"
                 + (f", identified by {ident}" if ident else "") + "; each appears once however many lists name it.")
     if role in ("bridge", "child") and fk:
         others = [f for f in table["foreign_keys"] if not f["owner"]]
         if role == "bridge" and others:
-            ent = ", ".join(code(f["references"]) for f in others)
-            return (f"Links each {code(fk['references'])} row to the {ent} rows listed in {where or 'its list'}, "
+            ent = ", ".join(quote(f["references"]) for f in others)
+            return (f"Links each {quote(fk['references'])} row to the {ent} rows listed in {where or 'its list'}, "
                     f"one row per element" + (", in list order" if table["position_column"] else "")
                     + "; the columns besides the keys describe the link, not the entity.")
         if fk["unique"]:
             return (f"The fields of the object in {where or 'a nested column'}, at most one row per "
-                    f"{code(fk['references'])} row.")
+                    f"{quote(fk['references'])} row.")
         return (f"One row per element of the list in {where or 'a nested column'}, under its "
-                f"{code(fk['references'])} row" + (", in list order" if table["position_column"] else "") + ".")
+                f"{quote(fk['references'])} row" + (", in list order" if table["position_column"] else "") + ".")
     return "A table of the database (its role is not recorded)."
 
 
-def _column_meaning(table: dict, column: dict, tables: dict) -> tuple[str, str]:
+def _column_meaning(table: dict, column: dict, tables: dict, quote=code) -> tuple[str, str]:
     """(key role, meaning) of one column."""
     name, role = column["name"], table["role"]
     keys = []
@@ -166,10 +181,10 @@ def _column_meaning(table: dict, column: dict, tables: dict) -> tuple[str, str]:
                    + ": the same for the same input on every build; use it to join, not as business data.")
     for f in fks:
         ref = f["ref_columns"][f["columns"].index(name)] if len(f["ref_columns"]) == len(f["columns"]) else "?"
-        keys.append(f"FK \u2192 {code(f['references'])}.{code(ref)}")
+        keys.append(f"FK \u2192 {quote(f['references'])}.{quote(ref)}")
         if not meaning:
-            meaning = (f"The {code(f['references'])} row this row belongs to." if f["owner"]
-                       else f"The {code(f['references'])} row this row links to.")
+            meaning = (f"The {quote(f['references'])} row this row belongs to." if f["owner"]
+                       else f"The {quote(f['references'])} row this row links to.")
     if name in table["natural_key"]:
         keys.append("NK")
     if column.get("unique") and "NK" not in keys and "PK" not in keys:
@@ -186,22 +201,22 @@ def _column_meaning(table: dict, column: dict, tables: dict) -> tuple[str, str]:
             return ", ".join(keys), "Natural key of the record in the export (unique)."
         if source and "." in source:
             col, _, path = source.partition(".")
-            return ", ".join(keys), f"Field {code(path)} of the object in column {code(col)}."
-        return ", ".join(keys), f"Column {code(source or name)} of the export, as typed by normalise."
+            return ", ".join(keys), f"Field {quote(path)} of the object in column {quote(col)}."
+        return ", ".join(keys), f"Column {quote(source or name)} of the export, as typed by normalise."
     if role == "entity":
         if name in table["natural_key"]:
             if source:
-                return ", ".join(keys), (f"Identity of the entity: field {code(source)} of the objects in the lists "
+                return ", ".join(keys), (f"Identity of the entity: field {quote(source)} of the objects in the lists "
                                          "(unique).")
             return ", ".join(keys), "The distinct value itself (unique): each value of the lists once."
-        return ", ".join(keys), (f"Attribute of the entity: field {code(source or name)} of its objects. Where one "
+        return ", ".join(keys), (f"Attribute of the entity: field {quote(source or name)} of its objects. Where one "
                                  "entity was written with different values, the most frequent one is kept and every "
-                                 f"variant is in {code('attribute_variants')}.")
+                                 f"variant is in {quote('attribute_variants')}.")
     if role == "bridge":
-        return ", ".join(keys), (f"Link attribute: field {code(source or name)} of each element of the list; it "
+        return ", ".join(keys), (f"Link attribute: field {quote(source or name)} of each element of the list; it "
                                  "describes this link (the same entity may have another value in another list).")
     if role == "child":
-        return ", ".join(keys), f"Field {code(source or name)} of each element."
+        return ", ".join(keys), f"Field {quote(source or name)} of each element."
     return ", ".join(keys), ""
 
 
@@ -231,41 +246,41 @@ def _type(column: dict) -> str:
     return plain(words)
 
 
-def _view_column_meaning(view: dict, column: str, tables: dict) -> str:
+def _view_column_meaning(view: dict, column: str, tables: dict, quote=code) -> str:
     table = tables.get(view.get("table") or "")
     if table and column in [c["name"] for c in table["columns"]]:
-        return f"{code(view['table'] + '.' + column)}."
+        return f"{quote(view['table'] + '.' + column)}."
     if view.get("kind") == "record_summary" and table:
         if column.startswith("number_of_"):
-            return f"How many elements the record's list {code(column[10:])} has (0 when empty)."
+            return f"How many elements the record's list {quote(column[10:])} has (0 when empty)."
         bridges = [t for t in tables.values() if owner_fk(t) and owner_fk(t)["references"] == table["name"]]
         for b in bridges:
             if b["name"].endswith(column):
                 ent = [f["references"] for f in b["foreign_keys"] if not f["owner"]]
                 shown = display_column(tables[ent[0]]) if ent and ent[0] in tables else "name"
-                return (f"The {code(shown)} of each entity in the list, joined with \"; \" in list order "
-                        f"(from {code(b['name'])}); NULL when the list is empty.")
+                return (f"The {quote(shown)} of each entity in the list, joined with \"; \" in list order "
+                        f"(from {quote(b['name'])}); NULL when the list is empty.")
         return "A pick: the first entity of a list whose link attribute has a given value (NULL when none)."
     if view.get("kind") == "entity_summary" and table:
         if column == "records_in_total":
             return "In how many distinct records the entity appears, over all its lists."
         if column.startswith("records_in_"):
-            return f"In how many distinct records the entity appears through {code(column[11:])}."
+            return f"In how many distinct records the entity appears through {quote(column[11:])}."
         if column.startswith(("first_", "last_")):
             which, rest = column.split("_", 1)
             which = "earliest" if which == "first" else "latest"
             owners = [t for t in tables.values() if t["role"] == "record" and singular(t["name"]) == rest]
             if owners:
-                key = code(owners[0]["natural_key"][0]) if owners[0]["natural_key"] else "key"
-                return (f"The {key} of the {which} {code(owners[0]['name'])} record the entity appears in "
+                key = quote(owners[0]["natural_key"][0]) if owners[0]["natural_key"] else "key"
+                return (f"The {key} of the {which} {quote(owners[0]['name'])} record the entity appears in "
                         "(by the records' date).")
             dated = [t for t in tables.values() if t["role"] == "record"
                      and any(c["name"] == rest for c in t["columns"])]
             if dated:
-                return f"The {which} {code(rest)} of the records the entity appears in."
+                return f"The {which} {quote(rest)} of the records the entity appears in."
             return f"The natural key of the {which} record the entity appears in (by the records' date column)."
         if column == display_column(table):
-            return f"{code(table['name'] + '.' + column)}."
+            return f"{quote(table['name'] + '.' + column)}."
     return ""
 
 
@@ -285,6 +300,11 @@ def render_dictionary(model: dict) -> str:
            "columns. Every surrogate key is at most 2^53 - 1, so a client that reads JSON numbers as doubles "
            "(JavaScript, spreadsheets) gets it exactly. Row counts are those of the database when this file was "
            "made.", "",
+           "Dates and timestamps are ISO 8601 text, as SQLite keeps them (it has no date type; the text sorts and "
+           "compares correctly). A PostgreSQL build of the same exports holds them as DATE, TIMESTAMP or TIMESTAMP "
+           "WITH TIME ZONE where every value of the column comes back as written, and says so in each column's "
+           "comment. What this file says of each table, view and column is also in the database: the "
+           f"{code('descriptions')} table (and PostgreSQL's comments).", "",
            "## Contents", "", "| table | kind | rows | from the input |", "| --- | --- | ---: | --- |"]
     for t in model["tables"]:
         kind = plain(ROLE_WORDS.get(t["role"], t["role"] or ""))
@@ -351,12 +371,14 @@ def _table_section(t: dict, tables: dict) -> list[str]:
     return out
 
 
+_VIEW_WHAT = {"record_summary": "one row per record, with each list counted and its names joined in list order",
+              "entity_summary": "one row per entity, with the number of distinct records it appears in"}
+
+
 def _view_section(v: dict, tables: dict) -> list[str]:
     kind = (v.get("kind") or "view").replace("_", " ")
     of = f" of {code(v['table'])}" if v.get("table") else ""
-    what = {"record_summary": "one row per record, with each list counted and its names joined in list order",
-            "entity_summary": "one row per entity, with the number of distinct records it appears in",
-            }.get(v.get("kind"), "")
+    what = _VIEW_WHAT.get(v.get("kind"), "")
     out = [f"### {code(v['name'])}", "", f"*{plain(kind)}{of}.*" + (f" {what.capitalize()}." if what else ""), "",
            "| column | meaning |", "| --- | --- |"]
     for c in v["columns"]:
@@ -369,3 +391,87 @@ def _view_section(v: dict, tables: dict) -> list[str]:
         out += ["<details><summary>definition</summary>", "", f"{fence}sql", sql, fence, "", "</details>", ""]
     return out
 
+
+# --- the same descriptions, from the plan, for the database itself ------------------------------------
+
+def quoted(name) -> str:
+    """A name in a description kept in the database: in double quotes, as SQL quotes identifiers.
+
+    Example:
+        >>> quoted("title_key")
+        '"title_key"'
+    """
+    return '"' + clean(name) + '"'
+
+
+def plan_model(plan) -> dict:
+    """The tables and views of a plan as ``report_html.read_database`` reads them from a database the plan
+    made (with the build's manifest): what the descriptions are made from, before any row is written."""
+    from .views import view_columns
+
+    tables = []
+    for t in plan.tables:
+        uniques = [list(u) for u in t.unique] + [[c.name] for c in t.columns if c.unique]
+        fks = [{"columns": list(fk.columns), "references": fk.references, "ref_columns": list(fk.ref_columns),
+                "unique": any(set(u) == set(fk.columns) for u in uniques) or set(t.primary_key) == set(fk.columns),
+                "owner": False} for fk in t.foreign_keys]
+        if t.role in ("bridge", "child", "record_part") and fks:
+            fks[0]["owner"] = True
+        tables.append({"name": t.name, "role": t.role, "rows": 0, "sources": list(t.sources),
+                       "primary_key": list(t.primary_key), "natural_key": list(t.natural_key),
+                       "position_column": t.position_column, "foreign_keys": fks, "unique": uniques,
+                       "inferred": False,
+                       "columns": [{"name": c.name, "type": c.type, "nullable": c.nullable and c.name not in t.primary_key,
+                                    "source": c.source, "unique": [c.name] in uniques} for c in t.columns]})
+    views = [{"name": v.name, "kind": v.kind, "table": v.table,
+              "columns": [{"name": c.name, "type": c.type} for c in view_columns(v, plan)]} for v in plan.views]
+    return {"tables": tables, "views": views}
+
+
+def descriptions(plan) -> list[tuple[str, str | None, str]]:
+    """(table or view, column or None for the table itself, description) of everything a plan makes: what
+    the data dictionary says of it, names in double quotes (``quoted``) instead of Markdown. Kept in the
+    ``descriptions`` table, and on PostgreSQL as ``COMMENT ON`` each table, view and column.
+
+    Example:
+        >>> from normalise.plan import Plan, Table, Column
+        >>> plan = Plan(tables=[Table("books", "record", [Column("book_sk", "integer", nullable=False),
+        ...                     Column("isbn", "text", source="isbn")], ["book_sk"], natural_key=["isbn"],
+        ...                     sources=[{"file": "books.csv", "column": None}])])
+        >>> for row in descriptions(plan):
+        ...     print(row)
+        ('books', None, 'One row per record of the export "books.csv", identified by its natural key "isbn".')
+        ('books', 'book_sk', 'Surrogate key made by normalise from the line on which the record starts in its export: the same for the same input on every build; use it to join, not as business data.')
+        ('books', 'isbn', 'Natural key of the record in the export (unique).')
+    """
+    model = plan_model(plan)
+    tables = {t["name"]: t for t in model["tables"]}
+    out = []
+    for t in model["tables"]:
+        out.append((t["name"], None, _table_meaning(t, tables, quoted)))
+        for c in t["columns"]:
+            meaning = _column_meaning(t, c, tables, quoted)[1]
+            out.append((t["name"], c["name"], meaning or f"Column {quoted(c['name'])} of {quoted(t['name'])}."))
+    for v in model["views"]:
+        what = _VIEW_WHAT.get(v["kind"], "")
+        out.append((v["name"], None, f"A view of {quoted(v['table'])}: {what}." if what else
+                    f"A view of {quoted(v['table'])}."))
+        for c in v["columns"]:
+            meaning = _view_column_meaning(v, c["name"], tables, quoted)
+            out.append((v["name"], c["name"], meaning or f"Column {quoted(c['name'])} of the view."))
+    return out
+
+
+def write_dictionary(database, path, manifest: dict | None = None) -> str:
+    """Write the data dictionary of a SQLite database to ``path``; returns the path."""
+    from pathlib import Path
+
+    from .report_html import read_database
+
+    from .outputs import staged_outputs
+
+    model = read_database(database, manifest)
+    with staged_outputs() as staged:  # whole or not at all: a temporary file, renamed when complete
+        Path(staged.file(path)).write_text(render_dictionary(model), encoding="utf-8")
+        staged.commit()
+    return str(path)

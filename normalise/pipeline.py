@@ -136,7 +136,7 @@ def build_database(paths: str | os.PathLike | list[str], database: str | os.Path
         >>> d = tempfile.mkdtemp(); p = os.path.join(d, "books.csv")
         >>> _ = open(p, "w").write('key,people\\nb1,"[{\\'id\\': 7, \\'name\\': \\'Ann\\'}]"\\n')
         >>> m = build_database([p], os.path.join(d, "out.db"))
-        >>> [(t["name"], t["role"], t["rows"]) for t in m["tables"] if t["rows"]]
+        >>> [(t["name"], t["role"], t["rows"]) for t in m["tables"] if t["rows"] and t["role"] != "descriptions"]
         [('person', 'entity', 1), ('books', 'record', 1), ('book_people', 'bridge', 1), ('name_map', 'names', 5)]
     """
     paths = path_list(paths)

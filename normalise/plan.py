@@ -52,6 +52,10 @@ META_TABLES = {
     # every name taken from the data (file, header, object key) and the SQL name it was given
     "name_map": MetaTable("names", (("table_name", "text", False), ("column_name", "text", True),
                                     ("name_in_input", "text", False), ("found_in", "text", False))),
+    # what the data dictionary says of every table, view and column (dictionary.descriptions); SQLite keeps no
+    # comments, PostgreSQL has them also as COMMENT ON
+    "descriptions": MetaTable("descriptions", (("table_name", "text", False), ("column_name", "text", True),
+                                               ("description", "text", False))),
 }
 META_ROLES = frozenset(t.role for t in META_TABLES.values())
 ROLES = ("record", "record_part", "entity", "bridge", "child", *(t.role for t in META_TABLES.values()))

@@ -57,6 +57,12 @@ class InputDigests:
         entry[1] = total % _MOD
 
 
+def table_query(table: str) -> str:
+    """The query the proof reads a whole table with; a ``fetch`` may answer it its own way (PostgreSQL's
+    native dates and timestamps are read as the text they came in, ``write.proof_queries``)."""
+    return f"SELECT * FROM {_q(table)}"
+
+
 def rebuild_cells(plan, fetch, impure: set | None = None, only: set | None = None
                   ) -> dict[tuple[str, str], dict[int, object]]:
     """Every non-empty cell of the loaded records, rebuilt from the database: (table, column) -> {sk: value}.
@@ -124,12 +130,12 @@ def _record_rows(plan, table: str, fetch, needed: set) -> tuple[list[str], list[
     (``schema.split_wide_records``) that hold a column ``needed``, after its own. Each table is read apart:
     SQLite limits the columns of a query's result as it limits a table's (sqlite.org/limits.html)."""
     names = [c.name for c in plan.table(table).columns]
-    rows = fetch(f"SELECT * FROM {_q(table)}")
+    rows = fetch(table_query(table))
     for part in record_parts(plan, table):
         columns = [c.name for c in part.columns[1:]]
         if needed.isdisjoint(columns):
             continue
-        by_key = {r[0]: r[1:] for r in fetch(f"SELECT * FROM {_q(part.name)}")}
+        by_key = {r[0]: r[1:] for r in fetch(table_query(part.name))}
         missing = (None,) * len(columns)  # every record has a row in every part; a lost one shows as NULLs
         rows = [(*r, *by_key.get(r[0], missing)) for r in rows]
         names += columns
@@ -193,7 +199,7 @@ def _owned(plan, nested, fetch, traces) -> dict[int, object]:
     """The lists (or single objects) of a nested table, per owning row key, rebuilt from its rows."""
     table = plan.table(nested.table)
     names = [c.name for c in table.columns]
-    rows = fetch(f"SELECT * FROM {_q(nested.table)}")
+    rows = fetch(table_query(nested.table))
     elements = traces["elements"]
     traced = {sk for t, sk in elements if t == nested.table}
     lists = _child_lists(plan, nested, fetch, traces) if nested.kind != "value-list" else []
@@ -212,7 +218,7 @@ def _owned(plan, nested, fetch, traces) -> dict[int, object]:
     if nested.kind == "value-list":
         vt = getattr(nested, "value_type", "text")
         values = {sk: stored_back(v, vt, False)  # a third column, when there, names the record (references)
-                  for sk, v, *_ in fetch(f"SELECT * FROM {_q(nested.entity)}")}
+                  for sk, v, *_ in fetch(table_query(nested.entity))}
         made = [(r[1], values[r[2]]) for r in rows]
     else:
         make = row_objects(nested.links, 4 if nested.kind == "entity-list" else 3, entities)
@@ -247,7 +253,7 @@ def _entity_objects(plan, table: str, fetch, traces) -> dict:
         group = plan.entity_group(table)
         attributes = row_objects(group.attributes, 2)
         found = cache[table] = {}
-        for e in fetch(f"SELECT * FROM {_q(table)}"):
+        for e in fetch(table_query(table)):
             obj = attributes(e)
             if not group.matched:
                 obj[group.identity] = stored_back(e[1], group.identity_type, False)

@@ -140,46 +140,114 @@ def _lit(value: str) -> str:
     return "'" + str(value).replace("'", "''") + "'"
 
 
-def _bytewise(dialect: str, expr: str, type_: str) -> str:
+def _bytewise(dialect: str, expr: str, type_: str, native: bool = False) -> str:
     """A text expression compared byte by byte, as SQLite compares text (its BINARY collation).
 
     PostgreSQL would otherwise order text by the database's locale ("B" after
-    "a" in en_US), so a view's first and last rows would depend on the server.
+    "a" in en_US), so a view's first and last rows would depend on the server. A date or timestamp
+    PostgreSQL holds natively (``native``) has no collation: it orders by time, which its text form
+    (``datetimes.TextForm``, one width and offset per column) orders alike.
     """
-    if dialect == "postgresql" and type_ in TEXT_TYPES:
+    if dialect == "postgresql" and type_ in ("text", "date", "timestamp") and not native:
         return f'{expr} COLLATE "C"'
     return expr
 
 
-def _ordered_join(dialect: str, expr: str, order: str, source: str, separator: str) -> str:
-    """An aggregate joining ``expr`` over ``source`` in ``order``; NULL when there are no rows."""
+# A REAL as SQLite writes it as text (CAST(x AS TEXT) is printf's "%!.15g": 15 significant digits, a decimal
+# point always, an exponent below 1e-4 and from 1e15 on; sqlite.org/printf.html, the "!" flag). PostgreSQL
+# writes the same from to_char's "%+.14e" digits (PostgreSQL documentation, "9.8. Data Type Formatting
+# Functions", EEEE): the mantissa's trailing zeros dropped, or, between the exponents, the decimal itself
+# (numeric, trim_scale). Both round the 15th digit of the binary value; SQLite computes it in long double,
+# so where the 16th digit of the shortest form is a 5 (about 1 value in 1,000 at random) it may round the
+# other way.
+_PG_SCIENTIFIC = "ltrim(to_char({x}, '9.99999999999999EEEE'))"
+_PG_REAL_TEXT = ("CASE WHEN {x} IS NULL THEN NULL WHEN {x} = 'NaN'::float8 THEN 'NaN' "
+                 "WHEN {x} = 'Infinity'::float8 THEN 'Inf' WHEN {x} = '-Infinity'::float8 THEN '-Inf' "
+                 "WHEN {x} = 0 THEN '0.0' "
+                 "WHEN split_part({s}, 'e', 2)::int NOT BETWEEN -4 AND 14 "
+                 "THEN regexp_replace(rtrim(split_part({s}, 'e', 1), '0'), '\\.$', '.0') || 'e' || split_part({s}, 'e', 2) "
+                 "ELSE regexp_replace(trim_scale(({s})::numeric)::text, '^(-?[0-9]+)$', '\\1.0') END")
+
+
+def as_text(dialect: str, expr: str, type_: str, form=None) -> str:
+    """An expression of a column's type as text, the same on SQLite and PostgreSQL (lists and picks).
+
+    Booleans are ``true`` and ``false`` (JSON's words, RFC 8259 section 3; SQLite stores 1 and 0), reals as
+    SQLite writes them (``_PG_REAL_TEXT``), a date or timestamp PostgreSQL holds natively in the text it came
+    in (``form``, a ``datetimes.TextForm``), anything else through CAST.
+
+    Example:
+        >>> as_text("sqlite", "b.flag", "boolean")
+        "CASE WHEN b.flag THEN 'true' WHEN NOT b.flag THEN 'false' END"
+        >>> as_text("sqlite", "v.x", "real")
+        "CASE WHEN v.x IS NULL THEN NULL ELSE printf('%!.15g', v.x) END"
+    """
+    if type_ == "boolean":
+        return f"CASE WHEN {expr} THEN 'true' WHEN NOT {expr} THEN 'false' END"
+    if type_ == "real":
+        if dialect == "postgresql":
+            return _PG_REAL_TEXT.format(x=expr, s=_PG_SCIENTIFIC.format(x=expr))
+        return f"CASE WHEN {expr} IS NULL THEN NULL ELSE printf('%!.15g', {expr}) END"
+    if form is not None and dialect == "postgresql":
+        return form.text_sql(expr)
+    return f"CAST({expr} AS TEXT)"
+
+
+def _ordered_join(dialect: str, text: str, order: str, source: str, separator: str) -> str:
+    """An aggregate joining the text expression ``text`` over ``source`` in ``order``; NULL when there are no rows."""
     if dialect == "postgresql":
-        return f"(SELECT string_agg(CAST({expr} AS TEXT), {_lit(separator)} ORDER BY {order}) FROM {source})"
+        return f"(SELECT string_agg({text}, {_lit(separator)} ORDER BY {order}) FROM {source})"
     # SQLite before 3.44 has no ORDER BY inside aggregates; group_concat takes the rows
     # in the order the inner query delivers them.
-    return (f"(SELECT group_concat(v, {_lit(separator)}) FROM (SELECT CAST({expr} AS TEXT) AS v "
+    return (f"(SELECT group_concat(v, {_lit(separator)}) FROM (SELECT {text} AS v "
             f"FROM {source} ORDER BY {order}))")
 
 
-def view_sql(view: View, plan: Plan, dialect: str) -> str:
-    """The SELECT that defines a view, in the given dialect ("sqlite" or "postgresql")."""
+@dataclass
+class ViewColumn:
+    """One column of a view: its name, its SELECT expression, and the plan type of its values."""
+
+    name: str
+    expression: str
+    type: str
+
+
+def view_sql(view: View, plan: Plan, dialect: str, forms: dict | None = None) -> str:
+    """The SELECT that defines a view, in the given dialect ("sqlite" or "postgresql").
+
+    ``forms`` maps (table, column) to the ``datetimes.TextForm`` of the date and timestamp columns
+    PostgreSQL holds natively (``write.native_forms``); the others are text.
+    """
+    alias = "r" if view.kind == "record_summary" else "e"
+    columns = ", ".join(c.expression if c.expression == f"{alias}.{_q(c.name)}" else f"{c.expression} AS {_q(c.name)}"
+                        for c in view_columns(view, plan, dialect, forms))
+    return f"SELECT {columns} FROM {_q(view.table)} {alias}"
+
+
+def view_columns(view: View, plan: Plan, dialect: str = "sqlite", forms: dict | None = None) -> list[ViewColumn]:
+    """The columns of a view, in order: what ``view_sql`` selects, with the plan type of each."""
+    forms = forms or {}
     if view.kind == "record_summary":
-        return _record_summary(view, plan, dialect)
-    return _entity_summary(view, plan, dialect)
+        return _record_summary(view, plan, dialect, forms)
+    return _entity_summary(view, plan, dialect, forms)
 
 
-def _record_summary(view: View, plan: Plan, dialect: str) -> str:
+def _record_summary(view: View, plan: Plan, dialect: str, forms: dict) -> list[ViewColumn]:
     record = plan.table(view.table)
     key = record.primary_key[0]
-    cols = [f"r.{_q(key)}"] + [f"r.{_q(c)}" for c in record.natural_key]
+    cols = [ViewColumn(key, f"r.{_q(key)}", "integer")]
+    cols += [ViewColumn(c, f"r.{_q(c)}", record.column(c).type)
+             for c in record.natural_key]
     for name in view.lists:
         if "." in name:  # a reference on the record's row: the entity's display name
             column = name.partition(".")[2]
             fk = next(k for k in record.foreign_keys if k.columns[0] == column)
             entity = plan.table(fk.references)
             label = column[:-3] if column.endswith("_sk") else column
-            cols.append(f"(SELECT e.{_q(display_column(entity))} FROM {_q(entity.name)} e "
-                        f"WHERE e.{_q(fk.ref_columns[0])} = r.{_q(column)}) AS {_q(label)}")
+            shown = display_column(entity)
+            cols.append(ViewColumn(label, f"(SELECT e.{_q(shown)} FROM {_q(entity.name)} e "
+                                          f"WHERE e.{_q(fk.ref_columns[0])} = r.{_q(column)})",
+                                   entity.column(shown).type))
             continue
         bridge = plan.table(name)
         entity = _bridge_entity(plan, bridge)
@@ -190,21 +258,26 @@ def _record_summary(view: View, plan: Plan, dialect: str) -> str:
         label = name[len(singular_prefix(record.name)):] if name.startswith(singular_prefix(record.name)) else name
         source = (f"{_q(name)} b JOIN {_q(entity.name)} e ON e.{_q(entity_key)} = b.{_q(entity_col)} "
                   f"WHERE b.{_q(owner_col)} = r.{_q(key)}")
-        cols.append(f"(SELECT count(*) FROM {_q(name)} b WHERE b.{_q(owner_col)} = r.{_q(key)}) "
-                    f"AS {_q(_label('number_of_' + label))}")
-        cols.append(_ordered_join(dialect, f"e.{_q(shown)}", "b.list_position", source, view.separator)
-                    + f" AS {_q(label)}")
+        cols.append(ViewColumn(_label("number_of_" + label),
+                               f"(SELECT count(*) FROM {_q(name)} b WHERE b.{_q(owner_col)} = r.{_q(key)})",
+                               "integer"))
+        text = as_text(dialect, f"e.{_q(shown)}", entity.column(shown).type, forms.get((entity.name, shown)))
+        cols.append(ViewColumn(label, _ordered_join(dialect, text, "b.list_position", source, view.separator), "text"))
     for pick in view.picks:
         bridge = plan.table(pick.bridge)
         entity = _bridge_entity(plan, bridge)
         owner_col = bridge.foreign_keys[0].columns[0]
         entity_col = bridge.foreign_keys[1].columns[0]
         entity_key = bridge.foreign_keys[1].ref_columns[0]
-        cols.append(f"(SELECT e.{_q(display_column(entity))} FROM {_q(pick.bridge)} b JOIN {_q(entity.name)} e "
-                    f"ON e.{_q(entity_key)} = b.{_q(entity_col)} WHERE b.{_q(owner_col)} = r.{_q(key)} "
-                    f"AND CAST(b.{_q(pick.attribute)} AS TEXT) = {_lit(pick.value)} "
-                    f"ORDER BY b.list_position LIMIT 1) AS {_q(pick.name)}")
-    return f"SELECT {', '.join(cols)} FROM {_q(record.name)} r"
+        shown = display_column(entity)
+        attribute = as_text(dialect, f"b.{_q(pick.attribute)}", bridge.column(pick.attribute).type,
+                            forms.get((bridge.name, pick.attribute)))
+        cols.append(ViewColumn(pick.name,
+                               f"(SELECT e.{_q(shown)} FROM {_q(pick.bridge)} b JOIN {_q(entity.name)} e "
+                               f"ON e.{_q(entity_key)} = b.{_q(entity_col)} WHERE b.{_q(owner_col)} = r.{_q(key)} "
+                               f"AND {attribute} = {_lit(pick.value)} "
+                               f"ORDER BY b.list_position LIMIT 1)", entity.column(shown).type))
+    return cols
 
 
 def add_pick(plan: Plan, spec: str) -> Pick:
@@ -245,86 +318,42 @@ def singular_prefix(record_table: str) -> str:
     return singular(record_table) + "_"
 
 
-def _entity_summary(view: View, plan: Plan, dialect: str) -> str:
-    """One row per entity: the distinct records it appears in, per list and in total, and its first and
-    last record by date. SQLite answers subqueries per entity through the bridges' foreign-key indexes
-    faster than aggregates over whole tables (measured: benchmarks/bench_views.py, docs/performance.md);
-    PostgreSQL the other way round."""
-    if dialect == "postgresql":
-        return _entity_summary_joined(view, plan, dialect)
+def _entity_summary(view: View, plan: Plan, dialect: str, forms: dict) -> list[ViewColumn]:
     entity = plan.table(view.table)
     key = entity.primary_key[0]
-    cols = [f"e.{_q(key)}"] + [f"e.{_q(c)}" for c in entity.natural_key]
+    cols = [ViewColumn(key, f"e.{_q(key)}", "integer")]
+    cols += [ViewColumn(c, f"e.{_q(c)}", entity.column(c).type) for c in entity.natural_key]
     shown = display_column(entity)
     if shown not in entity.natural_key:
-        cols.append(f"e.{_q(shown)}")
+        cols.append(ViewColumn(shown, f"e.{_q(shown)}", entity.column(shown).type))
     unions = []
     for entry in view.lists:
         source, owner, record_key, link = occurrence(plan, entry)
         label = entry.replace(".", "_")
         label = label[:-3] if "." in entry and label.endswith("_sk") else label
-        cols.append(f"(SELECT count(DISTINCT {record_key}) FROM {source} WHERE {link} = e.{_q(key)}) "
-                    f"AS {_q(_label('records_in_' + label))}")
+        cols.append(ViewColumn(_label("records_in_" + label),
+                               f"(SELECT count(DISTINCT {record_key}) FROM {source} WHERE {link} = e.{_q(key)})",
+                               "integer"))
         unions.append(f"SELECT {_lit(owner)} AS t, {record_key} AS k FROM {source} WHERE {link} = e.{_q(key)}")
     # distinct records: an entity twice in one record's list is one record (one list has no UNION to drop it)
-    cols.append(f"(SELECT count(*) FROM (SELECT DISTINCT t, k FROM ({' UNION '.join(unions)}) a) u) "
-                f"AS {_q('records_in_total')}")
+    cols.append(ViewColumn("records_in_total",
+                           f"(SELECT count(*) FROM (SELECT DISTINCT t, k FROM ({' UNION '.join(unions)}) a) u)",
+                           "integer"))
     if view.date_column:
         owner = plan.table(occurrence(plan, view.lists[0])[1])
         owner_key = owner.primary_key[0]
         label = owner.natural_key[0] if owner.natural_key else owner_key
         inner = " UNION ".join(f"SELECT {o[2]} AS k FROM {o[0]} WHERE {o[3]} = e.{_q(key)}"
                                for o in map(lambda n: occurrence(plan, n), view.lists))
-        date = _bytewise(dialect, f"r.{_q(view.date_column)}", owner.column(view.date_column).type)
-        shown_label = _bytewise(dialect, f"r.{_q(label)}", owner.column(label).type)
+        date_type, label_type = owner.column(view.date_column).type, owner.column(label).type
+        date = _bytewise(dialect, f"r.{_q(view.date_column)}", date_type, (owner.name, view.date_column) in forms)
+        shown_label = _bytewise(dialect, f"r.{_q(label)}", label_type, (owner.name, label) in forms)
         for which, direction in (("first", "ASC"), ("last", "DESC")):
-            cols.append(f"(SELECT r.{_q(label)} FROM {_q(owner.name)} r WHERE r.{_q(owner_key)} IN ({inner}) "
-                        f"AND r.{_q(view.date_column)} IS NOT NULL "
-                        f"ORDER BY {date} {direction}, {shown_label} {direction} LIMIT 1) "
-                        f"AS {_q(_label(f'{which}_{singular_prefix(owner.name)[:-1]}'))}")
-            cols.append(f"(SELECT {'min' if which == 'first' else 'max'}({date}) "
-                        f"FROM {_q(owner.name)} r WHERE r.{_q(owner_key)} IN ({inner})) "
-                        f"AS {_q(_label(f'{which}_{view.date_column}'))}")
-    return f"SELECT {', '.join(cols)} FROM {_q(entity.name)} e"
-
-
-def _entity_summary_joined(view: View, plan: Plan, dialect: str) -> str:
-    """PostgreSQL's entity summary: counts and first and last records joined from aggregates (one GROUP BY
-    per list over its whole table, not one subquery per entity), which PostgreSQL's hash joins answer in
-    about the same time for ``LIMIT 1000`` as for a GROUP BY over the whole view."""
-    entity = plan.table(view.table)
-    key = entity.primary_key[0]
-    cols = [f"e.{_q(key)}"] + [f"e.{_q(c)}" for c in entity.natural_key]
-    shown = display_column(entity)
-    if shown not in entity.natural_key:
-        cols.append(f"e.{_q(shown)}")
-    joins, unions = [], []
-    for n, entry in enumerate(view.lists):
-        source, owner, record_key, link = occurrence(plan, entry)
-        label = entry.replace(".", "_")
-        label = label[:-3] if "." in entry and label.endswith("_sk") else label
-        joins.append(f"LEFT JOIN (SELECT {link} AS ek, count(DISTINCT {record_key}) AS n FROM {source} "
-                     f"GROUP BY {link}) c{n} ON c{n}.ek = e.{_q(key)}")
-        cols.append(f"coalesce(c{n}.n, 0) AS {_q(_label('records_in_' + label))}")
-        unions.append(f"SELECT {_lit(owner)} AS t, {record_key} AS k, {link} AS ek FROM {source}")
-    # distinct records: an entity twice in one record's list is one record (UNION drops the repeats)
-    occurrences = " UNION ".join(unions)
-    joins.append(f"LEFT JOIN (SELECT ek, count(*) AS n FROM ({occurrences}) u GROUP BY ek) tot "
-                 f"ON tot.ek = e.{_q(key)}")
-    cols.append(f"coalesce(tot.n, 0) AS {_q('records_in_total')}")
-    if view.date_column:
-        owner = plan.table(occurrence(plan, view.lists[0])[1])
-        owner_key = owner.primary_key[0]
-        label = owner.natural_key[0] if owner.natural_key else owner_key
-        date = _bytewise(dialect, f"r.{_q(view.date_column)}", owner.column(view.date_column).type)
-        shown_label = _bytewise(dialect, f"r.{_q(label)}", owner.column(label).type)
-        for which, direction in (("first", "ASC"), ("last", "DESC")):
-            ranked = (f"SELECT o.ek, r.{_q(label)} AS shown, {date} AS d, ROW_NUMBER() OVER (PARTITION BY o.ek "
-                      f"ORDER BY {date} {direction}, {shown_label} {direction}) AS place "
-                      f"FROM (SELECT DISTINCT k, ek FROM ({occurrences}) u) o "
-                      f"JOIN {_q(owner.name)} r ON r.{_q(owner_key)} = o.k WHERE r.{_q(view.date_column)} IS NOT NULL")
-            joins.append(f"LEFT JOIN (SELECT ek, shown, d FROM ({ranked}) x WHERE place = 1) {which} "
-                         f"ON {which}.ek = e.{_q(key)}")
-            cols.append(f"{which}.shown AS {_q(_label(f'{which}_{singular_prefix(owner.name)[:-1]}'))}")
-            cols.append(f"{which}.d AS {_q(_label(f'{which}_{view.date_column}'))}")
-    return f"SELECT {', '.join(cols)} FROM {_q(entity.name)} e {' '.join(joins)}"
+            cols.append(ViewColumn(_label(f"{which}_{singular_prefix(owner.name)[:-1]}"),
+                                   f"(SELECT r.{_q(label)} FROM {_q(owner.name)} r "
+                                   f"WHERE r.{_q(owner_key)} IN ({inner}) AND r.{_q(view.date_column)} IS NOT NULL "
+                                   f"ORDER BY {date} {direction}, {shown_label} {direction} LIMIT 1)", label_type))
+            cols.append(ViewColumn(_label(f"{which}_{view.date_column}"),
+                                   f"(SELECT {'min' if which == 'first' else 'max'}({date}) "
+                                   f"FROM {_q(owner.name)} r WHERE r.{_q(owner_key)} IN ({inner}))", date_type))
+    return cols

@@ -12,6 +12,7 @@ from __future__ import annotations
 
 import os
 from contextlib import contextmanager
+from datetime import timezone
 from pathlib import Path
 
 import sqlalchemy as sa
@@ -28,8 +29,8 @@ TYPES = {  # the SQL type of each of plan.TYPES
     "real": sa.Float,
     "text": sa.Text,
     "boolean": sa.Boolean,
-    "date": sa.Text,  # ISO 8601 text (plan.TEXT_TYPES)
-    "timestamp": sa.Text,
+    "date": sa.Text,  # ISO 8601 text (plan.TEXT_TYPES): SQLite has no date type, and text sorts and compares correctly
+    "timestamp": sa.Text,  # (on PostgreSQL, DATE and TIMESTAMP where the text comes back exactly: native_forms)
 }
 
 
@@ -95,14 +96,21 @@ class DestinationExists(NormaliseError):
     exit_code = EXIT_USAGE
 
 
-def metadata_for(plan: Plan) -> sa.MetaData:
-    """SQLAlchemy tables with PRIMARY KEY, FOREIGN KEY, UNIQUE, NOT NULL and foreign-key indexes."""
+def metadata_for(plan: Plan, forms: dict | None = None) -> sa.MetaData:
+    """SQLAlchemy tables with PRIMARY KEY, FOREIGN KEY, UNIQUE, NOT NULL and foreign-key indexes.
+
+    ``forms`` maps (table, column) to the ``datetimes.TextForm`` of the date and timestamp columns
+    PostgreSQL holds in its own types (``native_forms``); every other column has its plan type's ``TYPES``.
+    """
     md = sa.MetaData()
+    forms = forms or {}
     for t in plan.tables:
         cols = []
         for c in t.columns:
             kind = TYPES[c.type]
             col_type = kind(create_constraint=False) if kind is sa.Boolean else kind()
+            if (t.name, c.name) in forms:
+                col_type = _NATIVE[forms[(t.name, c.name)].sql_type]
             if t.primary_key == [c.name] and c.type == "integer":
                 # SQLite makes an INTEGER PRIMARY KEY the table's rowid: no second index to maintain
                 col_type = sa.BigInteger().with_variant(sa.INTEGER(), "sqlite")
@@ -121,6 +129,44 @@ def metadata_for(plan: Plan) -> sa.MetaData:
                 continue  # a key that starts with these columns already indexes them
             sa.Index(f"ix_{t.name}_{'_'.join(fk.columns)}", *[table.c[c] for c in fk.columns])
     return md
+
+
+_NATIVE = {"DATE": sa.Date(), "TIMESTAMP": sa.DateTime(), "TIMESTAMP WITH TIME ZONE": sa.DateTime(timezone=True)}
+
+
+def native_forms(plan: Plan, rows: dict[str, list[tuple]]) -> tuple[dict, dict]:
+    """The date and timestamp columns PostgreSQL can hold in its own types and give back exactly.
+
+    Returns ``(forms, kept)``: (table, column) -> the ``datetimes.TextForm`` all its values are written in,
+    and (table, column) -> why a column keeps TEXT (its values take several forms or offsets, or one is
+    not a date PostgreSQL holds: the types were inferred from a sample). Decided on every value written.
+    """
+    from .datetimes import text_form
+
+    forms, kept = {}, {}
+    for t in plan.tables:
+        for j, c in enumerate(t.columns):
+            if c.type in ("date", "timestamp"):
+                form, why = text_form(c.type, (row[j] for row in rows.get(t.name, ())))
+                if form is None:
+                    kept[(t.name, c.name)] = why
+                else:
+                    forms[(t.name, c.name)] = form
+    return forms, kept
+
+
+def proof_queries(plan: Plan, forms: dict) -> dict[str, str]:
+    """The lossless proof's whole-table queries (``prove.table_query``) of the tables with native date and
+    timestamp columns, each with a query giving those columns as the text they came in (``TextForm.text_sql``)."""
+    from .prove import table_query
+
+    out = {}
+    for t in plan.tables:
+        if any((t.name, c.name) in forms for c in t.columns):
+            columns = ", ".join(f"{forms[(t.name, c.name)].text_sql(_quote(c.name))} AS {_quote(c.name)}"
+                                if (t.name, c.name) in forms else _quote(c.name) for c in t.columns)
+            out[table_query(t.name)] = f"SELECT {columns} FROM {_quote(t.name)}"
+    return out
 
 
 def _foreign_keys_on(dbapi_connection, _record) -> None:
@@ -333,32 +379,77 @@ def write_sqlite(plan: Plan, rows: dict[str, list[tuple]], order: list[str], des
     return checks
 
 
+ARROW_TYPES = {"integer": "int64", "real": "float64", "boolean": "bool", "text": "string"}  # pyarrow type names
+
+
+def arrow_field(name: str, type_: str, values: list):
+    """The Arrow field of a column of a plan type, and its values as Arrow takes them.
+
+    Integers are int64, reals float64, booleans bool (SQLite's 0 and 1), text string; a date column is
+    date32 and a timestamp column timestamp in microseconds, in UTC (``tz="UTC"``) when its values carry
+    offsets (Arrow keeps the instant; Apache Arrow columnar format, "Timestamp"), when every value is one
+    (``datetimes.parse``). Otherwise, and for a timestamp column whose values mix offsets and none, the
+    column stays ISO 8601 text, and the field's metadata says why (``normalise.kept_as_text``). An empty
+    column has the type of a full one (a timestamp column without offsets).
+
+    Example:
+        >>> arrow_field("day", "date", ["2024-01-31", None])
+        (pyarrow.Field<day: date32[day]>, [datetime.date(2024, 1, 31), None])
+        >>> arrow_field("sent", "timestamp", ["2024-01-31T09:30:00+01:00"])[0]
+        pyarrow.Field<sent: timestamp[us, tz=UTC]>
+        >>> arrow_field("due", "date", ["2024-02-30"])[0].metadata
+        {b'normalise.kept_as_text': b"'2024-02-30' is not an ISO 8601 date"}
+    """
+    import pyarrow as pa
+
+    from .datetimes import parse
+
+    if type_ in ("date", "timestamp"):
+        parsed = [None if v is None else parse(type_, v) for v in values]
+        bad = next((v for v, p in zip(values, parsed) if v is not None and p is None), None)
+        zones = {p.utcoffset() is not None for p in parsed if p is not None} if type_ == "timestamp" else set()
+        if bad is not None or len(zones) > 1:
+            why = f"{bad!r} is not an ISO 8601 {type_}" if bad is not None else "values with and without offsets"
+            return pa.field(name, pa.string(), metadata={"normalise.kept_as_text": why}), values
+        if type_ == "date":
+            return pa.field(name, pa.date32()), parsed
+        if zones == {True}:
+            return pa.field(name, pa.timestamp("us", tz="UTC")), [
+                None if p is None else p.astimezone(timezone.utc) for p in parsed]
+        return pa.field(name, pa.timestamp("us")), parsed
+    if type_ == "boolean":
+        values = [None if v is None else bool(v) for v in values]
+    return pa.field(name, pa.type_for_alias(ARROW_TYPES[type_])), values
+
+
 def write_parquet(database: str, plan: Plan, directory: str) -> list[str]:
-    """Every table and view of a written SQLite database as a Parquet file; returns the paths."""
+    """Every table and view of a written SQLite database as a Parquet file; returns the paths.
+
+    Each file has the plan's types as an explicit Arrow schema (``arrow_field``), so an empty table is typed
+    like a full one and the files of two runs combine.
+    """
     import sqlite3
 
     import pyarrow as pa
     import pyarrow.parquet as pq
 
+    from .views import view_columns
+
     Path(directory).mkdir(parents=True, exist_ok=True)
     written = []
-    arrow_types = {"integer": pa.int64(), "real": pa.float64(), "boolean": pa.bool_()}
+    relations = [(t.name, [(c.name, c.type) for c in t.columns]) for t in plan.tables]
+    relations += [(v.name, [(c.name, c.type) for c in view_columns(v, plan)]) for v in plan.views]
     with sqlite3.connect(database) as conn:
-        names = [t.name for t in plan.tables] + [v.name for v in plan.views]
-        declared = {t.name: {c.name: c.type for c in t.columns} for t in plan.tables}
-        for name in names:
-            cursor = conn.execute(f"SELECT * FROM {_quote(name)}")
-            columns = [d[0] for d in cursor.description]
-            data = list(zip(*cursor.fetchall())) or [[] for _ in columns]
-            arrays = []
-            for column, values in zip(columns, data):
-                kind = declared.get(name, {}).get(column)
-                values = list(values)
-                if kind == "boolean":
-                    values = [None if v is None else bool(v) for v in values]
-                arrays.append(pa.array(values, type=arrow_types.get(kind)))
+        for name, columns in relations:
+            rows = conn.execute(f"SELECT {', '.join(_quote(c) for c, _ in columns)} FROM {_quote(name)}").fetchall()
+            data = list(zip(*rows)) or [() for _ in columns]
+            fields, arrays = [], []
+            for (column, type_), values in zip(columns, data):
+                field, values = arrow_field(column, type_, list(values))
+                fields.append(field)
+                arrays.append(pa.array(values, type=field.type))
             path = os.path.join(directory, f"{name}.parquet")
-            pq.write_table(pa.Table.from_arrays(arrays, names=columns), path)
+            pq.write_table(pa.Table.from_arrays(arrays, schema=pa.schema(fields)), path)
             written.append(path)
     return written
 
@@ -628,6 +719,39 @@ def _some(names: list[str], shown: int = 5) -> str:
     return ", ".join(names[:shown]) + (", ..." if len(names) > shown else "")
 
 
+def column_notes(forms: dict, kept: dict) -> dict[tuple[str, str], str]:
+    """What a PostgreSQL comment adds to the description of a date or timestamp column: its type, and how its
+    text comes back (``TextForm.text_sql``), or why it kept TEXT (``native_forms``)."""
+    notes = {(t, c): f"Stored as {form.sql_type}; {form.text_sql(_quote(c))} gives each value as it came in."
+             for (t, c), form in forms.items()}
+    notes.update({(t, c): f"Kept as TEXT, ISO 8601 as written: {why}." for (t, c), why in kept.items()})
+    return notes
+
+
+def _pg_comment(cursor, schema: str, plan: Plan, forms: dict, kept: dict) -> None:
+    """COMMENT ON every table, view and column: what the data dictionary says of it (``dictionary.descriptions``,
+    made from the plan, as the ``descriptions`` table holds it), with a note on each date and timestamp column."""
+    from psycopg import sql
+
+    from .dictionary import descriptions
+
+    views = {v.name for v in plan.views}
+    notes = column_notes(forms, kept)
+    by_relation: dict[str, list] = {}
+    for relation, column, text in descriptions(plan):
+        if (relation, column) in notes:
+            text = f"{text} {notes[(relation, column)]}"
+        what = sql.Literal(_without_nul(printable(text)))
+        if column is None:
+            kind = sql.SQL("VIEW" if relation in views else "TABLE")
+            statement = sql.SQL("COMMENT ON {} {} IS {}").format(kind, sql.Identifier(schema, relation), what)
+        else:
+            statement = sql.SQL("COMMENT ON COLUMN {} IS {}").format(sql.Identifier(schema, relation, column), what)
+        by_relation.setdefault(relation, []).append(statement)
+    for statements in by_relation.values():  # one round trip per table (no parameters: several statements run)
+        cursor.execute(sql.SQL("; ").join(statements))
+
+
 def _pg_register(cursor, schema: str, order: list[str], plan: Plan) -> None:
     """Write the schema's register: every table and view this run made, and the register itself."""
     from psycopg import sql
@@ -640,6 +764,10 @@ def _pg_register(cursor, schema: str, order: list[str], plan: Plan) -> None:
             copy.write_row(row)
     cursor.execute(sql.SQL("COMMENT ON TABLE {} IS {}").format(
         table, sql.Literal("what normalise made in this schema: --replace drops these and nothing else")))
+    for column, text in (("relation", "The name of a table or view a run made in this schema."),
+                         ("kind", "table or view.")):
+        cursor.execute(sql.SQL("COMMENT ON COLUMN {} IS {}").format(sql.Identifier(schema, PG_REGISTER, column),
+                                                                   sql.Literal(text)))
 
 
 @contextmanager
@@ -698,7 +826,12 @@ def write_postgresql(plan: Plan, rows: dict[str, list[tuple]], order: list[str],
     schema holding tables or views no run made is refused (they are never
     dropped) unless ``share_schema``: the run then writes beside them, names
     apart. The register is written last, listing what this run made.
-    Returns the counterpart of SQLite's integrity checks.
+
+    Columns are BIGINT, DOUBLE PRECISION, BOOLEAN and TEXT by their plan types; a date or timestamp
+    column is DATE, TIMESTAMP or TIMESTAMP WITH TIME ZONE when every value it holds comes back as the
+    text it came in (``native_forms``; the proof reads it so), and TEXT otherwise.
+    Returns the counterpart of SQLite's integrity checks, and under ``"kept_as_text"`` the date and
+    timestamp columns kept as TEXT ("table.column": why).
     """
     try:
         from psycopg import errors as pg_errors
@@ -709,7 +842,8 @@ def write_postgresql(plan: Plan, rows: dict[str, list[tuple]], order: list[str],
     url = postgresql_url(database)
     shown = display_url(database)
     _pg_check_names(plan, schema)
-    md = metadata_for(plan)
+    forms, kept = native_forms(plan, rows)
+    md = metadata_for(plan, forms)
     _pg_names(md, {t.name for t in plan.tables} | {v.name for v in plan.views})
     engine = sa.create_engine(url, poolclass=sa.pool.NullPool)
     lock = _pg_lock_key(b"normalise schema ", schema)
@@ -751,7 +885,8 @@ def write_postgresql(plan: Plan, rows: dict[str, list[tuple]], order: list[str],
                     conn.execute(sa.schema.CreateIndex(index))
             for view in plan.views:
                 cursor.execute(sql.SQL("CREATE VIEW {} AS ").format(sql.Identifier(schema, view.name))
-                               + sql.SQL(view_sql(view, plan, "postgresql")))
+                               + sql.SQL(view_sql(view, plan, "postgresql", forms)))
+            _pg_comment(cursor, schema, plan, forms, kept)
             _pg_register(cursor, schema, order, plan)
             if truncated:
                 raise DestinationError(
@@ -760,8 +895,10 @@ def write_postgresql(plan: Plan, rows: dict[str, list[tuple]], order: list[str],
                     "(normalise plan -o plan.toml, rename, then build --plan plan.toml); nothing was written")
             proof = None
             if verify is not None:  # the lossless proof, on the rows as PostgreSQL holds them, before the commit
+                queries = proof_queries(plan, forms)
+
                 def fetch(query: str) -> list:
-                    cursor.execute(query)
+                    cursor.execute(queries.get(query, query))
                     return cursor.fetchall()
                 proof = verify(fetch)
             for name in order:
@@ -776,7 +913,8 @@ def write_postgresql(plan: Plan, rows: dict[str, list[tuple]], order: list[str],
         engine.dispose()
     # Every foreign key was added, and so checked by PostgreSQL against every row, before
     # the commit; PostgreSQL has no counterpart of SQLite's PRAGMA integrity_check.
-    result = {"foreign_key_violations": 0, "integrity_check": None, "schema": schema}
+    result = {"foreign_key_violations": 0, "integrity_check": None, "schema": schema,
+              "kept_as_text": {f"{t}.{c}": why for (t, c), why in kept.items()}}
     if verify is not None:
         result["proof"] = proof
     return result

@@ -211,3 +211,35 @@ def has_lone_surrogate(value) -> bool:
     if isinstance(value, (list, tuple, set, frozenset)):
         return any(has_lone_surrogate(v) for v in value)
     return False
+
+
+# --- ISO 8601 date and timestamp columns (issue 16) ------------------------------
+
+@st.composite
+def iso_columns(draw, max_values: int = 30) -> tuple[str, list[str]]:
+    """(kind, values): a date or timestamp column written in one ISO 8601 form (ISO 8601-1:2019, extended
+    format) as exports write them: "T" or a space, seconds or not, 0 to 6 fraction digits (or the fraction
+    only when not whole, as ``datetime.isoformat`` writes it), no offset or one offset throughout."""
+    import datetime
+
+    kind = draw(st.sampled_from(["date", "timestamp"]))
+    # from year 2: an instant of year 1 at +14:00 is in 1 BC, which PostgreSQL holds and Python cannot
+    moments = draw(st.lists(st.datetimes(min_value=datetime.datetime(2, 1, 1), max_value=datetime.datetime(9999, 12, 30)),
+                            min_size=1, max_size=max_values))
+    if kind == "date":
+        return kind, [m.date().isoformat() for m in moments]
+    separator = draw(st.sampled_from(["T", " "]))
+    seconds = draw(st.booleans())
+    digits = draw(st.integers(0, 6)) if seconds else 0
+    bare_whole = digits == 6 and draw(st.booleans())
+    offset = draw(st.sampled_from([None, "Z", "+00:00", "+01:00", "-05:30", "+0545", "+14:00", "-12:00"]))
+    values = []
+    for m in moments:
+        text = m.strftime(f"%Y-%m-%d{separator}%H:%M") if m.year >= 1000 else \
+            f"{m.year:04d}-{m.month:02d}-{m.day:02d}{separator}{m.hour:02d}:{m.minute:02d}"
+        if seconds:
+            text += f":{m.second:02d}"
+            if digits and not (bare_whole and m.microsecond == 0):
+                text += "." + f"{m.microsecond:06d}"[:digits]
+        values.append(text + (offset or ""))
+    return kind, values

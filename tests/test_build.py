@@ -596,8 +596,8 @@ def test_manifest_structure(demo, built):
         assert all(isinstance(i[k], int) for k in ("rows_read", "records_loaded", "rows_set_aside",
                                                     "rows_rejected"))
     roles = {"record", "entity", "bridge", "child", "set_aside", "quarantine", "variants", "rejected", "traces",
-             "unmatched", "names"}  # the contract's roles, plus rejected (rows not readable), unmatched (join)
-    # and names (the map of names taken from the data to SQL names)
+             "unmatched", "names", "descriptions"}  # the contract's roles, plus rejected (rows not readable), unmatched
+    # (join), names (the map of names taken from the data to SQL names) and descriptions (the data dictionary's)
     tables = tables_by_name(m)
     for t in m["tables"]:
         assert {"name", "role", "rows", "sources", "primary_key", "natural_key", "position_column",

@@ -20,6 +20,7 @@ quote), and drops it afterwards.
 
 from __future__ import annotations
 
+import datetime
 import json
 import os
 import sqlite3
@@ -124,11 +125,14 @@ def built(demo, pg, pg_url):
 # --- reading both sides ------------------------------------------------------------------------
 
 def _value(v):
-    """One value in a comparable form: booleans as 0/1 (SQLite stores them so), floats to 12 digits."""
+    """One value in a comparable form: booleans as 0/1 (SQLite stores them so), floats to 12 digits, a
+    PostgreSQL DATE as ISO 8601 text (SQLite keeps that text; ``date.isoformat`` writes YYYY-MM-DD)."""
     if isinstance(v, bool):
         return int(v)
     if isinstance(v, float):
         return float(f"{v:.12g}")
+    if type(v) is datetime.date:
+        return v.isoformat()
     return v
 
 
@@ -209,7 +213,7 @@ def test_manifest_matches_sqlite_build(built, reference):
 
 
 PG_TYPES = {"integer": "bigint", "real": "double precision", "boolean": "boolean",
-            "text": "text", "date": "text", "timestamp": "text"}
+            "text": "text", "date": "date", "timestamp": "timestamp without time zone"}
 
 
 def test_column_types_and_not_null(pg, built, reference):
@@ -646,3 +650,44 @@ def test_references_back_match_sqlite(pg, pg_url, schema, tmp_path):
     # pg_constraint: the self-reference and the value table's reference, both checked (validated)
     assert (["parent_sk"], schema, "regions", ["region_sk"], True) in _pg_constraints(pg, schema, "regions", "f")
     assert (["region_sk"], schema, "regions", ["region_sk"], True) in _pg_constraints(pg, schema, "neighbour", "f")
+
+
+def _kits(path) -> list[dict]:
+    """Kits with lists of reals and of booleans, and tools whose link attribute ``lead`` is a boolean."""
+    import random
+
+    rng = random.Random(5)
+    # reals whose text differs between the backends' own CASTs: 2.0 ("2"), 0.1 + 0.2 (15 digits against 17),
+    # exponents at both ends of SQLite's plain range
+    reals = [2.0, 0.1, 0.1 + 0.2, 1e20, 1.5e-07, 123456789.123, 1e15, 1e14, 0.0001, -2.5, 1 / 3]
+    tools = ["awl", "bradawl", "chisel", "drawknife", "spokeshave"]
+    kits = [{"kit_id": f"K{k:03d}", "weights": rng.sample(reals, 3), "checks": [rng.random() < 0.5 for _ in range(3)],
+             "tools": [{"tool_id": i, "name": tools[i], "lead": rng.random() < 0.5} for i in rng.sample(range(5), 3)]}
+            for k in range(40)]
+    path.write_text("".join(json.dumps(kit) + "\n" for kit in kits), encoding="utf-8")
+    return kits
+
+
+def test_booleans_and_reals_render_alike_in_lists_and_picks(pg, pg_url, schema, tmp_path):
+    """The record summary's lists and picks give the same text on both backends: booleans as JSON writes them
+    (``json.dumps``, RFC 8259 section 3) and reals as SQLite's own CAST(x AS TEXT) writes them; a pick on a
+    boolean link attribute names the first tool the input (read with ``json``) leads with."""
+    path = tmp_path / "kits.jsonl"
+    kits = _kits(path)
+    db = str(tmp_path / "kits.db")
+    picks = ["lead_tool=tools:lead=true"]
+    m_sqlite = build_database([str(path)], db, picks=picks)
+    build_database([str(path)], pg_url, schema=schema, picks=picks)
+    assert_same_as_sqlite(pg, schema, db, relation_names(m_sqlite))
+    names, rows = pg_relation(pg, schema, "kits_summary")
+    by_kit = {r[names.index("kit_id")]: dict(zip(names, r)) for r in rows}
+    with sqlite3.connect(":memory:") as lite:
+        def sqlite_text(x: float) -> str:  # reference: SQLite's own REAL-to-text conversion
+            return lite.execute("SELECT CAST(? AS TEXT)", (x,)).fetchone()[0]
+
+        for kit in kits:
+            got = by_kit[kit["kit_id"]]
+            assert got["weights"] == "; ".join(map(sqlite_text, kit["weights"]))
+            assert got["checks"] == "; ".join(map(json.dumps, kit["checks"]))
+            assert got["lead_tool"] == next((t["name"] for t in kit["tools"] if t["lead"]), None)
+    assert any(v["weights"] and "2.0" in v["weights"].split("; ") for v in by_kit.values())

@@ -222,7 +222,7 @@ def test_version_and_exit_codes_in_help():
     env = {**os.environ, "PYTHONPATH": WORKTREE}
     done = subprocess.run([sys.executable, "-m", "normalise", "--version"], capture_output=True, text=True, env=env,
                           timeout=120)
-    assert done.returncode == 0 and done.stdout.strip() == f"normalise {version('normalise')}"
+    assert done.returncode == 0 and done.stdout.strip() == f"normalise {version('normalise-exports')}"
     for command in ([], ["build"]):
         done = subprocess.run([sys.executable, "-m", "normalise", *command, "--help"], capture_output=True,
                               text=True, env=env, timeout=120)

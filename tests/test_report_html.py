@@ -202,7 +202,7 @@ def test_self_contained(demo):
 def test_one_box_per_table_and_one_line_per_foreign_key(demo):
     db, page = demo["db"], demo["html"]
     names = tables_of(db)
-    assert len(BOX.findall(page)) == len(names) == 15  # 8 data tables, 7 bookkeeping tables
+    assert len(BOX.findall(page)) == len(names) == 16  # 8 data tables, 8 bookkeeping tables
     boxed = [a["data-table"] for t, a in parse(page) if t == "g" and "table-box" in a.get("class", "").split()]
     assert sorted(boxed) == sorted(names)
     with sqlite3.connect(db) as con:
@@ -312,10 +312,10 @@ def test_postgresql_destination_refuses_the_report_before_writing():
         build_database(["nothing.csv"], "postgresql+psycopg://u@localhost/x", report_path="r.html")
 
 
-# --- the diagram at 5 and at 51 tables (44 data tables and the 7 bookkeeping tables) --------------------------------------------------------------
+# --- the diagram at 5 and at 52 tables (44 data tables and the 8 bookkeeping tables) --------------------------------------------------------------
 
 @pytest.mark.parametrize("size, shape", [(5, dict(records=1, entities=1, lists=1, meta=False)),
-                                         (51, dict(records=6, entities=8, lists=3))])
+                                         (52, dict(records=6, entities=8, lists=3))])
 @pytest.mark.parametrize("with_manifest", [True, False])
 def test_layout_has_one_box_per_table_and_no_overlap(tmp_path, size, shape, with_manifest):
     db = tmp_path / f"s{size}.db"
@@ -467,7 +467,7 @@ def test_report_renders_in_chromium(demo, tmp_path):
     assert dumped.returncode == 0, dumped.stderr[-2000:]
     assert console_messages(dumped.stderr) == []
     dom = dumped.stdout
-    assert len(BOX.findall(dom)) == len(tables_of(demo["db"])) == 15  # 8 data tables, 7 bookkeeping tables
+    assert len(BOX.findall(dom)) == len(tables_of(demo["db"])) == 16  # 8 data tables, 8 bookkeeping tables
     assert len(re.findall(r'<svg class="chart', dom)) >= 7  # 3 entity charts and 4 list-length charts
     shot = tmp_path / "report.png"
     taken = run_chromium(page, tmp_path / "profile", f"--screenshot={shot}", "--window-size=1600,2400",
@@ -489,7 +489,7 @@ def test_fifty_table_report_renders_in_chromium(tmp_path):
     dumped = run_chromium(page, tmp_path / "profile", "--dump-dom")
     assert dumped.returncode == 0, dumped.stderr[-2000:]
     assert console_messages(dumped.stderr) == []
-    assert len(BOX.findall(dumped.stdout)) == 51  # 44 data tables and the 7 bookkeeping tables
+    assert len(BOX.findall(dumped.stdout)) == 52  # 44 data tables and the 8 bookkeeping tables
     shot = tmp_path / "s50.png"
     run_chromium(page, tmp_path / "profile", f"--screenshot={shot}", "--window-size=1600,2400", "--hide-scrollbars")
     assert shot.is_file()
