@@ -221,7 +221,8 @@ def view_sql(view: View, plan: Plan, dialect: str, forms: dict | None = None) ->
     alias = "r" if view.kind == "record_summary" else "e"
     columns = ", ".join(c.expression if c.expression == f"{alias}.{_q(c.name)}" else f"{c.expression} AS {_q(c.name)}"
                         for c in view_columns(view, plan, dialect, forms))
-    return f"SELECT {columns} FROM {_q(view.table)} {alias}"
+    joins = "".join(" " + j for j in _aggregate_joins(view, plan, dialect, forms or {}))
+    return f"SELECT {columns} FROM {_q(view.table)} {alias}{joins}"
 
 
 def view_columns(view: View, plan: Plan, dialect: str = "sqlite", forms: dict | None = None) -> list[ViewColumn]:
@@ -319,6 +320,12 @@ def singular_prefix(record_table: str) -> str:
 
 
 def _entity_summary(view: View, plan: Plan, dialect: str, forms: dict) -> list[ViewColumn]:
+    """One row per entity: the distinct records it appears in, per list and in total, and its first and
+    last record by date. SQLite answers subqueries per entity through the bridges' foreign-key indexes
+    faster than aggregates over whole tables; PostgreSQL the other way round, so there the columns read
+    the aggregates ``_aggregate_joins`` joins (measured: benchmarks/bench_views.py, docs/performance.md)."""
+    if dialect == "postgresql":
+        return _entity_summary_joined(view, plan, forms)
     entity = plan.table(view.table)
     key = entity.primary_key[0]
     cols = [ViewColumn(key, f"e.{_q(key)}", "integer")]
@@ -357,3 +364,70 @@ def _entity_summary(view: View, plan: Plan, dialect: str, forms: dict) -> list[V
                                    f"(SELECT {'min' if which == 'first' else 'max'}({date}) "
                                    f"FROM {_q(owner.name)} r WHERE r.{_q(owner_key)} IN ({inner}))", date_type))
     return cols
+
+
+def _entity_columns(entity: Table) -> list[ViewColumn]:
+    key = entity.primary_key[0]
+    cols = [ViewColumn(key, f"e.{_q(key)}", "integer")]
+    cols += [ViewColumn(c, f"e.{_q(c)}", entity.column(c).type) for c in entity.natural_key]
+    shown = display_column(entity)
+    if shown not in entity.natural_key:
+        cols.append(ViewColumn(shown, f"e.{_q(shown)}", entity.column(shown).type))
+    return cols
+
+
+def _first_last(view: View, plan: Plan, forms: dict):
+    """(owner table, its label column, the date and label expressions in PostgreSQL) of an entity summary
+    with a date column."""
+    owner = plan.table(occurrence(plan, view.lists[0])[1])
+    label = owner.natural_key[0] if owner.natural_key else owner.primary_key[0]
+    date = _bytewise("postgresql", f"r.{_q(view.date_column)}", owner.column(view.date_column).type,
+                     (owner.name, view.date_column) in forms)
+    shown = _bytewise("postgresql", f"r.{_q(label)}", owner.column(label).type, (owner.name, label) in forms)
+    return owner, label, date, shown
+
+
+def _entity_summary_joined(view: View, plan: Plan, forms: dict) -> list[ViewColumn]:
+    """PostgreSQL's entity summary columns, read from the aggregates ``_aggregate_joins`` joins."""
+    cols = _entity_columns(plan.table(view.table))
+    for n, entry in enumerate(view.lists):
+        label = entry.replace(".", "_")
+        label = label[:-3] if "." in entry and label.endswith("_sk") else label
+        cols.append(ViewColumn(_label("records_in_" + label), f"coalesce(c{n}.n, 0)", "integer"))
+    cols.append(ViewColumn("records_in_total", "coalesce(tot.n, 0)", "integer"))
+    if view.date_column:
+        owner, label, _, _ = _first_last(view, plan, forms)
+        for which in ("first", "last"):
+            cols.append(ViewColumn(_label(f"{which}_{singular_prefix(owner.name)[:-1]}"), f"{which}.shown",
+                                   owner.column(label).type))
+            cols.append(ViewColumn(_label(f"{which}_{view.date_column}"), f"{which}.d",
+                                   owner.column(view.date_column).type))
+    return cols
+
+
+def _aggregate_joins(view: View, plan: Plan, dialect: str, forms: dict) -> list[str]:
+    """The LEFT JOINs of PostgreSQL's entity summary: one GROUP BY per list over its whole table, the
+    distinct records in total, and the first and last record by date (ROW_NUMBER); none elsewhere."""
+    if dialect != "postgresql" or view.kind != "entity_summary":
+        return []
+    key = _q(plan.table(view.table).primary_key[0])
+    joins, unions = [], []
+    for n, entry in enumerate(view.lists):
+        source, owner, record_key, link = occurrence(plan, entry)
+        joins.append(f"LEFT JOIN (SELECT {link} AS ek, count(DISTINCT {record_key}) AS n FROM {source} "
+                     f"GROUP BY {link}) c{n} ON c{n}.ek = e.{key}")
+        unions.append(f"SELECT {_lit(owner)} AS t, {record_key} AS k, {link} AS ek FROM {source}")
+    # distinct (record table, record, entity): an entity twice in one record's lists is one record, also
+    # with one list (no UNION there to drop the second)
+    occurrences = f"SELECT DISTINCT t, k, ek FROM ({' UNION '.join(unions)}) a"
+    joins.append(f"LEFT JOIN (SELECT ek, count(*) AS n FROM ({occurrences}) u GROUP BY ek) tot ON tot.ek = e.{key}")
+    if view.date_column:
+        owner, label, date, shown = _first_last(view, plan, forms)
+        for which, direction in (("first", "ASC"), ("last", "DESC")):
+            ranked = (f"SELECT o.ek, r.{_q(label)} AS shown, {date} AS d, ROW_NUMBER() OVER (PARTITION BY o.ek "
+                      f"ORDER BY {date} {direction}, {shown} {direction}) AS place "
+                      f"FROM (SELECT DISTINCT k, ek FROM ({occurrences}) u) o JOIN {_q(owner.name)} r "
+                      f"ON r.{_q(owner.primary_key[0])} = o.k WHERE r.{_q(view.date_column)} IS NOT NULL")
+            joins.append(f"LEFT JOIN (SELECT ek, shown, d FROM ({ranked}) x WHERE place = 1) {which} "
+                         f"ON {which}.ek = e.{key}")
+    return joins
