@@ -18,6 +18,7 @@ from .errors import UsageError
 from .escapes import clean
 from .names import quote_name as _q
 from .plan import META_ROLES, META_TABLES
+from .sharing import widened_sentence
 
 HEAD_ROWS = 50  # rows of each bookkeeping table shown
 TOP_ENTITIES = 15
@@ -86,6 +87,9 @@ def _catalog(conn: sqlite3.Connection, manifest: dict | None) -> dict:
         missing = [n for n in known if n not in {t["name"] for t in tables}]
         if missing:
             notes.append("the manifest names tables the database does not have: " + ", ".join(map(clean, missing)))
+    for w in (manifest or {}).get("widened", []):
+        if isinstance(w, dict):
+            notes.append(clean(widened_sentence(w)))
     if known:  # keep the manifest's order (the plan's), tables it does not know at the end
         order = {n: i for i, n in enumerate(known)}
         tables.sort(key=lambda t: order.get(t["name"], len(order)))

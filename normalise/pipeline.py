@@ -28,6 +28,7 @@ from .planfile import join_settings, plan_from_doc, plan_to_toml, read_plan
 from .report import manifest
 from .result import Built
 from .schema import POSTGRESQL_MAX_COLUMNS
+from .sharing import widened
 from .views import add_pick
 from .write import SqliteWriter
 from .write import (DEFAULT_SCHEMA, destination, display_url, is_postgresql, postgresql_run_lock, write_parquet,
@@ -61,6 +62,11 @@ def _open(paths: list[str], *, options: Options | None, limits: Limits, formats:
         plan = plan_from_doc(doc, text, *inputs.sample)
     else:
         plan = infer_plan(*inputs.sample, options)
+        # sharing between columns decided over every record, not only the sample (sharing.py)
+        wider, found = widened(plan, options, inputs.sample, lambda columns: inputs.partitions(chunk_rows, columns))
+        if found:
+            plan = infer_plan(*inputs.sample, wider)
+            plan.widened = found
     for spec in picks or ():
         add_pick(plan, spec)
     return plan, inputs

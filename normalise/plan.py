@@ -169,6 +169,9 @@ class Plan:
     tables: list[Table] = field(default_factory=list)
     views: list = field(default_factory=list)  # views.View
     violation_threshold: float = 0.05
+    # entity tables the sample kept apart and every record showed to be one (sharing.widened): what the run
+    # reports; not part of a saved plan, whose entity members already say it
+    widened: list = field(default_factory=list)
 
     def table(self, name: str) -> Table:
         for t in self.tables:

@@ -6,6 +6,7 @@ import re
 
 from .build import Built
 from .plan import Plan
+from .sharing import widened_sentence
 
 MANIFEST_VERSION = 1
 
@@ -61,6 +62,7 @@ def manifest(plan: Plan, built: Built, database: str, integrity: dict, joined=No
         "values_rejoined": dict(sorted(built.rejoined.items())),
         # values that are natural keys of a record table: how many found their record; the others are kept
         "references": list(built.references),
+        "widened": list(plan.widened),
         "entities": [{"table": g.table, "identity": g.identity, "members": g.members,
                       "attributes": [f.column for f in g.attributes]} for g in plan.entities],
         "integrity": {"foreign_key_violations": integrity["foreign_key_violations"],
@@ -119,6 +121,8 @@ def summary(m: dict) -> str:
     for e in m["entities"]:
         if len(e["members"]) > 1:
             out.append(f"  entity {e['table']} shared by {', '.join(e['members'])} (identity {e['identity']})")
+    for w in m.get("widened", []):
+        out.append("  " + widened_sentence(w))
     for r in m.get("references", []):
         out.append(f"  {r['column']} -> {r['references']} ({r['foreign_key']}): {r['matched']:,} of {r['values']:,} "
                    f"values name a record" + (f"; {r['unmatched']:,} name none ({r['distinct_unmatched']:,} distinct, "
