@@ -657,7 +657,7 @@ def _kits(path) -> list[dict]:
     import random
 
     rng = random.Random(5)
-    # reals whose text differs between the backends' own CASTs: 2.0 ("2"), 0.1 + 0.2 (15 digits against 17),
+    # reals whose text differs between the backends' own real-to-text conversions: 2.0 ("2"), 0.1 + 0.2 (15 digits against 17),
     # exponents at both ends of SQLite's plain range
     reals = [2.0, 0.1, 0.1 + 0.2, 1e20, 1.5e-07, 123456789.123, 1e15, 1e14, 0.0001, -2.5, 1 / 3]
     tools = ["awl", "bradawl", "chisel", "drawknife", "spokeshave"]

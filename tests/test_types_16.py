@@ -48,7 +48,7 @@ def _events(n: int = ROWS) -> list[dict]:
             "summer": t.replace(microsecond=0, tzinfo=summer).isoformat(),  # two offsets: the instant only
             "spaced": t.strftime("%Y-%m-%dT%H:%M" if k % 2 else "%Y-%m-%d %H:%M"),  # two separators
             "due": t.date().isoformat() if k < n - 1 else "2024-02-30",  # a date that is none, after the sample
-            "crew": f'[{{"crew_id": {k % 7}, "code": "C{k % 7}"}}, {{"crew_id": {(k + 3) % 7}, "code": "C{(k + 3) % 7}"}}]',
+            "team": f'[{{"team_id": {k % 7}, "code": "C{k % 7}"}}, {{"team_id": {(k + 3) % 7}, "code": "C{(k + 3) % 7}"}}]',
         })
     return rows
 
