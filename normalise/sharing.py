@@ -28,31 +28,29 @@ from collections import Counter
 from dataclasses import replace
 
 from .exact import keyed_items
+from .infer import _hashable, objects_of
 
 __all__ = ["undecided_pairs", "identity_statistics", "widened", "agreement", "widened_sentence"]
 
 
 def _members_of(plan) -> dict[str, tuple]:
-    """Each top-level nested column's member name -> (record path, column, the NestedColumn)."""
-    out = {}
-    for record in plan.records:
-        for nested in record.nested:
-            out[f"{nested.file}:{nested.column}"] = (record.path, nested.column, nested)
-    return out
+    """Each top-level nested column's member name -> (record path, the NestedColumn)."""
+    return {f"{nested.file}:{nested.column}": (record.path, nested)
+            for record in plan.records for nested in record.nested}
 
 
-def _walk(plan, member: str, tops: dict):
-    """(record path, column, keyed, path inside) of a member, or None when it cannot be read simply (a list
-    keyed by data below the top, a column name that matches no column)."""
+def _walk(member: str, tops: dict):
+    """(record path, the top NestedColumn, path inside) of a member, or None when it cannot be read simply (a
+    list keyed by data below the top, a column name that matches no column)."""
     file, _, rest = member.partition(":")
-    for name, (path, column, nested) in tops.items():
+    for name, (path, nested) in tops.items():
         top = name.partition(":")[2]
         if name.partition(":")[0] != file or not (rest == top or rest.startswith(top + ".")):
             continue
         inside = rest[len(top) + 1:].split(".") if rest != top else []
         if any(c.keyed for c in _descendants(nested)) and inside:
             return None
-        return path, column, nested, inside
+        return path, nested, inside
     return None
 
 
@@ -70,7 +68,7 @@ def undecided_pairs(plan, options) -> list[tuple[str, str]]:
     forbidden = set(options.no_merge)
     usable = [g for g in plan.entities
               if not g.matched and not forbidden & set(g.members)
-              and all(_walk(plan, m, tops) is not None for m in g.members)]
+              and all(_walk(m, tops) is not None for m in g.members)]
     return [(a.table, b.table) for i, a in enumerate(usable) for b in usable[i + 1:]
             if a.identity == b.identity]
 
@@ -86,17 +84,8 @@ def _objects(value, keyed: tuple | None, inside: list[str]):
 
 
 def _flat(value) -> list[dict]:
-    if isinstance(value, dict):
-        return [value]
-    if isinstance(value, (list, tuple)):
-        return [x for x in value if isinstance(x, dict)]
-    return []
-
-
-def _hashable(value):
-    if isinstance(value, (list, dict, set, tuple)):
-        return repr(value)
-    return value
+    """The objects of one value: itself, or those in the list (``infer.objects_of`` on one cell)."""
+    return objects_of([value])[0]
 
 
 def identity_statistics(plan, tables: set[str], partitions) -> dict[str, Counter]:
@@ -110,9 +99,9 @@ def identity_statistics(plan, tables: set[str], partitions) -> dict[str, Counter
             continue
         attributes = [f.path[0] for f in group.attributes if len(f.path) == 1 and f.path[0] != group.identity]
         for m in group.members:
-            path, column, nested, inside = _walk(plan, m, tops)
+            path, nested, inside = _walk(m, tops)
             keyed = (nested.keyed, nested.keyed_value) if nested.keyed else None
-            reads.append((path, column, keyed, inside, group.table, group.identity, attributes))
+            reads.append((path, nested.column, keyed, inside, group.table, group.identity, attributes))
     stats = {t: Counter() for t in tables}
     columns = {r[1] for r in reads}
     for export, decoded in partitions(columns):

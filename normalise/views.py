@@ -328,17 +328,11 @@ def _entity_summary(view: View, plan: Plan, dialect: str, forms: dict) -> list[V
         return _entity_summary_joined(view, plan, forms)
     entity = plan.table(view.table)
     key = entity.primary_key[0]
-    cols = [ViewColumn(key, f"e.{_q(key)}", "integer")]
-    cols += [ViewColumn(c, f"e.{_q(c)}", entity.column(c).type) for c in entity.natural_key]
-    shown = display_column(entity)
-    if shown not in entity.natural_key:
-        cols.append(ViewColumn(shown, f"e.{_q(shown)}", entity.column(shown).type))
+    cols = _entity_columns(entity)
     unions = []
     for entry in view.lists:
         source, owner, record_key, link = occurrence(plan, entry)
-        label = entry.replace(".", "_")
-        label = label[:-3] if "." in entry and label.endswith("_sk") else label
-        cols.append(ViewColumn(_label("records_in_" + label),
+        cols.append(ViewColumn(_label("records_in_" + _list_label(entry)),
                                f"(SELECT count(DISTINCT {record_key}) FROM {source} WHERE {link} = e.{_q(key)})",
                                "integer"))
         unions.append(f"SELECT {_lit(owner)} AS t, {record_key} AS k FROM {source} WHERE {link} = e.{_q(key)}")
@@ -347,14 +341,11 @@ def _entity_summary(view: View, plan: Plan, dialect: str, forms: dict) -> list[V
                            f"(SELECT count(*) FROM (SELECT DISTINCT t, k FROM ({' UNION '.join(unions)}) a) u)",
                            "integer"))
     if view.date_column:
-        owner = plan.table(occurrence(plan, view.lists[0])[1])
+        owner, label, date, shown_label = _first_last(view, plan, forms, dialect)
         owner_key = owner.primary_key[0]
-        label = owner.natural_key[0] if owner.natural_key else owner_key
         inner = " UNION ".join(f"SELECT {o[2]} AS k FROM {o[0]} WHERE {o[3]} = e.{_q(key)}"
                                for o in map(lambda n: occurrence(plan, n), view.lists))
         date_type, label_type = owner.column(view.date_column).type, owner.column(label).type
-        date = _bytewise(dialect, f"r.{_q(view.date_column)}", date_type, (owner.name, view.date_column) in forms)
-        shown_label = _bytewise(dialect, f"r.{_q(label)}", label_type, (owner.name, label) in forms)
         for which, direction in (("first", "ASC"), ("last", "DESC")):
             cols.append(ViewColumn(_label(f"{which}_{singular_prefix(owner.name)[:-1]}"),
                                    f"(SELECT r.{_q(label)} FROM {_q(owner.name)} r "
@@ -376,14 +367,20 @@ def _entity_columns(entity: Table) -> list[ViewColumn]:
     return cols
 
 
-def _first_last(view: View, plan: Plan, forms: dict):
-    """(owner table, its label column, the date and label expressions in PostgreSQL) of an entity summary
+def _list_label(entry: str) -> str:
+    """What an entity summary's count column calls a list entry: ``records_in_`` + this."""
+    label = entry.replace(".", "_")
+    return label[:-3] if "." in entry and label.endswith("_sk") else label
+
+
+def _first_last(view: View, plan: Plan, forms: dict, dialect: str):
+    """(owner table, its label column, the date and label expressions in ``dialect``) of an entity summary
     with a date column."""
     owner = plan.table(occurrence(plan, view.lists[0])[1])
     label = owner.natural_key[0] if owner.natural_key else owner.primary_key[0]
-    date = _bytewise("postgresql", f"r.{_q(view.date_column)}", owner.column(view.date_column).type,
+    date = _bytewise(dialect, f"r.{_q(view.date_column)}", owner.column(view.date_column).type,
                      (owner.name, view.date_column) in forms)
-    shown = _bytewise("postgresql", f"r.{_q(label)}", owner.column(label).type, (owner.name, label) in forms)
+    shown = _bytewise(dialect, f"r.{_q(label)}", owner.column(label).type, (owner.name, label) in forms)
     return owner, label, date, shown
 
 
@@ -391,12 +388,10 @@ def _entity_summary_joined(view: View, plan: Plan, forms: dict) -> list[ViewColu
     """PostgreSQL's entity summary columns, read from the aggregates ``_aggregate_joins`` joins."""
     cols = _entity_columns(plan.table(view.table))
     for n, entry in enumerate(view.lists):
-        label = entry.replace(".", "_")
-        label = label[:-3] if "." in entry and label.endswith("_sk") else label
-        cols.append(ViewColumn(_label("records_in_" + label), f"coalesce(c{n}.n, 0)", "integer"))
+        cols.append(ViewColumn(_label("records_in_" + _list_label(entry)), f"coalesce(c{n}.n, 0)", "integer"))
     cols.append(ViewColumn("records_in_total", "coalesce(tot.n, 0)", "integer"))
     if view.date_column:
-        owner, label, _, _ = _first_last(view, plan, forms)
+        owner, label, _, _ = _first_last(view, plan, forms, "postgresql")
         for which in ("first", "last"):
             cols.append(ViewColumn(_label(f"{which}_{singular_prefix(owner.name)[:-1]}"), f"{which}.shown",
                                    owner.column(label).type))
@@ -422,7 +417,7 @@ def _aggregate_joins(view: View, plan: Plan, dialect: str, forms: dict) -> list[
     occurrences = f"SELECT DISTINCT t, k, ek FROM ({' UNION '.join(unions)}) a"
     joins.append(f"LEFT JOIN (SELECT ek, count(*) AS n FROM ({occurrences}) u GROUP BY ek) tot ON tot.ek = e.{key}")
     if view.date_column:
-        owner, label, date, shown = _first_last(view, plan, forms)
+        owner, label, date, shown = _first_last(view, plan, forms, "postgresql")
         for which, direction in (("first", "ASC"), ("last", "DESC")):
             ranked = (f"SELECT o.ek, r.{_q(label)} AS shown, {date} AS d, ROW_NUMBER() OVER (PARTITION BY o.ek "
                       f"ORDER BY {date} {direction}, {shown} {direction}) AS place "
