@@ -942,7 +942,7 @@ def _decode_column(name: str, cells: list, lines: list[int], file: str, limits: 
     column = DecodedColumn(name, encoding, values, quarantined,
                            {k: v for k, v in sorted(counts.items()) if v}, sep if encoding == "delimited" else None,
                            forced=bool(forced), impure=impure,
-                           decision=ColumnFormat(detected, sep, primary, mixed, join_sep, encoding))
+                           decision=decided or ColumnFormat(detected, sep, primary, mixed, join_sep, encoding))
     if encoding == "delimited":
         column.ambiguity = ambiguity
         column.rejoined = rejoined
@@ -1002,8 +1002,10 @@ def decode(export: Export, limits: Limits = Limits(),
     """Decode every column of an export; ``formats`` fixes a column's format by name.
 
     With ``sample``, each column's format is detected on its first ``sample`` rows only and the rows after
-    them are read as those decided; ``decided`` (``decisions`` of the decoded first part of the same file)
-    reads a later part so. Either way a cell decodes the same whichever part of its file it comes in.
+    them are read as those decided; a column with no value in those rows is detected on the ``sample`` rows
+    from its first value (``first_value``) instead. ``decided`` (``decisions`` of the decoded first part of
+    the same file, ``partition._Streamed``) reads a later part so. Either way a cell decodes the same
+    whichever part of its file it comes in.
     """
     formats = formats or {}
     raw_surrogates = getattr(export, "invalid_bytes", True)
@@ -1015,6 +1017,10 @@ def decode(export: Export, limits: Limits = Limits(),
         cells, lines = export.cells[name], export.lines
         decision = decided.get(name) if decided else None
         if decision is None and sample is not None and len(cells) > sample:
+            late = first_value(cells, sample) if not forced and first_value(cells[:sample]) is None else None
+            if late is not None:  # nothing in the first rows to decide on: the rows from the first value decide
+                decision = late_decision(name, cells, lines, late, sample, export.path, limits, raw_surrogates)
+        if decision is None and sample is not None and len(cells) > sample:
             first = decode_column(name, cells[:sample], lines[:sample], export.path, limits, forced, raw_surrogates)
             rest = decode_column(name, cells[sample:], lines[sample:], export.path, limits, forced, raw_surrogates,
                                  first.decision)
@@ -1022,6 +1028,34 @@ def decode(export: Export, limits: Limits = Limits(),
         else:
             out[name] = decode_column(name, cells, lines, export.path, limits, forced, raw_surrogates, decision)
     return out
+
+
+def first_value(cells: list, start: int = 0) -> int | None:
+    """The index of the first cell at or after ``start`` that holds a value (not blank nor an empty marker:
+    ``[]``, ``None``, ``null``...), or None when none does.
+
+    Example:
+        >>> first_value(["", "[]", " null ", '["a"]', "b"])
+        3
+    """
+    for i in range(start, len(cells)):
+        cell = cells[i]
+        if cell is None or isinstance(cell, float) and cell != cell:
+            continue
+        if isinstance(cell, str):
+            if _classify(cell.strip()) != "empty":
+                return i
+        elif not isinstance(cell, (list, dict)) or cell:
+            return i
+    return None
+
+
+def late_decision(name: str, cells: list, lines: list[int], start: int, sample: int, file: str,
+                  limits: Limits = Limits(), raw_surrogates: bool = True) -> ColumnFormat:
+    """The format of a column with no value in its first rows, detected on the ``sample`` rows from its first
+    value (``cells[start]``) as ``decode`` detects a column on its first rows."""
+    window = slice(start, start + sample)
+    return decode_column(name, cells[window], lines[window], file, limits, None, raw_surrogates).decision
 
 
 def decisions(decoded: dict[str, DecodedColumn]) -> dict[str, ColumnFormat]:

@@ -7,7 +7,10 @@ path"), so reading the inputs whole is only the case of one partition.
 
 What is decided before the build rests on the first ``sample`` records of each input, however the input is
 read: each column's format (``decode``'s ``sample``: the rest of the file is read as those records decided),
-the option names, and the plan inferred or read from a file (``pipeline``).
+the option names, and the plan inferred or read from a file (``pipeline``). A column with no value in those
+records is decided on the ``sample`` records from its first value instead, wherever that comes, and those
+records join the sample the plan is made from (``Inputs.late`` says so), so a column whose values start late
+is modelled as one whose values start early.
 
 One CSV or TSV file is read in chunks, so memory stays bounded whatever its size (``_Streamed``). Several files
 and JSON Lines files are read whole (``_Whole``): the join matches keys across whole files (duplicates set aside
@@ -19,10 +22,10 @@ same size all the same.
 from __future__ import annotations
 
 import gc
-from dataclasses import dataclass, fields, replace
+from dataclasses import dataclass, field, fields, replace
 from pathlib import Path
 
-from .decode import decisions, decode
+from .decode import decisions, decode, first_value, late_decision
 from .join import Joined, JoinOptions, join
 from .literal import Limits
 from .options_check import check_option_names
@@ -42,6 +45,7 @@ class Inputs:
     sample: tuple
     joined: Joined
     _blocks: object  # (columns) -> iterator of (export, decoded): every record, in order, in blocks
+    late: list = field(default_factory=list)  # columns with no value in the first records (``_late``)
 
     def partitions(self, size: int | None, columns: set | None = None):
         """Every record in partitions of at most ``size`` records, in order: ``(export, decoded)``.
@@ -81,7 +85,19 @@ class _Whole:
         check_option_names(*head(exports, decoded, sample), options, formats, join_options)
         self.joined = join(exports, decoded, join_options, natural_keys)
         self.joined.settings = join_options
-        self.inputs = Inputs(head(self.joined.exports, self.joined.decoded, sample), self.joined, self.blocks)
+        exports, decoded = head(self.joined.exports, self.joined.decoded, sample)
+        late = []
+        for i, export in enumerate(self.joined.exports):
+            windows = late_windows(export, sample)
+            if windows:  # the records from each such column's first value join the sample
+                rows = window_rows(windows, sample, export.number_of_records)
+                whole = self.joined.decoded[export.path]
+                exports[i] = concat([exports[i], _take(export, rows)])
+                decoded[export.path] = {c: replace(col, values=col.values[:sample] + [whole[c].values[r] for r in rows])
+                                        for c, col in decoded[export.path].items()}
+                n = export.number_of_records
+                late += _late(export, whole, {c: (j, min(sample, n - j)) for c, j in windows.items()}, sample)
+        self.inputs = Inputs((exports, decoded), self.joined, self.blocks, late)
 
     def blocks(self, columns=None):
         for export in self.joined.exports:
@@ -105,13 +121,57 @@ class _Streamed:
                 break
         start = concat(first)
         del first
-        start_decoded = decode(start, limits, formats, sample=sample)
+        ended = chunk_rows is None or taken < sample or _ends_file(start, chunk_rows)
+        empty = [c for c in start.columns if first_value(start.cells[c][:sample]) is None]
+        # a column with no value in the first records: the records from its first value decide its format
+        # and join the sample; read again from the file when the first chunks may not hold them all
+        windows, later = ({}, None) if not empty else self._windows(start, empty, sample, ended)
+        forced = formats or {}
+        late = {c: late_decision(c, later.cells[c], later.lines, j, size, path, limits, later.invalid_bytes)
+                for c, (j, size) in windows.items() if not forced.get(c)}
+        start_decoded = decode(start, limits, formats, sample=sample, decided=late)
         self.decided = decisions(start_decoded)  # later chunks are read as the first records decided
         exports, decoded = head([start], {start.path: start_decoded}, sample)
+        found = []
+        if windows:
+            later_decoded = decode(later, limits, formats, decided=self.decided)
+            exports = [concat([exports[0], later])]
+            decoded = {path: {c: replace(col, values=col.values + later_decoded[c].values)
+                              for c, col in decoded[path].items()}}
+            found = _late(later, later_decoded, windows, sample)
         check_option_names(exports, decoded, options, formats, join_options)  # a --join too: there is no other file
         self.pending = (start, start_decoded, chunks)
-        self.inputs = Inputs((exports, decoded), Joined([], {}, settings=join_options), self.blocks)
+        self.inputs = Inputs((exports, decoded), Joined([], {}, settings=join_options), self.blocks, found)
         gc.collect()  # once, while the heap is small: format detection leaves exceptions (and the frames they hold)
+
+    def _windows(self, start, empty: list[str], sample: int, ended: bool):
+        """The records of each ``empty`` column's ``sample`` records from its first value past the first
+        ``sample`` (from ``start`` when it holds them all, else read again from the file), in file order, as
+        ``({column: (position of its first value in them, records in its window)}, records)``."""
+        inside = late_windows(start, sample, empty)
+        n = start.number_of_records
+        if ended or len(inside) == len(empty) and all(j + sample <= n for j in inside.values()):
+            rows = window_rows(inside, sample, n)
+            at = {r: k for k, r in enumerate(rows)}
+            return {c: (at[j], min(j + sample, n) - j) for c, j in inside.items()}, _take(start, rows)
+        pending, spans, pieces, index, offset = set(empty), {}, [], [], 0
+        for chunk in iter_chunks(self.path, self.chunk_rows or sample, **self.reading):
+            for c in sorted(pending):
+                j = first_value(chunk.cells[c], max(0, sample - offset))
+                if j is not None:
+                    pending.discard(c)
+                    spans[c] = (offset + j, offset + j + sample)
+            keep = [i for i in range(chunk.number_of_records) if any(a <= offset + i < b for a, b in spans.values())]
+            if keep:
+                pieces.append(_take(chunk, keep))
+                index += [offset + i for i in keep]
+            offset += chunk.number_of_records
+            if not pending and all(b <= offset for _, b in spans.values()):
+                break
+        if not pieces:
+            return {}, None
+        at = {r: k for k, r in enumerate(index)}
+        return {c: (at[a], min(b, offset) - a) for c, (a, b) in spans.items()}, concat(pieces)
 
     def blocks(self, columns=None):
         if columns is None and self.pending is not None:  # the first reading, taken up where the sample stopped
@@ -172,6 +232,47 @@ def _partition(export, decoded: dict, a: int, b: int) -> tuple:
                                 impure=impure, quarantined=col.quarantined if first else [],
                                 rejoined=col.rejoined if first else 0, ambiguity=col.ambiguity if first else [])
     return part, columns
+
+
+def late_windows(export, sample: int, columns=None) -> dict[str, int]:
+    """Each column (of ``columns``, default every one) with no value in the first ``sample`` records of
+    ``export``, and the index of its first value after them (``decode.first_value``); a column with no value
+    at all is not there."""
+    out = {}
+    for c in columns if columns is not None else export.columns:
+        cells = export.cells[c]
+        if first_value(cells[:sample]) is None:
+            j = first_value(cells, sample)
+            if j is not None:
+                out[c] = j
+    return out
+
+
+def window_rows(windows: dict[str, int], sample: int, n: int) -> list[int]:
+    """The records of every window of ``sample`` records from ``windows``' first values, in order."""
+    rows = set()
+    for j in windows.values():
+        rows.update(range(j, min(j + sample, n)))
+    return sorted(rows)
+
+
+def _ends_file(export, chunk_rows: int) -> bool:
+    """Whether the chunks read so far end the file: their records are not a whole number of chunks."""
+    return export.number_of_records % chunk_rows != 0
+
+
+def _late(export, decoded: dict, windows: dict[str, tuple[int, int]], sample: int) -> list[dict]:
+    """What the run says of columns with no value in the first records (the manifest's ``widened``):
+    ``windows`` holds each one's first value's position in ``export`` and the records from it that joined the
+    sample."""
+    return [{"column": c, "file": export.path, "first_value_line": export.lines[j], "format": decoded[c].encoding,
+             "records": size, "first_records": sample} for c, (j, size) in sorted(windows.items())]
+
+
+def _take(export, rows: list[int]):
+    """The export's records at ``rows`` (in that order), without its rejected rows and warnings."""
+    return replace(export, cells={c: [v[r] for r in rows] for c, v in export.cells.items()},
+                   lines=[export.lines[r] for r in rows], rejected=[], warnings=[])
 
 
 def head(exports: list, decoded: dict, n: int) -> tuple[list, dict]:

@@ -66,7 +66,7 @@ def _open(paths: list[str], *, options: Options | None, limits: Limits, formats:
         wider, found = widened(plan, options, inputs.sample, lambda columns: inputs.partitions(chunk_rows, columns))
         if found:
             plan = infer_plan(*inputs.sample, wider)
-            plan.widened = found
+        plan.widened = inputs.late + found  # columns whose values start late (partition.py), then sharing
     for spec in picks or ():
         add_pick(plan, spec)
     return plan, inputs

@@ -26,6 +26,7 @@ from __future__ import annotations
 
 from collections import Counter
 from dataclasses import replace
+from pathlib import Path
 
 from .exact import keyed_items
 from .infer import _hashable, objects_of
@@ -191,6 +192,10 @@ def widened_sentence(w: dict) -> str:
         ...                   "identity": "person_id", "identities_in_common": 2, "compared": ["name"]})
         'c:authors and c:editors share 2 person_id values past the first records the model was made from, and agree on name: one entity table (person), not person and person_2'
     """
+    if "column" in w:  # a column with no value in the first records (partition.py)
+        return (f"{w['column']} has no value in the first {w.get('first_records', 0):,} records; its format "
+                f"({w.get('format', '')}) and its model come from the {w.get('records', 0):,} records from its first "
+                f"value, on line {w.get('first_value_line', 0):,} of {Path(str(w.get('file', ''))).name}")
     members, tables = [str(m) for m in w.get("members", [])], [str(t) for t in w.get("tables", [])]
     compared = ", ".join(map(str, w.get("compared", []))) or "no attribute"
     common = w.get("identities_in_common", 0)  # a manifest read back may hold anything
