@@ -12,7 +12,7 @@ import warnings
 
 from . import option_values as values
 from .decode import parse_decode_option
-from .errors import EXIT_DATA, EXIT_USAGE, LooksHeaderless, NormaliseError
+from .errors import EXIT_DATA, EXIT_DESTINATION, EXIT_USAGE, LooksHeaderless, NormaliseError
 from .escapes import escape_surrogates
 from .literal import DEFAULT_MAX_CELL_CHARS, DEFAULT_MAX_DEPTH, Limits
 from .option_values import as_argument
@@ -20,14 +20,16 @@ from .option_values import as_argument
 EXIT_CODES = """\
 exit codes:
   0  done
-  1  the build stopped on the data or the machine: the lossless proof failed, the counts did not
+  1  data: the build stopped on what the inputs hold: the lossless proof failed, the counts did not
      reconcile, repeated keys were refused (--duplicates refuse), a join broke its --cardinality, a table
-     would be wider than SQLite allows, a file's content cannot be read; the disk is full, the database
-     is locked by another program or cannot be written, the PostgreSQL server is unreachable or refused;
-     with --strict, also when rows were rejected or cells quarantined (the outputs are written)
+     would be wider than the database allows, a file's content cannot be read; with --strict, also when
+     rows were rejected or cells quarantined (the outputs are written)
   2  usage: an unknown option or a value it cannot take, an option naming a file, column or field the
      inputs do not have, a plan file that cannot be read or does not fit the data, an input that is not
      there, a destination that exists (without --replace or --append) or is not a usable database
+  3  destination: the call and the data were right but the outputs could not be written: another run
+     holds the destination (try again, or --wait), another program has the database locked, the disk is
+     full, the PostgreSQL server is unreachable or refused; the old outputs are as they were
 """
 
 
@@ -136,13 +138,10 @@ def cmd_build(args) -> int:
                       merge=[m.split(",") for m in args.merge], no_merge=args.no_merge,
                       match=_pairs(args.match, "--match"))
     join_options = _join_options(args)
-    from .progress import Progress
+    from .progress import Phases
 
-    progress = Progress(args.files[0], enabled=False if args.quiet else None)
-    try:
-        result = _run_build(args, options, join_options, progress)
-    finally:
-        progress.close()
+    # every phase on the terminal (stderr), nothing when it is not one or with --quiet (progress.py)
+    result = _run_build(args, options, join_options, Phases(args.files, enabled=False if args.quiet else None))
     if not args.quiet:
         print(summary(result))
         for what, path in (("report", args.report), ("data dictionary", args.dictionary)):
@@ -300,7 +299,7 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--quiet", action="store_true", help="print nothing but errors (no progress)")
     p.add_argument("--wait", type=float, default=0.0, metavar="SECONDS",
                    help="when another run is writing the same database, wait up to this long for it "
-                        "(default 0: refuse at once, exit 1)")
+                        "(default 0: refuse at once, exit 3)")
     p.add_argument("--allow-lossy", action="store_true",
                    help="keep the database even when a value rebuilt from it differs from the export "
                         "(the manifest, the summary and the report say so)")
@@ -340,11 +339,14 @@ _PATH_ERRNOS = frozenset({errno.ENOENT, errno.ENOTDIR, errno.EISDIR, errno.EACCE
 
 
 def exit_code(exc: BaseException) -> int:
-    """How the command ends after ``exc``: 2 for usage, 1 for a build stopped on the data or the machine."""
+    """How the command ends after ``exc``: 2 for usage, 1 for a build stopped on the data, 3 when the
+    destination could not be written (a full disk, a database locked or busy, a server that refused)."""
     if isinstance(exc, NormaliseError):
         return exc.exit_code
-    if isinstance(exc, OSError) and not isinstance(exc, sqlite3.Error):
-        return EXIT_USAGE if exc.errno in _PATH_ERRNOS else EXIT_DATA
+    if isinstance(exc, sqlite3.DatabaseError):
+        return EXIT_DESTINATION
+    if isinstance(exc, OSError):
+        return EXIT_USAGE if exc.errno in _PATH_ERRNOS else EXIT_DESTINATION
     return EXIT_DATA
 
 
@@ -371,7 +373,7 @@ def main(argv: list[str] | None = None) -> int:
         return exit_code(exc)
     except sqlite3.DatabaseError as exc:  # e.g. "database or disk is full"; nothing was moved into place
         print(f"normalise: the database could not be written: {exc}", file=sys.stderr)
-        return EXIT_DATA
+        return EXIT_DESTINATION
     except BrokenPipeError:  # output piped into a pager or head that closed early
         sys.stderr.close()
         return 0

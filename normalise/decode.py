@@ -998,14 +998,14 @@ def _detect_format(texts: list[str], kinds: list[str]) -> tuple[str, str | None]
 
 def decode(export: Export, limits: Limits = Limits(),
            formats: dict[str, tuple[str, str | None]] | None = None, *, sample: int | None = None,
-           decided: dict[str, ColumnFormat] | None = None) -> dict[str, DecodedColumn]:
+           decided: dict[str, ColumnFormat] | None = None, done=None) -> dict[str, DecodedColumn]:
     """Decode every column of an export; ``formats`` fixes a column's format by name.
 
     With ``sample``, each column's format is detected on its first ``sample`` rows only and the rows after
     them are read as those decided; a column with no value in those rows is detected on the ``sample`` rows
     from its first value (``first_value``) instead. ``decided`` (``decisions`` of the decoded first part of
     the same file, ``partition._Streamed``) reads a later part so. Either way a cell decodes the same
-    whichever part of its file it comes in.
+    whichever part of its file it comes in. ``done()``, when given, is called as each column is decoded.
     """
     formats = formats or {}
     raw_surrogates = getattr(export, "invalid_bytes", True)
@@ -1027,6 +1027,8 @@ def decode(export: Export, limits: Limits = Limits(),
             out[name] = _concatenated(first, rest)
         else:
             out[name] = decode_column(name, cells, lines, export.path, limits, forced, raw_surrogates, decision)
+        if done is not None:
+            done()
     return out
 
 

@@ -3,7 +3,8 @@
 One family: every error the tool raises on purpose is a ``NormaliseError``, a ``ValueError`` (the built-in a
 caller expects for bad input), ``literal.CellError`` included. Each says how the command ends (``exit_code``):
 1 when the build stopped on what the data holds (``EXIT_DATA``), 2 when the tool was called in a way it cannot
-follow (``EXIT_USAGE``). The message names the place for a person; ``file``, ``line``, ``column`` and
+follow (``EXIT_USAGE``), 3 when the call and the data were right but the destination could not be written (busy
+with another run, locked, a full disk, a PostgreSQL server that is unreachable or refuses: ``EXIT_DESTINATION``). The message names the place for a person; ``file``, ``line``, ``column`` and
 ``position`` give it to a program, None where it is not known or the error is about no one place.
 """
 
@@ -12,6 +13,7 @@ from __future__ import annotations
 EXIT_DONE = 0
 EXIT_DATA = 1
 EXIT_USAGE = 2
+EXIT_DESTINATION = 3
 
 
 class NormaliseError(ValueError):

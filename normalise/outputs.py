@@ -17,7 +17,7 @@ import time
 from contextlib import contextmanager
 from pathlib import Path
 
-from .errors import NormaliseError, UsageError
+from .errors import EXIT_DESTINATION, NormaliseError, UsageError
 
 try:
     import fcntl
@@ -38,7 +38,9 @@ class OutputUnusable(UsageError):
 
 
 class OutputNotWritten(NormaliseError):
-    """An output could not be written (a full disk, say); the old outputs are as they were."""
+    """An output could not be written (a full disk, say); the old outputs are as they were (exit 3)."""
+
+    exit_code = EXIT_DESTINATION
 
 
 @contextmanager
@@ -52,9 +54,9 @@ def writing(label: str, path):
 
 
 class DestinationBusy(NormaliseError):
-    """Another run is writing to the same destination. Exit 1: the call was right, try again later."""
+    """Another run is writing to the same destination. Exit 3: the call was right, try again later."""
 
-    exit_code = 1
+    exit_code = EXIT_DESTINATION
 
 
 # --- paths ------------------------------------------------------------------------------------------

@@ -22,6 +22,7 @@ same size all the same.
 from __future__ import annotations
 
 import gc
+from contextlib import nullcontext
 from dataclasses import dataclass, field, fields, replace
 from pathlib import Path
 
@@ -29,6 +30,7 @@ from .decode import decisions, decode, first_value, late_decision
 from .join import Joined, JoinOptions, join
 from .literal import Limits
 from .options_check import check_option_names
+from .progress import QUIET
 from .read import iter_chunks, read
 
 JSON_LINES = (".jsonl", ".ndjson", ".json")
@@ -46,6 +48,7 @@ class Inputs:
     joined: Joined
     _blocks: object  # (columns) -> iterator of (export, decoded): every record, in order, in blocks
     late: list = field(default_factory=list)  # columns with no value in the first records (``_late``)
+    records: int | None = None  # rows of every input when read whole (the building phase's total); else None
 
     def partitions(self, size: int | None, columns: set | None = None):
         """Every record in partitions of at most ``size`` records, in order: ``(export, decoded)``.
@@ -59,7 +62,7 @@ class Inputs:
 def open_inputs(paths: list[str], *, sample: int, limits: Limits = Limits(), formats: dict | None = None,
                 encoding: str | None = None, delimiter: str | None = None, header: bool = True, options=None,
                 join_options: JoinOptions | None = None, natural_keys: dict | None = None,
-                chunk_rows: int | None = None, streamed: bool = True) -> Inputs:
+                chunk_rows: int | None = None, streamed: bool = True, phases=QUIET) -> Inputs:
     """Read and decode the inputs (and join them), and check the options' names on their first records.
 
     One CSV or TSV file is read ``chunk_rows`` records at a time unless ``streamed`` is false; anything else,
@@ -69,21 +72,27 @@ def open_inputs(paths: list[str], *, sample: int, limits: Limits = Limits(), for
     if streamed and len(paths) == 1 and Path(paths[0]).suffix.lower() not in JSON_LINES:
         return _Streamed(paths[0], sample=sample, limits=limits, formats=formats, encoding=encoding,
                          delimiter=delimiter, header=header, options=options, join_options=join_options,
-                         chunk_rows=chunk_rows).inputs
+                         chunk_rows=chunk_rows, phases=phases).inputs
     return _Whole(paths, sample=sample, limits=limits, formats=formats, encoding=encoding, delimiter=delimiter,
                   header=header, options=options, join_options=join_options,
-                  natural_keys=natural_keys or {}).inputs
+                  natural_keys=natural_keys or {}, phases=phases).inputs
 
 
 class _Whole:
     """Inputs read whole, decoded and joined in memory (several files, JSON Lines)."""
 
     def __init__(self, paths, *, sample, limits, formats, encoding, delimiter, header, options, join_options,
-                 natural_keys):
-        exports = [read(p, encoding=encoding, delimiter=delimiter, header=header) for p in paths]
-        decoded = {e.path: decode(e, limits, formats, sample=sample) for e in exports}
+                 natural_keys, phases=QUIET):
+        exports = []
+        with phases.phase("reading", total=len(paths), unit="files") as step:
+            for p in paths:
+                exports.append(read(p, encoding=encoding, delimiter=delimiter, header=header))
+                step.update()
+        with phases.phase("decoding", total=sum(len(e.columns) for e in exports), unit="columns") as step:
+            decoded = {e.path: decode(e, limits, formats, sample=sample, done=step.update) for e in exports}
         check_option_names(*head(exports, decoded, sample), options, formats, join_options)
-        self.joined = join(exports, decoded, join_options, natural_keys)
+        with phases.phase("joining") if len(exports) > 1 else nullcontext():
+            self.joined = join(exports, decoded, join_options, natural_keys)
         self.joined.settings = join_options
         exports, decoded = head(self.joined.exports, self.joined.decoded, sample)
         late = []
@@ -97,7 +106,8 @@ class _Whole:
                                         for c, col in decoded[export.path].items()}
                 n = export.number_of_records
                 late += _late(export, whole, {c: (j, min(sample, n - j)) for c, j in windows.items()}, sample)
-        self.inputs = Inputs((exports, decoded), self.joined, self.blocks, late)
+        self.inputs = Inputs((exports, decoded), self.joined, self.blocks, late,
+                             sum(e.number_of_records + len(e.rejected) for e in self.joined.exports))
 
     def blocks(self, columns=None):
         for export in self.joined.exports:
@@ -109,16 +119,19 @@ class _Streamed:
     is read and decoded a chunk at a time; reading it again (``columns``) reads the file again."""
 
     def __init__(self, path, *, sample, limits, formats, encoding, delimiter, header, options, join_options,
-                 chunk_rows):
+                 chunk_rows, phases=QUIET):
         self.path, self.limits, self.formats, self.chunk_rows = path, limits, formats, chunk_rows
         self.reading = dict(encoding=encoding, delimiter=delimiter, header=header)
+        self.phases = phases
         chunks = iter_chunks(path, chunk_rows, **self.reading)
         first, taken = [], 0
-        for chunk in chunks:
-            first.append(chunk)
-            taken += chunk.number_of_records
-            if taken >= sample:
-                break
+        with phases.phase("reading", unit="records") as step:  # the first records, which the model is made from
+            for chunk in chunks:
+                first.append(chunk)
+                taken += chunk.number_of_records
+                step.update(chunk.number_of_records)
+                if taken >= sample:
+                    break
         start = concat(first)
         del first
         ended = chunk_rows is None or taken < sample or _ends_file(start, chunk_rows)
@@ -129,7 +142,8 @@ class _Streamed:
         forced = formats or {}
         late = {c: late_decision(c, later.cells[c], later.lines, j, size, path, limits, later.invalid_bytes)
                 for c, (j, size) in windows.items() if not forced.get(c)}
-        start_decoded = decode(start, limits, formats, sample=sample, decided=late)
+        with phases.phase("decoding", total=len(start.columns), unit="columns") as step:
+            start_decoded = decode(start, limits, formats, sample=sample, decided=late, done=step.update)
         self.decided = decisions(start_decoded)  # later chunks are read as the first records decided
         exports, decoded = head([start], {start.path: start_decoded}, sample)
         found = []
@@ -155,19 +169,22 @@ class _Streamed:
             at = {r: k for k, r in enumerate(rows)}
             return {c: (at[j], min(j + sample, n) - j) for c, j in inside.items()}, _take(start, rows)
         pending, spans, pieces, index, offset = set(empty), {}, [], [], 0
-        for chunk in iter_chunks(self.path, self.chunk_rows or sample, **self.reading):
-            for c in sorted(pending):
-                j = first_value(chunk.cells[c], max(0, sample - offset))
-                if j is not None:
-                    pending.discard(c)
-                    spans[c] = (offset + j, offset + j + sample)
-            keep = [i for i in range(chunk.number_of_records) if any(a <= offset + i < b for a, b in spans.values())]
-            if keep:
-                pieces.append(_take(chunk, keep))
-                index += [offset + i for i in keep]
-            offset += chunk.number_of_records
-            if not pending and all(b <= offset for _, b in spans.values()):
-                break
+        with self.phases.phase("late columns", unit="records") as step:  # read again for their first values
+            for chunk in iter_chunks(self.path, self.chunk_rows or sample, **self.reading):
+                for c in sorted(pending):
+                    j = first_value(chunk.cells[c], max(0, sample - offset))
+                    if j is not None:
+                        pending.discard(c)
+                        spans[c] = (offset + j, offset + j + sample)
+                keep = [i for i in range(chunk.number_of_records)
+                        if any(a <= offset + i < b for a, b in spans.values())]
+                if keep:
+                    pieces.append(_take(chunk, keep))
+                    index += [offset + i for i in keep]
+                offset += chunk.number_of_records
+                step.update(chunk.number_of_records)
+                if not pending and all(b <= offset for _, b in spans.values()):
+                    break
         if not pieces:
             return {}, None
         at = {r: k for k, r in enumerate(index)}

@@ -11,6 +11,7 @@ from __future__ import annotations
 
 import json
 import os
+from contextlib import nullcontext
 from pathlib import Path
 
 from .build import InMemory, build_partitions, check_width, occurrence_columns, reference_values
@@ -23,6 +24,7 @@ from .names import quote_name
 from .option_values import check_values
 from .outputs import check_paths, destination_lock, lock_path, staged_outputs, writing
 from .partition import open_inputs
+from .progress import QUIET, Phases
 from .prove import LossDetected, loss_message, prove, sqlite_fetch
 from .planfile import join_settings, plan_from_doc, plan_to_toml, read_plan
 from .report import manifest
@@ -41,7 +43,7 @@ SAMPLE_ROWS = 5000
 
 def _open(paths: list[str], *, options: Options | None, limits: Limits, formats: dict | None, encoding: str | None,
           delimiter: str | None, join_options: JoinOptions | None, picks: list[str] | None, plan_path: str | None,
-          header: bool, chunk_rows: int | None = None, streamed: bool = False):
+          header: bool, chunk_rows: int | None = None, streamed: bool = False, phases=QUIET):
     """The inputs (``partition.Inputs``) and the plan made from their first records, or read from ``plan_path``
     and checked against them."""
     options = options or Options()
@@ -57,13 +59,13 @@ def _open(paths: list[str], *, options: Options | None, limits: Limits, formats:
         natural_keys = {r["file"]: r["natural_key"] for r in records if r.get("natural_key")}
     inputs = open_inputs(paths, sample=SAMPLE_ROWS, limits=limits, formats=formats, encoding=encoding,
                          delimiter=delimiter, header=header, options=options, join_options=join_options,
-                         natural_keys=natural_keys, chunk_rows=chunk_rows, streamed=streamed)
-    if doc is not None:
-        plan = plan_from_doc(doc, text, *inputs.sample)
-    else:
-        plan = infer_plan(*inputs.sample, options)
+                         natural_keys=natural_keys, chunk_rows=chunk_rows, streamed=streamed, phases=phases)
+    with phases.phase("planning"):
+        plan = plan_from_doc(doc, text, *inputs.sample) if doc is not None else infer_plan(*inputs.sample, options)
+    if doc is None:
         # sharing between columns decided over every record, not only the sample (sharing.py)
-        wider, found = widened(plan, options, inputs.sample, lambda columns: inputs.partitions(chunk_rows, columns))
+        read_again = phases.counting("sharing", lambda columns: inputs.partitions(chunk_rows, columns))
+        wider, found = widened(plan, options, inputs.sample, read_again)
         if found:
             plan = infer_plan(*inputs.sample, wider)
         plan.widened = inputs.late + found  # columns whose values start late (partition.py), then sharing
@@ -148,6 +150,7 @@ def build_database(paths: str | os.PathLike | list[str], database: str | os.Path
     paths = path_list(paths)
     delimiter = check_values(encoding_name=encoding, delimiter_char=delimiter, limits=limits, chunk_rows=chunk_rows,
                              options=options, join_options=join_options)
+    progress = Phases.of(progress, paths)
     kind, database = destination(database)
     postgresql = kind == "postgresql"
     if (schema is not None or share_schema) and not postgresql:
@@ -198,7 +201,7 @@ def _build(paths: list[str], database: str, *, options, limits, formats, encodin
     postgresql = is_postgresql(database)
     plan, inputs = _open(paths, options=options, limits=limits, formats=formats, encoding=encoding,
                          delimiter=delimiter, join_options=join_options, picks=picks, plan_path=plan_path,
-                         header=header, chunk_rows=chunk_rows, streamed=True)
+                         header=header, chunk_rows=chunk_rows, streamed=True, phases=progress)
     inputs.sample = None  # the model is made: its records need not stay in memory
     order = check_plan(plan)
     # a table wider than the database allows is refused before anything is written (it would fail half-way)
@@ -228,26 +231,29 @@ def _build(paths: list[str], database: str, *, options, limits, formats, encodin
     locate = _locator(plan, partitions)
     if postgresql:  # write_postgresql takes every row at once, in one COPY per table
         rows = InMemory(plan)
-        built = build_partitions(plan, partitions, rows, extra, state, progress)
+        with progress.building(inputs.records) as step:
+            built = build_partitions(plan, partitions, rows, extra, state, step.to)
         missing = check_rows(plan, built.rows)
         if missing:
             from .check import IntegrityError
             raise IntegrityError(f"{missing} foreign-key values name no row; nothing was written")
         integrity = write_postgresql(plan, built.rows, order, database, schema=schema or DEFAULT_SCHEMA,
                                      replace=replace, verify=verifier(plan, built, allow_lossy, locate(built)),
-                                     wait=wait, share_schema=share_schema)
+                                     wait=wait, share_schema=share_schema, phases=progress)
         result = manifest(plan, built, display_url(database), integrity, joined)
         result["schema"] = integrity["schema"]
-        return _outputs(staged, database, plan, result, parquet_dir, manifest_path, report_path, dictionary_path)
+        return _outputs(staged, database, plan, result, parquet_dir, manifest_path, report_path, dictionary_path,
+                        progress)
     writer = SqliteWriter(plan, order, database, replace, append=append)
     try:
-        built = build_partitions(plan, partitions, _Written(writer, plan, append), extra, state, progress)
+        with progress.building(inputs.records) as step:
+            built = build_partitions(plan, partitions, _Written(writer, plan, append), extra, state, step.to)
     except BaseException:
         writer.abort()
         raise
     # rows are loaded without per-row foreign-key lookups: PRAGMA foreign_key_check runs before the move
     # (appended rows may name rows already in the database, which it checks too)
-    integrity = writer.finish(verifier(plan, built, allow_lossy, locate(built)), move=False)
+    integrity = writer.finish(verifier(plan, built, allow_lossy, locate(built)), move=False, phases=progress)
     staged.database(writer)
     result = manifest(plan, built, os.fspath(database), integrity, joined, row_counts=writer.row_counts)
     if append:  # the manifest counts what the database now holds
@@ -257,7 +263,8 @@ def _build(paths: list[str], database: str, *, options, limits, formats, encodin
             for t in result["tables"]:
                 t["rows"] = con.execute(f'SELECT count(*) FROM "{t["name"]}"').fetchone()[0]
         result["appended"] = True
-    return _outputs(staged, database, plan, result, parquet_dir, manifest_path, report_path, dictionary_path)
+    return _outputs(staged, database, plan, result, parquet_dir, manifest_path, report_path, dictionary_path,
+                    progress)
 
 
 class _Written:
@@ -329,23 +336,28 @@ def verifier(plan, built, allow_lossy: bool, locate=None):
 
 
 def _outputs(staged, database, plan, result: dict, parquet_dir, manifest_path, report_path,
-             dictionary_path) -> dict:
+             dictionary_path, phases=QUIET) -> dict:
     """What a build writes beside the database: Parquet files, the manifest, the report and the dictionary.
 
     Each goes to its temporary name in ``staged``, read from the database's committed temporary file
     (SQLite); ``staged.commit`` moves them into place, and the database after them.
     """
     source = staged.writer.temporary if staged.writer is not None else database
-    if parquet_dir:
-        with writing("--parquet", parquet_dir):
-            written = write_parquet(source, plan, staged.directory(parquet_dir))
-        result["parquet"] = [os.path.join(parquet_dir, os.path.basename(p)) for p in written]
-    if manifest_path:
-        with writing("--manifest", manifest_path), open(staged.file(manifest_path), "w", encoding="utf-8") as f:
-            json.dump(result, f, indent=2, ensure_ascii=False)
-    if report_path or dictionary_path:  # report_html.py, dictionary.py
-        from .report_html import write_outputs
-        with writing("--report" if report_path else "--dictionary", report_path or dictionary_path):
-            write_outputs(source, result, report_path=report_path and staged.file(report_path),
-                          dictionary_path=dictionary_path and staged.file(dictionary_path), shown_as=database)
+    wanted = sum(map(bool, (parquet_dir, manifest_path, report_path or dictionary_path)))
+    with phases.phase("outputs", total=wanted, unit="outputs") if wanted else nullcontext() as step:
+        if parquet_dir:
+            with writing("--parquet", parquet_dir):
+                written = write_parquet(source, plan, staged.directory(parquet_dir))
+            result["parquet"] = [os.path.join(parquet_dir, os.path.basename(p)) for p in written]
+            step.update()
+        if manifest_path:
+            with writing("--manifest", manifest_path), open(staged.file(manifest_path), "w", encoding="utf-8") as f:
+                json.dump(result, f, indent=2, ensure_ascii=False)
+            step.update()
+        if report_path or dictionary_path:  # report_html.py, dictionary.py
+            from .report_html import write_outputs
+            with writing("--report" if report_path else "--dictionary", report_path or dictionary_path):
+                write_outputs(source, result, report_path=report_path and staged.file(report_path),
+                              dictionary_path=dictionary_path and staged.file(dictionary_path), shown_as=database)
+            step.update()
     return result

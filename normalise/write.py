@@ -18,9 +18,10 @@ from pathlib import Path
 import sqlalchemy as sa
 from sqlalchemy import event
 
-from .errors import EXIT_USAGE, NormaliseError
+from .errors import EXIT_DESTINATION, EXIT_USAGE, NormaliseError
 from .escapes import SURROGATE as _SURROGATE, printable
 from .plan import META_ROLES, Plan
+from .progress import QUIET
 from .views import view_sql
 from .names import quote_name as _quote
 
@@ -59,9 +60,9 @@ def remove_stale_partials(destination: str) -> list[str]:
 
 
 class DestinationLocked(NormaliseError):
-    """Another program is writing to the destination database. Exit 1, as a busy destination: try again later."""
+    """Another program is writing to the destination database (exit 3, as a busy destination: try again later)."""
 
-    exit_code = 1
+    exit_code = EXIT_DESTINATION
 
 
 def refuse_if_locked(destination: str, shown: str | None = None) -> None:
@@ -278,7 +279,7 @@ class SqliteWriter:
             self.cursor.executemany(f"UPDATE {_quote(name)} SET {_quote(column)} = ? WHERE {_quote(key)} = ?",
                                     pairs)
 
-    def finish(self, verify=None, move: bool = True) -> dict:
+    def finish(self, verify=None, move: bool = True, phases=None) -> dict:
         """Indexes, views, commit into the temporary file, SQLite's own checks, and the move into place.
 
         ``verify(path)``, when given, runs on the committed temporary file before the move (the lossless
@@ -286,25 +287,34 @@ class SqliteWriter:
         With ``move=False`` the checked file stays at ``self.temporary`` until ``move_into_place`` (or
         ``abort``): the side outputs are written from it first (``outputs.StagedOutputs``).
         """
+        phases = phases or QUIET
         try:
-            for name in self.order if not self.append else ():  # appended: indexes and views are there
-                # Table.indexes is a set: sorted, the same input gives the same file (as PostgreSQL's are)
-                for index in sorted(self.md.tables[name].indexes, key=lambda i: str(i.name)):
+            indexes = [index for name in (self.order if not self.append else ())  # appended: they are there
+                       # Table.indexes is a set: sorted, the same input gives the same file (as PostgreSQL's are)
+                       for index in sorted(self.md.tables[name].indexes, key=lambda i: str(i.name))]
+            views = self.plan.views if not self.append else []
+            with phases.phase("indexing", total=len(indexes) + len(views) or None, unit="indexes and views") as step:
+                for index in indexes:
                     self.cursor.execute(str(sa.schema.CreateIndex(index).compile(dialect=self.dialect)))
-            for view in self.plan.views if not self.append else ():
-                self.cursor.execute(f"CREATE VIEW {_quote(view.name)} AS {view_sql(view, self.plan, 'sqlite')}")
-            self.cursor.execute("COMMIT")  # into the temporary file, which is moved into place only if it passes
+                    step.update()
+                for view in views:
+                    self.cursor.execute(f"CREATE VIEW {_quote(view.name)} AS {view_sql(view, self.plan, 'sqlite')}")
+                    step.update()
+                self.cursor.execute("COMMIT")  # into the temporary file, moved into place only if it passes
             self.raw.close()
             self.engine.dispose()
-            violations, integrity = _checks(self.temporary)
-            if violations:
-                from .check import IntegrityError
-                first = ", ".join(f"{v[0]} row {v[1]} -> {v[2]}" for v in violations[:5])
-                raise IntegrityError(f"{len(violations)} foreign-key values name no row ({first}); "
-                                     "nothing was written")
-            checks = {"foreign_key_violations": len(violations), "integrity_check": integrity[0][0]}
-            if verify is not None:
-                checks["proof"] = verify(self.temporary)
+            with phases.phase("checking", total=2 if verify is not None else 1, unit="checks") as step:
+                violations, integrity = _checks(self.temporary)
+                step.update()
+                if violations:
+                    from .check import IntegrityError
+                    first = ", ".join(f"{v[0]} row {v[1]} -> {v[2]}" for v in violations[:5])
+                    raise IntegrityError(f"{len(violations)} foreign-key values name no row ({first}); "
+                                         "nothing was written")
+                checks = {"foreign_key_violations": len(violations), "integrity_check": integrity[0][0]}
+                if verify is not None:
+                    checks["proof"] = verify(self.temporary)  # the lossless proof (prove.py)
+                    step.update()
             if move:
                 self.ready_to_move()
                 self.move_into_place()
@@ -552,7 +562,9 @@ class DestinationError(NormaliseError):
 
 class DestinationFailed(NormaliseError):
     """The PostgreSQL server refused or failed the run (unreachable, out of space, a statement refused):
-    the call was right, the destination could not take it. Exit 1."""
+    the call was right, the destination could not take it (exit 3)."""
+
+    exit_code = EXIT_DESTINATION
 
 
 class UnstorableValue(NormaliseError):
@@ -809,7 +821,7 @@ def _pg_lock_key(prefix: bytes, schema: str) -> int:
 
 def write_postgresql(plan: Plan, rows: dict[str, list[tuple]], order: list[str], database: str,
                      schema: str = DEFAULT_SCHEMA, replace: bool = False, verify=None, wait: float | None = None,
-                     share_schema: bool = False) -> dict:
+                     share_schema: bool = False, phases=QUIET) -> dict:
     """Write the tables, rows, indexes and views into one schema of a PostgreSQL database.
 
     Everything happens in one transaction: the schema is created when missing,
@@ -872,20 +884,29 @@ def write_postgresql(plan: Plan, rows: dict[str, list[tuple]], order: list[str],
                     cursor.execute(sql.SQL(f"DROP {kind} ") + sql.SQL(", ").join(
                         sql.Identifier(schema, n) for n in names))
             cursor.execute(sql.SQL("SET LOCAL search_path TO {}, pg_temp").format(ident))
-            for name in order:  # foreign keys after the rows: PostgreSQL then checks them in one pass
-                conn.execute(sa.schema.CreateTable(md.tables[name], include_foreign_key_constraints=[]))
-            for name in order:
-                if rows[name]:
-                    _copy_rows(cursor, schema, md.tables[name], rows[name], plan.table(name).role)
-            for name in order:
-                for fk in sorted(md.tables[name].foreign_key_constraints, key=lambda c: str(c.name)):
+            with phases.phase("writing", total=sum(len(rows[n]) for n in order) or None, unit="rows",
+                              scale=True) as step:
+                for name in order:  # foreign keys after the rows: PostgreSQL then checks them in one pass
+                    conn.execute(sa.schema.CreateTable(md.tables[name], include_foreign_key_constraints=[]))
+                for name in order:
+                    if rows[name]:
+                        _copy_rows(cursor, schema, md.tables[name], rows[name], plan.table(name).role)
+                        step.update(len(rows[name]))
+            constraints = [fk for name in order
+                           for fk in sorted(md.tables[name].foreign_key_constraints, key=lambda c: str(c.name))]
+            indexes = [index for name in order for index in sorted(md.tables[name].indexes, key=lambda i: str(i.name))]
+            with phases.phase("indexing", total=len(constraints) + len(indexes) + len(plan.views) or None,
+                              unit="keys, indexes and views") as step:
+                for fk in constraints:  # PostgreSQL checks every row as it adds a foreign key
                     conn.execute(sa.schema.AddConstraint(fk))
-            for name in order:
-                for index in sorted(md.tables[name].indexes, key=lambda i: str(i.name)):
+                    step.update()
+                for index in indexes:
                     conn.execute(sa.schema.CreateIndex(index))
-            for view in plan.views:
-                cursor.execute(sql.SQL("CREATE VIEW {} AS ").format(sql.Identifier(schema, view.name))
-                               + sql.SQL(view_sql(view, plan, "postgresql", forms)))
+                    step.update()
+                for view in plan.views:
+                    cursor.execute(sql.SQL("CREATE VIEW {} AS ").format(sql.Identifier(schema, view.name))
+                                   + sql.SQL(view_sql(view, plan, "postgresql", forms)))
+                    step.update()
             _pg_comment(cursor, schema, plan, forms, kept)
             _pg_register(cursor, schema, order, plan)
             if truncated:
@@ -900,7 +921,9 @@ def write_postgresql(plan: Plan, rows: dict[str, list[tuple]], order: list[str],
                 def fetch(query: str) -> list:
                     cursor.execute(queries.get(query, query))
                     return cursor.fetchall()
-                proof = verify(fetch)
+                with phases.phase("checking", total=1, unit="checks") as step:
+                    proof = verify(fetch)
+                    step.update()
             for name in order:
                 cursor.execute(sql.SQL("ANALYZE {}").format(sql.Identifier(schema, name)))
     except pg_errors.DependentObjectsStillExist as exc:

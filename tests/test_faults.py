@@ -216,7 +216,7 @@ def test_full_disk_gives_a_one_line_message(demo, tmp_path, monkeypatch, capsys)
     _fail_with_enospc(monkeypatch, 3)
     code = main(["build", *map(str, ref["inputs"]), "--db", str(tmp_path / "out.db"), "--quiet", *ref["extra"]])
     err = capsys.readouterr().err.strip().splitlines()
-    assert code == 1 and len(err) == 1 and "No space left" in err[0], err  # the machine stopped it: exit 1
+    assert code == 3 and len(err) == 1 and "No space left" in err[0], err  # the destination: exit 3 (README)
 
 
 @pytest.fixture
@@ -276,7 +276,7 @@ def test_locked_destination_is_not_a_traceback(demo, tmp_path):
     """Locked by another process: no traceback, no temporary file left, the older database intact or replaced whole."""
     result, dest, _ = _build_over_locked(demo, tmp_path)
     assert "Traceback" not in result.stderr, result.stderr
-    assert result.returncode in (0, 1), result.stderr
+    assert result.returncode in (0, 3), result.stderr  # done, or the destination refused: exit 3
     assert partials(tmp_path) == []
     check_complete(dest)
 
@@ -284,7 +284,7 @@ def test_locked_destination_is_not_a_traceback(demo, tmp_path):
 def test_locked_destination_gives_a_message_and_stays_as_it_was(demo, tmp_path):
     result, dest, before = _build_over_locked(demo, tmp_path)
     lines = result.stderr.strip().splitlines()
-    assert result.returncode == 1 and len(lines) == 1 and "lock" in lines[0], result.stderr  # busy: exit 1
+    assert result.returncode == 3 and len(lines) == 1 and "lock" in lines[0], result.stderr  # busy: exit 3
     assert dest.read_bytes() == before
 
 

@@ -147,7 +147,7 @@ def test_second_append_at_once_is_refused_and_the_first_ones_rows_are_all_there(
     out1, err1 = first.communicate(timeout=300)
     assert first.returncode == 0, err1
     lines = err2.strip().splitlines()
-    assert second.returncode == 1 and len(lines) == 1, err2
+    assert second.returncode == 3 and len(lines) == 1, err2  # the destination is busy: exit 3 (README)
     assert "being written by another normalise run" in lines[0] and "--wait" in lines[0], lines
     assert f"process {first.pid}" in lines[0]
     codes = db_codes(db)
@@ -444,7 +444,7 @@ def test_report_write_failing_late_is_one_line_and_keeps_the_old_report(built, m
     monkeypatch.setattr(report_html, "render_report", full)
     code = main(["report", str(built["db"]), "-o", str(built["report"])])
     err = capsys.readouterr().err.strip().splitlines()
-    # a full disk stops the run on the machine, not on the call: exit 1 (README's exit codes)
-    assert code == 1 and len(err) == 1 and "could not be written" in err[0] and "No space" in err[0], err
+    # a full disk stops the run on the destination, not on the call nor the data: exit 3 (README's exit codes)
+    assert code == 3 and len(err) == 1 and "could not be written" in err[0] and "No space" in err[0], err
     assert built["report"].read_bytes() == before
     assert leftovers(built["report"].parent) == []

@@ -484,7 +484,7 @@ def test_refused_connection_is_a_clear_error_without_the_password(pg_url, demo):
         build_database(demo, url)
     message = str(caught.value)
     assert "nothing was done" in message and "wrong-pw-5f2a" not in message and "\n" not in message
-    assert exit_code(caught.value) == 1  # the call was right; the server refused it
+    assert exit_code(caught.value) == 3  # the call and the data were right; the server refused it
 
 
 def test_other_drivers_are_refused(demo):
@@ -528,7 +528,7 @@ def test_a_second_run_on_the_schema_is_refused_while_one_runs(pg, pg_url, schema
         holder.execute("SELECT pg_advisory_lock(%s)", (key,))
         with pytest.raises(DestinationBusy) as caught:
             build_database(demo, pg_url, schema=schema)
-        assert exit_code(caught.value) == 1 and "another normalise run" in str(caught.value)
+        assert exit_code(caught.value) == 3 and "another normalise run" in str(caught.value)
         started = time.monotonic()
         with pytest.raises(DestinationBusy, match="after waiting 1 s"):
             build_database(demo, pg_url, schema=schema, wait=1)

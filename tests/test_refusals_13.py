@@ -21,7 +21,7 @@ import pytest
 
 from normalise import build_database, make_plan, survey
 from normalise.cli import exit_code, main
-from normalise.errors import EXIT_DATA, EXIT_USAGE, LooksHeaderless, UsageError
+from normalise.errors import EXIT_DATA, EXIT_DESTINATION, EXIT_USAGE, LooksHeaderless, UsageError
 from normalise.infer import Options
 from normalise.literal import Limits
 from normalise.read import looks_headerless, read
@@ -214,8 +214,16 @@ def test_exit_code_of_each_error():
                   PermissionError(errno.EACCES, "Permission denied", "/x.db")):
         assert exit_code(usage) == EXIT_USAGE, usage
     for data in (LossDetected("x"), IntegrityError("x"), DuplicateNaturalKey("x"), CardinalityViolation("x"),
-                 TooManyColumns("x"), OSError(errno.ENOSPC, "No space left on device"), sqlite3.DatabaseError("x")):
+                 TooManyColumns("x")):
         assert exit_code(data) == EXIT_DATA, data
+    # the call and the data were right, the destination could not take the outputs
+    from normalise.outputs import DestinationBusy, OutputNotWritten
+    from normalise.write import DestinationFailed, DestinationLocked
+
+    for destination in (DestinationBusy("x"), DestinationLocked("x"), DestinationFailed("x"), OutputNotWritten("x"),
+                        OSError(errno.ENOSPC, "No space left on device"), sqlite3.DatabaseError("x")):
+        assert exit_code(destination) == EXIT_DESTINATION, destination
+    assert len({EXIT_DATA, EXIT_USAGE, EXIT_DESTINATION}) == 3
 
 
 def test_version_and_exit_codes_in_help():
@@ -228,6 +236,7 @@ def test_version_and_exit_codes_in_help():
                               text=True, env=env, timeout=120)
         assert done.returncode == 0
         assert "exit codes:" in done.stdout and "  2  usage:" in done.stdout, done.stdout
+        assert "  1  data:" in done.stdout and "  3  destination:" in done.stdout, done.stdout
 
 
 # --- pipes, FIFOs and standard input ---------------------------------------------------------------
