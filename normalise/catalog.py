@@ -21,6 +21,7 @@ from .plan import META_ROLES, META_TABLES
 from .sharing import widened_sentence
 
 HEAD_ROWS = 50  # rows of each bookkeeping table shown
+NOT_APPLICABLE = "not applicable (PostgreSQL)"  # SQLite's integrity_check, of a PostgreSQL build
 TOP_ENTITIES = 15
 _SQL_TYPES = {"BIGINT": "integer", "INTEGER": "integer", "INT": "integer", "FLOAT": "real", "REAL": "real",
               "DOUBLE": "real", "TEXT": "text", "VARCHAR": "text", "BOOLEAN": "boolean", "DATE": "date",
@@ -41,12 +42,16 @@ def connect(database) -> sqlite3.Connection:
 
 
 def read_database(database, manifest: dict | None = None, *, manifest_origin: str | None = None,
-                  head_rows: int = HEAD_ROWS, shown_as=None) -> dict:
+                  head_rows: int = HEAD_ROWS, shown_as=None, postgresql: dict | None = None) -> dict:
     """Everything the report and the data dictionary show, read from a SQLite database.
 
     ``manifest`` (the build's) adds roles, sources and the rows read; without it the roles are inferred
     from the keys. Returns a plain dict (the *model*). ``shown_as`` is the database's name in the report
     when it is read from elsewhere (a build's temporary file, before it is moved into place).
+
+    ``postgresql`` (``{"types": {"table.column": SQL type}, "views": {view: CREATE VIEW}}``) says the database is a PostgreSQL build's,
+    read through a SQLite copy of the rows the run wrote there (``pipeline._outputs``): each column's type is
+    PostgreSQL's, and SQLite's ``integrity_check`` of the copy is not shown as the database's.
     """
     conn = connect(database)
     try:
@@ -56,6 +61,16 @@ def read_database(database, manifest: dict | None = None, *, manifest_origin: st
         model["manifest"] = manifest
         model["manifest_origin"] = origin
         model["integrity"] = _integrity(conn)
+        model["destination"] = "postgresql" if postgresql is not None else "sqlite"
+        if postgresql is not None:
+            types, views = postgresql.get("types", {}), postgresql.get("views", {})
+            for t in model["tables"] + model["views"]:
+                for c in t["columns"]:
+                    c["sql_type"] = types.get(f"{t['name']}.{c['name']}", c.get("sql_type", ""))
+            for v in model["views"]:  # the view as PostgreSQL holds it (its SQL differs from SQLite's)
+                v["sql"] = views.get(v["name"], v["sql"])
+            # PostgreSQL checked every foreign key as the run added it; it has no b-tree check to show
+            model["integrity"]["integrity_check"] = NOT_APPLICABLE
         model["data"] = _collect(conn, model, head_rows)
     finally:
         conn.close()

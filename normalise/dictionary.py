@@ -26,6 +26,9 @@ TYPE_WORDS = {
     "timestamp": "timestamp (ISO 8601 text: SQLite has no timestamp type)",
 }
 
+PLAIN_TYPE_WORDS = {"integer": "integer", "real": "decimal number", "text": "text", "boolean": "boolean",
+                    "date": "date", "timestamp": "timestamp"}
+
 ROLE_WORDS = {
     "record": "record table",
     "record_part": "record table (continued)",
@@ -241,7 +244,22 @@ def _column_source(table: dict, column: dict) -> str:
     return f"field {code(source)} of the objects in {places}"
 
 
-def _type(column: dict) -> str:
+def _dates(model: dict) -> list[str]:
+    """How the database keeps dates and timestamps: the paragraph's first sentences."""
+    if model.get("destination") == "postgresql":
+        return ["Each column's type is PostgreSQL's (in brackets). Dates and timestamps are DATE, TIMESTAMP or "
+                "TIMESTAMP WITH TIME ZONE where every value of the column comes back as written, and TEXT (ISO 8601) "
+                "otherwise, as each column's comment says. "]
+    return ["Dates and timestamps are ISO 8601 text, as SQLite keeps them (it has no date type; the text sorts and "
+            "compares correctly). A PostgreSQL build of the same exports holds them as DATE, TIMESTAMP or TIMESTAMP "
+            "WITH TIME ZONE where every value of the column comes back as written, and says so in each column's "
+            "comment. "]
+
+
+def _type(column: dict, destination: str | None = None) -> str:
+    if destination == "postgresql":  # PostgreSQL's own type beside the plan's
+        words = PLAIN_TYPE_WORDS.get(column["type"], column["type"] or "")
+        return plain(f"{words} ({column['sql_type']})" if column.get("sql_type") else words)
     words = TYPE_WORDS.get(column["type"], column["type"] or column.get("sql_type") or "")
     return plain(words)
 
@@ -300,10 +318,7 @@ def render_dictionary(model: dict) -> str:
            "columns. Every surrogate key is at most 2^53 - 1, so a client that reads JSON numbers as doubles "
            "(JavaScript, spreadsheets) gets it exactly. Row counts are those of the database when this file was "
            "made.", "",
-           "Dates and timestamps are ISO 8601 text, as SQLite keeps them (it has no date type; the text sorts and "
-           "compares correctly). A PostgreSQL build of the same exports holds them as DATE, TIMESTAMP or TIMESTAMP "
-           "WITH TIME ZONE where every value of the column comes back as written, and says so in each column's "
-           "comment. What this file says of each table, view and column is also in the database: the "
+           *_dates(model), "What this file says of each table, view and column is also in the database: the "
            f"{code('descriptions')} table (and PostgreSQL's comments).", "",
            "## Contents", "", "| table | kind | rows | from the input |", "| --- | --- | ---: | --- |"]
     for t in model["tables"]:
@@ -317,7 +332,7 @@ def render_dictionary(model: dict) -> str:
     if data_tables:
         out += ["## Tables", ""]
         for t in data_tables:
-            out += _table_section(t, tables)
+            out += _table_section(t, tables, model.get("destination"))
     if model["views"]:
         out += ["## Views", "", "Views are stored queries over the tables; BI tools read them like tables.", ""]
         for v in model["views"]:
@@ -327,7 +342,7 @@ def render_dictionary(model: dict) -> str:
                 "What the run did not load as data, kept so that every input row and nested element is accounted for.",
                 ""]
         for t in meta_tables:
-            out += _table_section(t, tables)
+            out += _table_section(t, tables, model.get("destination"))
     links = [(t, f) for t in model["tables"] for f in t["foreign_keys"]]
     if links:
         out += ["## Relationships", "", "| from | to | kind |", "| --- | --- | --- |"]
@@ -345,7 +360,7 @@ def _anchor(name: str) -> str:
     return re.sub(r"[^a-z0-9_\- ]", "", text).replace(" ", "-")
 
 
-def _table_section(t: dict, tables: dict) -> list[str]:
+def _table_section(t: dict, tables: dict, destination: str | None = None) -> list[str]:
     role = ROLE_WORDS.get(t["role"], t["role"] or "table")
     out = [f"### {code(t['name'])}", "",
            f"*{plain(role)}, {t['rows']:,} row{'s' if t['rows'] != 1 else ''}.* {_table_meaning(t, tables)}", ""]
@@ -365,7 +380,7 @@ def _table_section(t: dict, tables: dict) -> list[str]:
     out += ["| column | type | empty? | key | from the input | meaning |", "| --- | --- | --- | --- | --- | --- |"]
     for c in t["columns"]:
         keys, meaning = _column_meaning(t, c, tables)
-        out.append(f"| {code(c['name'])} | {_type(c)} | {'may be NULL' if c['nullable'] else 'never NULL'} | "
+        out.append(f"| {code(c['name'])} | {_type(c, destination)} | {'may be NULL' if c['nullable'] else 'never NULL'} | "
                    f"{keys} | {_column_source(t, c)} | {meaning} |")
     out.append("")
     return out

@@ -11,6 +11,7 @@ from __future__ import annotations
 
 import json
 import os
+import tempfile
 from contextlib import nullcontext
 from pathlib import Path
 
@@ -157,13 +158,6 @@ def build_database(paths: str | os.PathLike | list[str], database: str | os.Path
         from .errors import UsageError
         option = "--schema" if schema is not None else "--share-schema"
         raise UsageError(f"{option} applies to a PostgreSQL --db (postgresql+psycopg://...), not to a SQLite file")
-    if parquet_dir and postgresql:
-        from .errors import UsageError
-        raise UsageError("--parquet is written from a SQLite database; it is not available with a PostgreSQL --db")
-    if (report_path or dictionary_path) and postgresql:
-        from .errors import UsageError
-        raise UsageError("--report and --dictionary read a SQLite database; they are not available with a "
-                         "PostgreSQL --db")
     if append and (postgresql or replace):
         from .errors import UsageError
         raise UsageError("--append adds to an existing SQLite database; it goes with neither --replace nor a "
@@ -242,8 +236,20 @@ def _build(paths: list[str], database: str, *, options, limits, formats, encodin
                                      wait=wait, share_schema=share_schema, phases=progress)
         result = manifest(plan, built, display_url(database), integrity, joined)
         result["schema"] = integrity["schema"]
-        return _outputs(staged, database, plan, result, parquet_dir, manifest_path, report_path, dictionary_path,
-                        progress)
+        if not (parquet_dir or report_path or dictionary_path):
+            return _outputs(staged, database, plan, result, None, manifest_path, None, None, progress)
+        # Parquet, the report and the dictionary are read from a SQLite copy of the rows PostgreSQL was given
+        # (the same rows; PostgreSQL's own column types shown), made in a temporary directory
+        with tempfile.TemporaryDirectory(prefix="normalise-") as where:
+            copy = os.path.join(where, "rows.db")
+            writer = SqliteWriter(plan, order, copy)
+            for name in order:
+                if built.rows.get(name):
+                    writer.insert(name, built.rows[name])
+            writer.finish()
+            return _outputs(staged, f"{display_url(database)} (schema {integrity['schema']})", plan, result,
+                            parquet_dir, manifest_path, report_path, dictionary_path, progress, source=copy,
+                            postgresql={"types": integrity["sql_types"], "views": integrity["view_sql"]})
     writer = SqliteWriter(plan, order, database, replace, append=append)
     try:
         with progress.building(inputs.records) as step:
@@ -336,13 +342,16 @@ def verifier(plan, built, allow_lossy: bool, locate=None):
 
 
 def _outputs(staged, database, plan, result: dict, parquet_dir, manifest_path, report_path,
-             dictionary_path, phases=QUIET) -> dict:
+             dictionary_path, phases=QUIET, source=None, postgresql: dict | None = None) -> dict:
     """What a build writes beside the database: Parquet files, the manifest, the report and the dictionary.
 
     Each goes to its temporary name in ``staged``, read from the database's committed temporary file
-    (SQLite); ``staged.commit`` moves them into place, and the database after them.
+    (SQLite), or from ``source``, a SQLite copy of the rows a PostgreSQL build wrote (``postgresql``: their
+    types there, see ``catalog.read_database``); ``staged.commit`` moves them into place, and the database
+    after them.
     """
-    source = staged.writer.temporary if staged.writer is not None else database
+    if source is None:
+        source = staged.writer.temporary if staged.writer is not None else database
     wanted = sum(map(bool, (parquet_dir, manifest_path, report_path or dictionary_path)))
     with phases.phase("outputs", total=wanted, unit="outputs") if wanted else nullcontext() as step:
         if parquet_dir:
@@ -358,6 +367,7 @@ def _outputs(staged, database, plan, result: dict, parquet_dir, manifest_path, r
             from .report_html import write_outputs
             with writing("--report" if report_path else "--dictionary", report_path or dictionary_path):
                 write_outputs(source, result, report_path=report_path and staged.file(report_path),
-                              dictionary_path=dictionary_path and staged.file(dictionary_path), shown_as=database)
+                              dictionary_path=dictionary_path and staged.file(dictionary_path), shown_as=database,
+                              postgresql=postgresql)
             step.update()
     return result

@@ -29,7 +29,7 @@ from pathlib import Path
 
 import networkx as nx
 
-from .catalog import HEAD_ROWS, owner_fk, read_database, source_label
+from .catalog import HEAD_ROWS, NOT_APPLICABLE, owner_fk, read_database, source_label
 from .dictionary import render_dictionary
 from .errors import EXIT_USAGE, NormaliseError
 from .escapes import clean
@@ -701,7 +701,7 @@ def _tiles(model: dict) -> str:
         (f"{len(model['tables']):,}", "tables", False),
         (f"{sum(t['rows'] for t in model['tables'] if t['role'] not in META_ROLES):,}", "rows in data tables", False),
         (f"{integ['foreign_key_violations']:,}", "foreign-key violations", integ["foreign_key_violations"] > 0),
-        (esc(integ["integrity_check"], 40), "integrity_check", integ["integrity_check"] != "ok"),
+        (esc(integ["integrity_check"], 40), "integrity_check", integ["integrity_check"] not in ("ok", NOT_APPLICABLE)),
         ({True: "yes", False: "NO", None: "unknown"}[reconciled], "rows and elements reconciled", reconciled is False),
         _proof_tile(model),
         (f"{meta.get('quarantine', {}).get('total', 0):,}", "quarantined cells", False),
@@ -881,12 +881,14 @@ def _proof_tile(model: dict) -> tuple:
 def _integrity_section(model: dict) -> str:
     integ = model["integrity"]
     m = (model.get("manifest") or {}).get("integrity") or {}
-    rows = [[f"<td>{_code('PRAGMA foreign_key_check')}</td>",
+    postgresql = model.get("destination") == "postgresql"  # read through a copy of the rows it was given
+    rows = [[f"<td>{_code('PRAGMA foreign_key_check')}" + (" of the rows written (PostgreSQL checked each foreign "
+                                                           "key as it was added)" if postgresql else "") + "</td>",
              f'<td class="{"ok" if not integ["foreign_key_violations"] else "bad"}">'
              f'{_num(integ["foreign_key_violations"])} violations</td>',
              _cell(f"{m['foreign_key_violations']} violations" if "foreign_key_violations" in m else _DASH)],
             [f"<td>{_code('PRAGMA integrity_check')}</td>",
-             f'<td class="{"ok" if integ["integrity_check"] == "ok" else "bad"}">'
+             f'<td class="{"ok" if integ["integrity_check"] in ("ok", NOT_APPLICABLE) else "bad"}">'
              f'{esc(integ["integrity_check"], 300)}</td>',
              _cell(m.get("integrity_check", _DASH))],
             ["<td>rows and elements reconciled</td>",
@@ -1034,9 +1036,11 @@ def write_report(database, path, manifest: dict | None = None, *, model: dict | 
 
 
 def write_outputs(database, manifest: dict | None = None, *, report_path=None, dictionary_path=None,
-                  manifest_origin: str | None = None, shown_as=None) -> dict:
-    """Write the HTML report and/or the data dictionary from one reading of the database."""
-    model = read_database(database, manifest, manifest_origin=manifest_origin, shown_as=shown_as)
+                  manifest_origin: str | None = None, shown_as=None, postgresql: dict | None = None) -> dict:
+    """Write the HTML report and/or the data dictionary from one reading of the database (``postgresql``:
+    see ``catalog.read_database``)."""
+    model = read_database(database, manifest, manifest_origin=manifest_origin, shown_as=shown_as,
+                          postgresql=postgresql)
     written = {}
     if report_path:
         written["report"] = write_report(database, report_path, model=model)

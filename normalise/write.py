@@ -926,6 +926,13 @@ def write_postgresql(plan: Plan, rows: dict[str, list[tuple]], order: list[str],
                     step.update()
             for name in order:
                 cursor.execute(sql.SQL("ANALYZE {}").format(sql.Identifier(schema, name)))
+            # each column's type as PostgreSQL holds it, for the report and the data dictionary
+            cursor.execute("SELECT table_name, column_name, upper(data_type) FROM information_schema.columns "
+                           "WHERE table_schema = %s", (schema,))
+            sql_types = {f"{t}.{c}": type_ for t, c, type_ in cursor.fetchall()}
+            cursor.execute("SELECT viewname, definition FROM pg_catalog.pg_views WHERE schemaname = %s", (schema,))
+            view_sql_there = {name: f"CREATE VIEW {_quote(name)} AS {definition.strip()}"
+                              for name, definition in cursor.fetchall()}
     except pg_errors.DependentObjectsStillExist as exc:
         raise DestinationError(f"--replace cannot drop the tables of schema {schema!r} of {shown}: "
                                f"{server_message(exc)}; nothing was changed") from exc
@@ -937,7 +944,8 @@ def write_postgresql(plan: Plan, rows: dict[str, list[tuple]], order: list[str],
     # Every foreign key was added, and so checked by PostgreSQL against every row, before
     # the commit; PostgreSQL has no counterpart of SQLite's PRAGMA integrity_check.
     result = {"foreign_key_violations": 0, "integrity_check": None, "schema": schema,
-              "kept_as_text": {f"{t}.{c}": why for (t, c), why in kept.items()}}
+              "kept_as_text": {f"{t}.{c}": why for (t, c), why in kept.items()}, "sql_types": sql_types,
+              "view_sql": view_sql_there}
     if verify is not None:
         result["proof"] = proof
     return result
