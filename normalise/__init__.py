@@ -1,18 +1,25 @@
 """normalise: turn flat exports with nested cells into a linked relational database."""
 
 from .decode import DecodedColumn, QuarantinedCell, decode, decode_column
-from .errors import NormaliseError, UnreadableFile, UsageError
+from .errors import NormaliseError, NotClean, UnreadableFile, UsageError
+from .infer import Options
+from .join import JoinOptions
 from .literal import CellError, Limits, decode_json, decode_python_literal
 from .read import Export, RejectedRow, read
 from .pipeline import build_database, make_plan
+from .result import Built
 from .survey import survey
 
 __all__ = [
+    "Built",
     "CellError",
     "DecodedColumn",
     "Export",
+    "JoinOptions",
     "Limits",
     "NormaliseError",
+    "NotClean",
+    "Options",
     "QuarantinedCell",
     "RejectedRow",
     "UnreadableFile",

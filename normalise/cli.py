@@ -12,7 +12,8 @@ import warnings
 
 from . import option_values as values
 from .decode import parse_decode_option
-from .errors import EXIT_DATA, EXIT_DESTINATION, EXIT_USAGE, LooksHeaderless, NormaliseError
+from .errors import (EXIT_DATA, EXIT_DESTINATION, EXIT_USAGE, LooksHeaderless, NormaliseError, NotClean,
+                     from_the_command_line)
 from .escapes import escape_surrogates
 from .literal import DEFAULT_MAX_CELL_CHARS, DEFAULT_MAX_DEPTH, Limits
 from .option_values import as_argument
@@ -154,13 +155,12 @@ def cmd_build(args) -> int:
 
 def _strict(result: dict) -> int:
     """--strict: exit 1 (the outputs written, to look into) when any row was rejected or cell quarantined."""
-    rejected = sum(i["rows_rejected"] for i in result["inputs"])
-    quarantined = result["cells_quarantined"]
-    if not rejected and not quarantined:
-        return 0
-    print(f"normalise: --strict: {rejected:,} rows rejected and {quarantined:,} cells quarantined; the database "
-          f"was written, see rejected_rows and quarantined_cells in {result['database']}", file=sys.stderr)
-    return EXIT_DATA
+    try:
+        NotClean.check(result)
+    except NotClean as exc:
+        print(f"normalise: {exc}", file=sys.stderr)
+        return exc.exit_code
+    return 0
 
 
 def _join_options(args):
@@ -364,7 +364,7 @@ def main(argv: list[str] | None = None) -> int:
     parser = build_parser()
     args = parser.parse_args(argv)
     try:
-        with warnings.catch_warnings():
+        with warnings.catch_warnings(), from_the_command_line():  # messages name the options here
             warnings.showwarning = _show_warning
             warnings.simplefilter("always", LooksHeaderless)
             return args.func(args)

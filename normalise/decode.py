@@ -770,6 +770,22 @@ def parse_decode_option(spec: str) -> tuple[str, str, str | None]:
     return column, fmt, (sep or None)
 
 
+def format_choices(formats: dict | None) -> dict[str, tuple[str, str | None]]:
+    """``formats`` as ``{column: (format, separator)}``, each given so or as the command line's text.
+
+    Example:
+        >>> format_choices({"tags": "delimited:|", "notes": ("text", None)})
+        {'tags': ('delimited', '|'), 'notes': ('text', None)}
+    """
+    out = {}
+    for column, choice in (formats or {}).items():
+        if isinstance(choice, str):
+            _, fmt, sep = parse_decode_option(f"{column}={choice}")
+            choice = (fmt, sep)
+        out[column] = tuple(choice)
+    return out
+
+
 def decode_column(name: str, cells: list, lines: list[int], file: str,
                   limits: Limits = Limits(), forced: tuple[str, str | None] | None = None,
                   raw_surrogates: bool = True, decided: ColumnFormat | None = None) -> DecodedColumn:
@@ -1007,7 +1023,7 @@ def decode(export: Export, limits: Limits = Limits(),
     the same file, ``partition._Streamed``) reads a later part so. Either way a cell decodes the same
     whichever part of its file it comes in. ``done()``, when given, is called as each column is decoded.
     """
-    formats = formats or {}
+    formats = format_choices(formats)
     raw_surrogates = getattr(export, "invalid_bytes", True)
     out = {}
     for name in export.columns:

@@ -10,6 +10,11 @@ with another run, locked, a full disk, a PostgreSQL server that is unreachable o
 
 from __future__ import annotations
 
+import contextlib
+import contextvars
+import functools
+import re
+
 EXIT_DONE = 0
 EXIT_DATA = 1
 EXIT_USAGE = 2
@@ -55,5 +60,86 @@ class MissingInput(UnreadableFile):
     exit_code = EXIT_USAGE
 
 
+class NotClean(NormaliseError):
+    """``strict``: the database was written, but rows were rejected or cells quarantined; ``result`` is the
+    build's manifest (a ``pipeline.Built``), to look into."""
+
+    def __init__(self, result, rejected: int, quarantined: int):
+        super().__init__(f"--strict: {rejected:,} rows rejected and {quarantined:,} cells quarantined; the "
+                         f"database was written, see rejected_rows and quarantined_cells in {result['database']}")
+        self.result, self.rejected, self.quarantined = result, rejected, quarantined
+
+    @classmethod
+    def check(cls, result) -> None:
+        """Raise when ``result`` (a build's manifest) rejected a row or quarantined a cell."""
+        rejected = sum(i["rows_rejected"] for i in result["inputs"])
+        if rejected or result["cells_quarantined"]:
+            raise cls(result, rejected, result["cells_quarantined"])
+
+
 class LooksHeaderless(UserWarning):
     """The first row of a CSV or TSV file looks like data, not like column names."""
+
+
+# --- the same error, phrased for a Python caller -------------------------------------------------------
+# Messages name the command line's options, which is how most people meet them. Called from Python (not from
+# ``cli.main``), a public function gives each option as its parameter instead (``speaks_to_callers``).
+CALLER_NAMES = {
+    "--db": "database", "--replace": "replace=True", "--append": "append=True", "--manifest": "manifest_path",
+    "--plan": "plan_path", "--pick": "picks", "--report": "report_path", "--dictionary": "dictionary_path",
+    "--parquet": "parquet_dir", "--schema": "schema", "--share-schema": "share_schema=True", "--wait": "wait",
+    "--allow-lossy": "allow_lossy=True", "--chunk-rows": "chunk_rows", "--no-header": "header=False",
+    "--encoding": "encoding", "--delimiter": "delimiter", "--decode": "formats", "--strict": "strict=True",
+    "--quiet": "progress=False", "--max-depth": "limits.max_depth", "--max-cell-chars": "limits.max_cell_chars",
+    "--key": "options.natural_keys", "--identity": "options.identities", "--merge": "options.merge",
+    "--no-merge": "options.no_merge", "--match": "options.match", "--threshold": "options.violation_threshold",
+    "--duplicates": "options.duplicates", "--join": "join_options.on", "--how": "join_options.how",
+    "--cardinality": "join_options.cardinality", "--separate": "join_options.separate=True",
+}
+_OPTION = re.compile(r"(?<![\w-])(--[a-z][a-z-]*)(?: ([\w.-]+(?::[\w.-]+)?)=([\w.-]+(?::[\w.-]+)?))?")
+_MAPPED = {"--key": "options.natural_keys", "--identity": "options.identities", "--match": "options.match",
+           "--decode": "formats"}
+
+
+def _as_parameter(m: re.Match) -> str:
+    option, name, value = m.groups()
+    if name is not None and option in _MAPPED:  # --key visits=COLUMN -> options.natural_keys={'visits': 'COLUMN'}
+        return f"{_MAPPED[option]}={{{name!r}: {value!r}}}"
+    rest = "" if name is None else f" {name}={value}"
+    return CALLER_NAMES.get(option, option) + rest
+_FROM_CLI = contextvars.ContextVar("normalise_from_cli", default=False)
+
+
+def for_callers(message: str) -> str:
+    """A message with each command-line option named as the Python parameter that sets it.
+
+    Example:
+        >>> for_callers("out.db exists; use --replace to overwrite it, or --append to add to it")
+        'out.db exists; use replace=True to overwrite it, or append=True to add to it'
+        >>> for_callers("name it with --key visits=COLUMN")
+        "name it with options.natural_keys={'visits': 'COLUMN'}"
+    """
+    return _OPTION.sub(_as_parameter, message)
+
+
+@contextlib.contextmanager
+def from_the_command_line():
+    """Within it, errors keep the command line's option names (``cli.main``)."""
+    token = _FROM_CLI.set(True)
+    try:
+        yield
+    finally:
+        _FROM_CLI.reset(token)
+
+
+def speaks_to_callers(func):
+    """A public function whose errors name Python parameters, not options, unless the command line called it."""
+    @functools.wraps(func)
+    def call(*args, **kwargs):
+        try:
+            return func(*args, **kwargs)
+        except NormaliseError as exc:
+            if not _FROM_CLI.get() and exc.args and isinstance(exc.args[0], str):
+                exc.args = (for_callers(exc.args[0]),) + exc.args[1:]
+            raise
+    return call

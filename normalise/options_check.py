@@ -24,6 +24,7 @@ from dataclasses import dataclass, field
 from difflib import get_close_matches
 from pathlib import Path
 
+from .decode import format_choices
 from .errors import UsageError
 from .infer import objects_of
 
@@ -133,7 +134,7 @@ def _check_keys(exports: list, natural_keys: dict) -> None:
 
 def _check_formats(exports: list, formats: dict) -> None:
     every = [c for e in exports for c in e.columns]
-    for column, (fmt, sep) in formats.items():
+    for column, (fmt, sep) in format_choices(formats).items():
         if column not in every:
             spec = f"{fmt}:{sep}" if sep else fmt
             raise UsageError(f"--decode {column}={spec}: {_no_column(exports, column)} "

@@ -18,6 +18,7 @@ from pathlib import Path
 from .build import InMemory, build_partitions, check_width, occurrence_columns, reference_values
 from .check import check_plan, check_rows
 from .decode import paused_gc
+from .errors import NotClean, speaks_to_callers
 from .infer import Options, infer_plan
 from .join import JoinOptions
 from .literal import Limits
@@ -75,6 +76,7 @@ def _open(paths: list[str], *, options: Options | None, limits: Limits, formats:
     return plan, inputs
 
 
+@speaks_to_callers
 def prepare(paths: list[str], *, options: Options | None = None, limits: Limits = Limits(),
             formats: dict | None = None, encoding: str | None = None, delimiter: str | None = None,
             join_options: JoinOptions | None = None, picks: list[str] | None = None,
@@ -92,6 +94,7 @@ def prepare(paths: list[str], *, options: Options | None = None, limits: Limits 
     return plan, joined.exports, joined.decoded, joined
 
 
+@speaks_to_callers
 def make_plan(paths: str | os.PathLike | list[str], output: str | None = None, **kwargs) -> str:
     """Infer the plan of the exports and return it (and write it to ``output``) as TOML."""
     paths = path_list(paths)
@@ -115,6 +118,7 @@ def path_list(paths) -> list[str]:
     return [os.fspath(p) for p in paths]
 
 
+@speaks_to_callers
 @paused_gc()
 def build_database(paths: str | os.PathLike | list[str], database: str | os.PathLike, *, options: Options | None = None,
                    limits: Limits = Limits(), formats: dict | None = None, encoding: str | None = None,
@@ -124,7 +128,7 @@ def build_database(paths: str | os.PathLike | list[str], database: str | os.Path
                    schema: str | None = None, chunk_rows: int | None = None, progress=None,
                    report_path: str | None = None, dictionary_path: str | None = None,
                    append: bool = False, allow_lossy: bool = False, wait: float = 0.0, header: bool = True,
-                   share_schema: bool = False) -> Built:
+                   share_schema: bool = False, strict: bool = False) -> Built:
     """Run every pass on the exports and write a SQLite database; returns the manifest as a ``Built``
     (a dict, its fields also attributes, with ``frame(name)`` giving any table or view as a DataFrame).
 
@@ -139,6 +143,9 @@ def build_database(paths: str | os.PathLike | list[str], database: str | os.Path
     holds its destination's lock throughout (``outputs.destination_lock``: a second run on the same
     database waits up to ``wait`` seconds, then ``DestinationBusy``), and every output is written under a
     temporary name, moved into place only when all are complete, the database last.
+
+    With ``strict``, a build that rejected a row or quarantined a cell raises ``errors.NotClean`` once
+    everything is written (its ``result`` is the ``Built``).
 
     Example:
         >>> import tempfile, os
@@ -179,12 +186,16 @@ def build_database(paths: str | os.PathLike | list[str], database: str | os.Path
         with postgresql_run_lock(database, schema or DEFAULT_SCHEMA, wait), staged_outputs() as staged:
             result = _build(paths, database, staged=staged, **kwargs)
             staged.commit()
-        return Built(result, database, schema or DEFAULT_SCHEMA)
-    # the lock is taken before anything of the destination is read (--append's state, whether it exists)
-    with destination_lock(database, wait), staged_outputs() as staged:
-        result = _build(paths, database, staged=staged, **kwargs)
-        staged.commit()
-    return Built(result, database)
+        built = Built(result, database, schema or DEFAULT_SCHEMA)
+    else:
+        # the lock is taken before anything of the destination is read (--append's state, whether it exists)
+        with destination_lock(database, wait), staged_outputs() as staged:
+            result = _build(paths, database, staged=staged, **kwargs)
+            staged.commit()
+        built = Built(result, database)
+    if strict:
+        NotClean.check(built)
+    return built
 
 
 def _build(paths: list[str], database: str, *, options, limits, formats, encoding, delimiter, replace,

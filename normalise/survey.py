@@ -9,6 +9,7 @@ from __future__ import annotations
 import os
 
 from .decode import DecodedColumn, decode
+from .errors import speaks_to_callers
 from .infer import (REFERENCE_MIN_SHARE, REFERENCE_MIN_VALUES, detect_natural_key, identity_candidates, is_reference,
                     objects_of, reference_evidence, reference_texts, scalar_column_type, scalar_type)
 from .literal import Limits
@@ -53,6 +54,7 @@ def survey_column(export: Export, column: DecodedColumn) -> dict:
     return entry
 
 
+@speaks_to_callers
 def survey(paths, *, limits: Limits = Limits(), formats: dict | None = None,
            encoding: str | None = None, delimiter: str | None = None, header: bool = True) -> dict:
     """Survey exports; returns ``{"files": [{"path", "rows", "columns": [...]}, ...]}``.

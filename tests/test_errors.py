@@ -15,7 +15,7 @@ import pytest
 import normalise
 from normalise import decode_json, decode_python_literal
 from normalise.cli import exit_code, main
-from normalise.errors import EXIT_DATA, EXIT_USAGE, MissingInput, NormaliseError, UnreadableFile
+from normalise.errors import EXIT_DATA, EXIT_DESTINATION, EXIT_USAGE, MissingInput, NormaliseError, UnreadableFile
 from normalise.join import CardinalityViolation, JoinOptions
 from normalise.literal import CellError
 from normalise.pipeline import build_database, make_plan
@@ -42,7 +42,7 @@ def test_every_error_the_tool_defines_is_a_normalise_error():
     assert [c for c in classes if not issubclass(c, (NormaliseError, Warning))] == []
     for cls in classes:
         if issubclass(cls, NormaliseError):
-            assert issubclass(cls, ValueError) and cls.exit_code in (EXIT_DATA, EXIT_USAGE), cls
+            assert issubclass(cls, ValueError) and cls.exit_code in (EXIT_DATA, EXIT_USAGE, EXIT_DESTINATION), cls
             # what the command returns is the class's own exit_code
             assert exit_code(cls("x") if cls is not CellError else CellError("x", 1)) == cls.exit_code, cls
 

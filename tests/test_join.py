@@ -290,7 +290,7 @@ def test_join_without_a_main_key_is_a_clear_error(tmp_path):
     main_csv, extra_csv = tmp_path / "visits.csv", tmp_path / "extra.csv"
     main_csv.write_text("name,day\nAnn,mon\nAnn,tue\nBob,mon\n", encoding="utf-8")
     extra_csv.write_text("name,score\nAnn,1\nBob,2\n", encoding="utf-8")
-    with pytest.raises(UsageError, match="no natural key to join on.*--key visits=COLUMN"):
+    with pytest.raises(UsageError, match=r"no natural key to join on.*options\.natural_keys=\{'visits': 'COLUMN'\}"):
         build_database([str(main_csv), str(extra_csv)], str(tmp_path / "out.db"),
                        join_options=JoinOptions(on={"extra": ("name", None)}))
     assert not (tmp_path / "out.db").exists()

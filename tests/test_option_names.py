@@ -177,9 +177,9 @@ def test_existing_database_is_left_alone(files, tmp_path, capsys):
 
 def test_python_api_refuses_too(files, tmp_path):
     db = tmp_path / "out.db"
-    with pytest.raises(UsageError, match=r"^--identity people=pid: no field 'pid' .*\(fields: id, name, role\)$"):
+    with pytest.raises(UsageError, match=r"^options\.identities=\{'people': 'pid'\}: no field 'pid' .*\(fields: id, name, role\)$"):
         build_database([files["books"]], str(db), options=Options(identities={"people": "pid"}))
-    with pytest.raises(UsageError, match=r"--decode tag=json: books.csv has no column 'tag' \(columns: tags, "):
+    with pytest.raises(UsageError, match=r"formats=\{'tag': 'json'\}: books.csv has no column 'tag' \(columns: tags, "):
         build_database([files["books"]], str(db), formats={"tag": ("json", None)})
     assert not db.exists()
 

@@ -326,7 +326,7 @@ def test_replace_never_drops_what_the_tool_did_not_make(pg, pg_url, schema, demo
     before = pg_snapshot(pg, schema, relation_names(m) + ["stray"])
     with pytest.raises(DestinationExists) as caught:
         build_database(demo, pg_url, schema=schema, picks=PICKS, replace=True)
-    assert "stray" in str(caught.value) and "--share-schema" in str(caught.value)
+    assert "stray" in str(caught.value) and "share_schema=True" in str(caught.value)
     assert exit_code(caught.value) == 2
     assert pg_snapshot(pg, schema, relation_names(m) + ["stray"]) == before
     m2 = build_database(demo, pg_url, schema=schema, picks=PICKS, replace=True, share_schema=True)
@@ -355,7 +355,7 @@ def test_refuses_a_schema_that_holds_tables(pg, pg_url, schema, demo):
     with pytest.raises(DestinationExists) as caught:
         build_database(demo, pg_url, schema=schema)
     message = str(caught.value)
-    assert schema in message and "--replace" in message and "attribute_variants" in message
+    assert schema in message and "replace=True" in message and "attribute_variants" in message
     assert pg_snapshot(pg, schema, relation_names(m)) == before
 
 
@@ -472,7 +472,7 @@ def test_command_refuses_without_replace_then_replaces(pg_url, schema, demo, cap
 
 def test_schema_option_needs_postgresql(demo, tmp_path):
     """--schema with a SQLite file is a usage error (no server needed)."""
-    with pytest.raises(UsageError, match="--schema"):
+    with pytest.raises(UsageError, match="^schema applies to a PostgreSQL database"):
         build_database(demo, str(tmp_path / "x.db"), schema="s")
     assert main(["build", *demo, "--db", str(tmp_path / "x.db"), "--schema", "s", "--quiet"]) == 2
     assert not (tmp_path / "x.db").exists()

@@ -35,8 +35,6 @@ from demo.generate import generate
 from normalise.check import check_plan
 from normalise.cli import main
 from normalise.dictionary import render_dictionary
-from normalise.errors import UsageError
-from normalise.pipeline import build_database
 from normalise.plan import Column, ForeignKey, Plan, Table
 from normalise.catalog import read_database
 from normalise.report_html import layout_schema, overlaps, render_report, write_outputs
@@ -305,11 +303,6 @@ def test_report_is_deterministic(demo):
     model = read_database(demo["db"], demo["manifest"])
     assert render_report(model) == render_report(read_database(demo["db"], demo["manifest"]))
     assert render_report(model).replace("(the build)", "") == demo["html"].replace("(the build)", "")
-
-
-def test_postgresql_destination_refuses_the_report_before_writing():
-    with pytest.raises(UsageError, match="--report"):
-        build_database(["nothing.csv"], "postgresql+psycopg://u@localhost/x", report_path="r.html")
 
 
 # --- the diagram at 5 and at 52 tables (44 data tables and the 8 bookkeeping tables) --------------------------------------------------------------
