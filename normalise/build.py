@@ -1336,6 +1336,7 @@ def _fits_int64(col: list) -> bool:
 _STORED_AS_IS = {  # Python types a column stores without conversion (None is NULL)
     "integer": {int, type(None)}, "real": {float, type(None)}, "text": {str, type(None)},
     "boolean": {bool, type(None)}, "date": {str, type(None)}, "timestamp": {str, type(None)},
+    "decimal": {str, type(None)},
 }
 
 

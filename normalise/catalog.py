@@ -25,6 +25,7 @@ NOT_APPLICABLE = "not applicable (PostgreSQL)"  # SQLite's integrity_check, of a
 TOP_ENTITIES = 15
 _SQL_TYPES = {"BIGINT": "integer", "INTEGER": "integer", "INT": "integer", "FLOAT": "real", "REAL": "real",
               "DOUBLE": "real", "TEXT": "text", "VARCHAR": "text", "BOOLEAN": "boolean", "DATE": "date",
+              "NUMERIC": "decimal",
               "TIMESTAMP": "timestamp", "DATETIME": "timestamp"}
 _DISPLAY_NAMES = ("name", "display_name", "full_name", "title", "label")  # as normalise/views.py chooses
 

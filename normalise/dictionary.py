@@ -20,14 +20,15 @@ from .plan import META_ROLES
 TYPE_WORDS = {
     "integer": "integer",
     "real": "decimal number",
+    "decimal": "exact decimal (its text as written: SQLite has no exact decimal type; NUMERIC on PostgreSQL)",
     "text": "text",
     "boolean": "boolean (0 or 1)",
     "date": "date (ISO 8601 text, YYYY-MM-DD: SQLite has no date type)",
     "timestamp": "timestamp (ISO 8601 text: SQLite has no timestamp type)",
 }
 
-PLAIN_TYPE_WORDS = {"integer": "integer", "real": "decimal number", "text": "text", "boolean": "boolean",
-                    "date": "date", "timestamp": "timestamp"}
+PLAIN_TYPE_WORDS = {"integer": "integer", "real": "decimal number", "decimal": "exact decimal", "text": "text",
+                    "boolean": "boolean", "date": "date", "timestamp": "timestamp"}
 
 ROLE_WORDS = {
     "record": "record table",

@@ -64,17 +64,18 @@ class NotClean(NormaliseError):
     """``strict``: the database was written, but rows were rejected or cells quarantined; ``result`` is the
     build's manifest (a ``pipeline.Built``), to look into."""
 
-    def __init__(self, result, rejected: int, quarantined: int):
-        super().__init__(f"--strict: {rejected:,} rows rejected and {quarantined:,} cells quarantined; the "
-                         f"database was written, see rejected_rows and quarantined_cells in {result['database']}")
+    def __init__(self, *args, result=None, rejected: int = 0, quarantined: int = 0, **where):
+        super().__init__(*args, **where)
         self.result, self.rejected, self.quarantined = result, rejected, quarantined
 
     @classmethod
     def check(cls, result) -> None:
         """Raise when ``result`` (a build's manifest) rejected a row or quarantined a cell."""
-        rejected = sum(i["rows_rejected"] for i in result["inputs"])
-        if rejected or result["cells_quarantined"]:
-            raise cls(result, rejected, result["cells_quarantined"])
+        rejected, quarantined = sum(i["rows_rejected"] for i in result["inputs"]), result["cells_quarantined"]
+        if rejected or quarantined:
+            raise cls(f"--strict: {rejected:,} rows rejected and {quarantined:,} cells quarantined; the database "
+                      f"was written, see rejected_rows and quarantined_cells in {result['database']}",
+                      result=result, rejected=rejected, quarantined=quarantined)
 
 
 class LooksHeaderless(UserWarning):

@@ -18,6 +18,7 @@ from dataclasses import dataclass
 
 import networkx as nx
 
+from .decimals import decimal_scale, is_decimal_text
 from .exact import ABSENT as _ABSENT, get
 from .names import Namer, singular, sql_name
 from .plan import META_TABLES
@@ -498,7 +499,8 @@ def scalar_column_type(values: list) -> str:
         fits = len(ints) == len(present) and all(len(v) <= 20 and -(1 << 63) <= int(v) < (1 << 63) for v in ints)
         return "integer" if fits and all(str(int(v)) == v for v in ints) else "text"
     if t == "real" and not all(repr(float(v)) == v for v in present):
-        return "text"
+        # "12.50", "0.10": a float would drop the digits, so an exact decimal (its text; NUMERIC on PostgreSQL)
+        return "decimal" if all(is_decimal_text(v) for v in present) else "text"
     return "text" if t == "empty" else t
 
 
@@ -841,7 +843,8 @@ def infer_plan(exports: list, decoded: dict, options: Options | None = None):
                 scalar_values[name] = col.values
                 scalar_types[name] = t
                 as_text = t in ("integer", "real") and any(type(v) is str for v in col.values)
-                record.scalars.append(FieldMap([name], names(name), t, as_text=as_text))
+                record.scalars.append(FieldMap([name], names(name), t, as_text=as_text,
+                                               scale=decimal_scale(col.values) if t == "decimal" else None))
                 continue
             origin = getattr(export, "origin", {}).get(name)
             nested = NestedColumn(file=Path(origin[0]).stem if origin else export.name, column=name, kind="")

@@ -247,6 +247,8 @@ def _build(paths: list[str], database: str, *, options, limits, formats, encodin
                                      wait=wait, share_schema=share_schema, phases=progress)
         result = manifest(plan, built, display_url(database), integrity, joined)
         result["schema"] = integrity["schema"]
+        # date, timestamp and decimal columns PostgreSQL holds as TEXT, each with why (write.native_forms)
+        result["kept_as_text"] = integrity["kept_as_text"]
         if not (parquet_dir or report_path or dictionary_path):
             return _outputs(staged, database, plan, result, None, manifest_path, None, None, progress)
         # Parquet, the report and the dictionary are read from a SQLite copy of the rows PostgreSQL was given

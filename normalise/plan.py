@@ -12,9 +12,10 @@ from dataclasses import asdict, dataclass, field
 from typing import NamedTuple
 
 # A column's type, as plans and plan files name it (``write.TYPES`` gives each its SQL type). Dates and timestamps
-# are ISO 8601 text: SQLite has no date type, and such text sorts and compares correctly.
-TYPES = ("integer", "real", "text", "boolean", "date", "timestamp")
-TEXT_TYPES = ("text", "date", "timestamp")  # the types whose values are text
+# are ISO 8601 text: SQLite has no date type, and such text sorts and compares correctly. A decimal is a number
+# whose written digits matter ("12.50"): its text on SQLite, NUMERIC on PostgreSQL (decimals.py).
+TYPES = ("integer", "real", "decimal", "text", "boolean", "date", "timestamp")
+TEXT_TYPES = ("text", "decimal", "date", "timestamp")  # the types whose values are text
 
 
 class MetaTable(NamedTuple):
@@ -68,6 +69,7 @@ class Column:
     nullable: bool = True
     unique: bool = False
     source: str | None = None  # where the values come from: "file:column" or a path inside it
+    scale: int | None = None  # a decimal's places (FieldMap.scale)
 
 
 @dataclass
@@ -109,6 +111,7 @@ class FieldMap:
     # the entity table's surrogate key in ``column`` (a foreign key); the entity's attributes are in its table
     entity: str = ""
     references: str = ""  # a scalar column whose values are natural keys of this record table (a foreign key)
+    scale: int | None = None  # a decimal column's places, the most in the sample: the scale of its Parquet type
 
 
 @dataclass

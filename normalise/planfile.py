@@ -42,7 +42,7 @@ NAME = "name"  # a SQL name as the tool makes them: [a-z0-9_], not starting with
 TEXT, FLAG, WHOLE, SHARE, TEXTS = "text", "true or false", "a whole number", "a number from 0 to 1", "texts"
 REQUIRED = "required"  # a block's keys that must be there
 FIELD = {REQUIRED: ("key", "name", "type"), "key": "path", "name": NAME, "type": TYPES, "null": ("null", "absent"), "as_text": FLAG,
-         "references": NAME, "entity": NAME}
+         "references": NAME, "entity": NAME, "scale": WHOLE}
 NESTED = {REQUIRED: ("column", "kind"), "column": TEXT, "path": TEXT, "file": TEXT, "kind": KINDS, "table": NAME, "entity": NAME,
           "values_table": NAME, "identity": TEXT, "matched": FLAG, "separator": TEXT,
           "value_type": ("integer", "real", "boolean", "text"), "references": NAME, "keyed": TEXT,
@@ -182,6 +182,8 @@ def _fields(maps: list[FieldMap]) -> list[dict]:
             d["null"] = f.null_means
         if f.as_text:
             d["as_text"] = True
+        if f.scale is not None:
+            d["scale"] = f.scale  # a decimal's places: its Parquet type's scale
         if f.references:
             d["references"] = f.references
         if f.entity:
@@ -329,8 +331,11 @@ def _maps(text: str, items, where: str) -> list[FieldMap]:
         if null_means not in ("null", "absent"):
             _fail(text, f"{where}: null = {null_means!r}", 'write null = "absent" (NULL means the key is absent) '
                   'or leave it out (NULL means null)', f'"{null_means}"')
+        scale = f.get("scale")
+        if scale is not None and (type(scale) is not int or not 0 <= scale <= 38):
+            _fail(text, f"{where}: scale = {scale!r}", "write a whole number of places from 0 to 38", f"scale = {scale!r}")
         out.append(FieldMap([str(k) for k in key], f["name"], f["type"], null_means, bool(f.get("as_text", False)),
-                            references=str(f.get("references", "")), entity=str(f.get("entity", ""))))
+                            references=str(f.get("references", "")), entity=str(f.get("entity", "")), scale=scale))
     return out
 
 

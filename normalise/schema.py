@@ -25,7 +25,7 @@ def add_tables(plan: Plan) -> None:
         cols = [Column(group.key_column, "integer", nullable=False),
                 Column(group.identity_column, group.identity_type, nullable=False, unique=True,
                        source=group.identity)]
-        cols += [Column(f.column, f.type, source=".".join(f.path)) for f in group.attributes]
+        cols += [Column(f.column, f.type, source=".".join(f.path), scale=f.scale) for f in group.attributes]
         plan.tables.append(Table(group.table, "entity", cols, [group.key_column],
                                  natural_key=[group.identity_column],
                                  sources=[_source(m) for m in group.members]))
@@ -34,10 +34,10 @@ def add_tables(plan: Plan) -> None:
         for f in record.scalars:
             is_key = [f.column] == record.natural_key
             cols.append(Column(f.column, f.type, nullable=not is_key, unique=is_key,
-                               source=f.path[0]))
+                               source=f.path[0], scale=f.scale))
         for nested in record.nested:
             if nested.kind == "object-columns":
-                cols += [Column(f.column, f.type, source=".".join([nested.column, *f.path]))
+                cols += [Column(f.column, f.type, source=".".join([nested.column, *f.path]), scale=f.scale)
                          for f in nested.links]
         fks = [fk for nested in record.nested if nested.kind == "object-columns"
                for fk in _references(plan, nested.links)]
@@ -134,7 +134,7 @@ def _nested_tables(plan: Plan, nested: NestedColumn, owner: str, owner_key: str)
         unique = [[owner_key]]
     if position:
         cols.append(Column(POSITION, "integer", nullable=False))
-    cols += [Column(f.column, f.type, source=".".join(f.path)) for f in nested.links]
+    cols += [Column(f.column, f.type, source=".".join(f.path), scale=f.scale) for f in nested.links]
     fks += _references(plan, nested.links)
     if nested.keyed:  # an object keyed by data: one row per owner and key (a repeating group, first normal form)
         if nested.kind == "entity-list":

@@ -148,7 +148,7 @@ def _bytewise(dialect: str, expr: str, type_: str, native: bool = False) -> str:
     PostgreSQL holds natively (``native``) has no collation: it orders by time, which its text form
     (``datetimes.TextForm``, one width and offset per column) orders alike.
     """
-    if dialect == "postgresql" and type_ in ("text", "date", "timestamp") and not native:
+    if dialect == "postgresql" and type_ in TEXT_TYPES and not native:
         return f'{expr} COLLATE "C"'
     return expr
 

@@ -28,6 +28,7 @@ from .names import quote_name as _quote
 TYPES = {  # the SQL type of each of plan.TYPES
     "integer": sa.BigInteger,
     "real": sa.Float,
+    "decimal": sa.Text,  # its text on SQLite; NUMERIC on PostgreSQL where every value comes back so (decimals.py)
     "text": sa.Text,
     "boolean": sa.Boolean,
     "date": sa.Text,  # ISO 8601 text (plan.TEXT_TYPES): SQLite has no date type, and text sorts and compares correctly
@@ -132,23 +133,26 @@ def metadata_for(plan: Plan, forms: dict | None = None) -> sa.MetaData:
     return md
 
 
-_NATIVE = {"DATE": sa.Date(), "TIMESTAMP": sa.DateTime(), "TIMESTAMP WITH TIME ZONE": sa.DateTime(timezone=True)}
+_NATIVE = {"NUMERIC": sa.Numeric(), "DATE": sa.Date(), "TIMESTAMP": sa.DateTime(), "TIMESTAMP WITH TIME ZONE": sa.DateTime(timezone=True)}
 
 
 def native_forms(plan: Plan, rows: dict[str, list[tuple]]) -> tuple[dict, dict]:
-    """The date and timestamp columns PostgreSQL can hold in its own types and give back exactly.
+    """The date, timestamp and decimal columns PostgreSQL can hold in its own types and give back exactly.
 
-    Returns ``(forms, kept)``: (table, column) -> the ``datetimes.TextForm`` all its values are written in,
+    Returns ``(forms, kept)``: (table, column) -> the ``datetimes.TextForm`` all its values are written in
+    (a ``decimals.DecimalForm`` for a decimal),
     and (table, column) -> why a column keeps TEXT (its values take several forms or offsets, or one is
     not a date PostgreSQL holds: the types were inferred from a sample). Decided on every value written.
     """
     from .datetimes import text_form
+    from .decimals import decimal_form
 
     forms, kept = {}, {}
     for t in plan.tables:
         for j, c in enumerate(t.columns):
-            if c.type in ("date", "timestamp"):
-                form, why = text_form(c.type, (row[j] for row in rows.get(t.name, ())))
+            if c.type in ("date", "timestamp", "decimal"):
+                values = (row[j] for row in rows.get(t.name, ()))
+                form, why = decimal_form(values) if c.type == "decimal" else text_form(c.type, values)
                 if form is None:
                     kept[(t.name, c.name)] = why
                 else:
@@ -392,7 +396,7 @@ def write_sqlite(plan: Plan, rows: dict[str, list[tuple]], order: list[str], des
 ARROW_TYPES = {"integer": "int64", "real": "float64", "boolean": "bool", "text": "string"}  # pyarrow type names
 
 
-def arrow_field(name: str, type_: str, values: list):
+def arrow_field(name: str, type_: str, values: list, scale: int | None = None):
     """The Arrow field of a column of a plan type, and its values as Arrow takes them.
 
     Integers are int64, reals float64, booleans bool (SQLite's 0 and 1), text string; a date column is
@@ -427,6 +431,15 @@ def arrow_field(name: str, type_: str, values: list):
             return pa.field(name, pa.timestamp("us", tz="UTC")), [
                 None if p is None else p.astimezone(timezone.utc) for p in parsed]
         return pa.field(name, pa.timestamp("us")), parsed
+    if type_ == "decimal":
+        from .decimals import arrow_decimal
+
+        typed = arrow_decimal(values, scale)
+        if typed is None:
+            return pa.field(name, pa.string(), metadata={"normalise.kept_as_text": f"a value of more places than "
+                                                         f"the plan's scale ({scale}) or more than 38 digits: "
+                                                         "decimal128 would not hold it exactly"}), values
+        return pa.field(name, typed[0]), typed[1]
     if type_ == "boolean":
         values = [None if v is None else bool(v) for v in values]
     return pa.field(name, pa.type_for_alias(ARROW_TYPES[type_])), values
@@ -447,15 +460,15 @@ def write_parquet(database: str, plan: Plan, directory: str) -> list[str]:
 
     Path(directory).mkdir(parents=True, exist_ok=True)
     written = []
-    relations = [(t.name, [(c.name, c.type) for c in t.columns]) for t in plan.tables]
-    relations += [(v.name, [(c.name, c.type) for c in view_columns(v, plan)]) for v in plan.views]
+    relations = [(t.name, [(c.name, c.type, c.scale) for c in t.columns]) for t in plan.tables]
+    relations += [(v.name, [(c.name, c.type, None) for c in view_columns(v, plan)]) for v in plan.views]
     with sqlite3.connect(database) as conn:
         for name, columns in relations:
-            rows = conn.execute(f"SELECT {', '.join(_quote(c) for c, _ in columns)} FROM {_quote(name)}").fetchall()
+            rows = conn.execute(f"SELECT {', '.join(_quote(c) for c, _, _ in columns)} FROM {_quote(name)}").fetchall()
             data = list(zip(*rows)) or [() for _ in columns]
             fields, arrays = [], []
-            for (column, type_), values in zip(columns, data):
-                field, values = arrow_field(column, type_, list(values))
+            for (column, type_, scale), values in zip(columns, data):
+                field, values = arrow_field(column, type_, list(values), scale)
                 fields.append(field)
                 arrays.append(pa.array(values, type=field.type))
             path = os.path.join(directory, f"{name}.parquet")
@@ -731,12 +744,13 @@ def _some(names: list[str], shown: int = 5) -> str:
     return ", ".join(names[:shown]) + (", ..." if len(names) > shown else "")
 
 
-def column_notes(forms: dict, kept: dict) -> dict[tuple[str, str], str]:
-    """What a PostgreSQL comment adds to the description of a date or timestamp column: its type, and how its
-    text comes back (``TextForm.text_sql``), or why it kept TEXT (``native_forms``)."""
+def column_notes(forms: dict, kept: dict, plan: Plan) -> dict[tuple[str, str], str]:
+    """What a PostgreSQL comment adds to the description of a date, timestamp or decimal column: its type, and
+    how its text comes back (``TextForm.text_sql``), or why it kept TEXT (``native_forms``)."""
     notes = {(t, c): f"Stored as {form.sql_type}; {form.text_sql(_quote(c))} gives each value as it came in."
              for (t, c), form in forms.items()}
-    notes.update({(t, c): f"Kept as TEXT, ISO 8601 as written: {why}." for (t, c), why in kept.items()})
+    notes.update({(t, c): f"Kept as TEXT, {'' if plan.table(t).column(c).type == 'decimal' else 'ISO 8601 '}"
+                          f"as written: {why}." for (t, c), why in kept.items()})
     return notes
 
 
@@ -748,7 +762,7 @@ def _pg_comment(cursor, schema: str, plan: Plan, forms: dict, kept: dict) -> Non
     from .dictionary import descriptions
 
     views = {v.name for v in plan.views}
-    notes = column_notes(forms, kept)
+    notes = column_notes(forms, kept, plan)
     by_relation: dict[str, list] = {}
     for relation, column, text in descriptions(plan):
         if (relation, column) in notes:

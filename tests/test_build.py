@@ -395,7 +395,7 @@ def test_duplicates_refuse(demo, tmp_path):
     with pytest.raises(DuplicateNaturalKey) as exc:
         build_database([str(out / TITLES)], str(tmp_path / "refused.db"), options=Options(duplicates="refuse"))
     message = str(exc.value)
-    assert TITLES in message and "--duplicates" in message
+    assert TITLES in message and "options.duplicates" in message
     for d in planted["duplicate_keys"][TITLES]:
         assert f"line {d['lines'][1]}" in message
     assert os.listdir(tmp_path) == []  # nothing written

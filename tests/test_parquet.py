@@ -16,6 +16,7 @@ from __future__ import annotations
 
 import csv
 import datetime
+import decimal
 import sqlite3
 
 import pyarrow as pa
@@ -35,6 +36,8 @@ EXPECTED = {  # SQLite declared type or plan type -> (pyarrow, DuckDB, Polars)
     "timestamp": ("timestamp[us]", "TIMESTAMP", "Datetime(time_unit='us', time_zone=None)"),
     "timestamp with offsets": ("timestamp[us, tz=UTC]", "TIMESTAMP WITH TIME ZONE",
                                "Datetime(time_unit='us', time_zone='UTC')"),
+    # an exact decimal at the plan's scale (its places in the sample; the demo's prices have 2)
+    "decimal": ("decimal128(38, 2)", "DECIMAL(38,2)", "Decimal(precision=38, scale=2)"),
 }
 
 
@@ -48,7 +51,7 @@ def _sqlite_types(db: str, m: dict) -> dict[str, dict[str, str]]:
             out[name] = {}
             for _, column, declared, *_ in con.execute(f'PRAGMA table_info("{name}")'):
                 kind = planned.get(name, {}).get(column)
-                out[name][column] = kind if kind in ("date", "timestamp") else declared or _held(con, name, column)
+                out[name][column] = kind if kind in ("date", "timestamp", "decimal") else declared or _held(con, name, column)
     return out
 
 
@@ -97,6 +100,11 @@ def _same(parquet_value, sqlite_value) -> bool:
         return parquet_value == parsed and parquet_value.tzinfo is None
     if isinstance(parquet_value, datetime.date) and isinstance(sqlite_value, str):
         return parquet_value == datetime.date.fromisoformat(sqlite_value)
+    if isinstance(parquet_value, decimal.Decimal) and isinstance(sqlite_value, str):
+        # reference for exact decimals: Python's decimal module reading SQLite's text (the same number, to the
+        # last digit; the Parquet type's scale may add zeros after it)
+        return parquet_value == decimal.Decimal(sqlite_value) and parquet_value.as_tuple().exponent <= \
+            decimal.Decimal(sqlite_value).as_tuple().exponent
     return _comparable(parquet_value) == sqlite_value
 
 

@@ -197,7 +197,7 @@ def test_a_nested_table_over_the_limit_is_refused_naming_it(tmp_path):
         build_database([path], str(tmp_path / "out.db"))
     message = str(caught.value)
     assert "wide_obj" in message and "2,102 columns" in message and "2,000" in message
-    assert "--decode COLUMN=text" in message
+    assert "formats={'COLUMN': 'text'}" in message  # from Python; the command line says --decode COLUMN=text
     assert not (tmp_path / "out.db").exists()
 
 
