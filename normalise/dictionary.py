@@ -476,18 +476,3 @@ def descriptions(plan) -> list[tuple[str, str | None, str]]:
             meaning = _view_column_meaning(v, c["name"], tables, quoted)
             out.append((v["name"], c["name"], meaning or f"Column {quoted(c['name'])} of the view."))
     return out
-
-
-def write_dictionary(database, path, manifest: dict | None = None) -> str:
-    """Write the data dictionary of a SQLite database to ``path``; returns the path."""
-    from pathlib import Path
-
-    from .report_html import read_database
-
-    from .outputs import staged_outputs
-
-    model = read_database(database, manifest)
-    with staged_outputs() as staged:  # whole or not at all: a temporary file, renamed when complete
-        Path(staged.file(path)).write_text(render_dictionary(model), encoding="utf-8")
-        staged.commit()
-    return str(path)

@@ -10,6 +10,7 @@ from __future__ import annotations
 import re
 import unicodedata
 from collections.abc import Callable
+from difflib import get_close_matches
 
 _UNSAFE = re.compile(r"[^a-z0-9_]+")
 MAX_NAME = 60
@@ -123,3 +124,23 @@ class Namer:
         name = free_name(sql_name(wanted), lambda name: name.lower() in self.taken, fit)
         self.taken.add(name.lower())
         return name
+
+
+NAMES_SHOWN = 8  # names a message lists before "..."
+
+
+def closest_first(word: str, names, limit: int = NAMES_SHOWN) -> str:
+    """The names, the ones closest to ``word`` first (``difflib.get_close_matches``), then the rest in order.
+
+    Example:
+        >>> closest_first("sender", ["title", "senders", "id", "recipients"])
+        'senders, title, id, recipients'
+        >>> closest_first("x", [str(i) for i in range(10)], limit=3)
+        '0, 1, 2, ...'
+    """
+    names = list(dict.fromkeys(names))
+    if not names:
+        return "none"
+    close = get_close_matches(word, names, n=limit, cutoff=0.6)
+    ordered = close + [n for n in names if n not in close]
+    return ", ".join(ordered[:limit]) + (", ..." if len(ordered) > limit else "")

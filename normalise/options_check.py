@@ -21,32 +21,12 @@ checks it then, still before anything is written.
 from __future__ import annotations
 
 from dataclasses import dataclass, field
-from difflib import get_close_matches
 from pathlib import Path
 
 from .decode import format_choices
 from .errors import UsageError
+from .names import closest_first
 from .infer import objects_of
-
-# names shown after a refused option; more are left as "..."
-NAMES_SHOWN = 8
-
-
-def closest_first(word: str, names, limit: int = NAMES_SHOWN) -> str:
-    """The names, the ones closest to ``word`` first (``difflib.get_close_matches``), then the rest in order.
-
-    Example:
-        >>> closest_first("sender", ["title", "senders", "id", "recipients"])
-        'senders, title, id, recipients'
-        >>> closest_first("x", [str(i) for i in range(10)], limit=3)
-        '0, 1, 2, ...'
-    """
-    names = list(dict.fromkeys(names))
-    if not names:
-        return "none"
-    close = get_close_matches(word, names, n=limit, cutoff=0.6)
-    ordered = close + [n for n in names if n not in close]
-    return ", ".join(ordered[:limit]) + (", ..." if len(ordered) > limit else "")
 
 
 @dataclass

@@ -289,7 +289,7 @@ def add_pick(plan: Plan, spec: str) -> Pick:
     record, the first contributor whose role is editor.
     """
     from .errors import UsageError
-    from .options_check import closest_first
+    from .names import closest_first
 
     name, eq, rest = spec.partition("=")
     column, colon, condition = rest.partition(":")

@@ -560,7 +560,7 @@ def display_url(database: str) -> str:
     try:
         url = sa.engine.make_url(database)
     except sa.exc.ArgumentError:
-        from .report import mask_password
+        from .outputs import mask_password
         return mask_password(database)
     if "password" in url.query:
         url = url.update_query_dict({"password": "MASKED"})

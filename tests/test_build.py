@@ -36,7 +36,7 @@ from normalise.errors import NormaliseError
 from normalise.infer import Options
 from normalise.pipeline import build_database
 from normalise.report import manifest as make_manifest
-from normalise.report import mask_password
+from normalise.outputs import mask_password
 from normalise.write import DestinationExists
 from tests.strategies import people_exports
 
