@@ -89,5 +89,5 @@ def offset_record_keys(plan: Plan, exports: list, state: dict) -> None:
         offset = state["record_offset"].get(record.table, 0)
         for export in exports:
             if export.path == record.path:
-                keys = getattr(export, "record_keys", None) or export.lines
+                keys = export.record_keys or export.lines
                 export.record_keys = [offset + k for k in keys]

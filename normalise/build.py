@@ -682,8 +682,8 @@ class Builder:
         With duplicates = "last" a record is kept only when no later one repeats its key; knowing the holders
         beforehand lets every partition decide alone, so one partition or many keep the same records.
         """
-        record_keys = getattr(export, "record_keys", None) or export.lines
-        inner_unmatched = getattr(export, "inner_unmatched", None) or {}
+        record_keys = export.record_keys or export.lines
+        inner_unmatched = export.inner_unmatched or {}
         for record in self.plan.records:
             if record.path != export.path or record.duplicates != "last" or not record.natural_key:
                 continue
@@ -703,13 +703,13 @@ class Builder:
 
     def _add_record(self, record: RecordSource, export, columns: dict) -> None:
         rows, meta = self.rows, self.meta
-        main_rows = getattr(export, "main_rows", export.number_of_records)
+        main_rows = export.number_of_records if export.main_rows is None else export.main_rows
         c = self.counts.get(export.path)
         if c is None:
             c = self.counts[export.path] = FileCounts(record.file, export.path)
-        c.rows_read += getattr(export, "main_rows_read", export.rows_read)
+        c.rows_read += (export.rows_read if export.main_rows_read is None else export.main_rows_read)
         c.rows_rejected += len(export.rejected)
-        c.rows_unmatched += getattr(export, "rows_unmatched", 0)
+        c.rows_unmatched += export.rows_unmatched
         for r in export.rejected:
             meta["rejected_rows"].append((r.file, r.line, r.reason, r.raw))
         for col in columns.values():
@@ -717,7 +717,7 @@ class Builder:
                 meta["quarantined_cells"].append((q.file, q.line, q.column, q.position, q.excerpt, q.message))
                 c.cells_quarantined += q.file == export.path
                 self.quarantined_by_file[q.file] += 1
-        record_keys = getattr(export, "record_keys", None) or export.lines
+        record_keys = export.record_keys or export.lines
         kept = self._keep(record, export, columns, record_keys)
         loaded = sum(i < main_rows for i in kept)
         c.records_loaded += loaded
@@ -779,7 +779,7 @@ class Builder:
         once, by ``finish``. So one partition or many keep the same records.
         """
         n = export.number_of_records
-        inner_unmatched = getattr(export, "inner_unmatched", None) or {}
+        inner_unmatched = export.inner_unmatched or {}
         if not record.natural_key and not inner_unmatched:
             return list(range(n))
         keys = [None] * n
@@ -1448,7 +1448,7 @@ def build_partitions(plan: Plan, partitions, rows, extra: dict | None = None, st
         rows.insert(builder.take_rows())
         done += export.number_of_records + len(export.rejected)
         if progress:
-            progress(done, getattr(export, "chars_read", 0))
+            progress(done, export.chars_read)
     built = builder.finish(rows.occurrences)
     rows.complete(built)
     return built
@@ -1498,7 +1498,7 @@ def build(plan: Plan, exports: list, decoded: dict, extra: dict | None = None, s
 def _quarantine_element(quarantine: list, export, i, nested, position, message, c: FileCounts) -> None:
     column = nested.column + (f".{nested.path}" if nested.path else "")
     path, line = export.path, export.lines[i]
-    origin = getattr(export, "origin", {}).get(nested.column)
+    origin = export.origin.get(nested.column)
     if origin is not None:  # a column of a joined file: name its own file and line
         path, column = origin[0], origin[1] + (f".{nested.path}" if nested.path else "")
         line = export.origin_lines[nested.column][i] or line

@@ -1024,7 +1024,7 @@ def decode(export: Export, limits: Limits = Limits(),
     whichever part of its file it comes in. ``done()``, when given, is called as each column is decoded.
     """
     formats = format_choices(formats)
-    raw_surrogates = getattr(export, "invalid_bytes", True)
+    raw_surrogates = export.invalid_bytes
     out = {}
     for name in export.columns:
         forced = formats.get(name)

@@ -846,7 +846,7 @@ def infer_plan(exports: list, decoded: dict, options: Options | None = None):
                 record.scalars.append(FieldMap([name], names(name), t, as_text=as_text,
                                                scale=decimal_scale(col.values) if t == "decimal" else None))
                 continue
-            origin = getattr(export, "origin", {}).get(name)
+            origin = export.origin.get(name)
             nested = NestedColumn(file=Path(origin[0]).stem if origin else export.name, column=name, kind="")
             values = col.values
             if shape == "object":
@@ -901,8 +901,8 @@ def infer_plan(exports: list, decoded: dict, options: Options | None = None):
                 from .errors import UsageError
                 raise UsageError(f"--key {export.name}={chosen}: {export.path} has no scalar column {chosen!r}")
             record.natural_key = [next(f.column for f in record.scalars if f.path == [chosen])]
-        record.parent_path = getattr(export, "parent_path", "")
-        record.parent_column = getattr(export, "parent_column", "")
+        record.parent_path = export.parent_path
+        record.parent_column = export.parent_column
         plan.records.append(record)
 
     found.settle()

@@ -35,12 +35,9 @@ class CardinalityViolation(NormaliseError):
 
 @dataclass
 class JoinedExport(Export):
-    """The main export with the columns of the exports joined to it."""
+    """The main export with the columns of the exports joined to it (``record_keys``, ``main_rows``,
+    ``main_rows_read`` and ``origin`` set; the fields are ``read.Export``'s)."""
 
-    record_keys: list[int] | None = None  # surrogate key per row, when not the line
-    main_rows: int = 0  # rows that come from the main export itself
-    main_rows_read: int = 0
-    origin: dict = field(default_factory=dict)  # column -> (file path, column in that file)
     inner_unmatched: dict = field(default_factory=dict)  # row -> why an inner join sets it aside
     origin_lines: dict = field(default_factory=dict)  # joined column -> line in its own file, per row
 
@@ -144,7 +141,7 @@ def join(exports: list[Export], decoded: dict, options: JoinOptions, natural_key
         result.decoded[main.path] = combined_cols
     if result.inner_unmatched:  # main records an inner one-to-many join sets aside
         target = result.exports[0]
-        if getattr(target, "inner_unmatched", None) is None:
+        if target.inner_unmatched is None:
             target.inner_unmatched = {}
         for i, reason in result.inner_unmatched.items():
             target.inner_unmatched.setdefault(i, reason)
@@ -248,12 +245,8 @@ def _join_one(result: Joined, combined: JoinedExport, combined_cols: dict, main:
 
 @dataclass
 class LinkedExport(Export):
-    """A further export whose rows each belong to one record of the main export (one-to-many)."""
-
-    parent_path: str = ""  # the main export
-    parent_column: str = ""  # the column holding the main record's key
-    main_rows_read: int = 0
-    rows_unmatched: int = 0
+    """A further export whose rows each belong to one record of the main export (one-to-many): ``parent_path``,
+    ``parent_column``, ``main_rows_read`` and ``rows_unmatched`` set (``read.Export``'s fields)."""
 
 
 def _link_many(result: Joined, main: Export, main_key: str, other: Export, right_col: str, decoded: dict,

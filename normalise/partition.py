@@ -228,18 +228,19 @@ def _partition(export, decoded: dict, a: int, b: int) -> tuple:
     if not first:
         changes.update(rejected=[], warnings=[])
     declared = {f.name for f in fields(export)}
-    if "main_rows" in declared:  # a join's combined export: rows from the main file come first
+    if export.main_rows is not None:  # a join's combined export: rows from the main file come first
         changes["main_rows"] = max(0, min(export.main_rows, b) - a)
-    for name in ("main_rows_read", "rows_unmatched"):
-        if name in declared and not first:
-            changes[name] = 0
+    if not first:  # counted once, with the first partition
+        changes["rows_unmatched"] = 0
+        if export.main_rows_read is not None:
+            changes["main_rows_read"] = 0
     if "origin_lines" in declared:
         changes["origin_lines"] = {c: rows(v) for c, v in export.origin_lines.items()}
     part = replace(export, **changes)
-    keys = getattr(export, "record_keys", None)  # a field of a joined export, set on others by --append
+    keys = export.record_keys  # of a joined export, set on others by --append
     if keys is not None:
         part.record_keys = rows(keys)
-    inner = getattr(export, "inner_unmatched", None)
+    inner = export.inner_unmatched
     if inner is not None:
         part.inner_unmatched = {i - a: why for i, why in inner.items() if a <= i < b}
     columns = {}

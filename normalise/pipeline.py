@@ -329,7 +329,7 @@ def _locator(plan, partitions):
                 record = paths.get(export.path)
                 if record is None or column not in decoded:
                     continue
-                keys = getattr(export, "record_keys", None) or export.lines
+                keys = export.record_keys or export.lines
                 rows = [i for i, k in enumerate(keys) if k in loaded]
                 for i, value in zip(rows, reference_values(record, column, decoded[column], rows)):
                     yield keys[i], value, export.path, export.lines[i]

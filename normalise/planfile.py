@@ -419,8 +419,7 @@ def plan_from_doc(doc: dict, text: str, exports: list, decoded: dict) -> Plan:
                               natural_key=[r["natural_key"]] if r.get("natural_key") else [],
                               duplicates=r.get("duplicates", "first"),
                               scalars=_maps(text, r.get("columns"), f"record {file}.columns"),
-                              parent_path=getattr(export, "parent_path", ""),
-                              parent_column=getattr(export, "parent_column", ""))
+                              parent_path=export.parent_path, parent_column=export.parent_column)
         if record.natural_key and record.natural_key[0] not in [f.column for f in record.scalars]:
             _fail(text, f"[[record]] {file}: natural_key {record.natural_key[0]!r} is none of its columns",
                   f"use one of: {', '.join(f.column for f in record.scalars) or '(none)'}, or \"\" for none",

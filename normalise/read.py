@@ -70,6 +70,15 @@ class Export:
     encoding: str = "utf-8"
     chars_read: int = 0  # characters of the file read up to the end of this chunk (for progress)
     invalid_bytes: bool = True  # whether cells may hold bytes the encoding could not read (lone surrogates)
+    # set by the join (join.JoinedExport, join.LinkedExport) and by --append; as read, each says "none"
+    record_keys: list[int] | None = None  # surrogate key per row, when not the line
+    main_rows: int | None = None  # rows that come from the main export itself (None: every row)
+    main_rows_read: int | None = None  # rows read of the main export (None: this file's)
+    origin: dict = field(default_factory=dict)  # column -> (file path, column in that file), of joined columns
+    inner_unmatched: dict | None = None  # row -> why an inner join sets it aside
+    parent_path: str = ""  # the main export, of a further export linked one-to-many
+    parent_column: str = ""  # the column holding the main record's key
+    rows_unmatched: int = 0  # rows of a linked export that name no main record
 
     @property
     def name(self) -> str:
