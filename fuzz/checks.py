@@ -124,9 +124,9 @@ def check_decode(cells: list[str], mode: str, limits: Limits = LIMITS):
         if not q.message or q.file != "fuzz.csv" or q.column != "c":
             raise InvariantBroken(f"quarantine without place or message: {q!r}")
         by_line[q.line] = q
-    if col.encoding in ("json", "python-literal"):
-        grammars = [col.encoding]
-    elif col.encoding == "mixed":
+    if col.format in ("json", "python-literal"):
+        grammars = [col.format]
+    elif col.format == "mixed":
         grammars = ["json", "python-literal"]
     else:
         grammars = []  # delimited, scalar or empty (auto mode): strings, checked for presence only
@@ -139,7 +139,7 @@ def check_decode(cells: list[str], mode: str, limits: Limits = LIMITS):
             if grammars and not (plain and "plain text" in by_line[line].message):
                 accepted = [g for g in grammars if REFERENCES[g](text) is not REFUSED]
                 if accepted and not any(r in by_line[line].message for r in ALLOWED_REFUSALS):
-                    raise InvariantBroken(f"{text!r} ({mode}, read as {col.encoding}) quarantined "
+                    raise InvariantBroken(f"{text!r} ({mode}, read as {col.format}) quarantined "
                                           f"({by_line[line].message}) but {accepted[0]} accepts it")
             continue
         if text in EMPTY_MARKERS:
@@ -164,9 +164,9 @@ def check_faithful(cells: list, col) -> None:
     """Scalar values are the cells as given; a delimited column gives every text cell back exactly."""
     for i, cell in enumerate(cells):
         value = col.values[i]
-        if col.encoding == "scalar" and value is not None and value != cell:
+        if col.format == "scalar" and value is not None and value != cell:
             raise InvariantBroken(f"scalar cell {cell!r} stored as {value!r}")
-        if col.encoding == "delimited" and isinstance(cell, str):
+        if col.format == "delimited" and isinstance(cell, str):
             back = col.layout[i] if col.layout[i] is not None else (
                 "" if value is None else col.join_separator.join(value))
             if back != cell:

@@ -22,13 +22,13 @@ from operator import itemgetter
 
 import numpy as np
 
+from .describe import descriptions
 from .errors import NormaliseError
-from .exact import (ABSENT, VALUE_TYPES, expect_cell, expect_element, get, is_negative_zero, json_text, keyed_items,
-                    literal, pointer, same, store, stored_back, usable_identity, value_key)
+from .exact import (ABSENT, VALUE_TYPES, InputDigests, expect_cell, expect_element, get, is_negative_zero, json_text,
+                    keyed_items, literal, pointer, same, store, stored_back, usable_identity, value_key)
 from .infer import get_path, match_key, reference_text
 from .plan import META_TABLES, NestedColumn, Plan, RecordSource
 from .schema import record_parts, record_row_columns, reference_columns
-from .prove import InputDigests
 
 _MASK = (1 << 53) - 1  # keys of at most 53 bits: exact as IEEE 754 doubles
 
@@ -229,7 +229,7 @@ class Built:
     merges: list[dict] = field(default_factory=list)  # entities matched from several spellings
     cells_quarantined_by_file: dict = field(default_factory=dict)  # every input file, joined ones too
     updates: dict = field(default_factory=dict)  # entity table -> rows to rewrite with their chosen values
-    inputs: object = None  # prove.InputDigests of the loaded cells
+    inputs: object = None  # exact.InputDigests of the loaded cells
     trace_reasons: dict = field(default_factory=dict)  # why values were kept in value_traces, and how many
     rejoined: dict = field(default_factory=dict)  # "file:column" -> values whose name suffix was rejoined
     column_updates: dict = field(default_factory=dict)  # (table, column) -> [(value, row sk)] to set at the end
@@ -731,7 +731,7 @@ class Builder:
             col = columns[nested.column]
             if getattr(col, "rejoined", 0):
                 self.rejoined[f"{export.path}:{nested.column}"] += col.rejoined
-            if nested.separator and col.encoding == "delimited":  # the proof compares the cell's own text
+            if nested.separator and col.format == "delimited":  # the proof compares the cell's own text
                 texts = self._delimited_cells(record, nested, col, kept, keys, export)
                 self.inputs.add(record.table, nested.column, keys, texts, kept, set())
             else:
@@ -1273,8 +1273,7 @@ class Builder:
                     updates.setdefault(table, []).append(row)
             self._trace_occurrences(table, acc, held, occurrences)
         self.meta["name_map"] = name_map(self.plan) if not self.state else []  # appended: the map is there
-        from .dictionary import descriptions  # what the data dictionary says, kept in the database (issue 16)
-        self.meta["descriptions"] = descriptions(self.plan) if not self.state else []
+        self.meta["descriptions"] = descriptions(self.plan) if not self.state else []  # the data dictionary's text
         offsets = self.state["meta_offset"] if self.state else {}
         for name in META_TABLES:
             if name != "attribute_variants":  # variants are already in a fixed order
@@ -1314,7 +1313,7 @@ def delimited_texts(col, rows: list[int], sep: str) -> list:
 def reference_values(record: RecordSource, column: str, col, rows: list[int]) -> list:
     """What the lossless proof compares a column's cells with: the decoded values, and a delimited cell's text."""
     nested = next((n for n in record.nested if n.column == column), None)
-    if nested is not None and nested.separator and col.encoding == "delimited":
+    if nested is not None and nested.separator and col.format == "delimited":
         return delimited_texts(col, rows, nested.separator)
     return [col.values[i] for i in rows]
 

@@ -18,6 +18,7 @@ from .errors import UsageError
 from .escapes import clean
 from .names import quote_name as _q
 from .plan import META_ROLES, META_TABLES
+from .describe import display_column, owner_fk
 from .sharing import widened_sentence
 
 HEAD_ROWS = 50  # rows of each bookkeeping table shown
@@ -27,7 +28,6 @@ _SQL_TYPES = {"BIGINT": "integer", "INTEGER": "integer", "INT": "integer", "FLOA
               "DOUBLE": "real", "TEXT": "text", "VARCHAR": "text", "BOOLEAN": "boolean", "DATE": "date",
               "NUMERIC": "decimal",
               "TIMESTAMP": "timestamp", "DATETIME": "timestamp"}
-_DISPLAY_NAMES = ("name", "display_name", "full_name", "title", "label")  # as normalise/views.py chooses
 
 
 # --- reading the database -------------------------------------------------------------------------
@@ -226,22 +226,8 @@ def _integrity(conn: sqlite3.Connection) -> dict:
 
 # --- the numbers shown, each from one query ---------------------------------------------------------
 
-def owner_fk(table: dict) -> dict | None:
-    return next((f for f in table["foreign_keys"] if f["owner"]), None)
 
 
-def display_column(table: dict) -> str:
-    """The column that names a row for people (normalise/views.py chooses the same)."""
-    names = {c["name"]: c for c in table["columns"]}
-    for wanted in _DISPLAY_NAMES:
-        if wanted in names:
-            return wanted
-    for c in table["columns"]:
-        if c["type"] == "text" and c["name"] not in table["primary_key"] and c["name"].endswith("name"):
-            return c["name"]
-    if table["natural_key"]:
-        return table["natural_key"][0]
-    return table["primary_key"][0] if table["primary_key"] else table["columns"][0]["name"]
 
 
 def _collect(conn: sqlite3.Connection, model: dict, head_rows: int) -> dict:
@@ -317,11 +303,3 @@ def _list_lengths(conn, table: dict, fk: dict) -> dict:
             "sources": table["sources"]}
 
 
-def source_label(table: dict) -> str:
-    """Where a table came from: "export" or "export · column, column"."""
-    by_file: dict[str, list[str]] = {}
-    for s in table.get("sources") or []:
-        files = by_file.setdefault(str(s.get("file") or "?"), [])
-        if s.get("column"):
-            files.append(str(s["column"]))
-    return "; ".join(f + (" \u00b7 " + ", ".join(cols) if cols else "") for f, cols in by_file.items())

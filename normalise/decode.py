@@ -78,7 +78,7 @@ class DecodedColumn:
     """One column after decoding: a value per row (None when empty or quarantined)."""
 
     name: str
-    encoding: str  # json | python-literal | delimited | scalar | mixed | empty
+    format: str  # json | python-literal | delimited | scalar | mixed | empty
     values: list
     quarantined: list[QuarantinedCell] = field(default_factory=list)
     format_counts: dict[str, int] = field(default_factory=dict)
@@ -113,7 +113,7 @@ class ColumnFormat:
     ``format``: json, python-literal, delimited or scalar, as detected (or forced); ``primary``: the grammar a
     nested cell is read with first; ``mixed``: whether cells of the other grammar are values (enough of them
     among the first rows) rather than malformed cells; ``separator`` and ``join_separator``: a delimited
-    column's; ``encoding``: the column's ``DecodedColumn.encoding``.
+    column's; ``column_format``: the column's ``DecodedColumn.format`` (``mixed`` or ``empty`` too).
     """
 
     format: str
@@ -121,7 +121,7 @@ class ColumnFormat:
     primary: str | None = None
     mixed: bool = False
     join_separator: str | None = None
-    encoding: str = "scalar"
+    column_format: str = "scalar"
 
 
 def excerpt(text: str, position: int | None, width: int = 24) -> str:
@@ -796,7 +796,7 @@ def decode_column(name: str, cells: list, lines: list[int], file: str,
 
     Example:
         >>> c = decode_column("people", ["[{'id': 1}]", "", "[{'id': 2}, {'id': 3}]"], [2, 3, 4], "x.csv")
-        >>> c.encoding, c.values
+        >>> c.format, c.values
         ('python-literal', [[{'id': 1}], None, [{'id': 2}, {'id': 3}]])
     """
     with paused_gc():
@@ -907,9 +907,9 @@ def _decode_column(name: str, cells: list, lines: list[int], file: str, limits: 
                 quarantine(text_rows[k], texts[k],
                            CellError(f"plain text in a {primary} column", 1))
                 counts["text"] -= 1
-        encoding = fmt
+        column_format = fmt
     elif fmt == "delimited":
-        encoding = "delimited"
+        column_format = "delimited"
         sep = sep or detect_separator(texts) or "|"
         join_sep = decided.join_separator if decided is not None else join_separator_of(raws, sep)
         # every text cell not given back by joining its values is kept as written ("None", "  " too)
@@ -934,7 +934,7 @@ def _decode_column(name: str, cells: list, lines: list[int], file: str, limits: 
                     layout[row] = None
             counts["delimited" if parts else "empty"] += 1
     else:
-        encoding = "scalar"
+        column_format = "scalar"
         for k, text in enumerate(raws):
             try:
                 check_limits(text, limits)
@@ -944,22 +944,22 @@ def _decode_column(name: str, cells: list, lines: list[int], file: str, limits: 
             values[text_rows[k]] = text
             counts["scalar"] += 1
     if decided is not None:
-        encoding = decided.encoding
-    elif counts.get("json") and encoding == "scalar" and not texts:
-        encoding = "json"  # JSON Lines fields that arrived decoded
-    elif counts.get("json") and encoding in ("scalar", "python-literal") and texts:
-        if encoding == "python-literal" or counts["scalar"]:
-            encoding = "mixed"
+        column_format = decided.column_format
+    elif counts.get("json") and column_format == "scalar" and not texts:
+        column_format = "json"  # JSON Lines fields that arrived decoded
+    elif counts.get("json") and column_format in ("scalar", "python-literal") and texts:
+        if column_format == "python-literal" or counts["scalar"]:
+            column_format = "mixed"
     if decided is None and not any(v for k, v in counts.items() if k not in ("empty", "invalid")) \
             and not counts.get("invalid"):
-        encoding = "empty"
-    if encoding == "json" or encoding == "delimited":
+        column_format = "empty"
+    if column_format == "json" or column_format == "delimited":
         impure = set()
-    column = DecodedColumn(name, encoding, values, quarantined,
-                           {k: v for k, v in sorted(counts.items()) if v}, sep if encoding == "delimited" else None,
+    column = DecodedColumn(name, column_format, values, quarantined,
+                           {k: v for k, v in sorted(counts.items()) if v}, sep if column_format == "delimited" else None,
                            forced=bool(forced), impure=impure,
-                           decision=decided or ColumnFormat(detected, sep, primary, mixed, join_sep, encoding))
-    if encoding == "delimited":
+                           decision=decided or ColumnFormat(detected, sep, primary, mixed, join_sep, column_format))
+    if column_format == "delimited":
         column.ambiguity = ambiguity
         column.rejoined = rejoined
         column.join_separator = join_sep
@@ -1087,7 +1087,7 @@ def _concatenated(first: DecodedColumn, rest: DecodedColumn) -> DecodedColumn:
     counts = Counter(first.format_counts) + Counter(rest.format_counts)
     layout = None if first.layout is None else first.layout + (rest.layout or [None] * len(rest.values))
     impure = None if first.impure is None or rest.impure is None else first.impure | {n + i for i in rest.impure}
-    return DecodedColumn(first.name, first.encoding, first.values + rest.values, first.quarantined + rest.quarantined,
+    return DecodedColumn(first.name, first.format, first.values + rest.values, first.quarantined + rest.quarantined,
                          dict(sorted(counts.items())), first.separator,
                          (first.ambiguity + rest.ambiguity)[:AMBIGUITY_SHOWN], first.forced,
                          first.rejoined + rest.rejoined, first.join_separator, layout, impure, first.decision)

@@ -575,3 +575,33 @@ def _keyed_expected(nested, obj: dict, identity_type, attributes):
     if items is None or not items:
         return NOT_HELD  # kept whole: its rows cannot hold it (an empty object makes no rows at all)
     return keyed_object(expect_cell(nested, items, identity_type, attributes), nested.keyed, nested.keyed_value)
+
+
+DIGEST_MODULUS = 1 << 128  # digest sums are kept modulo this
+
+
+class InputDigests:
+    """Per record table and input column: the number of non-empty cells and a running sum of their digests.
+
+    The sum is over (record key, cell digest) pairs, so it does not depend on the
+    order (or the chunks) the records come in, and it changes when any one cell does.
+    """
+
+    def __init__(self):
+        self.sums: dict[tuple[str, str], list] = {}  # (record table, column) -> [cells, sum]
+        self.records: dict[str, set] = {}  # record table -> keys of the records loaded by this build
+
+    def add(self, table: str, column: str, keys: list[int], values: list, rows: list[int],
+            impure: set | None) -> None:
+        """The cells ``values`` of the records ``keys`` (rows ``rows`` of their column); ``impure``: the rows
+        whose value may hold what JSON has not (``DecodedColumn.impure``; None: any)."""
+        self.records.setdefault(table, set()).update(keys)
+        entry = self.sums.setdefault((table, column), [0, 0])
+        total = entry[1]
+        n = 0
+        for sk, v, i in zip(keys, values, rows):
+            if v is not None:
+                total += keyed_digest(sk, v, impure is not None and i not in impure)
+                n += 1
+        entry[0] += n
+        entry[1] = total % DIGEST_MODULUS

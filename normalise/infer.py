@@ -836,7 +836,7 @@ def infer_plan(exports: list, decoded: dict, options: Options | None = None):
         names = Namer([record.key_column])
         for name, col in columns.items():
             shape = "scalar"
-            if col.encoding not in ("scalar", "empty"):
+            if col.format not in ("scalar", "empty"):
                 shape = shape_of(col.values)
             if shape == "scalar":
                 t = scalar_column_type(col.values)
@@ -855,7 +855,7 @@ def infer_plan(exports: list, decoded: dict, options: Options | None = None):
                     shape = "object-list"
             if shape == "scalar-list":
                 nested.kind = "value-list"
-                if col.encoding == "delimited":
+                if col.format == "delimited":
                     nested.separator = col.join_separator or col.separator or ""
                 else:
                     nested.value_type = list_value_type(col.values)

@@ -72,7 +72,7 @@ def find_relation(main: Export, main_key: str, other: Export, decoded: dict) -> 
     keys = set(_key_values(main, decoded, main_key))
     best = None
     for name, col in decoded[other.path].items():
-        if col.encoding not in ("scalar",):
+        if col.format not in ("scalar",):
             continue
         values = {v for v in _key_values(other, decoded, name) if v is not None}
         if not values:
@@ -99,7 +99,7 @@ def join(exports: list[Export], decoded: dict, options: JoinOptions, natural_key
     main_cols = decoded[main.path]
     main_key = natural_keys.get(main.name)
     if main_key is None:
-        types = {n: scalar_column_type(c.values) for n, c in main_cols.items() if c.encoding in ("scalar", "empty")}
+        types = {n: scalar_column_type(c.values) for n, c in main_cols.items() if c.format in ("scalar", "empty")}
         main_key = detect_natural_key(list(types), {n: main_cols[n].values for n in types}, types)
     if main_key is None:
         if options.on:
@@ -122,7 +122,7 @@ def join(exports: list[Export], decoded: dict, options: JoinOptions, natural_key
             if right_col not in decoded[other.path]:
                 raise UsageError(f"--join {other.name}.{right_col}: {other.path} has no column {right_col!r} "
                                  f"(columns: {', '.join(other.columns)})")
-            if decoded[other.path][right_col].encoding not in ("scalar", "empty"):
+            if decoded[other.path][right_col].format not in ("scalar", "empty"):
                 raise UsageError(f"--join {other.name}.{right_col}: that column holds nested values, not keys; "
                                  "name the column of plain values that holds the main file's keys")
         else:
@@ -207,7 +207,7 @@ def _join_one(result: Joined, combined: JoinedExport, combined_cols: dict, main:
         if source.layout is not None:
             layout = ([None if j is None else source.layout[j] for j in index] + [None] * padding
                       + [source.layout[j] for j in extra_rows])
-        combined_cols[new] = DecodedColumn(new, source.encoding, values, source.quarantined,
+        combined_cols[new] = DecodedColumn(new, source.format, values, source.quarantined,
                                            source.format_counts, source.separator, source.ambiguity,
                                            source.forced, source.rejoined, source.join_separator, layout)
     if extra_rows:
@@ -284,7 +284,7 @@ def _link_many(result: Joined, main: Export, main_key: str, other: Export, right
                           rows_unmatched=len(unmatched))
     columns = {}
     for name, col in decoded[other.path].items():
-        columns[name] = DecodedColumn(name, col.encoding, [col.values[j] for j in keep], col.quarantined,
+        columns[name] = DecodedColumn(name, col.format, [col.values[j] for j in keep], col.quarantined,
                                       col.format_counts, col.separator, col.ambiguity, col.forced, col.rejoined,
                                       col.join_separator,
                                       None if col.layout is None else [col.layout[j] for j in keep])

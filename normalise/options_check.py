@@ -156,7 +156,7 @@ def _columns(exports: list, decoded: dict, join_options) -> list[_Column]:
                 # columns are named by these options (and a detected join key, left out by the join, is scalar)
                 new = name if name not in taken else f"{export.name}_{name}"
                 taken.add(new)
-                if decoded[export.path][name].encoding not in ("scalar", "empty"):
+                if decoded[export.path][name].format not in ("scalar", "empty"):
                     column.names |= {(None, new), (export.name, new), (main.name, new)}
                     column.members.add((export.name, new))
             out.append(column)

@@ -283,7 +283,7 @@ def _late(export, decoded: dict, windows: dict[str, tuple[int, int]], sample: in
     """What the run says of columns with no value in the first records (the manifest's ``widened``):
     ``windows`` holds each one's first value's position in ``export`` and the records from it that joined the
     sample."""
-    return [{"column": c, "file": export.path, "first_value_line": export.lines[j], "format": decoded[c].encoding,
+    return [{"column": c, "file": export.path, "first_value_line": export.lines[j], "format": decoded[c].format,
              "records": size, "first_records": sample} for c, (j, size) in sorted(windows.items())]
 
 

@@ -13,6 +13,7 @@ import json
 import os
 import tempfile
 from contextlib import nullcontext
+from typing import NamedTuple
 from pathlib import Path
 
 from .build import InMemory, build_partitions, check_width, occurrence_columns, reference_values
@@ -20,7 +21,7 @@ from .check import check_plan, check_rows
 from .decode import paused_gc
 from .errors import NotClean, speaks_to_callers
 from .infer import Options, infer_plan
-from .join import JoinOptions
+from .join import Joined, JoinOptions
 from .literal import Limits
 from .names import quote_name
 from .option_values import check_values
@@ -28,6 +29,7 @@ from .outputs import check_paths, destination_lock, lock_path, staged_outputs, w
 from .partition import open_inputs
 from .progress import QUIET, Phases
 from .prove import LossDetected, loss_message, prove, sqlite_fetch
+from .plan import Plan
 from .planfile import join_settings, plan_from_doc, plan_to_toml, read_plan
 from .report import manifest
 from .result import Built
@@ -76,12 +78,22 @@ def _open(paths: list[str], *, options: Options | None, limits: Limits, formats:
     return plan, inputs
 
 
+class Prepared(NamedTuple):
+    """What ``prepare`` hands back: the plan and the inputs it was made from, read whole."""
+
+    plan: Plan
+    exports: list  # read.Export of each input, after the join
+    decoded: dict  # export's path -> {column: decode.DecodedColumn}
+    joined: Joined  # the join's set-aside and unmatched rows and its counts
+
+
 @speaks_to_callers
 def prepare(paths: list[str], *, options: Options | None = None, limits: Limits = Limits(),
             formats: dict | None = None, encoding: str | None = None, delimiter: str | None = None,
             join_options: JoinOptions | None = None, picks: list[str] | None = None,
-            plan_path: str | None = None, header: bool = True):
-    """Read, decode, join and plan, all in memory: ``(plan, exports, decoded, joined)``.
+            plan_path: str | None = None, header: bool = True) -> Prepared:
+    """Read, decode, join and plan, all in memory: a ``Prepared`` (the plan, the exports, their decoded columns
+    and the join's outcome).
 
     With ``plan_path`` the plan comes from that file, checked against the data.
     """
@@ -91,7 +103,7 @@ def prepare(paths: list[str], *, options: Options | None = None, limits: Limits 
                          delimiter=delimiter, join_options=join_options, picks=picks, plan_path=plan_path,
                          header=header)
     joined = inputs.joined
-    return plan, joined.exports, joined.decoded, joined
+    return Prepared(plan, joined.exports, joined.decoded, joined)
 
 
 @speaks_to_callers
@@ -100,7 +112,8 @@ def make_plan(paths: str | os.PathLike | list[str], output: str | None = None, *
     paths = path_list(paths)
     if output:
         check_paths([("input", p) for p in paths] + [("--plan", kwargs.get("plan_path"))], [("-o", output)])
-    plan, _, _, joined = prepare(paths, **kwargs)
+    prepared = prepare(paths, **kwargs)
+    plan, joined = prepared.plan, prepared.joined
     s = joined.settings
     on = {Path(j["right"]).stem: (j["on"][0][1], None) for j in joined.joins}
     text = plan_to_toml(plan, {"how": s.how, "cardinality": s.cardinality, "separate": s.separate, "on": on})

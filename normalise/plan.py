@@ -53,7 +53,7 @@ META_TABLES = {
     # every name taken from the data (file, header, object key) and the SQL name it was given
     "name_map": MetaTable("names", (("table_name", "text", False), ("column_name", "text", True),
                                     ("name_in_input", "text", False), ("found_in", "text", False))),
-    # what the data dictionary says of every table, view and column (dictionary.descriptions); SQLite keeps no
+    # what the data dictionary says of every table, view and column (describe.descriptions); SQLite keeps no
     # comments, PostgreSQL has them also as COMMENT ON
     "descriptions": MetaTable("descriptions", (("table_name", "text", False), ("column_name", "text", True),
                                                ("description", "text", False))),

@@ -632,7 +632,7 @@ def _nested_from(text: str, n: dict, columns: dict, handles: dict, plan: Plan) -
         nested.value_type = value_type
         nested.references = str(n.get("references", ""))
     decoded = columns.get(column) if "path" not in n else None
-    if kind == "value-list" and getattr(decoded, "encoding", None) == "delimited":
+    if kind == "value-list" and decoded is not None and decoded.format == "delimited":
         nested.separator = str(n.get("separator", decoded.join_separator or decoded.separator or ""))
     return nested
 

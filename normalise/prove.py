@@ -17,44 +17,15 @@ import sqlite3
 from operator import itemgetter
 
 from .errors import NormaliseError
-from .exact import (ABSENT, from_literal, keyed_digest, keyed_object, object_back, pointer, pointer_keys, put, same,
-                    stored_back)
+from .exact import (ABSENT, DIGEST_MODULUS, InputDigests, from_literal, keyed_digest, keyed_object, object_back,
+                    pointer, pointer_keys, put, same, stored_back)
 from .names import quote_name as _q
 from .plan import TEXT_TYPES
 from .schema import record_parts
 
-_MOD = 1 << 128
-
 
 class LossDetected(NormaliseError):
     """A value rebuilt from the database differs from the value in the export."""
-
-
-class InputDigests:
-    """Per record table and input column: the number of non-empty cells and a running sum of their digests.
-
-    The sum is over (record key, cell digest) pairs, so it does not depend on the
-    order (or the chunks) the records come in, and it changes when any one cell does.
-    """
-
-    def __init__(self):
-        self.sums: dict[tuple[str, str], list] = {}  # (record table, column) -> [cells, sum]
-        self.records: dict[str, set] = {}  # record table -> keys of the records loaded by this build
-
-    def add(self, table: str, column: str, keys: list[int], values: list, rows: list[int],
-            impure: set | None) -> None:
-        """The cells ``values`` of the records ``keys`` (rows ``rows`` of their column); ``impure``: the rows
-        whose value may hold what JSON has not (``DecodedColumn.impure``; None: any)."""
-        self.records.setdefault(table, set()).update(keys)
-        entry = self.sums.setdefault((table, column), [0, 0])
-        total = entry[1]
-        n = 0
-        for sk, v, i in zip(keys, values, rows):
-            if v is not None:
-                total += keyed_digest(sk, v, impure is not None and i not in impure)
-                n += 1
-        entry[0] += n
-        entry[1] = total % _MOD
 
 
 def table_query(table: str) -> str:
@@ -292,7 +263,7 @@ def _sums(plan, fetch, keys: set, records: dict) -> dict:
             if sk in loaded:
                 got += keyed_digest(sk, v, not whole and (key[0], key[1], sk) not in impure)
                 n += 1
-        out[key] = (n, got % _MOD)
+        out[key] = (n, got % DIGEST_MODULUS)
     return out
 
 

@@ -29,7 +29,8 @@ from pathlib import Path
 
 import networkx as nx
 
-from .catalog import HEAD_ROWS, NOT_APPLICABLE, owner_fk, read_database, source_label
+from .catalog import HEAD_ROWS, NOT_APPLICABLE, read_database
+from .describe import owner_fk, source_label
 from .dictionary import render_dictionary
 from .errors import EXIT_USAGE, NormaliseError
 from .escapes import clean

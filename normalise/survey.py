@@ -25,13 +25,13 @@ def survey_column(export: Export, column: DecodedColumn) -> dict:
     values = column.values
     rows = len(values)
     filled = sum(v is not None for v in values)
-    entry: dict = {"name": column.name, "encoding": column.encoding,
+    entry: dict = {"name": column.name, "format": column.format,
                    "fill_rate": round(filled / rows, 4) if rows else 0.0,
                    "format_counts": column.format_counts,
                    "quarantined": len(column.quarantined)}
     if column.name != export.header_names.get(column.name, column.name):
         entry["name_in_file"] = export.header_names[column.name]
-    if column.encoding in ("scalar", "empty"):
+    if column.format in ("scalar", "empty"):
         entry["shape"] = "scalar"
         entry["type"] = scalar_type([v for v in values if v is not None])
     else:
@@ -43,7 +43,7 @@ def survey_column(export: Export, column: DecodedColumn) -> dict:
             entry["identity_candidates"] = [c.to_json() for c in identity_candidates(objects, owners)]
     if column.separator is not None:
         entry["separator"] = column.separator
-    if column.encoding == "delimited":
+    if column.format == "delimited":
         entry["rejoined"] = column.rejoined  # values that kept a name suffix ("Carl Dole, Jr.")
     if column.ambiguity:
         entry["ambiguous"] = True
@@ -64,7 +64,7 @@ def survey(paths, *, limits: Limits = Limits(), formats: dict | None = None,
         >>> d = tempfile.mkdtemp(); p = os.path.join(d, "t.csv")
         >>> _ = open(p, "w").write("id,people\\n1,\\"[{'id': 7, 'name': 'Ann'}]\\"\\n")
         >>> col = survey([p])["files"][0]["columns"][1]
-        >>> col["encoding"], col["shape"], col["identity_candidates"][0]["field"]
+        >>> col["format"], col["shape"], col["identity_candidates"][0]["field"]
         ('python-literal', 'object-list', 'id')
     """
     if isinstance(paths, (str, os.PathLike)):  # one path (never its characters) or many
@@ -99,7 +99,7 @@ def _reference_evidence(surveyed: list, files: list[dict]) -> None:
     of a file (``references`` in the entry), the evidence a build goes by to make it a foreign key."""
     keys, key_columns, key_of = {}, {}, {}
     for export, columns in surveyed:
-        types = {n: scalar_column_type(c.values) for n, c in columns.items() if c.encoding in ("scalar", "empty")}
+        types = {n: scalar_column_type(c.values) for n, c in columns.items() if c.format in ("scalar", "empty")}
         key = detect_natural_key(list(types), {n: columns[n].values for n in types}, types)
         if key:
             keys[export.name] = reference_texts(columns[key].values, False)
@@ -134,10 +134,10 @@ def render(result: dict) -> str:
         if f["rejected_rows"] > len(f["rejected"]):
             out.append(f"  ... and {f['rejected_rows'] - len(f['rejected'])} more rejected rows")
         for c in f["columns"]:
-            if c["encoding"] in ("scalar", "empty"):
+            if c["format"] in ("scalar", "empty"):
                 head = f"  {c['name']}: {c['type']}"
             else:
-                head = f"  {c['name']}: {c['encoding']} {c['shape']}"
+                head = f"  {c['name']}: {c['format']} {c['shape']}"
             head += f", filled {c['fill_rate']:.0%}"
             if "list_length" in c:
                 ll = c["list_length"]
@@ -145,7 +145,7 @@ def render(result: dict) -> str:
             if c.get("separator"):
                 head += f", separator {c['separator']!r}"
             out.append(head)
-            if c["encoding"] == "mixed":
+            if c["format"] == "mixed":
                 counts = ", ".join(f"{k} {v}" for k, v in c["format_counts"].items())
                 out.append(f"      mixed formats: {counts}")
             for k in c.get("keys", []):

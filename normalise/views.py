@@ -47,14 +47,28 @@ class View:
 
 def display_column(table: Table) -> str:
     """The column that names an entity for people: a name-like text column, else its natural key."""
-    names = {c.name: c for c in table.columns}
+    return name_column([(c.name, c.type) for c in table.columns], table.primary_key, table.natural_key)
+
+
+def name_column(columns: list[tuple[str, str]], primary_key: list[str], natural_key: list[str]) -> str:
+    """Of a table's ``(name, type)`` columns, the one that names a row for people: a name-like text column,
+    else the natural key's first column, else the primary key's (the views, the report and the data dictionary
+    all choose by this).
+
+    Example:
+        >>> name_column([("person_sk", "integer"), ("login", "text")], ["person_sk"], [])
+        'login'
+    """
+    names = {name for name, _ in columns}
     for wanted in _DISPLAY_NAMES:
         if wanted in names:
             return wanted
-    for c in table.columns:
-        if c.type == "text" and c.name not in table.primary_key and c.name.endswith("name"):
-            return c.name
-    return table.natural_key[0] if table.natural_key else table.primary_key[0]
+    for name, type_ in columns:
+        if type_ == "text" and name not in primary_key and name.endswith("name"):
+            return name
+    if natural_key:
+        return natural_key[0]
+    return primary_key[0] if primary_key else columns[0][0]
 
 
 def _bridge_entity(plan: Plan, bridge: Table) -> Table:

@@ -18,6 +18,7 @@ from pathlib import Path
 import sqlalchemy as sa
 from sqlalchemy import event
 
+from .describe import descriptions
 from .errors import EXIT_DESTINATION, EXIT_USAGE, NormaliseError
 from .escapes import SURROGATE as _SURROGATE, printable
 from .plan import META_ROLES, Plan
@@ -755,11 +756,9 @@ def column_notes(forms: dict, kept: dict, plan: Plan) -> dict[tuple[str, str], s
 
 
 def _pg_comment(cursor, schema: str, plan: Plan, forms: dict, kept: dict) -> None:
-    """COMMENT ON every table, view and column: what the data dictionary says of it (``dictionary.descriptions``,
+    """COMMENT ON every table, view and column: what the data dictionary says of it (``describe.descriptions``,
     made from the plan, as the ``descriptions`` table holds it), with a note on each date and timestamp column."""
     from psycopg import sql
-
-    from .dictionary import descriptions
 
     views = {v.name for v in plan.views}
     notes = column_notes(forms, kept, plan)

@@ -280,7 +280,7 @@ def test_both_readers_give_the_same_column(cells, fmt, raw_surrogates):
             cols.append(decode_column("c", cells, lines, "t.csv", Limits(max_depth=8, max_cell_chars=200),
                                       forced=(fmt, None) if fmt else None, raw_surrogates=raw_surrogates))
     assert [str(q) for q in cols[0].quarantined] == [str(q) for q in cols[1].quarantined]
-    assert cols[0].encoding == cols[1].encoding and cols[0].format_counts == cols[1].format_counts
+    assert cols[0].format == cols[1].format and cols[0].format_counts == cols[1].format_counts
     assert all(strict_equal(a, b) for a, b in zip(cols[0].values, cols[1].values))
 
 

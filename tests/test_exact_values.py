@@ -54,7 +54,7 @@ def given_back(col: DecodedColumn, i: int) -> str:
 
 
 def assert_given_back(col: DecodedColumn, cells: list) -> None:
-    assert col.encoding == "delimited"
+    assert col.format == "delimited"
     assert len(col.layout) == len(col.values) == len(cells)
     for i, cell in enumerate(cells):
         if isinstance(cell, str):
@@ -75,7 +75,7 @@ def test_python_strip_removes_unicode_spaces():
 def test_scalar_cells_keep_their_surrounding_whitespace():
     cells = ["  Ann ", "\tBo", "Cy\u00a0", "\u3000Di\u3000", "Ed", " 7 "]
     col = column(cells)
-    assert col.encoding == "scalar"
+    assert col.format == "scalar"
     assert col.values == cells
 
 
@@ -95,7 +95,7 @@ def test_json_cell_with_whitespace_around_decodes_and_strings_inside_keep_theirs
     # reference: RFC 8259 section 2 (insignificant whitespace around a JSON text); json.loads
     cells = [' [1] ', '\t["  a ", "b\u00a0", "\u3000c"]\n', '{"k": " v "}', '[" "]']
     col = column(cells)
-    assert col.encoding == "json"
+    assert col.format == "json"
     assert col.values == [json.loads(c) for c in cells]
     assert col.values[1] == ["  a ", "b\u00a0", "\u3000c"]
 
@@ -103,7 +103,7 @@ def test_json_cell_with_whitespace_around_decodes_and_strings_inside_keep_theirs
 def test_python_literal_strings_inside_keep_their_spaces():
     # reference: ast.literal_eval
     col = column(["  [' a ', 'b ']", "[{'name': ' Ann'}]", "['x']"])
-    assert col.encoding == "python-literal"
+    assert col.format == "python-literal"
     assert col.values == [[" a ", "b "], [{"name": " Ann"}], ["x"]]
 
 
@@ -114,7 +114,7 @@ def test_python_literal_strings_inside_keep_their_spaces():
 def test_marker_strings_inside_nested_values_are_strings(fmt, cells):
     # reference: json.loads / ast.literal_eval; the empty markers are for whole cells only
     col = column(cells)
-    assert col.encoding == fmt
+    assert col.format == fmt
     assert col.values[0] == ["None", "null", "nan", "", "[]", "{}"][:len(col.values[0])]
     assert col.values[1] == {"a": "null", "b": "None"}
     assert col.values[2][1] in ("null", "None") and col.values[2][0] is None
@@ -157,7 +157,7 @@ EMOTICONS = [":)", ";)", ":(", ":D", ";-)", ":-(", ";P", ":o", ":)", ";)"]
 
 def test_emoticons_stay_text():
     col = column(EMOTICONS * 3)
-    assert col.encoding == "scalar" and col.separator is None
+    assert col.format == "scalar" and col.separator is None
     assert col.values == EMOTICONS * 3  # ";)" is ";)", never ")"
     assert detect_separator(EMOTICONS) is None
 
@@ -179,7 +179,7 @@ NAMES = ["Ann Lee, Bo Chen", "Cy Young, Di Park, Ed Moss", "Flo Ng, Gus Hale", "
 
 def test_person_names_that_never_repeat_are_a_list():
     col = column(NAMES)
-    assert col.encoding == "delimited" and col.separator == ","
+    assert col.format == "delimited" and col.separator == ","
     assert col.values[0] == ["Ann Lee", "Bo Chen"] and col.values[3] == ["Hal Roe"]
     assert col.join_separator == ", "
     assert all(entry is None for entry in col.layout)
@@ -189,14 +189,14 @@ def test_pairs_of_names_are_a_list():
     cells = [f"{a} Lee, {b} Chen" for a, b in zip("Ann Bo Cy Di Ed Flo Gus Hal Ivy Jo".split(),
                                                   "Kit Lou Max Ned Oz Pam Quin Rex Sue Tom".split())]
     col = column(cells)
-    assert col.encoding == "delimited" and all(len(v) == 2 for v in col.values)
+    assert col.format == "delimited" and all(len(v) == 2 for v in col.values)
 
 
 def test_file_extensions_are_a_list():
     cells = [".csv;.tsv", ".json;.jsonl;.ndjson", ".txt", ".md;.rst", ".xml;.xsd;.xsl", ".py;.pyi",
              ".c;.h", ".toml;.ini;.cfg", ".png;.jpg"]
     col = column(cells)
-    assert col.encoding == "delimited" and col.separator == ";"
+    assert col.format == "delimited" and col.separator == ";"
     assert col.values[1] == [".json", ".jsonl", ".ndjson"] and col.values[2] == [".txt"]
 
 
@@ -205,7 +205,7 @@ def test_keywords_that_rarely_repeat_are_a_list():
              "number theory, cryptography", "fluid dynamics, turbulence, chaos", "optics, lasers",
              "genomics, proteomics", "ecology, climate models, oceanography"]
     col = column(cells)
-    assert col.encoding == "delimited" and col.values[0] == ["machine learning", "statistics"]
+    assert col.format == "delimited" and col.values[0] == ["machine learning", "statistics"]
 
 
 @pytest.mark.parametrize("cells", [
@@ -219,7 +219,7 @@ def test_keywords_that_rarely_repeat_are_a_list():
 ])
 def test_prose_with_commas_stays_text(cells):
     col = column(cells)
-    assert col.encoding == "scalar", col.values
+    assert col.format == "scalar", col.values
     assert col.values == cells
 
 
@@ -257,7 +257,7 @@ def test_rejoined_values_are_counted_and_reported(tmp_path, capsys):
     cells = ["Carl Dole, Jr., Ann Lee", "Ann Lee, Bo Chen", "Bo Chen, Dee Fox, Sr., Carl Dole, Jr.",
              "Dee Fox, Ann Lee", "Ed Moss, PhD", "Ann Lee"]
     col = column(cells)
-    assert col.encoding == "delimited"
+    assert col.format == "delimited"
     assert col.values[2] == ["Bo Chen", "Dee Fox, Sr.", "Carl Dole, Jr."]
     assert col.rejoined == 4  # one per value holding a suffix
     assert all("kept with the value before it" in a for a in col.ambiguity)
@@ -309,7 +309,7 @@ _PIECES = st.sampled_from(["a", "Bo", "Jr.", "II", "MD", " ", "  ", "\u00a0", "\
 @example(['a\n"b|c', '""|"', " a | b "], "|")
 def test_every_cell_is_given_back(cells, sep):
     col = column(cells, forced=("delimited", sep))
-    if col.encoding == "empty":  # no cell held a value
+    if col.format == "empty":  # no cell held a value
         assert col.values == [None] * len(cells)
         return
     for i, cell in enumerate(cells):
@@ -324,7 +324,7 @@ def test_demo_delimited_cells_are_given_back(tmp_path):
     for name in ("titles.csv", "contributions.csv"):
         export = read(tmp_path / name)
         for col in decode_module.decode(export).values():
-            if col.encoding == "delimited":
+            if col.format == "delimited":
                 found += 1
                 assert_given_back(col, export.cells[col.name])
     assert found  # the demo's formats column

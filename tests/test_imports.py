@@ -26,7 +26,7 @@ LAYERS = [  # bottom first
     ("read", {"read"}),
     ("decode", {"decode"}),
     ("infer", {"infer", "schema", "views", "join", "sharing", "options_check", "option_values", "planfile",
-               "partition", "survey"}),
+               "partition", "survey", "describe"}),
     ("build", {"build", "append"}),
     ("check", {"check", "prove"}),
     ("write", {"write"}),
@@ -34,11 +34,7 @@ LAYERS = [  # bottom first
     ("run", {"pipeline", "cli", "__init__", "__main__"}),
 ]
 
-UPWARD = {  # (importer, imported): known imports up the layers, to remove (issue 14)
-    ("build", "prove"),  # the build computes the inputs' digests the proof compares (prove.InputDigests)
-    ("build", "dictionary"),  # the descriptions table's text (dictionary.descriptions, from the plan)
-    ("write", "dictionary"),  # the same text as PostgreSQL comments
-}
+UPWARD: set = set()  # (importer, imported): imports up the layers; none is left (issue 14)
 
 
 def imports() -> nx.DiGraph:

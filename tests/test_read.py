@@ -293,7 +293,7 @@ def test_header_only_file(tmp_path, text):
     result = survey([str(tmp_path / "t.csv")])["files"][0]
     assert result["rows"] == 0
     assert [c["name"] for c in result["columns"]] == ["id", "name"]
-    assert all(c["encoding"] == "empty" for c in result["columns"])
+    assert all(c["format"] == "empty" for c in result["columns"])
 
 
 def test_missing_file_and_directory_are_errors(tmp_path):
@@ -344,11 +344,11 @@ def test_json_lines_fields_holding_lists_or_objects_count_as_decoded(tmp_path):
                                "meta": {"n": i}}) + "\n" for i in range(6))
     path = write(tmp_path, "t.jsonl", text)
     columns = decode(read(path))
-    assert columns["people"].encoding == "json"
+    assert columns["people"].format == "json"
     assert columns["people"].values[0] == [{"pid": 0, "name": "N0"}]
     assert columns["people"].format_counts == {"json": 6}
-    assert columns["meta"].encoding == "json"
-    assert columns["id"].encoding == "scalar"
+    assert columns["meta"].format == "json"
+    assert columns["id"].format == "scalar"
     entry = {c["name"]: c for c in survey([path])["files"][0]["columns"]}
     assert entry["people"]["shape"] == "object-list"
     assert entry["meta"]["shape"] == "object"

@@ -136,7 +136,7 @@ def test_survey_json_structure(demo_json, demo):
         assert isinstance(entry["columns"], list)
         for column in entry["columns"]:
             assert isinstance(column["name"], str)
-            assert isinstance(column["encoding"], str)
+            assert isinstance(column["format"], str)
             assert isinstance(column["shape"], str)
             assert isinstance(column["quarantined"], int)
 
@@ -150,16 +150,16 @@ def test_survey_function_and_cli_agree(demo, demo_json):
 def test_nested_columns_encoding_and_shape(demo_json):
     columns = columns_of(file_entry(demo_json, "contributions.csv"))
     assert list(columns) == ["title_key", *NESTED]
-    assert columns["title_key"]["encoding"] == "scalar"
+    assert columns["title_key"]["format"] == "scalar"
     for name, (encoding, shape, separator) in NESTED.items():
-        assert (columns[name]["encoding"], columns[name]["shape"]) == (encoding, shape), name
+        assert (columns[name]["format"], columns[name]["shape"]) == (encoding, shape), name
         assert columns[name].get("separator") == separator, name
         assert not columns[name].get("ambiguous"), name
 
 
 def test_titles_columns_are_scalars_with_types(demo_json):
     columns = columns_of(file_entry(demo_json, "titles.csv"))
-    assert {name: (c["encoding"], c["shape"]) for name, c in columns.items()} == {
+    assert {name: (c["format"], c["shape"]) for name, c in columns.items()} == {
         name: ("scalar", "scalar") for name in TITLE_TYPES}
     assert {name: c["type"] for name, c in columns.items()} == TITLE_TYPES
     assert all(c["quarantined"] == 0 for c in columns.values())
@@ -247,7 +247,7 @@ def test_decode_override_python_literal(demo, capsys):
     _out, planted, paths = demo
     result = cli_json(capsys, paths[1], "--decode", "production_team=python-literal")
     column = columns_of(result["files"][0])["production_team"]
-    assert column["encoding"] == "python-literal"
+    assert column["format"] == "python-literal"
     assert column["shape"] == "object-list"
     # Both planted production_team cells (a Python repr, a trailing comma) are
     # valid Python literals (reference: Python's ast.literal_eval).
@@ -257,14 +257,14 @@ def test_decode_override_python_literal(demo, capsys):
             ast.literal_eval(row["production_team"])
     assert column["quarantined"] == 0
     # other columns are untouched
-    assert columns_of(result["files"][0])["subjects"]["encoding"] == "json"
+    assert columns_of(result["files"][0])["subjects"]["format"] == "json"
 
 
 def test_decode_override_text(demo, capsys):
     _out, _planted, paths = demo
     result = cli_json(capsys, paths[1], "--decode", "formats=text")
     column = columns_of(result["files"][0])["formats"]
-    assert (column["encoding"], column["shape"], column["type"]) == ("scalar", "scalar", "text")
+    assert (column["format"], column["shape"], column["type"]) == ("scalar", "scalar", "text")
     assert "separator" not in column
 
 
@@ -272,7 +272,7 @@ def test_decode_override_delimiter(demo, capsys):
     _out, _planted, paths = demo
     result = cli_json(capsys, paths[1], "--decode", "formats=delimited:;")
     column = columns_of(result["files"][0])["formats"]
-    assert column["encoding"] == "delimited"
+    assert column["format"] == "delimited"
     assert column["separator"] == ";"
     # no cell holds ";", so every list has one element
     assert column["list_length"] == {"min": 1, "median": 1, "max": 1}
@@ -283,8 +283,8 @@ def test_decode_overrides_combine(demo, capsys):
     result = cli_json(capsys, paths[1], "--decode", "formats=text",
                       "--decode", "production_team=python-literal")
     columns = columns_of(result["files"][0])
-    assert columns["formats"]["encoding"] == "scalar"
-    assert columns["production_team"]["encoding"] == "python-literal"
+    assert columns["formats"]["format"] == "scalar"
+    assert columns["production_team"]["format"] == "python-literal"
 
 
 @pytest.mark.parametrize("spec", ["formats", "formats=yaml", "formats=json:;"])
@@ -317,7 +317,7 @@ def test_mixed_column_reports_counts_per_format(tmp_path, capsys):
     assert text.count("null") == 10 and text.count("None") == 10
     result = cli_json(capsys, str(path))
     column = columns_of(result["files"][0])["meta"]
-    assert column["encoding"] == "mixed"
+    assert column["format"] == "mixed"
     assert column["format_counts"] == {"json": 10, "python-literal": 10}
     assert column["quarantined"] == 0
     assert column["shape"] == "object-list"
@@ -340,7 +340,7 @@ def test_delimited_ambiguity_is_reported(tmp_path, capsys):
             writer.writerow([i, values[i % len(values)]])
     result = cli_json(capsys, str(path))
     column = columns_of(result["files"][0])["authors"]
-    assert column["encoding"] == "delimited"
+    assert column["format"] == "delimited"
     assert column["separator"] == ","
     assert column["ambiguous"] is True
     ambiguous_lines = [i + 2 for i in range(20) if i % len(values) == 0]
@@ -357,7 +357,7 @@ def test_unambiguous_delimited_column_is_not_flagged(tmp_path, capsys):
     path.write_text("id,tags\n" + "".join(f'{i},"poetry, essays, drama"\n' for i in range(10)),
                     encoding="utf-8")
     column = columns_of(cli_json(capsys, str(path))["files"][0])["tags"]
-    assert column["encoding"] == "delimited" and column["separator"] == ","
+    assert column["format"] == "delimited" and column["separator"] == ","
     assert "ambiguous" not in column
 
 
