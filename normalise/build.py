@@ -254,7 +254,7 @@ class _Audit:
     def known(self, nested: NestedColumn, entities: dict) -> frozenset:
         found = self._known.get(id(nested))
         if found is None:
-            keys = {f.path[0] for f in nested.links if f.path} | {c.path.split(".")[0] for c in nested.children}
+            keys = {f.path[0] for f in nested.row_fields if f.path} | {c.path.split(".")[0] for c in nested.children}
             if nested.identity:
                 keys.add(nested.identity)
             if nested.kind == "entity-list":
@@ -904,7 +904,7 @@ class Builder:
         objects = [values[i] if isinstance(values[i], dict) else {} for i in kept]
         lines = export.lines
         out = []
-        for f in nested.links:
+        for f in nested.row_fields:
             if f.entity:
                 out.append(self._refer(f, objects, [(lines[i], order, 0) for i in kept], lambda j, f=f: (
                     record.table, record_keys[kept[j]], None, None, nested.column, export.path, lines[kept[j]],
@@ -1096,7 +1096,7 @@ class Builder:
                        original, path, lines[rows_of[k]])
 
         known = audit.known(nested, self.entities)
-        if by_field and any(len(f.path) > 1 or f.entity for f in nested.links):
+        if by_field and any(len(f.path) > 1 or f.entity for f in nested.row_fields):
             # fields of sub-objects: a sub-object that is null, empty or holds more keys than the model cannot be
             # told from its fields, so each element is compared with what its row gives back (exact.expect_cell)
             group = self.entities[nested.entity].group if nested.kind == "entity-list" else None
@@ -1120,7 +1120,7 @@ class Builder:
                         for key in [key for key in o if key not in known]:  # no column: the value as given
                             keep(k, [key], o[key], "a key the model does not have")
         links = []
-        for f in nested.links:
+        for f in nested.row_fields:
             if f.entity:
                 links.append(self._refer(f, items, [(lines[i], order, p) for i, p in zip(rows_of, positions)],
                                          lambda j, f=f: (nested.table, keys[j], owners[j], positions[j] or None,
@@ -1364,7 +1364,7 @@ def name_map(plan: Plan) -> list[tuple]:
             if nested.table:
                 rows.append((nested.table, None, nested.column + (f".{nested.path}" if nested.path else ""), where))
             table = nested.table or record.table
-            for f in nested.links:
+            for f in nested.row_fields:
                 rows.append((table, f.column, ".".join(f.path), f"key in the objects of {where}"))
             stack.extend((nested, child) for child in nested.children)
     for group in plan.entities:
@@ -1385,7 +1385,7 @@ def entity_members(plan: Plan, entity: str) -> list[tuple]:
         if nested.kind == "entity-list" and nested.entity == entity:
             fk = next(k for k in plan.table(nested.table).foreign_keys if k.references == entity)
             out.append((nested.table, fk.columns[0], nested.column, [], path))
-        for f in nested.links:
+        for f in nested.row_fields:
             if f.entity == entity:
                 out.append((here, f.column, nested.column, list(f.path), path))
         for child in nested.children:

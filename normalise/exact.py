@@ -423,7 +423,7 @@ def expect_cell(nested, value, identity_type: str | None = None, attributes=(), 
         expected = _object_expected(nested, value, identity_type, attributes, groups)
         if kind == "object-columns" and not any(
                 (_referred(value, f, groups) if f.entity else store(get(value, f.path), f.type, f.as_text)[0])
-                is not None for f in nested.links) and not any(
+                is not None for f in nested.row_fields) and not any(
                     type(get(value, c.path.split("."))) is list and get(value, c.path.split(".")) for c in nested.children):
             return NOT_HELD  # its record's columns are all NULL: read back as no object at all
         return expected
@@ -463,13 +463,13 @@ def _referred(obj, f, groups) -> dict | None:
 
 
 def _object_expected(nested, obj: dict, identity_type, attributes, groups=None) -> dict:
-    if any(f.entity for f in nested.links):
+    if any(f.entity for f in nested.row_fields):
         stored = [_referred(obj, f, groups) if f.entity else store(get(obj, f.path), f.type, f.as_text)[0]
-                  for f in nested.links]
-        out = object_back(nested.links, stored)
+                  for f in nested.row_fields]
+        out = object_back(nested.row_fields, stored)
     else:
         out = {}
-        for f in nested.links:
+        for f in nested.row_fields:
             v = field_back(get(obj, f.path), f)
             if v is not ABSENT:
                 put(out, f.path, v)

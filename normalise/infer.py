@@ -866,7 +866,7 @@ def infer_plan(exports: list, decoded: dict, options: Options | None = None):
                 wide = len(fields) > WIDE_OBJECT_KEYS
                 nested.kind = "object-child" if wide else "object-columns"
                 refs = found.references(nested, export.name, objects, table, itself=True)
-                found.links(nested, objects, table, fields, refs, Namer() if wide else names,
+                found.row_fields(nested, objects, table, fields, refs, Namer() if wide else names,
                             "" if wide else name + "_")
                 nested.children = _child_lists(export.name, name, objects, lists, table, found)
             else:
@@ -890,7 +890,7 @@ def infer_plan(exports: list, decoded: dict, options: Options | None = None):
                                                  f"{nested.file}:{nested.column}", nested.column))
                 fields, lists = scalar_fields(objects, table=table)
                 refs = found.references(nested, export.name, objects, table)
-                found.links(nested, objects, table, fields, refs, Namer(["list_position"] if wanted else []), "")
+                found.row_fields(nested, objects, table, fields, refs, Namer(["list_position"] if wanted else []), "")
                 nested.children = _child_lists(export.name, name, objects, lists, table, found)
             record.nested.append(nested)
         chosen = options.natural_keys.get(export.name)
@@ -907,7 +907,7 @@ def infer_plan(exports: list, decoded: dict, options: Options | None = None):
 
     found.settle()
     _group_entities(plan, found.members, options, tables)
-    found.make_links(plan)
+    found.make_row_fields(plan)
     for record in plan.records:
         owner = singular(record.table)
         for nested in record.nested:
@@ -998,7 +998,7 @@ def _child_lists(file: str, column: str, objects: list[dict], lists: list[list[s
             sub_table = ObjectTable(items)
             fields, sub = scalar_fields(items, table=sub_table)
             if found is None:
-                nested.links = _field_maps(items, fields, Namer(), sub_table)
+                nested.row_fields = _field_maps(items, fields, Namer(), sub_table)
             else:
                 owners = [k for k, v in enumerate(inner) for x in v if x is not None]
                 wanted = found.identity_of(nested, file, owners, items, sub_table)
@@ -1007,7 +1007,7 @@ def _child_lists(file: str, column: str, objects: list[dict], lists: list[list[s
                     found.members.append(_Member(nested, sub_table, wanted, False, found.name_of(nested),
                                                  path[-1]))
                 refs = found.references(nested, file, items, sub_table)
-                found.links(nested, items, sub_table, fields, refs, Namer(["list_position"] if wanted else []),
+                found.row_fields(nested, items, sub_table, fields, refs, Namer(["list_position"] if wanted else []),
                             "")
             nested.children = _child_lists(file, column + "." + ".".join(path), items, sub, sub_table, found)
         else:
@@ -1034,7 +1034,7 @@ class _Found:
     """Entities wherever they are, collected while the columns are read; links made once attributes are known.
 
     The fields an entity's table holds (its identity and attributes) are not columns of the rows that refer
-    to it, so the rows' columns (``NestedColumn.links``) are made after the entities are grouped.
+    to it, so the rows' columns (``NestedColumn.row_fields``) are made after the entities are grouped.
     """
 
     def __init__(self, options: "Options"):
@@ -1114,13 +1114,13 @@ class _Found:
             return ""  # {"de": ..., "id": ...}: keyed by codes, its "id" a language, not an identity
         return self.identity_of(nested, file, list(range(len(objects))), objects, table) if objects else ""
 
-    def links(self, nested, objects, table, fields, refs, names: Namer, prefix: str) -> None:
+    def row_fields(self, nested, objects, table, fields, refs, names: Namer, prefix: str) -> None:
         if not refs and nested.kind != "entity-list":
-            nested.links = [field_map(objects, p, names(prefix + "_".join(p)), table) for p in fields]
+            nested.row_fields = [field_map(objects, p, names(prefix + "_".join(p)), table) for p in fields]
             return
         self.pending.append((nested, objects, table, fields, refs, names, prefix))
 
-    def make_links(self, plan) -> None:
+    def make_row_fields(self, plan) -> None:
         """Each row's columns: references first (the entity's key), then the fields no entity table holds."""
         for nested, objects, table, fields, refs, names, prefix in self.pending:
             held = set()
@@ -1131,7 +1131,7 @@ class _Found:
                 group = plan.entity_group(ref.entity)
                 held |= {tuple(ref.path + [group.identity])} | {tuple(ref.path + f.path) for f in group.attributes}
                 ref.column = names(prefix + "_".join(ref.path + ["sk"]))
-            nested.links = list(refs) + [field_map(objects, p, names(prefix + "_".join(p)), table)
+            nested.row_fields = list(refs) + [field_map(objects, p, names(prefix + "_".join(p)), table)
                                          for p in fields if tuple(p) not in held]
 
 
@@ -1173,7 +1173,7 @@ def _free_key_names(plan, nested, owner_key: str) -> None:
         if nested.kind == "entity-list":
             taken.add(f"{nested.entity}_sk")
         names = Namer(sorted(taken))
-        for f in nested.links:
+        for f in nested.row_fields:
             f.column = names(f.column)
     for child in nested.children:
         _free_key_names(plan, child, f"{nested.table}_sk" if nested.table else owner_key)

@@ -137,7 +137,9 @@ class NestedColumn:
     kind: str  # entity-list | child-list | value-list | object-columns | object-child | scalar
     table: str | None = None  # bridge, child or value-bridge table
     entity: str | None = None  # entity or value table
-    links: list[FieldMap] = field(default_factory=list)  # link attributes (bridge) or fields (child)
+    # the fields kept on the rows this column makes: a bridge row's link attributes, a child row's fields, an
+    # object column's columns of the record table
+    row_fields: list[FieldMap] = field(default_factory=list)
     children: list["NestedColumn"] = field(default_factory=list)  # lists inside the objects
     path: str = ""  # path inside the record's column, for nested lists
     identity: str = ""  # identity field of an entity list

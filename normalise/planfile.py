@@ -278,7 +278,7 @@ def _nested_toml(nested: NestedColumn, header: str) -> list[str]:
              "object-columns": "record columns", "object-child": "fields"}.get(nested.kind)
     if label:
         out.append(f"fields = [  # {label}")
-        out += [f"  {_v(f)}," for f in _fields(nested.links)]
+        out += [f"  {_v(f)}," for f in _fields(nested.row_fields)]
         out.append("]")
     for child in nested.children:
         out += _nested_toml(child, header + ".children")
@@ -456,7 +456,7 @@ def plan_from_doc(doc: dict, text: str, exports: list, decoded: dict) -> Plan:
                 identity_column=nested.identity, identity_type="integer" if all(
                     isinstance(o.get(nested.identity), int) for o in objects if o.get(nested.identity) is not None)
                 else "text", attributes=[FieldMap([a], a, _type_at(objects, [a])) for a in attrs])
-            nested.links = [f for f in nested.links if f.path[0] not in attrs]
+            nested.row_fields = [f for f in nested.row_fields if f.path[0] not in attrs]
     done: set = set()  # references and inner entity lists already given their entity table
     for handle, group in handles.items():
         for record in plan.records:
@@ -475,7 +475,7 @@ def plan_from_doc(doc: dict, text: str, exports: list, decoded: dict) -> Plan:
                 nested.entity = group.table
                 group.members.append(_Found.name_of(nested))
                 done.add(id(nested))
-            for f in nested.links:
+            for f in nested.row_fields:
                 if f.entity == handle and id(f) not in done:
                     f.entity = group.table
                     group.members.append(_Found.name_of(nested, f.path))
@@ -491,7 +491,7 @@ def plan_from_doc(doc: dict, text: str, exports: list, decoded: dict) -> Plan:
                 _check_keys(text, _values(decoded[record.path][nested.column].values, nested), nested,
                             groups={g.table: g for g in plan.entities})
     for nested, _ in _inside(plan):
-        for f in nested.links:
+        for f in nested.row_fields:
             if f.entity and id(f) not in done:
                 _fail(text, f"field {'.'.join(f.path) or '(the object itself)'} of {nested.column!r} refers to "
                             f"entity {f.entity!r}, which no [[entity]] defines",
@@ -612,7 +612,7 @@ def _nested_from(text: str, n: dict, columns: dict, handles: dict, plan: Plan) -
     nested = NestedColumn(file=n.get("file", ""), column=column, kind=kind, table=n.get("table"),
                           entity=n.get("entity") or n.get("values_table"), path=n.get("path", ""),
                           identity=n.get("identity", ""), matched=bool(n.get("matched", False)),
-                          links=_maps(text, n.get("fields"), f"{column}.fields"))
+                          row_fields=_maps(text, n.get("fields"), f"{column}.fields"))
     needs = {"entity-list": ("table", "entity", "identity"), "child-list": ("table",), "object-child": ("table",),
              "value-list": ("table", "values_table")}.get(kind, ())
     if [k for k in needs if not n.get(k)]:
@@ -664,8 +664,8 @@ def _check_keys(text: str, values: list, nested: NestedColumn, group: EntityGrou
     """
     attributes = group.attributes if group else []
     groups = groups or {}
-    known = {nested.identity} | {f.path[0] for f in attributes} | {f.path[0] for f in nested.links if f.path}
-    for f in nested.links:
+    known = {nested.identity} | {f.path[0] for f in attributes} | {f.path[0] for f in nested.row_fields if f.path}
+    for f in nested.row_fields:
         if f.entity and not f.path and groups.get(f.entity):  # the object itself is an entity
             known |= {groups[f.entity].identity} | {a.path[0] for a in groups[f.entity].attributes}
     known |= {c.path.split(".")[0] for c in nested.children}

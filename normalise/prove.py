@@ -54,7 +54,7 @@ def rebuild_cells(plan, fetch, impure: set | None = None, only: set | None = Non
             continue
         needs_rows = wanted or any(n.kind == "object-columns" for n in nested_wanted)
         needed = {f.column for f in wanted} | {f.column for n in nested_wanted if n.kind == "object-columns"
-                                               for f in n.links}
+                                               for f in n.row_fields}
         names, rows = _record_rows(plan, record.table, fetch, needed) if needs_rows else ([], [])
         at = {n: j for j, n in enumerate(names)}
         for f in wanted:
@@ -64,13 +64,13 @@ def rebuild_cells(plan, fetch, impure: set | None = None, only: set | None = Non
         for nested in nested_wanted:
             cells: dict[int, object] = {}
             if nested.kind == "object-columns":
-                js = [at[f.column] for f in nested.links]
+                js = [at[f.column] for f in nested.row_fields]
                 lists = _child_lists(plan, nested, fetch, traces)
-                entities = _referred(plan, nested.links, fetch, traces)
+                entities = _referred(plan, nested.row_fields, fetch, traces)
                 edits = traces["fields"]
                 for r in rows:
                     stored = [r[j] for j in js]
-                    obj = object_back(nested.links, stored, entities)
+                    obj = object_back(nested.row_fields, stored, entities)
                     if (record.table, r[0], nested.column) in edits:  # occurrences' own attribute values
                         obj = _apply(obj, edits[(record.table, r[0], nested.column)])
                         impure.add((record.table, nested.column, r[0]))
@@ -174,9 +174,9 @@ def _owned(plan, nested, fetch, traces) -> dict[int, object]:
     elements = traces["elements"]
     traced = {sk for t, sk in elements if t == nested.table}
     lists = _child_lists(plan, nested, fetch, traces) if nested.kind != "value-list" else []
-    entities = _referred(plan, nested.links, fetch, traces)
+    entities = _referred(plan, nested.row_fields, fetch, traces)
     if nested.kind == "object-child":
-        make = row_objects(nested.links, 2, entities)
+        make = row_objects(nested.row_fields, 2, entities)
         out = {}
         for r in rows:
             obj = make(r)
@@ -192,7 +192,7 @@ def _owned(plan, nested, fetch, traces) -> dict[int, object]:
                   for sk, v, *_ in fetch(table_query(nested.entity))}
         made = [(r[1], values[r[2]]) for r in rows]
     else:
-        make = row_objects(nested.links, 4 if nested.kind == "entity-list" else 3, entities)
+        make = row_objects(nested.row_fields, 4 if nested.kind == "entity-list" else 3, entities)
         if nested.kind == "entity-list":
             entity = _entity_objects(plan, nested.entity, fetch, traces)
             made = [(r[1], {**entity[r[2]], **make(r)}) for r in rows]

@@ -38,9 +38,9 @@ def add_tables(plan: Plan) -> None:
         for nested in record.nested:
             if nested.kind == "object-columns":
                 cols += [Column(f.column, f.type, source=".".join([nested.column, *f.path]), scale=f.scale)
-                         for f in nested.links]
+                         for f in nested.row_fields]
         fks = [fk for nested in record.nested if nested.kind == "object-columns"
-               for fk in _references(plan, nested.links)]
+               for fk in _references(plan, nested.row_fields)]
         if record.parent_path:  # one-to-many: each record belongs to a record of the main export
             parent = next(r for r in plan.records if r.path == record.parent_path)
             column = next(f.column for f in record.scalars if f.path == [record.parent_column])
@@ -74,7 +74,7 @@ def reference_columns(record: RecordSource) -> list[tuple[FieldMap, str]]:
     value as its natural key.
     """
     taken = [record.key_column] + [f.column for f in record.scalars]
-    taken += [f.column for n in record.nested if n.kind == "object-columns" for f in n.links]
+    taken += [f.column for n in record.nested if n.kind == "object-columns" for f in n.row_fields]
     names = Namer(taken)
     return [(f, names(f"{f.column}_sk")) for f in record.scalars if f.references]
 
@@ -134,13 +134,13 @@ def _nested_tables(plan: Plan, nested: NestedColumn, owner: str, owner_key: str)
         unique = [[owner_key]]
     if position:
         cols.append(Column(POSITION, "integer", nullable=False))
-    cols += [Column(f.column, f.type, source=".".join(f.path), scale=f.scale) for f in nested.links]
-    fks += _references(plan, nested.links)
+    cols += [Column(f.column, f.type, source=".".join(f.path), scale=f.scale) for f in nested.row_fields]
+    fks += _references(plan, nested.row_fields)
     if nested.keyed:  # an object keyed by data: one row per owner and key (a repeating group, first normal form)
         if nested.kind == "entity-list":
             key_column = entity_column if nested.identity == nested.keyed else None
         else:
-            key_column = next((f.column for f in nested.links if f.path == [nested.keyed]), None)
+            key_column = next((f.column for f in nested.row_fields if f.path == [nested.keyed]), None)
         if key_column:
             unique.append([owner_key, key_column])
     plan.tables.append(Table(nested.table, role, cols, [key], position_column=position,
@@ -194,5 +194,5 @@ def record_row_columns(record: RecordSource) -> list[str]:
     """The columns of a record's row as the build makes it, in order, before a wide one is split: its key,
     its scalars, the fields of its object columns, the keys of the records its values name."""
     names = [record.key_column] + [f.column for f in record.scalars]
-    names += [f.column for n in record.nested if n.kind == "object-columns" for f in n.links]
+    names += [f.column for n in record.nested if n.kind == "object-columns" for f in n.row_fields]
     return names + [column for _, column in reference_columns(record)]

@@ -147,7 +147,7 @@ def null_meanings(plan) -> dict:
     stack = [(r, n) for r in plan.records for n in r.nested]
     while stack:
         record, nested = stack.pop()
-        for f in nested.links:  # an object column's fields are columns of the record table
+        for f in nested.row_fields:  # an object column's fields are columns of the record table
             out[(nested.table or record.table, f.column)] = f.null_means
         stack.extend((record, child) for child in nested.children)
     return out
