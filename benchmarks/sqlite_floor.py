@@ -4,7 +4,7 @@
 
 The rows are built first, in memory and untimed (read, decode, infer and build
 exactly as ``normalise build`` does). Then only the writing is timed, through
-the writer the build uses (``normalise.write.SqliteWriter``): the inserts into
+the writer the build uses (``normalise.write.sqlite.SqliteWriter``): the inserts into
 the constrained tables, then ``finish`` (indexes, views, ``PRAGMA
 foreign_key_check``, ``PRAGMA integrity_check``, commit, fsync and the move
 into place). Each check is also timed on its own on the finished database, to
