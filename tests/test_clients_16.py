@@ -93,7 +93,7 @@ def test_sqlite_utils_sees_every_foreign_key_and_primary_key(sqlite_build):
 # --- psql ----------------------------------------------------------------------------------------------------
 
 PG_TYPES = {"integer": "bigint", "real": "double precision", "boolean": "boolean", "text": "text", "date": "date",
-            "timestamp": "timestamp without time zone"}
+            "timestamp": "timestamp without time zone", "decimal": "numeric"}
 
 
 @pytest.fixture(scope="module")
@@ -157,7 +157,7 @@ def test_psql_sees_types_keys_indexes_and_comments(pg, pg_url, pg_build):
             assert got["Type"] == PG_TYPES[c["type"]], (t["name"], c["name"])
             assert (got["Nullable"] == "not null") == (not c["nullable"] or c["name"] in t["primary_key"])
             assert got["Description"] == held[(t["name"], c["name"])] or \
-                got["Description"].startswith(held[(t["name"], c["name"])] + " Stored as DATE;")
+                got["Description"].startswith(held[(t["name"], c["name"])] + f" Stored as {got['Type'].upper()};")
         indexes = described["sections"]["Indexes"]
         key = ", ".join(t["primary_key"])
         assert any(" PRIMARY KEY, btree (" + key + ")" in line for line in indexes), indexes
