@@ -132,7 +132,7 @@ def _pairs(specs: list[str], option: str) -> dict:
 
 def cmd_build(args) -> int:
     from .infer import Options
-    from .report import summary
+    from .report.manifest import summary
 
     options = Options(natural_keys=_pairs(args.key, "--key"), duplicates=args.duplicates,
                       violation_threshold=args.threshold, identities=_pairs(args.identity, "--identity"),
@@ -245,7 +245,7 @@ def _inference_options(p) -> None:
 
 
 def cmd_report(args) -> int:
-    from .report_html import report_existing
+    from .report.html import report_existing
     from .write import DestinationError, destination, display_url
 
     kind, database = destination(args.database)

@@ -2,7 +2,7 @@
 ``descriptions`` table and of PostgreSQL's comments.
 
 Made from a plan (``plan_model``: its tables and views as the catalog reads them back) or from a database read
-back (``catalog.read_database``); the data dictionary (``dictionary.py``) and the HTML report render it, the
+back (``catalog.read_database``); the data dictionary (``report/dictionary.py``) and the HTML report render it, the
 build keeps it in the database (``descriptions``).
 """
 
@@ -254,7 +254,7 @@ VIEW_WHAT = {"record_summary": "one row per record, with each list counted and i
 
 
 def plan_model(plan) -> dict:
-    """The tables and views of a plan as ``report_html.read_database`` reads them from a database the plan
+    """The tables and views of a plan as ``report.catalog.read_database`` reads them from a database the plan
     made (with the build's manifest): what the descriptions are made from, before any row is written."""
     tables = []
     for t in plan.tables:

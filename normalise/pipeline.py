@@ -31,7 +31,7 @@ from .progress import QUIET, Phases
 from .prove import LossDetected, loss_message, prove, sqlite_fetch
 from .plan import Plan
 from .planfile import join_settings, plan_from_doc, plan_to_toml, read_plan
-from .report import manifest
+from .report.manifest import manifest
 from .result import Built
 from .schema import POSTGRESQL_MAX_COLUMNS
 from .sharing import widened
@@ -389,8 +389,8 @@ def _outputs(staged, database, plan, result: dict, parquet_dir, manifest_path, r
             with writing("--manifest", manifest_path), open(staged.file(manifest_path), "w", encoding="utf-8") as f:
                 json.dump(result, f, indent=2, ensure_ascii=False)
             step.update()
-        if report_path or dictionary_path:  # report_html.py, dictionary.py
-            from .report_html import write_outputs
+        if report_path or dictionary_path:  # report/html.py, report/dictionary.py
+            from .report.html import write_outputs
             with writing("--report" if report_path else "--dictionary", report_path or dictionary_path):
                 write_outputs(source, result, report_path=report_path and staged.file(report_path),
                               dictionary_path=dictionary_path and staged.file(dictionary_path), shown_as=database,

@@ -35,7 +35,7 @@ from normalise.cli import main
 from normalise.errors import NormaliseError
 from normalise.infer import Options
 from normalise.pipeline import build_database
-from normalise.report import manifest as make_manifest
+from normalise.report.manifest import manifest as make_manifest
 from normalise.outputs import mask_password
 from normalise.write import DestinationExists
 from tests.strategies import people_exports

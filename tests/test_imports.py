@@ -30,7 +30,7 @@ LAYERS = [  # bottom first
     ("build", {"build", "append"}),
     ("check", {"check", "prove"}),
     ("write", {"write"}),
-    ("report", {"report", "report_html", "dictionary", "catalog", "result"}),
+    ("report", {"report", "result"}),
     ("run", {"pipeline", "cli", "__init__", "__main__"}),
 ]
 

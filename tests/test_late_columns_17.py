@@ -21,7 +21,7 @@ import pytest
 
 from normalise import pipeline
 from normalise.pipeline import build_database
-from normalise.report import summary
+from normalise.report.manifest import summary
 from tests.open_data import check_lossless, check_pragmas, element_tables, lists
 from tests.test_open_countryinfo import cell, countries, kept
 from tests.test_partitions_14 import database, same_databases

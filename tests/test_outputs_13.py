@@ -328,7 +328,7 @@ def test_report_in_a_read_only_folder_is_refused_up_front(built, tmp_path, capsy
 def test_a_side_output_failing_late_leaves_every_old_output(built, tmp_path, monkeypatch, capsys, failing):
     """A full disk while a side output is written, after the database is complete: nothing moves."""
     import normalise.pipeline as pipeline
-    import normalise.report_html as report_html
+    import normalise.report.html as report_html
 
     def full(*_a, **_k):
         raise OSError(errno.ENOSPC, os.strerror(errno.ENOSPC), "somewhere")
@@ -436,7 +436,7 @@ def test_report_read_and_write_failures_say_which(built, tmp_path):
 
 
 def test_report_write_failing_late_is_one_line_and_keeps_the_old_report(built, monkeypatch, capsys):
-    import normalise.report_html as report_html
+    import normalise.report.html as report_html
 
     def full(_model):
         raise OSError(errno.ENOSPC, os.strerror(errno.ENOSPC))

@@ -469,7 +469,8 @@ def test_input_file_the_plan_does_not_name(demo, tmp_path):
 
 def test_column_types_and_bookkeeping_tables_are_declared_once():
     """``plan.TYPES`` and ``plan.META_TABLES`` are the one declaration; what maps them covers them exactly."""
-    from normalise import catalog, dictionary, write
+    from normalise.report import catalog, dictionary
+    from normalise import write
     from normalise.plan import META_ROLES, META_TABLES, TEXT_TYPES, TYPES, Plan
     from normalise.schema import add_tables
 

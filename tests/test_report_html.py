@@ -1,5 +1,5 @@
-"""Tests of the HTML report and the data dictionary (normalise/report_html.py, normalise/dictionary.py), and of
-the reading of the database both render (normalise/catalog.py).
+"""Tests of the HTML report and the data dictionary (normalise/report/html.py, normalise/report/dictionary.py), and of
+the reading of the database both render (normalise/report/catalog.py).
 
 The references, named beside each check:
 
@@ -34,10 +34,11 @@ import pytest
 from demo.generate import generate
 from normalise.check import check_plan
 from normalise.cli import main
-from normalise.dictionary import render_dictionary
 from normalise.plan import Column, ForeignKey, Plan, Table
-from normalise.catalog import read_database
-from normalise.report_html import layout_schema, overlaps, render_report, write_outputs
+from normalise.report.catalog import read_database
+from normalise.report.diagram import layout_schema, overlaps
+from normalise.report.dictionary import render_dictionary
+from normalise.report.html import render_report, write_outputs
 from normalise.schema import add_tables
 from normalise.write import write_sqlite
 

@@ -2,10 +2,10 @@
 
 from __future__ import annotations
 
-from .build import Built
-from .outputs import mask_password
-from .plan import Plan
-from .sharing import widened_sentence
+from ..build import Built
+from ..outputs import mask_password
+from ..plan import Plan
+from ..sharing import widened_sentence
 
 MANIFEST_VERSION = 1
 

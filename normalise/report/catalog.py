@@ -5,7 +5,7 @@ Everything is read from the database itself: the catalog (``sqlite_master``,
 ``count(*)`` of each table and the bookkeeping tables, and SQLite's own checks.
 The run's manifest, when there is one, adds roles and where each table and
 column came from in the input; without it the roles are inferred from the keys.
-The model is a plain dict; ``report_html`` and ``dictionary`` render it.
+The model is a plain dict; ``report.html`` and ``report.dictionary`` render it.
 """
 
 from __future__ import annotations
@@ -14,12 +14,12 @@ import sqlite3
 from collections import defaultdict
 from pathlib import Path
 
-from .errors import UsageError
-from .escapes import clean
-from .names import quote_name as _q
-from .plan import META_ROLES, META_TABLES
-from .describe import display_column, owner_fk
-from .sharing import widened_sentence
+from ..errors import UsageError
+from ..escapes import clean
+from ..names import quote_name as _q
+from ..plan import META_ROLES, META_TABLES
+from ..describe import display_column, owner_fk
+from ..sharing import widened_sentence
 
 HEAD_ROWS = 50  # rows of each bookkeeping table shown
 NOT_APPLICABLE = "not applicable (PostgreSQL)"  # SQLite's integrity_check, of a PostgreSQL build
