@@ -988,7 +988,7 @@ def _child_lists(file: str, column: str, objects: list[dict], lists: list[list[s
             from .exact import keyed_items
 
             inner = [keyed_items(v, key, value_field) if isinstance(v, dict) else v for v in inner]
-        # a value that is not a list is taken as a list of one (build._nested_rows), so its type counts too
+        # a value that is not a list is taken as a list of one (build.rows, ``Builder._rows``), so its type counts too
         wrapped = [v if isinstance(v, (list, tuple)) else [v] for v in inner if v is not None]
         inner = [v for v in inner if isinstance(v, (list, tuple))]
         items = [x for v in inner for x in v if x is not None]

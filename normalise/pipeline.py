@@ -229,7 +229,7 @@ def _build(paths: list[str], database: str, *, options, limits, formats, encodin
         check_width(plan)
     state = None
     if append:
-        from .append import read_state
+        from .build.append import read_state
 
         if not os.path.exists(database):
             from .errors import UsageError
@@ -241,7 +241,7 @@ def _build(paths: list[str], database: str, *, options, limits, formats, encodin
         """Every record in partitions of ``chunk_rows``; appended records keyed after those already there."""
         for export, decoded in inputs.partitions(chunk_rows, columns):
             if state:
-                from .append import offset_record_keys
+                from .build.append import offset_record_keys
                 offset_record_keys(plan, [export], state)
             yield export, decoded
 

@@ -16,7 +16,8 @@ from hypothesis import HealthCheck, example, given, settings
 from hypothesis import strategies as st
 
 from fuzz.checks import MODES, SUFFIXES, check_decode, check_read
-from normalise.build import TooManyColumns, check_width, to_sql_value, usable_identity
+from normalise.build import TooManyColumns, check_width, to_sql_value
+from normalise.exact import usable_identity
 from normalise.decode import decode_column, split_delimited
 from normalise.escapes import printable
 from normalise.read import read

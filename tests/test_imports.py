@@ -27,7 +27,7 @@ LAYERS = [  # bottom first
     ("decode", {"decode", "_pyliteral"}),
     ("infer", {"infer", "schema", "views", "join", "sharing", "options_check", "option_values", "planfile",
                "partition", "survey", "describe"}),
-    ("build", {"build", "append"}),
+    ("build", {"build"}),
     ("check", {"check", "prove"}),
     ("write", {"write"}),
     ("report", {"report", "result"}),

@@ -15,7 +15,7 @@ import sqlite3
 import pytest
 
 from demo.generate import generate
-from normalise import build as build_module
+from normalise.build import keys as build_module, values as build_values
 from normalise.pipeline import build_database
 
 SAFE = 2**53 - 1  # ECMAScript Number.MAX_SAFE_INTEGER
@@ -71,7 +71,7 @@ def test_colliding_hashes_get_free_keys_and_the_build_stays_exact(tmp_path, monk
     """With keys cut to 8 bits, 40 distinct tags collide (about 3 pairs expected): each still gets a key of its own, the
     bridge rows name the right tag, and the lossless proof holds."""
     monkeypatch.setattr(build_module, "_MASK", 0xFF)
-    hashed = [build_module.key_of(build_module.value_text(f"t{i}", "text")) for i in range(40)]
+    hashed = [build_module.key_of(build_values.value_text(f"t{i}", "text")) for i in range(40)]
     assert len(set(hashed)) < 40  # the case is real: some tags share a hash
     path = tmp_path / "notes.csv"
     lines = ["key,tags"] + [f'n{i},"[""t{i}"", ""t{(i + 1) % 40}""]"' for i in range(40)]

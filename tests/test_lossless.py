@@ -621,7 +621,7 @@ def test_a_name_spelled_two_ways_for_one_id(tmp_path, threshold, usual):
 
 
 FIRST_OCCURRENCE_DEFECT = ("an entity's occurrences whose value is the one the entity row keeps, but not the first "
-                           "occurrence's, are traced with the first occurrence's value (build._trace_occurrences "
+                           "occurrence's, are traced with the first occurrence's value (build.rows, Builder._trace_occurrences "
                            "skips only the occurrences it traced itself): the proof finds the loss and the build "
                            "refuses valid input with LossDetected")
 

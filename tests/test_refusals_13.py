@@ -206,7 +206,7 @@ def test_data_problem_exits_1_usage_exits_2(tmp_path, capsys):
 
 
 def test_exit_code_of_each_error():
-    from normalise.append import SchemaMismatch
+    from normalise.build.append import SchemaMismatch
     from normalise.build import DuplicateNaturalKey, TooManyColumns
     from normalise.check import IntegrityError
     from normalise.join import CardinalityViolation

@@ -14,10 +14,10 @@ import sqlite3
 
 import sqlalchemy as sa
 
-from .build import canonical, value_text
-from .errors import EXIT_USAGE, NormaliseError
-from .plan import META_ROLES, Plan
-from .names import quote_name as _q
+from ..errors import EXIT_USAGE, NormaliseError
+from ..names import quote_name as _q
+from ..plan import META_ROLES, Plan
+from .values import canonical, value_text
 
 
 class SchemaMismatch(NormaliseError):
