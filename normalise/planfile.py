@@ -373,7 +373,9 @@ def join_settings(doc: dict) -> dict:
 
 def plan_from_doc(doc: dict, text: str, exports: list, decoded: dict) -> Plan:
     """Rebuild the plan from its file and check that it still fits the decoded data."""
-    from .infer import _Found, entity_attributes, objects_of, scalar_fields, _type_at
+    from .infer import entity_attributes, objects_of, scalar_fields
+    from .infer.model import Found
+    from .infer.shapes import type_at
     from .schema import add_tables
 
     plan = Plan(violation_threshold=float(doc.get("violation_threshold", 0.05)))
@@ -455,7 +457,7 @@ def plan_from_doc(doc: dict, text: str, exports: list, decoded: dict) -> Plan:
                 table=nested.entity, key_column=f"{nested.entity}_sk", identity=nested.identity,
                 identity_column=nested.identity, identity_type="integer" if all(
                     isinstance(o.get(nested.identity), int) for o in objects if o.get(nested.identity) is not None)
-                else "text", attributes=[FieldMap([a], a, _type_at(objects, [a])) for a in attrs])
+                else "text", attributes=[FieldMap([a], a, type_at(objects, [a])) for a in attrs])
             nested.row_fields = [f for f in nested.row_fields if f.path[0] not in attrs]
     done: set = set()  # references and inner entity lists already given their entity table
     for handle, group in handles.items():
@@ -473,12 +475,12 @@ def plan_from_doc(doc: dict, text: str, exports: list, decoded: dict) -> Plan:
         for nested, inner in _inside(plan):  # entity lists inside objects, and references to single objects
             if nested.path and nested.kind == "entity-list" and nested.entity == handle and id(nested) not in done:
                 nested.entity = group.table
-                group.members.append(_Found.name_of(nested))
+                group.members.append(Found.name_of(nested))
                 done.add(id(nested))
             for f in nested.row_fields:
                 if f.entity == handle and id(f) not in done:
                     f.entity = group.table
-                    group.members.append(_Found.name_of(nested, f.path))
+                    group.members.append(Found.name_of(nested, f.path))
                     done.add(id(f))
         if group.members:
             written = [str(m) for m in next((e.get("members") or [] for e in doc.get("entity", [])

@@ -29,7 +29,8 @@ from dataclasses import replace
 from pathlib import Path
 
 from .exact import keyed_items
-from .infer import _hashable, objects_of
+from .infer import objects_of
+from .infer.dependencies import hashable
 
 __all__ = ["undecided_pairs", "identity_statistics", "widened", "agreement", "widened_sentence"]
 
@@ -119,7 +120,7 @@ def identity_statistics(plan, tables: set[str], partitions) -> dict[str, Counter
                     counts[(ident, None, None)] += 1
                     for a in attributes:
                         if a in o:
-                            counts[(ident, a, _hashable(o[a]))] += 1
+                            counts[(ident, a, hashable(o[a]))] += 1
     return stats
 
 

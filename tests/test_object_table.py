@@ -53,7 +53,8 @@ def first_seen_codes(values: list) -> list[int]:
 
 def check_table(table: ObjectTable, objects: list[dict]) -> None:
     import numpy as np
-    from normalise.infer import _hashable, value_type
+    from normalise.infer import value_type
+    from normalise.infer.dependencies import hashable
 
     assert table.keys() == list(dict.fromkeys(k for o in objects for k in o))  # every key, first seen first
     for field in "abcde":  # e: a key no object has
@@ -62,7 +63,7 @@ def check_table(table: ObjectTable, objects: list[dict]) -> None:
         assert table.kinds(field) == set(map(type, values))
         assert value_type(table.values(field), table.kinds(field)) == value_type(values)
         codes, present, isnull = table.codes(field)
-        assert codes.tolist() == first_seen_codes([_hashable(v) for v in values])
+        assert codes.tolist() == first_seen_codes([hashable(v) for v in values])
         assert present.tolist() == [field in o for o in objects]
         assert isnull.tolist() == [v is None for v in values]
         assert codes.dtype == np.int64
@@ -91,7 +92,7 @@ def test_table_and_joined_tables_equal_the_plain_definitions(parts):
 @settings(max_examples=100, deadline=None)
 @given(PARTS)
 def test_tables_too_wide_to_keep_equal_the_plain_definitions(parts):
-    import normalise.infer as infer
+    import normalise.infer.dependencies as infer
 
     kept, infer.CACHED_VALUES = infer.CACHED_VALUES, 3  # nothing is read in one pass, hardly anything kept
     try:
