@@ -26,7 +26,7 @@ import warnings
 
 from normalise.decode import EMPTY_MARKERS, decode, decode_column
 from normalise.errors import UnreadableFile
-from normalise.literal import Limits
+from normalise.decode.literal import Limits
 from normalise.read import iter_chunks, read
 
 MODES = ("json", "python-literal", "auto")

@@ -26,7 +26,7 @@ sys.setrecursionlimit(10_000)
 
 with atheris.instrument_imports(include=["normalise", "json", "ast"]):
     import normalise.decode  # noqa: F401
-    import normalise.literal  # noqa: F401
+    import normalise.decode.literal  # noqa: F401
     from fuzz.checks import MODES, check_decode
 
 warnings.simplefilter("ignore")

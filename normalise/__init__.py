@@ -4,7 +4,7 @@ from .decode import DecodedColumn, QuarantinedCell, decode, decode_column
 from .errors import NormaliseError, NotClean, UnreadableFile, UsageError
 from .infer import Options
 from .join import JoinOptions
-from .literal import CellError, Limits, decode_json, decode_python_literal
+from .decode.literal import CellError, Limits, decode_json, decode_python_literal
 from .read import Export, RejectedRow, read
 from .pipeline import build_database, make_plan
 from .result import Built

@@ -15,7 +15,7 @@ from .decode import parse_decode_option
 from .errors import (EXIT_DATA, EXIT_DESTINATION, EXIT_USAGE, LooksHeaderless, NormaliseError, NotClean,
                      from_the_command_line)
 from .escapes import escape_surrogates
-from .literal import DEFAULT_MAX_CELL_CHARS, DEFAULT_MAX_DEPTH, Limits
+from .decode.literal import DEFAULT_MAX_CELL_CHARS, DEFAULT_MAX_DEPTH, Limits
 from .option_values import as_argument
 
 EXIT_CODES = """\

@@ -28,7 +28,7 @@ from pathlib import Path
 
 from .decode import decisions, decode, first_value, late_decision
 from .join import Joined, JoinOptions, join
-from .literal import Limits
+from .decode.literal import Limits
 from .options_check import check_option_names
 from .progress import QUIET
 from .read import iter_chunks, read

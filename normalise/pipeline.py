@@ -22,7 +22,7 @@ from .decode import paused_gc
 from .errors import NotClean, speaks_to_callers
 from .infer import Options, infer_plan
 from .join import Joined, JoinOptions
-from .literal import Limits
+from .decode.literal import Limits
 from .names import quote_name
 from .option_values import check_values
 from .outputs import check_paths, destination_lock, lock_path, staged_outputs, writing

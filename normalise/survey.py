@@ -12,7 +12,7 @@ from .decode import DecodedColumn, decode
 from .errors import speaks_to_callers
 from .infer import (REFERENCE_MIN_SHARE, REFERENCE_MIN_VALUES, detect_natural_key, identity_candidates, is_reference,
                     objects_of, reference_evidence, reference_texts, scalar_column_type, scalar_type)
-from .literal import Limits
+from .decode.literal import Limits
 from .option_values import check_values
 from .profile import profile_values
 from .read import Export, read

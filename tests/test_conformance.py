@@ -37,7 +37,7 @@ from pathlib import Path
 import pytest
 
 from normalise.decode import EMPTY_MARKERS, decode_column
-from normalise.literal import CellError, decode_json
+from normalise.decode.literal import CellError, decode_json
 from tests.strategies import cell_value, strict_equal
 
 SUITE_ENV = "NORMALISE_JSON_SUITE"

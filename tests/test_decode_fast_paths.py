@@ -26,14 +26,15 @@ from hypothesis import HealthCheck, example, given, settings
 from hypothesis import strategies as st
 
 from normalise.decode import decode_column, paused_gc
-from normalise.literal import Limits, surrogate_escape_cells
+from normalise.decode.literal import Limits, surrogate_escape_cells
 from tests.strategies import (has_lone_surrogate, hostile_text, json_cells, json_values, mutated, python_cells,
                               strict_equal)
 from tests.test_decode_reference import (_REFUSED, bulk_route, check_column_against, json_reference,
                                          literal_eval_reference)
 
-decode_module = importlib.import_module("normalise.decode")  # the package exports a decode() too
-c_json_values = decode_module._json_values
+decode_module = importlib.import_module("normalise.decode.columns")  # where decode_column finds its readers
+nested_module = importlib.import_module("normalise.decode.nested")
+c_json_values = nested_module._json_values
 needs_c = pytest.mark.skipif(c_json_values is None, reason="C accelerator not built")
 
 # ast.parse warns about invalid escape sequences ('\d'); the references warn the same way.
@@ -107,7 +108,7 @@ def test_decode_column_restores_the_collector_when_it_raises(monkeypatch):
     # reference: gc.isenabled (Python library reference, gc module)
     def broken(*args, **kwargs):
         raise MemoryError
-    monkeypatch.setattr(decode_module, "_decode_json_column", broken)
+    monkeypatch.setattr(decode_module, "decode_json_cells", broken)
     with gc_state(True):
         with pytest.raises(MemoryError):
             decode_column("c", ["[1]"], [2], "t.csv", forced=("json", None))
@@ -235,12 +236,12 @@ def test_c_reader_refuses_what_is_not_text():
 @contextmanager
 def json_reader(route: str):
     """Decode with the C reader, or with json's scanner and the Python checks."""
-    saved = decode_module._json_values
-    decode_module._json_values = c_json_values if route == "c" else None
+    saved = nested_module._json_values
+    nested_module._json_values = c_json_values if route == "c" else None
     try:
         yield
     finally:
-        decode_module._json_values = saved
+        nested_module._json_values = saved
 
 
 READERS = ["python"] + (["c"] if c_json_values is not None else [])
@@ -261,7 +262,7 @@ def test_json_column_with_either_reader_matches_json_loads(reader, cells):
 @given(st.lists(python_cells(), min_size=1, max_size=8))
 def test_python_column_with_either_reader_matches_literal_eval(reader, cells):
     # reference: ast.literal_eval (Python language reference, literals and displays)
-    with json_reader(reader), bulk_route("c" if decode_module.ACCELERATED else "python"):
+    with json_reader(reader), bulk_route("c" if nested_module.ACCELERATED else "python"):
         check_column_against(cells, "python-literal", literal_eval_reference)
 
 

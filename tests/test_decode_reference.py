@@ -33,11 +33,11 @@ from hypothesis import HealthCheck, example, given, settings
 from hypothesis import strategies as st
 
 from normalise.decode import EMPTY_MARKERS, decode_column, python_literals_as_json
-from normalise.literal import CellError, Limits, decode_json, decode_python_literal, nesting_depth
+from normalise.decode.literal import CellError, Limits, decode_json, decode_python_literal, nesting_depth
 from tests.strategies import (cell_value, has_lone_surrogate, json_cells, json_values, mutated,
                               python_cells, python_values, random_cells, strict_equal)
 
-decode_module = importlib.import_module("normalise.decode")  # the package exports a decode() too
+decode_module = importlib.import_module("normalise.decode.nested")  # where the bulk route is looked up
 
 # The bulk route for Python-literal columns: the C accelerator when it was built at
 # install time, else the pure-Python rewrite. Both are checked where present.

@@ -17,7 +17,7 @@ from normalise import decode_json, decode_python_literal
 from normalise.cli import exit_code, main
 from normalise.errors import EXIT_DATA, EXIT_DESTINATION, EXIT_USAGE, MissingInput, NormaliseError, UnreadableFile
 from normalise.join import CardinalityViolation, JoinOptions
-from normalise.literal import CellError
+from normalise.decode.literal import CellError
 from normalise.pipeline import build_database, make_plan
 from normalise.planfile import InvalidPlan
 from normalise.read import read
@@ -26,10 +26,10 @@ from normalise.read import read
 def error_classes() -> list[type]:
     """Every exception class the package defines."""
     found = set()
-    for info in pkgutil.iter_modules(normalise.__path__):
-        if info.name == "__main__":  # runs the command
+    for info in pkgutil.walk_packages(normalise.__path__, "normalise."):  # subpackages' modules too
+        if info.name == "normalise.__main__":  # runs the command
             continue
-        module = importlib.import_module(f"normalise.{info.name}")
+        module = importlib.import_module(info.name)
         for _, value in inspect.getmembers(module, inspect.isclass):
             if issubclass(value, Exception) and value.__module__.startswith("normalise."):
                 found.add(value)

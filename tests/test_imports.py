@@ -21,7 +21,7 @@ import networkx as nx
 PACKAGE = Path(__file__).parent.parent / "normalise"
 
 LAYERS = [  # bottom first
-    ("model", {"errors", "escapes", "names", "plan", "exact", "datetimes", "decimals", "profile", "literal",
+    ("model", {"errors", "escapes", "names", "plan", "exact", "datetimes", "decimals", "profile",
                "progress", "outputs"}),
     ("read", {"read"}),
     ("decode", {"decode", "_pyliteral"}),
@@ -46,7 +46,7 @@ def module_name(path: Path) -> str:
 def imports() -> nx.DiGraph:
     """Every module of the package and the modules of the package it imports (relative imports, resolved)."""
     graph = nx.DiGraph()
-    graph.add_node("_pyliteral")  # the C accelerator (normalise/_ext/pyliteral.c), imported by decode and literal
+    graph.add_node("_pyliteral")  # the C accelerator (normalise/_ext/pyliteral.c), imported by decode
     for path in sorted(PACKAGE.rglob("*.py")):
         name = module_name(path)
         graph.add_node(name)

@@ -24,7 +24,7 @@ from normalise import build_database, make_plan, survey
 from normalise.cli import exit_code, main
 from normalise.errors import EXIT_DATA, EXIT_DESTINATION, EXIT_USAGE, LooksHeaderless, UsageError, for_callers
 from normalise.infer import Options
-from normalise.literal import Limits
+from normalise.decode.literal import Limits
 from normalise.read import looks_headerless, read
 
 WORKTREE = str(Path(__file__).resolve().parents[1])

@@ -1,6 +1,6 @@
 """Exact decoding of single cells: JSON (RFC 8259) and Python literals.
 
-These are the reference paths. ``decode.py`` runs whole columns through faster
+These are the reference paths. ``nested.py`` runs whole columns through faster
 routes and sends here only the cells those routes cannot settle, so every value
 the tool produces is the value ``json.loads`` or ``ast.literal_eval`` returns.
 
@@ -16,8 +16,8 @@ import re
 from dataclasses import dataclass
 from itertools import accumulate
 
-from .errors import NormaliseError
-from .escapes import SURROGATE
+from ..errors import NormaliseError
+from ..escapes import SURROGATE
 
 # CPython's tokenizer refuses more than 200 nested brackets ("too many nested
 # parentheses"); json.loads recurses in C and hits RecursionError near 1,000.
