@@ -25,7 +25,7 @@ import tempfile
 import warnings
 
 from normalise.decode import EMPTY_MARKERS, decode, decode_column
-from normalise.errors import UnreadableFile
+from normalise.model.errors import UnreadableFile
 from normalise.decode.literal import Limits
 from normalise.read import iter_chunks, read
 

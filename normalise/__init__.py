@@ -1,7 +1,7 @@
 """normalise: turn flat exports with nested cells into a linked relational database."""
 
 from .decode import DecodedColumn, QuarantinedCell, decode, decode_column
-from .errors import NormaliseError, NotClean, UnreadableFile, UsageError
+from .model.errors import NormaliseError, NotClean, UnreadableFile, UsageError
 from .infer import Options
 from .join import JoinOptions
 from .decode.literal import CellError, Limits, decode_json, decode_python_literal

@@ -11,8 +11,8 @@ from __future__ import annotations
 
 import networkx as nx
 
-from .errors import NormaliseError
-from .plan import Plan
+from .model.errors import NormaliseError
+from .model.plan import Plan
 
 
 class IntegrityError(NormaliseError):

@@ -12,9 +12,9 @@ import warnings
 
 from . import option_values as values
 from .decode import parse_decode_option
-from .errors import (EXIT_DATA, EXIT_DESTINATION, EXIT_USAGE, LooksHeaderless, NormaliseError, NotClean,
+from .model.errors import (EXIT_DATA, EXIT_DESTINATION, EXIT_USAGE, LooksHeaderless, NormaliseError, NotClean,
                      from_the_command_line)
-from .escapes import escape_surrogates
+from .model.escapes import escape_surrogates
 from .decode.literal import DEFAULT_MAX_CELL_CHARS, DEFAULT_MAX_DEPTH, Limits
 from .option_values import as_argument
 
@@ -119,7 +119,7 @@ def cmd_survey(args) -> int:
 
 
 def _pairs(specs: list[str], option: str) -> dict:
-    from .errors import UsageError
+    from .model.errors import UsageError
 
     out = {}
     for spec in specs:
@@ -164,7 +164,7 @@ def _strict(result: dict) -> int:
 
 
 def _join_options(args):
-    from .errors import UsageError
+    from .model.errors import UsageError
     from .join import JoinOptions
 
     on = {}

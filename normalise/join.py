@@ -18,7 +18,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 
 from .decode import DecodedColumn
-from .errors import NormaliseError, UsageError
+from .model.errors import NormaliseError, UsageError
 from .infer import detect_natural_key, scalar_column_type
 from .read import Export
 
@@ -257,7 +257,7 @@ def _link_many(result: Joined, main: Export, main_key: str, other: Export, right
     join loads them with no main record instead); main records without rows are
     counted, and set aside by an inner join.
     """
-    from .names import singular, sql_name
+    from .model.names import singular, sql_name
 
     left_keys = _key_values(main, decoded, main_key)
     right_keys = _key_values(other, decoded, right_col)

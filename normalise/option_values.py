@@ -17,7 +17,7 @@ import argparse
 import codecs
 import math
 
-from .errors import UsageError
+from .model.errors import UsageError
 
 DUPLICATES = ("first", "last", "refuse")
 
@@ -40,7 +40,7 @@ def encoding(value: str, option: str = "--encoding") -> str:
         >>> encoding("rot13")  # doctest: +ELLIPSIS
         Traceback (most recent call last):
         ...
-        normalise.errors.UsageError: --encoding rot13: expected a text encoding ..., got a text-to-text transform
+        normalise.model.errors.UsageError: --encoding rot13: expected a text encoding ..., got a text-to-text transform
     """
     expected = "a text encoding such as utf-8, cp1252 or latin-1"
     if not isinstance(value, str) or not value.strip():
@@ -74,7 +74,7 @@ def delimiter(value: str, option: str = "--delimiter") -> str:
         >>> delimiter("ab")
         Traceback (most recent call last):
         ...
-        normalise.errors.UsageError: --delimiter 'ab': expected one character (or tab), got 2 characters
+        normalise.model.errors.UsageError: --delimiter 'ab': expected one character (or tab), got 2 characters
     """
     if value in ("\\t", "tab"):
         return "\t"
@@ -99,7 +99,7 @@ def whole_number(option: str, minimum: int, value) -> int:
         >>> whole_number("--max-depth", 1, "-1")
         Traceback (most recent call last):
         ...
-        normalise.errors.UsageError: --max-depth -1: expected a whole number of at least 1, got -1
+        normalise.model.errors.UsageError: --max-depth -1: expected a whole number of at least 1, got -1
     """
     expected = f"a whole number of at least {minimum}"
     if isinstance(value, bool) or not isinstance(value, (int, str)):
@@ -127,7 +127,7 @@ def share(option: str, value) -> float:
         >>> share("--threshold", "nan")  # doctest: +ELLIPSIS
         Traceback (most recent call last):
         ...
-        normalise.errors.UsageError: --threshold nan: expected a number from 0 up to ..., got NaN, which is not a number
+        normalise.model.errors.UsageError: --threshold nan: expected a number from 0 up to ..., got NaN, which is not a number
     """
     expected = "a number from 0 up to (not including) 1"
     if isinstance(value, bool) or not isinstance(value, (int, float, str)):
@@ -159,11 +159,11 @@ def check_values(*, encoding_name=None, delimiter_char=None, limits=None, chunk_
         UsageError: naming the option, what was expected and what arrived.
 
     Example:
-        >>> from normalise.literal import Limits
+        >>> from normalise.decode.literal import Limits
         >>> check_values(limits=Limits(max_depth=0))
         Traceback (most recent call last):
         ...
-        normalise.errors.UsageError: --max-depth 0: expected a whole number of at least 1, got 0
+        normalise.model.errors.UsageError: --max-depth 0: expected a whole number of at least 1, got 0
     """
     if encoding_name is not None:
         encoding(encoding_name)

@@ -24,8 +24,8 @@ from dataclasses import dataclass, field
 from pathlib import Path
 
 from .decode import format_choices
-from .errors import UsageError
-from .names import closest_first
+from .model.errors import UsageError
+from .model.names import closest_first
 from .infer import objects_of
 
 
@@ -63,7 +63,7 @@ def check_option_names(exports: list, decoded: dict, options=None, formats: dict
         >>> check_option_names([books], {"books.csv": decode(books)}, Options(identities={"sender": "id"}))
         Traceback (most recent call last):
         ...
-        normalise.errors.UsageError: --identity sender=id: books.csv has no column 'sender' (columns: senders, title)
+        normalise.model.errors.UsageError: --identity sender=id: books.csv has no column 'sender' (columns: senders, title)
     """
     if options is not None:
         _check_keys(exports, options.natural_keys)

@@ -18,7 +18,7 @@ import time
 from contextlib import contextmanager
 from pathlib import Path
 
-from .errors import EXIT_DESTINATION, NormaliseError, UsageError
+from .model.errors import EXIT_DESTINATION, NormaliseError, UsageError
 
 try:
     import fcntl

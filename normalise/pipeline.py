@@ -19,23 +19,23 @@ from pathlib import Path
 from .build import InMemory, build_partitions, check_width, occurrence_columns, reference_values
 from .check import check_plan, check_rows
 from .decode import paused_gc
-from .errors import NotClean, speaks_to_callers
+from .model.errors import NotClean, speaks_to_callers
 from .infer import Options, infer_plan
 from .join import Joined, JoinOptions
 from .decode.literal import Limits
-from .names import quote_name
+from .model.names import quote_name
 from .option_values import check_values
 from .outputs import check_paths, destination_lock, lock_path, staged_outputs, writing
 from .partition import open_inputs
 from .progress import QUIET, Phases
 from .prove import LossDetected, loss_message, prove, sqlite_fetch
-from .plan import Plan
-from .planfile import join_settings, plan_from_doc, plan_to_toml, read_plan
+from .model.plan import Plan
+from .infer.planfile import join_settings, plan_from_doc, plan_to_toml, read_plan
 from .report.manifest import manifest
 from .result import Built
-from .schema import POSTGRESQL_MAX_COLUMNS
-from .sharing import widened
-from .views import add_pick
+from .model.schema import POSTGRESQL_MAX_COLUMNS
+from .infer.sharing import widened
+from .model.views import add_pick
 from .write import SqliteWriter
 from .write import (DEFAULT_SCHEMA, destination, display_url, is_postgresql, postgresql_run_lock, write_parquet,
                     write_postgresql)
@@ -175,15 +175,15 @@ def build_database(paths: str | os.PathLike | list[str], database: str | os.Path
     kind, database = destination(database)
     postgresql = kind == "postgresql"
     if (schema is not None or share_schema) and not postgresql:
-        from .errors import UsageError
+        from .model.errors import UsageError
         option = "--schema" if schema is not None else "--share-schema"
         raise UsageError(f"{option} applies to a PostgreSQL --db (postgresql+psycopg://...), not to a SQLite file")
     if append and (postgresql or replace):
-        from .errors import UsageError
+        from .model.errors import UsageError
         raise UsageError("--append adds to an existing SQLite database; it goes with neither --replace nor a "
                          "PostgreSQL --db")
     if not isinstance(wait, (int, float)) or not 0 <= wait < float("inf"):
-        from .errors import UsageError
+        from .model.errors import UsageError
         raise UsageError(f"--wait {wait!r}: expected a number of seconds, 0 or more")
     sqlite_db = None if postgresql else database
     check_paths([("input", p) for p in paths] + [("--plan", plan_path)],
@@ -232,7 +232,7 @@ def _build(paths: list[str], database: str, *, options, limits, formats, encodin
         from .build.append import read_state
 
         if not os.path.exists(database):
-            from .errors import UsageError
+            from .model.errors import UsageError
             raise UsageError(f"--append: {database} does not exist; build it first")
         state = read_state(os.fspath(database), plan)
     joined = inputs.joined

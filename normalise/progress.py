@@ -67,7 +67,7 @@ class Phases:
             return cls(paths, enabled=True)
         if callable(progress):
             return cls(paths, enabled=False, callback=progress)
-        from .errors import UsageError
+        from .model.errors import UsageError
         raise UsageError(f"progress={progress!r}: expected True, False, None or a callable (records, characters)")
 
     @contextmanager

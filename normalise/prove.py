@@ -16,12 +16,12 @@ from __future__ import annotations
 import sqlite3
 from operator import itemgetter
 
-from .errors import NormaliseError
-from .exact import (ABSENT, DIGEST_MODULUS, InputDigests, from_literal, keyed_digest, keyed_object, object_back,
+from .model.errors import NormaliseError
+from .model.exact import (ABSENT, DIGEST_MODULUS, InputDigests, from_literal, keyed_digest, keyed_object, object_back,
                     pointer, pointer_keys, put, same, stored_back)
-from .names import quote_name as _q
-from .plan import TEXT_TYPES
-from .schema import record_parts
+from .model.names import quote_name as _q
+from .model.plan import TEXT_TYPES
+from .model.schema import record_parts
 
 
 class LossDetected(NormaliseError):

@@ -25,9 +25,9 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from warnings import warn
 
-from .errors import LooksHeaderless, MissingInput, UnreadableFile
-from .escapes import printable
-from .names import free_name
+from .model.errors import LooksHeaderless, MissingInput, UnreadableFile
+from .model.escapes import printable
+from .model.names import free_name
 
 # The csv module refuses fields above 128 KiB by default; cell size is a
 # decoding limit with its own message (see decode.Limits), not a reader crash.

@@ -58,7 +58,7 @@ class Built(dict):
             close = get_close_matches(name, self.names, n=3)
             raise KeyError(f"{name!r} is no table or view of this build"
                            + (f"; closest: {', '.join(close)}" if close else ""))
-        from .names import quote_name
+        from .model.names import quote_name
         from .write import destination, postgresql_url
 
         kind, target = destination(self._database)

@@ -32,7 +32,7 @@ from hypothesis import HealthCheck, given, settings
 from demo.generate import generate
 from normalise.build import DuplicateNaturalKey
 from normalise.cli import main
-from normalise.errors import NormaliseError
+from normalise.model.errors import NormaliseError
 from normalise.infer import Options
 from normalise.pipeline import build_database
 from normalise.report.manifest import manifest as make_manifest

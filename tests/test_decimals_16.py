@@ -22,7 +22,7 @@ import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
-from normalise.decimals import is_decimal_text
+from normalise.model.decimals import is_decimal_text
 from normalise.infer import scalar_column_type
 from normalise.pipeline import build_database
 from tests.test_postgresql import _drop, _new_schema, pg, pg_url  # noqa: F401 (fixtures)

@@ -11,7 +11,7 @@ from __future__ import annotations
 import json
 import sqlite3
 
-from normalise.names import singular
+from normalise.model.names import singular
 from normalise.pipeline import build_database
 from tests.test_lossless import write_rows
 

@@ -15,11 +15,11 @@ import pytest
 import normalise
 from normalise import decode_json, decode_python_literal
 from normalise.cli import exit_code, main
-from normalise.errors import EXIT_DATA, EXIT_DESTINATION, EXIT_USAGE, MissingInput, NormaliseError, UnreadableFile
+from normalise.model.errors import EXIT_DATA, EXIT_DESTINATION, EXIT_USAGE, MissingInput, NormaliseError, UnreadableFile
 from normalise.join import CardinalityViolation, JoinOptions
 from normalise.decode.literal import CellError
 from normalise.pipeline import build_database, make_plan
-from normalise.planfile import InvalidPlan
+from normalise.infer.planfile import InvalidPlan
 from normalise.read import read
 
 

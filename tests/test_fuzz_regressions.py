@@ -17,9 +17,9 @@ from hypothesis import strategies as st
 
 from fuzz.checks import MODES, SUFFIXES, check_decode, check_read
 from normalise.build import TooManyColumns, check_width, to_sql_value
-from normalise.exact import usable_identity
+from normalise.model.exact import usable_identity
 from normalise.decode import decode_column, split_delimited
-from normalise.escapes import printable
+from normalise.model.escapes import printable
 from normalise.read import read
 from tests.strategies import json_cells, python_cells, random_cells
 
@@ -80,7 +80,7 @@ def test_values_beyond_64_bits_or_infinite_never_reach_sqlite_as_integers():
 
 
 def test_a_table_wider_than_sqlite_allows_is_refused_before_writing():
-    from normalise.plan import Column, Plan, Table
+    from normalise.model.plan import Column, Plan, Table
 
     wide = Plan(tables=[Table("wide", "record", [Column(f"c{i}", "integer") for i in range(2001)], ["c0"],
                               sources=[{"file": "wide", "column": None}])])

@@ -20,13 +20,11 @@ import networkx as nx
 
 PACKAGE = Path(__file__).parent.parent / "normalise"
 
-LAYERS = [  # bottom first
-    ("model", {"errors", "escapes", "names", "plan", "exact", "datetimes", "decimals", "profile",
-               "progress", "outputs"}),
+LAYERS = [  # bottom first: a top-level module or package of normalise in each
+    ("model", {"model", "progress", "outputs"}),
     ("read", {"read"}),
     ("decode", {"decode", "_pyliteral"}),
-    ("infer", {"infer", "schema", "views", "join", "sharing", "options_check", "option_values", "planfile",
-               "partition", "survey", "describe"}),
+    ("infer", {"infer", "join", "options_check", "option_values", "partition", "survey"}),
     ("build", {"build"}),
     ("check", {"check", "prove"}),
     ("write", {"write"}),

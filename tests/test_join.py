@@ -25,7 +25,7 @@ import pytest
 
 from demo.generate import generate
 from normalise.cli import main
-from normalise.errors import UsageError
+from normalise.model.errors import UsageError
 from normalise.join import CardinalityViolation, JoinOptions
 from normalise.pipeline import build_database
 

@@ -15,7 +15,7 @@ import pytest
 
 from normalise import build_database
 from normalise.cli import main
-from normalise.errors import UsageError
+from normalise.model.errors import UsageError
 from normalise.infer import Options
 
 BOOKS = (

@@ -3,7 +3,7 @@
 Issue 13: values of the wrong type (``violation_threshold = "abc"``, ``join = "x"``, ``record = 5``), duplicate
 table or column names, a column named like a key the tool adds, ``natural_key = "nosuch"``, invalid UTF-8,
 unknown keys, names that are not SQL names. Plans are TOML (toml.io, v1.0.0); a plan is refused by
-``normalise.planfile.InvalidPlan`` before any database file is made. A Hypothesis test mutates a valid plan at
+``normalise.infer.planfile.InvalidPlan`` before any database file is made. A Hypothesis test mutates a valid plan at
 random and asserts the same: a build that works and proves exact, or a clean refusal with nothing written.
 """
 
@@ -15,9 +15,9 @@ import pytest
 from hypothesis import HealthCheck, given, settings, strategies as st
 
 from normalise.cli import main
-from normalise.errors import NormaliseError
+from normalise.model.errors import NormaliseError
 from normalise.pipeline import build_database, make_plan
-from normalise.planfile import InvalidPlan
+from normalise.infer.planfile import InvalidPlan
 from tests.test_single_entities_12 import tickets, write
 
 

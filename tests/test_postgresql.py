@@ -38,7 +38,7 @@ except ImportError:  # the module is skipped below without psycopg
 from demo.generate import generate
 from normalise.write import postgresql as write_module
 from normalise.cli import exit_code, main
-from normalise.errors import NormaliseError, UsageError
+from normalise.model.errors import NormaliseError, UsageError
 from normalise.pipeline import build_database
 from normalise.write import (PG_REGISTER, DestinationError, DestinationExists, DestinationFailed,
                              UnstorableValue)

@@ -89,7 +89,7 @@ def test_python_callers_choose(demo, tmp_path):
 
 
 def test_a_bad_progress_is_refused(demo, tmp_path):
-    from normalise.errors import UsageError
+    from normalise.model.errors import UsageError
 
     with pytest.raises(UsageError, match="progress="):
         build_database(demo, tmp_path / "c.db", progress="yes")

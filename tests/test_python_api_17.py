@@ -19,7 +19,7 @@ import pytest
 import normalise
 from normalise import JoinOptions, NotClean, Options, UsageError, build_database, make_plan, survey
 from normalise.cli import build_parser, main
-from normalise.errors import CALLER_NAMES, for_callers
+from normalise.model.errors import CALLER_NAMES, for_callers
 from normalise.pipeline import prepare
 
 BOOKS = 'key,title,tags\nb1,Tide tables,"[""sea"", ""maps""]"\nb2,Night sky,\n'

@@ -13,7 +13,7 @@ import json
 import pytest
 
 from normalise.decode import decode
-from normalise.errors import UnreadableFile
+from normalise.model.errors import UnreadableFile
 from normalise.read import detect_delimiter, read, unique_header
 from normalise.survey import survey
 

@@ -129,7 +129,7 @@ def test_plan_sets_and_removes_references(built, tmp_path):
     assert [r["column"] for r in m["references"]] == ["regions:neighbours"]
     assert "parent_sk" not in [c["name"] for c in record_table(m, "regions")["columns"]]
     plan.write_text(text.replace('references = "regions"', 'references = "nowhere"', 1), encoding="utf-8")
-    from normalise.planfile import InvalidPlan
+    from normalise.infer.planfile import InvalidPlan
     with pytest.raises(InvalidPlan, match="nowhere"):
         build_database([path], str(tmp_path / "bad.db"), plan_path=str(plan))
 

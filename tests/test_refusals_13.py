@@ -22,7 +22,7 @@ import pytest
 
 from normalise import build_database, make_plan, survey
 from normalise.cli import exit_code, main
-from normalise.errors import EXIT_DATA, EXIT_DESTINATION, EXIT_USAGE, LooksHeaderless, UsageError, for_callers
+from normalise.model.errors import EXIT_DATA, EXIT_DESTINATION, EXIT_USAGE, LooksHeaderless, UsageError, for_callers
 from normalise.infer import Options
 from normalise.decode.literal import Limits
 from normalise.read import looks_headerless, read
@@ -210,7 +210,7 @@ def test_exit_code_of_each_error():
     from normalise.build import DuplicateNaturalKey, TooManyColumns
     from normalise.check import IntegrityError
     from normalise.join import CardinalityViolation
-    from normalise.planfile import InvalidPlan
+    from normalise.infer.planfile import InvalidPlan
     from normalise.prove import LossDetected
     from normalise.write import DestinationExists
 

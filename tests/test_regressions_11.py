@@ -157,7 +157,7 @@ def test_plan_with_fewer_blocks_than_inputs_of_one_name_is_refused(tmp_path):
     """Bug 4, the other side: a plan with one [[record]] "titles" given two inputs named titles must not read
     one of them twice nor drop the other quietly: the input without a block is named."""
     from normalise.pipeline import make_plan
-    from normalise.planfile import InvalidPlan
+    from normalise.infer.planfile import InvalidPlan
 
     for folder in ("a", "b"):
         (tmp_path / folder).mkdir()

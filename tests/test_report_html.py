@@ -34,12 +34,12 @@ import pytest
 from demo.generate import generate
 from normalise.check import check_plan
 from normalise.cli import main
-from normalise.plan import Column, ForeignKey, Plan, Table
+from normalise.model.plan import Column, ForeignKey, Plan, Table
 from normalise.report.catalog import read_database
 from normalise.report.diagram import layout_schema, overlaps
 from normalise.report.dictionary import render_dictionary
 from normalise.report.html import render_report, write_outputs
-from normalise.schema import add_tables
+from normalise.model.schema import add_tables
 from normalise.write import write_sqlite
 
 TITLES, CONTRIBUTIONS = "titles.csv", "contributions.csv"

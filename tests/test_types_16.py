@@ -178,7 +178,7 @@ def test_views_give_the_same_values_as_sqlite(pg, events, events_pg):
 def test_the_proof_reads_native_columns_as_their_text(events, pg_url, pg, monkeypatch):
     """The lossless proof reads a native column through its form: a form that writes a space where the input
     has "T" is caught, and nothing is written (the schema stays absent; reference: pg_namespace)."""
-    from normalise.datetimes import TextForm
+    from normalise.model.datetimes import TextForm
     from normalise.prove import LossDetected
 
     path, _, _, _ = events
@@ -199,7 +199,7 @@ def test_every_form_comes_back_from_postgresql(pg, column):
     """Any column of one ISO 8601 form: stored in the form's type, PostgreSQL's value is the instant Python's
     ISO 8601 parser reads (``fromisoformat``), and ``to_char`` through the form gives each text back exactly.
     Reference: a real PostgreSQL server, and Python's ``datetime``."""
-    from normalise.datetimes import text_form
+    from normalise.model.datetimes import text_form
 
     kind, values = column
     form, why = text_form(kind, values)
@@ -233,7 +233,7 @@ def test_values_refused_are_those_postgresql_does_not_give_back(pg, kind, text, 
     Reference: a real PostgreSQL server (a refused cast, or a different text back)."""
     from psycopg import errors
 
-    from normalise.datetimes import TextForm, parse
+    from normalise.model.datetimes import TextForm, parse
 
     form = TextForm(kind, **shape)
     try:

@@ -14,9 +14,9 @@ import sqlite3
 
 import sqlalchemy as sa
 
-from ..errors import EXIT_USAGE, NormaliseError
-from ..names import quote_name as _q
-from ..plan import META_ROLES, Plan
+from ..model.errors import EXIT_USAGE, NormaliseError
+from ..model.names import quote_name as _q
+from ..model.plan import META_ROLES, Plan
 from .values import canonical, value_text
 
 

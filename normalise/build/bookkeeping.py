@@ -7,8 +7,8 @@ from __future__ import annotations
 
 from operator import itemgetter
 
-from ..plan import Plan
-from ..schema import record_parts, record_row_columns
+from ..model.plan import Plan
+from ..model.schema import record_parts, record_row_columns
 
 
 def name_map(plan: Plan) -> list[tuple]:

@@ -5,7 +5,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass, field
 
-from ..plan import NestedColumn
+from ..model.plan import NestedColumn
 
 
 @dataclass

@@ -8,7 +8,7 @@ from collections import Counter
 
 import numpy as np
 
-from ..exact import ABSENT, store, value_key
+from ..model.exact import ABSENT, store, value_key
 from .keys import KeySpace
 from .references import OWN_KEYS
 from .values import canonical, to_sql_value, value_text

@@ -4,7 +4,7 @@ a writer, and the bookkeeping made from the plan (the name map, entity members, 
 
 from __future__ import annotations
 
-from ..plan import Plan
+from ..model.plan import Plan
 from .bookkeeping import occurrence_columns
 from .counts import Built
 from .references import set_column

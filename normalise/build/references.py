@@ -6,10 +6,10 @@ from __future__ import annotations
 
 from collections import Counter
 
-from ..exact import ABSENT
+from ..model.exact import ABSENT
 from ..infer import reference_text
-from ..plan import Plan, RecordSource
-from ..schema import reference_columns
+from ..model.plan import Plan, RecordSource
+from ..model.schema import reference_columns
 
 OWN_KEYS = {str, type(None), type(ABSENT)}
 

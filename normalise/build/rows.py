@@ -12,12 +12,12 @@ from collections import Counter
 from dataclasses import dataclass
 from itertools import chain
 
-from ..describe import descriptions
-from ..errors import NormaliseError
-from ..exact import (ABSENT, VALUE_TYPES, InputDigests, expect_cell, expect_element, get, is_negative_zero, keyed_items,
+from ..model.describe import descriptions
+from ..model.errors import NormaliseError
+from ..model.exact import (ABSENT, VALUE_TYPES, InputDigests, expect_cell, expect_element, get, is_negative_zero, keyed_items,
                      literal, pointer, same, store, stored_back, usable_identity, value_key)
 from ..infer import get_path, match_key
-from ..plan import META_TABLES, NestedColumn, Plan, RecordSource
+from ..model.plan import META_TABLES, NestedColumn, Plan, RecordSource
 from .bookkeeping import entity_members, meta_order, name_map, record_splits
 from .counts import Audit, Built, FileCounts
 from .entities import EntityTable, ValueTable

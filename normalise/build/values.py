@@ -3,7 +3,7 @@
 
 from __future__ import annotations
 
-from ..exact import json_text
+from ..model.exact import json_text
 
 _INT64_MIN = -(1 << 63)
 

@@ -3,8 +3,8 @@
 
 from __future__ import annotations
 
-from ..errors import NormaliseError
-from ..plan import Plan
+from ..model.errors import NormaliseError
+from ..model.plan import Plan
 
 
 class TooManyColumns(NormaliseError):

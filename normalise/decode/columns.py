@@ -150,7 +150,7 @@ def parse_decode_option(spec: str) -> tuple[str, str, str | None]:
         >>> parse_decode_option("formats=delimited:|")
         ('formats', 'delimited', '|')
     """
-    from ..errors import UsageError
+    from ..model.errors import UsageError
 
     column, eq, fmt = spec.partition("=")
     if not eq or not column:

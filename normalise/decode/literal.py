@@ -16,8 +16,8 @@ import re
 from dataclasses import dataclass
 from itertools import accumulate
 
-from ..errors import NormaliseError
-from ..escapes import SURROGATE
+from ..model.errors import NormaliseError
+from ..model.escapes import SURROGATE
 
 # CPython's tokenizer refuses more than 200 nested brackets ("too many nested
 # parentheses"); json.loads recurses in C and hits RecursionError near 1,000.
@@ -163,7 +163,7 @@ def decode_json(text: str, limits: Limits = Limits()):
         >>> decode_json('[NaN]')
         Traceback (most recent call last):
         ...
-        normalise.literal.CellError: NaN is not a JSON value (RFC 8259, section 6 allows no NaN or Infinity)
+        normalise.decode.literal.CellError: NaN is not a JSON value (RFC 8259, section 6 allows no NaN or Infinity)
     """
     check_limits(text, limits)
     try:
@@ -259,7 +259,7 @@ def decode_python_literal(text: str, limits: Limits = Limits()):
         >>> decode_python_literal("[__import__('os')]")
         Traceback (most recent call last):
         ...
-        normalise.literal.CellError: a call is not a Python literal; expressions are never evaluated
+        normalise.decode.literal.CellError: a call is not a Python literal; expressions are never evaluated
     """
     check_limits(text, limits)
     if limits.max_depth > PYTHON_PARSER_MAX_DEPTH and nesting_depth(text) > PYTHON_PARSER_MAX_DEPTH:

@@ -18,7 +18,7 @@ import re
 import sys
 from contextlib import contextmanager
 
-from ..escapes import SURROGATE
+from ..model.escapes import SURROGATE
 from .literal import (CellError, Limits, check_escapes, check_limits, decode_json, decode_python_literal,
                       surrogate_escape_cells)
 

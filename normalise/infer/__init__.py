@@ -5,7 +5,7 @@ rows is one person. Given an identity, each other field is an *entity attribute*
 determines it (X -> A: every occurrence of one X value carries the same A, up to a tolerated share of violations
 such as misspellings) and a *link attribute* otherwise (a role or a position that varies from record to record).
 
-``model`` makes the plan (``infer_plan``) from ``options`` (the settings a user may give), asking
+``planner`` makes the plan (``infer_plan``) from ``options`` (the settings a user may give), asking
 ``dependencies`` (functional dependencies and identity candidates, counted with numpy), ``types`` (a column's or
 field's type, a record's natural key), ``shapes`` (what a nested value holds, and the fields of its objects),
 ``keyed`` (objects keyed by data: codes as keys), ``entities`` (which entity tables are one) and ``references``
@@ -16,7 +16,7 @@ from .dependencies import (DEFAULT_VIOLATION_THRESHOLD, Dependency, IdentityCand
                            identity_candidates, is_scalar, measure_dependency)
 from .entities import match_key
 from .keyed import keyed_fields, keyed_shape
-from .model import infer_plan
+from .planner import infer_plan
 from .options import Options
 from .references import (REFERENCE_MIN_SHARE, REFERENCE_MIN_VALUES, infer_references, is_reference, reference_evidence,
                          reference_text, reference_texts)

@@ -10,7 +10,7 @@ from dataclasses import dataclass
 
 import networkx as nx
 
-from ..names import Namer, singular, sql_name
+from ..model.names import Namer, singular, sql_name
 from .dependencies import ObjectTable, entity_attributes
 from .options import Options
 from .shapes import field_map, scalar_fields
@@ -123,7 +123,7 @@ def group_entities(plan, members: list, options: Options, tables: Namer) -> None
     have in common; ``--merge`` forces members together, ``--no-merge`` keeps one apart. The tables are
     the connected components of the graph of those pairs, each in the order of its first member.
     """
-    from ..plan import EntityGroup, FieldMap
+    from ..model.plan import EntityGroup, FieldMap
 
     pairs = nx.Graph()
     pairs.add_nodes_from(range(len(members)))  # in order: components come out by their first member

@@ -7,7 +7,7 @@ import re
 from collections import Counter
 from itertools import chain
 
-from ..names import Namer, singular, sql_name
+from ..model.names import Namer, singular, sql_name
 from .dependencies import ObjectTable
 from .options import WIDE_OBJECT_KEYS, Options
 
@@ -88,7 +88,7 @@ def keyed_fields(objects: list[dict], name: str, forced: str | None = None) -> t
 
 def keyed_column(nested, values: list, options: Options, file: str) -> list:
     """A column of objects keyed by data as lists of objects (``nested.keyed`` says so); else its values."""
-    from ..exact import keyed_items
+    from ..model.exact import keyed_items
 
     forced = options.keyed.get(f"{nested.file}:{nested.column}", options.keyed.get(
         f"{file}:{nested.column}", options.keyed.get(nested.column)))

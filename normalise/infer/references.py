@@ -4,7 +4,7 @@ natural key (most of the values, at least a few), made foreign keys.
 
 from __future__ import annotations
 
-from ..names import singular
+from ..model.names import singular
 from .dependencies import ID_NAME, is_scalar
 
 # A value list or scalar column refers to a record table when at least this share of its distinct values are

@@ -6,7 +6,7 @@ from __future__ import annotations
 
 from collections import Counter
 
-from ..names import Namer
+from ..model.names import Namer
 from .dependencies import MISSING, ObjectTable
 from .keyed import keyed_shape
 from .types import value_type
@@ -114,8 +114,8 @@ def field_map(objects: list[dict], path: list[str], column: str, table: ObjectTa
     NULL stands for whichever of the two the objects have more often (ties: null);
     the other kind is kept as a trace, so both come back exactly.
     """
-    from ..exact import ABSENT, get
-    from ..plan import FieldMap
+    from ..model.exact import ABSENT, get
+    from ..model.plan import FieldMap
 
     if table is not None and len(path) == 1:
         col = table.column(path[0])

@@ -6,7 +6,7 @@ from __future__ import annotations
 
 import re
 
-from ..decimals import is_decimal_text
+from ..model.decimals import is_decimal_text
 from .dependencies import ID_NAME, is_scalar
 from .options import NATURAL_KEY_MIN_DISTINCT
 

@@ -10,9 +10,9 @@ from dataclasses import dataclass, field
 
 import networkx as nx
 
-from ..describe import owner_fk, source_label
-from ..escapes import clean
-from ..plan import META_ROLES
+from ..model.describe import owner_fk, source_label
+from ..model.escapes import clean
+from ..model.plan import META_ROLES
 from .markup import esc, shorten, svg_number
 
 CHAR = 6.7  # width of one character of the 11px monospace text in the boxes (0.6 em, rounded up)

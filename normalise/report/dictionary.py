@@ -12,10 +12,10 @@ from __future__ import annotations
 
 import re
 
-from ..describe import (VIEW_WHAT, code, column_meaning, source_label, sources, table_meaning,
+from ..model.describe import (VIEW_WHAT, code, column_meaning, source_label, sources, table_meaning,
                        view_column_meaning)
-from ..escapes import clean
-from ..plan import META_ROLES
+from ..model.escapes import clean
+from ..model.plan import META_ROLES
 
 TYPE_WORDS = {
     "integer": "integer",

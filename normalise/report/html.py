@@ -23,10 +23,10 @@ import json
 import sqlite3
 from pathlib import Path
 
-from ..describe import owner_fk, source_label
-from ..errors import EXIT_USAGE, NormaliseError
-from ..escapes import clean
-from ..plan import META_ROLES, META_TABLES
+from ..model.describe import owner_fk, source_label
+from ..model.errors import EXIT_USAGE, NormaliseError
+from ..model.escapes import clean
+from ..model.plan import META_ROLES, META_TABLES
 from .catalog import HEAD_ROWS, NOT_APPLICABLE, read_database
 from .diagram import Layout, layout_schema, render_diagram
 from .dictionary import render_dictionary
@@ -493,7 +493,7 @@ def report_existing(database, manifest_path=None, report_path=None, dictionary_p
     Reading (the database, the manifest) and writing fail with different one-line messages; an output
     path that is the database, the manifest or the other output is refused before anything is read.
     """
-    from ..errors import UsageError
+    from ..model.errors import UsageError
     from ..outputs import check_paths, staged_outputs, writing
 
     if not report_path and not dictionary_path:

@@ -4,8 +4,8 @@ from __future__ import annotations
 
 from ..build import Built
 from ..outputs import mask_password
-from ..plan import Plan
-from ..sharing import widened_sentence
+from ..model.plan import Plan
+from ..infer.sharing import widened_sentence
 
 MANIFEST_VERSION = 1
 

@@ -8,7 +8,7 @@ import html
 import math
 from collections import defaultdict
 
-from ..escapes import clean
+from ..model.escapes import clean
 
 NONE = "<span class=null>\u2014</span>"
 

@@ -6,7 +6,7 @@ from __future__ import annotations
 
 import sqlalchemy as sa
 
-from ..plan import Plan
+from ..model.plan import Plan
 
 TYPES = {  # the SQL type of each of plan.TYPES
     "integer": sa.BigInteger,

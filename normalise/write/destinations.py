@@ -8,7 +8,7 @@ import os
 
 import sqlalchemy as sa
 
-from ..errors import EXIT_DESTINATION, EXIT_USAGE, NormaliseError
+from ..model.errors import EXIT_DESTINATION, EXIT_USAGE, NormaliseError
 
 
 class DestinationLocked(NormaliseError):

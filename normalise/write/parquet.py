@@ -7,8 +7,8 @@ import os
 from datetime import timezone
 from pathlib import Path
 
-from ..names import quote_name as _quote
-from ..plan import Plan
+from ..model.names import quote_name as _quote
+from ..model.plan import Plan
 
 ARROW_TYPES = {"integer": "int64", "real": "float64", "boolean": "bool", "text": "string"}  # pyarrow type names
 
@@ -33,7 +33,7 @@ def arrow_field(name: str, type_: str, values: list, scale: int | None = None):
     """
     import pyarrow as pa
 
-    from ..datetimes import parse
+    from ..model.datetimes import parse
 
     if type_ in ("date", "timestamp"):
         parsed = [None if v is None else parse(type_, v) for v in values]
@@ -49,7 +49,7 @@ def arrow_field(name: str, type_: str, values: list, scale: int | None = None):
                 None if p is None else p.astimezone(timezone.utc) for p in parsed]
         return pa.field(name, pa.timestamp("us")), parsed
     if type_ == "decimal":
-        from ..decimals import arrow_decimal
+        from ..model.decimals import arrow_decimal
 
         typed = arrow_decimal(values, scale)
         if typed is None:
@@ -73,7 +73,7 @@ def write_parquet(database: str, plan: Plan, directory: str) -> list[str]:
     import pyarrow as pa
     import pyarrow.parquet as pq
 
-    from ..views import view_columns
+    from ..model.views import view_columns
 
     Path(directory).mkdir(parents=True, exist_ok=True)
     written = []

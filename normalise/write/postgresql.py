@@ -9,13 +9,13 @@ from contextlib import contextmanager
 
 import sqlalchemy as sa
 
-from ..describe import descriptions
-from ..errors import NormaliseError
-from ..escapes import SURROGATE as _SURROGATE, printable
-from ..names import quote_name as _quote
-from ..plan import META_ROLES, Plan
+from ..model.describe import descriptions
+from ..model.errors import NormaliseError
+from ..model.escapes import SURROGATE as _SURROGATE, printable
+from ..model.names import quote_name as _quote
+from ..model.plan import META_ROLES, Plan
 from ..progress import QUIET
-from ..views import view_sql
+from ..model.views import view_sql
 from .ddl import metadata_for
 from .destinations import DestinationError, DestinationExists, DestinationFailed, display_url, postgresql_url
 
@@ -28,8 +28,8 @@ def native_forms(plan: Plan, rows: dict[str, list[tuple]]) -> tuple[dict, dict]:
     and (table, column) -> why a column keeps TEXT (its values take several forms or offsets, or one is
     not a date PostgreSQL holds: the types were inferred from a sample). Decided on every value written.
     """
-    from ..datetimes import text_form
-    from ..decimals import decimal_form
+    from ..model.datetimes import text_form
+    from ..model.decimals import decimal_form
 
     forms, kept = {}, {}
     for t in plan.tables:

@@ -14,11 +14,11 @@ from pathlib import Path
 import sqlalchemy as sa
 from sqlalchemy import event
 
-from ..escapes import printable
-from ..names import quote_name as _quote
-from ..plan import META_ROLES, Plan
+from ..model.escapes import printable
+from ..model.names import quote_name as _quote
+from ..model.plan import META_ROLES, Plan
 from ..progress import QUIET
-from ..views import view_sql
+from ..model.views import view_sql
 from .ddl import metadata_for
 from .destinations import DestinationExists, DestinationLocked
 

@@ -159,7 +159,7 @@ def split_wide_records(plan: Plan) -> None:
     a row in every part. The split follows from the columns alone, so a replayed plan splits the same way.
 
     Example:
-        >>> from normalise.plan import Plan, Table, Column
+        >>> from normalise.model.plan import Plan, Table, Column
         >>> plan = Plan(tables=[Table("items", "record", [Column("items_sk", "integer", nullable=False)]
         ...                           + [Column(f"c{k}", "text") for k in range(1700)], ["items_sk"])])
         >>> split_wide_records(plan)

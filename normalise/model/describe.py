@@ -281,7 +281,7 @@ def descriptions(plan) -> list[tuple[str, str | None, str]]:
     ``descriptions`` table, and on PostgreSQL as ``COMMENT ON`` each table, view and column.
 
     Example:
-        >>> from normalise.plan import Plan, Table, Column
+        >>> from normalise.model.plan import Plan, Table, Column
         >>> plan = Plan(tables=[Table("books", "record", [Column("book_sk", "integer", nullable=False),
         ...                     Column("isbn", "text", source="isbn")], ["book_sk"], natural_key=["isbn"],
         ...                     sources=[{"file": "books.csv", "column": None}])])

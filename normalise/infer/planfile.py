@@ -22,9 +22,9 @@ import tomllib
 from difflib import get_close_matches
 from pathlib import Path
 
-from .errors import EXIT_USAGE, NormaliseError
-from .plan import META_TABLES, TYPES, EntityGroup, FieldMap, NestedColumn, Plan, RecordSource
-from .views import Pick, View
+from ..model.errors import EXIT_USAGE, NormaliseError
+from ..model.plan import META_TABLES, TYPES, EntityGroup, FieldMap, NestedColumn, Plan, RecordSource
+from ..model.views import Pick, View
 
 PLAN_VERSION = 1
 KINDS = ("entity-list", "child-list", "value-list", "object-columns", "object-child")
@@ -108,7 +108,7 @@ def _needles(block: dict) -> list[str]:
 
 
 def _fits(value, spec: str) -> bool:
-    from .names import sql_name
+    from ..model.names import sql_name
 
     if spec == NAME:
         return isinstance(value, str) and sql_name(value) == value and len(value.encode()) <= 63
@@ -134,7 +134,7 @@ def _wrong(text: str, where: str, expected: str, value) -> None:
     shown = _v(value) if isinstance(value, (str, int, float, bool, list)) else type(value).__name__
     hint = f"write {key} = <{expected}>"
     if expected == NAME:  # the name the data would have given it, as the suggestion
-        from .names import sql_name
+        from ..model.names import sql_name
 
         cleaned = sql_name(value) if isinstance(value, str) else ""
         hint = ("names are lower case letters, digits and _ (not first), at most 60 characters"
@@ -373,10 +373,10 @@ def join_settings(doc: dict) -> dict:
 
 def plan_from_doc(doc: dict, text: str, exports: list, decoded: dict) -> Plan:
     """Rebuild the plan from its file and check that it still fits the decoded data."""
-    from .infer import entity_attributes, objects_of, scalar_fields
-    from .infer.model import Found
-    from .infer.shapes import type_at
-    from .schema import add_tables
+    from ..model.schema import add_tables
+    from .dependencies import entity_attributes
+    from .planner import Found
+    from .shapes import objects_of, scalar_fields, type_at
 
     plan = Plan(violation_threshold=float(doc.get("violation_threshold", 0.05)))
     by_name: dict[str, list] = {}  # file stem -> its inputs, in order: a/titles.csv and b/titles.csv share one
@@ -568,7 +568,7 @@ def _check_view(text: str, plan: Plan, view: View) -> None:
         _fail(text, f"view {view.name!r}: unknown kind {view.kind!r}", "use record_summary or entity_summary",
               f'"{view.kind}"')
     end = 0 if view.kind == "record_summary" else 1
-    from .views import occurrence, references
+    from ..model.views import occurrence, references
 
     if end == 1 and not view.lists:
         _fail(text, f"view {view.name!r} counts the records of {view.table!r} through no list",
@@ -653,7 +653,7 @@ def _values(values: list, nested: NestedColumn) -> list:
     """A column's values as the build reads them: an object keyed by data as the list of its keys."""
     if not nested.keyed:
         return values
-    from .exact import keyed_items
+    from ..model.exact import keyed_items
 
     return [keyed_items(v, nested.keyed, nested.keyed_value) for v in values]
 

@@ -6,10 +6,10 @@ from __future__ import annotations
 
 from pathlib import Path
 
-from ..decimals import decimal_scale
-from ..exact import ABSENT as _ABSENT, get
-from ..names import Namer, singular, sql_name
-from ..plan import META_TABLES
+from ..model.decimals import decimal_scale
+from ..model.exact import ABSENT as _ABSENT, get
+from ..model.names import Namer, singular, sql_name
+from ..model.plan import META_TABLES
 from .dependencies import ObjectTable, hashable, identity_candidates
 from .entities import group_entities, Member
 from .keyed import keyed_column, keys_like_codes, keyed_fields
@@ -24,7 +24,7 @@ def infer_plan(exports: list, decoded: dict, options: Options | None = None):
 
     ``decoded`` maps each export's path to its ``{column: DecodedColumn}``.
     """
-    from ..plan import FieldMap, NestedColumn, Plan, RecordSource
+    from ..model.plan import FieldMap, NestedColumn, Plan, RecordSource
 
     options = options or Options()
     plan = Plan(violation_threshold=options.violation_threshold)
@@ -103,7 +103,7 @@ def infer_plan(exports: list, decoded: dict, options: Options | None = None):
             chosen = detect_natural_key(list(scalar_values), scalar_values, scalar_types)
         if chosen:
             if chosen not in scalar_values:
-                from ..errors import UsageError
+                from ..model.errors import UsageError
                 raise UsageError(f"--key {export.name}={chosen}: {export.path} has no scalar column {chosen!r}")
             record.natural_key = [next(f.column for f in record.scalars if f.path == [chosen])]
         record.parent_path = export.parent_path
@@ -124,8 +124,8 @@ def infer_plan(exports: list, decoded: dict, options: Options | None = None):
                 _name_children(child, nested.table or record.table, tables)
             _free_key_names(plan, nested, record.key_column)
     infer_references(plan, decoded)
-    from ..schema import add_tables
-    from ..views import default_views
+    from ..model.schema import add_tables
+    from ..model.views import default_views
 
     add_tables(plan)
     plan.views = default_views(plan)
@@ -147,7 +147,7 @@ def _child_lists(file: str, column: str, objects: list[dict], lists: list[list[s
     A list of objects with an identity named like one (``id``, ``user_id``) is an entity list, its entities
     shared with the other columns of the same identity space; ``found`` collects them.
     """
-    from ..plan import NestedColumn
+    from ..model.plan import NestedColumn
 
     out = []
     for path in lists:
@@ -157,7 +157,7 @@ def _child_lists(file: str, column: str, objects: list[dict], lists: list[list[s
             inner = [get_path(o, path) for o in objects]
         key, value_field = keyed_fields([v for v in inner if isinstance(v, dict)], path[-1])
         if key:  # an object keyed by data: read as the list of its keys (exact.keyed_items)
-            from ..exact import keyed_items
+            from ..model.exact import keyed_items
 
             inner = [keyed_items(v, key, value_field) if isinstance(v, dict) else v for v in inner]
         # a value that is not a list is taken as a list of one (build.rows, ``Builder._rows``), so its type counts too
@@ -226,7 +226,7 @@ class Found:
 
     def references(self, nested, file: str, objects: list[dict], table: ObjectTable, itself: bool = False) -> list:
         """Single objects with an identity inside the objects (at any depth; ``itself``: the objects too)."""
-        from ..plan import FieldMap
+        from ..model.plan import FieldMap
 
         out = []
         paths = ([([], objects, table)] if itself else []) + object_paths(objects, table)

@@ -28,9 +28,9 @@ from collections import Counter
 from dataclasses import replace
 from pathlib import Path
 
-from .exact import keyed_items
-from .infer import objects_of
-from .infer.dependencies import hashable
+from ..model.exact import keyed_items
+from .dependencies import hashable
+from .shapes import objects_of
 
 __all__ = ["undecided_pairs", "identity_statistics", "widened", "agreement", "widened_sentence"]
 
