@@ -16,9 +16,10 @@ from __future__ import annotations
 import sqlite3
 from operator import itemgetter
 
+from .model.digests import DIGEST_MODULUS, InputDigests, keyed_digest
 from .model.errors import NormaliseError
-from .model.exact import (ABSENT, DIGEST_MODULUS, InputDigests, from_literal, keyed_digest, keyed_object, object_back,
-                    pointer, pointer_keys, put, same, stored_back)
+from .model.exact import ABSENT, from_literal, keyed_object, pointer, pointer_keys, put, same, stored_back
+from .model.expected import object_back
 from .model.names import quote_name as _q
 from .model.plan import TEXT_TYPES
 from .model.schema import record_parts
@@ -147,7 +148,7 @@ def _apply(obj, edits) -> object:
 def row_objects(fields, start: int, entities: dict | None = None):
     """A function giving the object a row's field columns (from index ``start`` on) stand for.
 
-    The same as ``exact.object_back``, made once per table: the common case (one key per field, values
+    The same as ``model.expected.object_back``, made once per table: the common case (one key per field, values
     SQLite gives back as they were decoded) is one dict comprehension per row. ``entities``: the objects
     of the entity tables the fields refer to (``_referred``).
     """

@@ -17,7 +17,7 @@ from hypothesis import strategies as st
 
 from fuzz.checks import MODES, SUFFIXES, check_decode, check_read
 from normalise.build import TooManyColumns, check_width, to_sql_value
-from normalise.model.exact import usable_identity
+from normalise.model.expected import usable_identity
 from normalise.decode import decode_column, split_delimited
 from normalise.model.escapes import printable
 from normalise.read import read

@@ -17,6 +17,6 @@ from .rows import Builder, DuplicateNaturalKey
 from .values import canonical, to_sql_value, value_text
 from .width import TooManyColumns, check_width
 
-__all__ = ["Builder", "Built", "DuplicateNaturalKey", "FileCounts", "InMemory", "TooManyColumns", "build", "build_partitions",
-           "canonical", "check_width", "entity_members", "key_of", "name_map", "occurrence_columns",
-           "reference_values", "row_key", "to_sql_value", "value_text"]
+__all__ = ["Builder", "Built", "DuplicateNaturalKey", "FileCounts", "InMemory", "TooManyColumns", "build",
+           "build_partitions", "canonical", "check_width", "entity_members", "key_of", "name_map",
+           "occurrence_columns", "reference_values", "row_key", "to_sql_value", "value_text"]

@@ -38,7 +38,7 @@ class Built:
     merges: list[dict] = field(default_factory=list)  # entities matched from several spellings
     cells_quarantined_by_file: dict = field(default_factory=dict)  # every input file, joined ones too
     updates: dict = field(default_factory=dict)  # entity table -> rows to rewrite with their chosen values
-    inputs: object = None  # exact.InputDigests of the loaded cells
+    inputs: object = None  # model.digests.InputDigests of the loaded cells
     trace_reasons: dict = field(default_factory=dict)  # why values were kept in value_traces, and how many
     rejoined: dict = field(default_factory=dict)  # "file:column" -> values whose name suffix was rejoined
     column_updates: dict = field(default_factory=dict)  # (table, column) -> [(value, row sk)] to set at the end

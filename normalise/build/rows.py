@@ -12,11 +12,13 @@ from collections import Counter
 from dataclasses import dataclass
 from itertools import chain
 
-from ..model.describe import descriptions
-from ..model.errors import NormaliseError
-from ..model.exact import (ABSENT, VALUE_TYPES, InputDigests, expect_cell, expect_element, get, is_negative_zero, keyed_items,
-                     literal, pointer, same, store, stored_back, usable_identity, value_key)
 from ..infer import get_path, match_key
+from ..model.describe import descriptions
+from ..model.digests import InputDigests
+from ..model.errors import NormaliseError
+from ..model.exact import (ABSENT, get, is_negative_zero, keyed_items, literal, pointer, same, store, stored_back,
+                           value_key)
+from ..model.expected import VALUE_TYPES, expect_cell, expect_element, usable_identity
 from ..model.plan import META_TABLES, NestedColumn, Plan, RecordSource
 from .bookkeeping import entity_members, meta_order, name_map, record_splits
 from .counts import Audit, Built, FileCounts
@@ -504,7 +506,7 @@ class Builder:
         known = audit.known(nested, self.entities)
         if by_field and any(len(f.path) > 1 or f.entity for f in nested.row_fields):
             # fields of sub-objects: a sub-object that is null, empty or holds more keys than the model cannot be
-            # told from its fields, so each element is compared with what its row gives back (exact.expect_cell)
+            # told from its fields, so each element is compared with what its row gives back (model.expected.expect_cell)
             group = self.entities[nested.entity].group if nested.kind == "entity-list" else None
             for k, o in enumerate(items):
                 back = expect_element(nested, o, group.identity_type if group else None,

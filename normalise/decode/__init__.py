@@ -11,7 +11,8 @@ from .columns import (EMPTY_MARKERS, FORMATS, ColumnFormat, DecodedColumn, Quara
 from .delimited import NAME_SUFFIXES, detect_separator, join_delimited, join_separator_of, split_delimited
 from .nested import ACCELERATED, paused_gc, python_literals_as_json, rewrite_as_json
 
-__all__ = ["ACCELERATED", "ColumnFormat", "DecodedColumn", "EMPTY_MARKERS", "FORMATS", "NAME_SUFFIXES", "QuarantinedCell",
-           "decisions", "decode", "decode_column", "detect_separator", "excerpt", "first_value", "format_choices",
-           "join_delimited", "join_separator_of", "late_decision", "parse_decode_option", "paused_gc",
-           "python_literals_as_json", "rewrite_as_json", "split_delimited"]
+__all__ = ["ACCELERATED", "ColumnFormat", "DecodedColumn", "EMPTY_MARKERS", "FORMATS", "NAME_SUFFIXES",
+           "QuarantinedCell", "decisions", "decode", "decode_column", "detect_separator", "excerpt",
+           "first_value", "format_choices", "join_delimited", "join_separator_of", "late_decision",
+           "parse_decode_option", "paused_gc", "python_literals_as_json", "rewrite_as_json",
+           "split_delimited"]

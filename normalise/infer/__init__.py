@@ -16,11 +16,16 @@ from .dependencies import (DEFAULT_VIOLATION_THRESHOLD, Dependency, IdentityCand
                            identity_candidates, is_scalar, measure_dependency)
 from .entities import match_key
 from .keyed import keyed_fields, keyed_shape
-from .planner import infer_plan
 from .options import Options
+from .planner import infer_plan
 from .references import (REFERENCE_MIN_SHARE, REFERENCE_MIN_VALUES, infer_references, is_reference, reference_evidence,
                          reference_text, reference_texts)
 from .shapes import field_map, get_path, objects_of, scalar_fields, shape_of
 from .types import detect_natural_key, list_value_type, scalar_column_type, scalar_type, value_type
 
-__all__ = ["DEFAULT_VIOLATION_THRESHOLD", "Dependency", "IdentityCandidate", "ObjectTable", "Options", "REFERENCE_MIN_SHARE", "REFERENCE_MIN_VALUES", "detect_natural_key", "entity_attributes", "field_map", "get_path", "identity_candidates", "infer_plan", "infer_references", "is_reference", "is_scalar", "keyed_fields", "keyed_shape", "list_value_type", "match_key", "measure_dependency", "objects_of", "reference_evidence", "reference_text", "reference_texts", "scalar_column_type", "scalar_fields", "scalar_type", "shape_of", "value_type"]
+__all__ = ["DEFAULT_VIOLATION_THRESHOLD", "Dependency", "IdentityCandidate", "ObjectTable", "Options",
+           "REFERENCE_MIN_SHARE", "REFERENCE_MIN_VALUES", "detect_natural_key", "entity_attributes",
+           "field_map", "get_path", "identity_candidates", "infer_plan", "infer_references", "is_reference",
+           "is_scalar", "keyed_fields", "keyed_shape", "list_value_type", "match_key", "measure_dependency",
+           "objects_of", "reference_evidence", "reference_text", "reference_texts", "scalar_column_type",
+           "scalar_fields", "scalar_type", "shape_of", "value_type"]

@@ -16,7 +16,8 @@ from .postgresql import (DEFAULT_SCHEMA, PG_MAX_IDENTIFIER, PG_REGISTER, Unstora
 from .sqlite import SqliteWriter, sqlite_engine, write_sqlite
 
 __all__ = ["ACCEPTED_DESTINATIONS", "ARROW_TYPES", "DEFAULT_SCHEMA", "DestinationError", "DestinationExists",
-           "DestinationFailed", "DestinationLocked", "PG_MAX_IDENTIFIER", "PG_REGISTER", "SqliteWriter", "TYPES",
-           "UnstorableValue", "arrow_field", "column_notes", "destination", "display_url", "is_postgresql",
-           "metadata_for", "native_forms", "postgresql_run_lock", "postgresql_url", "proof_queries",
-           "server_message", "sqlite_engine", "write_parquet", "write_postgresql", "write_sqlite"]
+           "DestinationFailed", "DestinationLocked", "PG_MAX_IDENTIFIER", "PG_REGISTER", "SqliteWriter",
+           "TYPES", "UnstorableValue", "arrow_field", "column_notes", "destination", "display_url",
+           "is_postgresql", "metadata_for", "native_forms", "postgresql_run_lock", "postgresql_url",
+           "proof_queries", "server_message", "sqlite_engine", "write_parquet", "write_postgresql",
+           "write_sqlite"]
