@@ -30,7 +30,8 @@ from .partition import open_inputs
 from .progress import QUIET, Phases
 from .prove import LossDetected, loss_message, prove, sqlite_fetch
 from .model.plan import Plan
-from .infer.planfile import join_settings, plan_from_doc, plan_to_toml, read_plan
+from .infer.planfile import join_settings, plan_from_doc, read_plan
+from .infer.plantext import plan_to_toml
 from .report.manifest import manifest
 from .result import Built
 from .model.schema import POSTGRESQL_MAX_COLUMNS

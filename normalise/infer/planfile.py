@@ -15,325 +15,31 @@ forbidden merge): its entity table is then inferred for it alone.
 
 from __future__ import annotations
 
-import json
-import os
-import re
 import tomllib
-from difflib import get_close_matches
 from pathlib import Path
 
-from ..model.errors import EXIT_USAGE, NormaliseError
 from ..model.plan import META_TABLES, TYPES, EntityGroup, FieldMap, NestedColumn, Plan, RecordSource
 from ..model.views import Pick, View
-
-PLAN_VERSION = 1
-KINDS = ("entity-list", "child-list", "value-list", "object-columns", "object-child")
-
-
-class InvalidPlan(NormaliseError):
-    """A plan file that cannot be read or does not fit the data (the plan given: a usage error)."""
-
-    exit_code = EXIT_USAGE
-
-
-# --- the plan file's schema: what each block may hold; the reader checks a file against it ---------------
-
-NAME = "name"  # a SQL name as the tool makes them: [a-z0-9_], not starting with a digit, at most 60 characters
-TEXT, FLAG, WHOLE, SHARE, TEXTS = "text", "true or false", "a whole number", "a number from 0 to 1", "texts"
-REQUIRED = "required"  # a block's keys that must be there
-FIELD = {REQUIRED: ("key", "name", "type"), "key": "path", "name": NAME, "type": TYPES, "null": ("null", "absent"), "as_text": FLAG,
-         "references": NAME, "entity": NAME, "scale": WHOLE}
-NESTED = {REQUIRED: ("column", "kind"), "column": TEXT, "path": TEXT, "file": TEXT, "kind": KINDS, "table": NAME, "entity": NAME,
-          "values_table": NAME, "identity": TEXT, "matched": FLAG, "separator": TEXT,
-          "value_type": ("integer", "real", "boolean", "text"), "references": NAME, "keyed": TEXT,
-          "keyed_value": TEXT, "fields": [FIELD]}
-NESTED["children"] = [NESTED]
-SCHEMA = {
-    "version": WHOLE, "violation_threshold": SHARE,
-    "join": {"how": ("left", "inner", "full"), "cardinality": ("one-to-one", "one-to-many"), "separate": FLAG,
-             "on": "map of texts"},
-    "record": [{REQUIRED: ("file", "table", "key"), "file": TEXT, "table": NAME, "key": NAME, "natural_key": TEXT,
-                "duplicates": ("first", "last", "refuse"), "columns": [FIELD], "nested": [NESTED]}],
-    "entity": [{REQUIRED: ("handle", "table", "identity", "identity_column", "identity_type"), "handle": TEXT, "table": NAME, "identity": TEXT, "identity_column": NAME,
-                "identity_type": TYPES, "matched": FLAG, "members": TEXTS, "attributes": [FIELD]}],
-    "view": [{REQUIRED: ("name", "kind", "table"), "name": NAME, "kind": ("record_summary", "entity_summary"), "table": NAME, "lists": TEXTS,
-              "date_column": TEXT, "separator": TEXT,
-              "pick": [{REQUIRED: ("name", "list", "attribute", "value"), "name": NAME, "list": TEXT, "attribute": TEXT, "value": "a text or number"}]}],
-}
-
-
-def check_shape(doc: dict, text: str) -> None:
-    """Every key of the plan file known and every value of the kind the schema (``SCHEMA``) says, or one
-    ``InvalidPlan`` naming the line, the key, what was expected and what arrived."""
-    _shape(doc, SCHEMA, "", text)
-
-
-def _shape(value, spec, where: str, text: str) -> None:
-    if isinstance(spec, dict):
-        if not isinstance(value, dict):
-            _wrong(text, where, "a table of keys", value)
-        missing = [k for k in spec.get(REQUIRED, ()) if k not in value]
-        if missing:
-            _fail(text, f"{where or 'the plan'} lacks {', '.join(missing)}",
-                  f"every such block needs {', '.join(spec[REQUIRED])}; or write a fresh plan with `normalise plan`",
-                  *_needles(value))
-        for key, inner in value.items():
-            if key not in spec or key == REQUIRED:
-                known = [k for k in spec if k != REQUIRED]
-                close = get_close_matches(str(key), known, n=1, cutoff=0.6)
-                _fail(text, f"{where or 'the plan'}: unknown key {key!r}"
-                      + (f" (did you mean {close[0]!r}?)" if close else ""),
-                      f"use one of: {', '.join(known)}; or write a fresh plan with `normalise plan`",
-                      f"{key} =", f'"{key}"', f"{key}")
-            _shape(inner, spec[key], f"{where}.{key}" if where else key, text)
-    elif isinstance(spec, list):
-        if not isinstance(value, list):
-            _wrong(text, where, "a list of [[...]] blocks or { ... } entries", value)
-        for n, item in enumerate(value):
-            _shape(item, spec[0], f"{where}[{n + 1}]", text)
-    elif isinstance(spec, tuple):
-        if value not in spec:
-            key = where.rsplit(".", 1)[-1].split("[")[0]
-            _fail(text, f"{where}: unknown {key} {value!r}", f"use one of {', '.join(spec)}",
-                  f"{key} = {_v(value) if isinstance(value, (str, int, float, bool)) else ''}".strip(), f"{key} =")
-    elif not _fits(value, spec):
-        _wrong(text, where, spec, value)
-
-
-def _needles(block: dict) -> list[str]:
-    """Text that finds a block's line: its naming keys with their values first."""
-    keys = [k for k in ("name", "column", "handle", "file", "table") if isinstance(block.get(k), str)]
-    keys += [k for k, v in block.items() if k not in keys and isinstance(v, (str, int, float))]
-    return [f"{k} = {_v(block[k])}" for k in keys]
-
-
-def _fits(value, spec: str) -> bool:
-    from ..model.names import sql_name
-
-    if spec == NAME:
-        return isinstance(value, str) and sql_name(value) == value and len(value.encode()) <= 63
-    if spec == TEXT:
-        return isinstance(value, str)
-    if spec == FLAG:
-        return isinstance(value, bool)
-    if spec == WHOLE:
-        return isinstance(value, int) and not isinstance(value, bool)
-    if spec == SHARE:
-        return isinstance(value, (int, float)) and not isinstance(value, bool) and 0 <= value < 1
-    if spec == TEXTS:
-        return isinstance(value, list) and all(isinstance(v, str) for v in value)
-    if spec == "path":
-        return isinstance(value, str) or isinstance(value, list) and all(isinstance(v, str) for v in value)
-    if spec == "map of texts":
-        return isinstance(value, dict) and all(isinstance(v, str) for v in value.values())
-    return isinstance(value, (str, int, float)) and not isinstance(value, bool)  # a pick's value
-
-
-def _wrong(text: str, where: str, expected: str, value) -> None:
-    key = where.rsplit(".", 1)[-1].split("[")[0]
-    shown = _v(value) if isinstance(value, (str, int, float, bool, list)) else type(value).__name__
-    hint = f"write {key} = <{expected}>"
-    if expected == NAME:  # the name the data would have given it, as the suggestion
-        from ..model.names import sql_name
-
-        cleaned = sql_name(value) if isinstance(value, str) else ""
-        hint = ("names are lower case letters, digits and _ (not first), at most 60 characters"
-                + (f", as {key} = {_v(cleaned)} would be" if cleaned else ""))
-    _fail(text, f"{where}: expected {expected}, got {shown[:60]}", hint, f"{key} = {shown}", f"{key} =")
-
-
-# --- writing ---------------------------------------------------------------------
-
-def _v(value) -> str:
-    if isinstance(value, bool):
-        return "true" if value else "false"
-    if isinstance(value, (int, float)):
-        return repr(value)
-    if isinstance(value, str):
-        return _toml_string(value)
-    if isinstance(value, list):
-        return "[" + ", ".join(_v(v) for v in value) + "]"
-    if isinstance(value, dict):
-        return "{ " + ", ".join(f"{_k(k)} = {_v(v)}" for k, v in value.items()) + " }"
-    raise TypeError(value)
-
-
-def _k(key: str) -> str:
-    return key if re.fullmatch(r"[A-Za-z0-9_-]+", key) else _toml_string(key)
-
-
-def _toml_string(text: str) -> str:
-    """A TOML basic string: JSON's escapes are TOML's (toml.io v1.0.0, "String"), and DEL, which JSON leaves
-    as it is, is a control character TOML wants escaped too.
-
-    Example:
-        >>> import tomllib
-        >>> tomllib.loads("k = " + _toml_string('a"b' + chr(127)))["k"] == 'a"b' + chr(127)
-        True
-    """
-    return json.dumps(text, ensure_ascii=False).replace("\x7f", "\\u007f")
-
-
-def _fields(maps: list[FieldMap]) -> list[dict]:
-    out = []
-    for f in maps:
-        d = {"key": f.path, "name": f.column, "type": f.type}
-        if f.null_means != "null":
-            d["null"] = f.null_means
-        if f.as_text:
-            d["as_text"] = True
-        if f.scale is not None:
-            d["scale"] = f.scale  # a decimal's places: its Parquet type's scale
-        if f.references:
-            d["references"] = f.references
-        if f.entity:
-            d["entity"] = f.entity  # a reference: the key of the [[entity]] the object at `key` is
-        out.append(d)
-    return out
-
-
-def plan_to_toml(plan: Plan, joins: dict | None = None) -> str:
-    """The plan as readable, commented TOML."""
-    out = ["# normalise plan: the relational model of these exports, as decisions.",
-           "# Edit and replay with: normalise build FILE... --plan THIS_FILE --db PATH",
-           f"# Types: {', '.join(TYPES)}.", "",
-           f"version = {PLAN_VERSION}",
-           "# share of functional-dependency violations tolerated when deciding entity attributes",
-           f"violation_threshold = {_v(plan.violation_threshold)}", ""]
-    joins = joins or {}
-    out += ["# Further files attach to the first one by key: how = left | inner | full",
-            "[join]", f"how = {_v(joins.get('how', 'left'))}",
-            f"cardinality = {_v(joins.get('cardinality', 'one-to-one'))}",
-            f"separate = {_v(bool(joins.get('separate', False)))}"]
-    for file, (column, _) in sorted(joins.get("on", {}).items()):
-        out.append(f"on.{_k(file)} = {_v(column)}  # the column of {file} holding the main file's keys")
-    out.append("")
-    for record in plan.records:
-        out += ["# One record table per input file (joined files add their columns to it).",
-                "[[record]]", f"file = {_v(record.file)}", f"table = {_v(record.table)}",
-                f"key = {_v(record.key_column)}  # surrogate key: the line the row starts on",
-                f"natural_key = {_v(record.natural_key[0] if record.natural_key else '')}",
-                f"duplicates = {_v(record.duplicates)}  # first | last | refuse",
-                "columns = ["]
-        if any(f.references for f in record.scalars):
-            out.insert(-1, "# references = TABLE: the column's values are natural keys of that record table "
-                           "(a foreign key beside it); remove it to keep the values only")
-        out += [f"  {_v(f)}," for f in _fields(record.scalars)]
-        out.append("]")
-        for nested in record.nested:
-            out += _nested_toml(nested, "record.nested")
-        out.append("")
-    for group in plan.entities:
-        out += ["# An entity table: one row per distinct identity; the attributes are functionally",
-                "# determined by the identity. Other fields of the objects are link attributes.",
-                "[[entity]]", f"handle = {_v(group.table)}", f"table = {_v(group.table)}",
-                f"identity = {_v(group.identity)}", f"identity_column = {_v(group.identity_column)}",
-                f"identity_type = {_v(group.identity_type)}",
-                f"matched = {_v(group.matched)}  # true: identity is the field's normalised text (NFKC, case folded)",
-                f"members = {_v(group.members)}  # nested columns whose objects are these entities",
-                "attributes = ["]
-        out += [f"  {_v(f)}," for f in _fields(group.attributes)]
-        out += ["]", ""]
-    for view in plan.views:
-        out += ["[[view]]", f"name = {_v(view.name)}",
-                f"kind = {_v(view.kind)}  # record_summary | entity_summary", f"table = {_v(view.table)}",
-                f"lists = {_v(view.lists)}"]
-        if view.date_column:
-            out.append(f"date_column = {_v(view.date_column)}")
-        out.append(f"separator = {_v(view.separator)}")
-        for pick in view.picks:
-            out += ["[[view.pick]]  # the first entity of a list whose link attribute equals a value",
-                    f"name = {_v(pick.name)}", f"list = {_v(pick.bridge)}", f"attribute = {_v(pick.attribute)}",
-                    f"value = {_v(pick.value)}"]
-        out.append("")
-    return "\n".join(out)
-
-
-def _nested_toml(nested: NestedColumn, header: str) -> list[str]:
-    out = [f"[[{header}]]", f"column = {_v(nested.column)}"]
-    if nested.path:
-        out.append(f"path = {_v(nested.path)}")
-    out += [f"file = {_v(nested.file)}",
-            f"kind = {_v(nested.kind)}  # entity-list | child-list | value-list | object-columns | object-child"]
-    if nested.table:
-        out.append(f"table = {_v(nested.table)}")
-    if nested.keyed:
-        out.append(f"keyed = {_v(nested.keyed)}  # an object keyed by data: a row per key, the key in this field "
-                   f"(\"\" = not keyed)")
-        if nested.keyed_value:
-            out.append(f"keyed_value = {_v(nested.keyed_value)}  # the field of each key's scalar value")
-    if nested.kind == "entity-list":
-        out += [f"entity = {_v(nested.entity)}  # handle of an [[entity]]", f"identity = {_v(nested.identity)}"]
-        if nested.matched:
-            out.append("matched = true")
-    if nested.kind == "value-list":
-        out.append(f"values_table = {_v(nested.entity)}")
-        if nested.separator:
-            out.append(f"separator = {_v(nested.separator)}  # between the values of a delimited cell")
-        if nested.value_type != "text":
-            out.append(f"value_type = {_v(nested.value_type)}  # integer | real | boolean | text")
-        if nested.references:
-            out.append(f"references = {_v(nested.references)}  # the values are natural keys of this record table")
-    label = {"entity-list": "link attributes (kept on the bridge)", "child-list": "fields",
-             "object-columns": "record columns", "object-child": "fields"}.get(nested.kind)
-    if label:
-        out.append(f"fields = [  # {label}")
-        out += [f"  {_v(f)}," for f in _fields(nested.row_fields)]
-        out.append("]")
-    for child in nested.children:
-        out += _nested_toml(child, header + ".children")
-    return out
-
-
-# --- reading -----------------------------------------------------------------------
-
-def _line_of(text: str, *needles: str, after: str | None = None) -> int | None:
-    lines = text.splitlines()
-    start = 0
-    if after:
-        start = next((n for n, line in enumerate(lines) if after in line), 0)
-    for needle in needles:
-        for n, line in enumerate(lines[start:], start=start + 1):
-            if needle in line:
-                return n
-    return None
-
-
-class PlanText(str):
-    """A plan file's text that knows the file it was read from, so that every refusal can name it."""
-
-    path: str = ""
-
-    @classmethod
-    def of(cls, text: str, path: str) -> "PlanText":
-        out = cls(text)
-        out.path = os.fspath(path)
-        return out
-
-
-def _fail(text: str, message: str, hint: str, *needles: str, after: str | None = None):
-    line = _line_of(text, *needles, after=after) if needles else None
-    where = " ".join(filter(None, [getattr(text, "path", ""), f"line {line}" if line else ""]))
-    raise InvalidPlan(f"plan {where + ': ' if where else ''}{message}\n  hint: {hint}", line=line,
-                      file=getattr(text, "path", None) or None)
+from .planschema import KINDS, InvalidPlan, PlanText, check_shape, refuse
+from .plantext import PLAN_VERSION, toml_value
 
 
 def _maps(text: str, items, where: str) -> list[FieldMap]:
     out = []
     for f in items or []:
         if not isinstance(f, dict) or not {"key", "name", "type"} <= set(f):
-            _fail(text, f"{where}: each field needs key, name and type", 'write { key = ["name"], name = "name", type = "text" }',
+            refuse(text, f"{where}: each field needs key, name and type", 'write { key = ["name"], name = "name", type = "text" }',
                   where.split(".")[-1])
         if f["type"] not in TYPES:
-            _fail(text, f"{where}: unknown type {f['type']!r}", f"use one of {', '.join(TYPES)}", f'"{f["type"]}"')
+            refuse(text, f"{where}: unknown type {f['type']!r}", f"use one of {', '.join(TYPES)}", f'"{f["type"]}"')
         key = f["key"] if isinstance(f["key"], list) else [f["key"]]
         null_means = f.get("null", "null")
         if null_means not in ("null", "absent"):
-            _fail(text, f"{where}: null = {null_means!r}", 'write null = "absent" (NULL means the key is absent) '
+            refuse(text, f"{where}: null = {null_means!r}", 'write null = "absent" (NULL means the key is absent) '
                   'or leave it out (NULL means null)', f'"{null_means}"')
         scale = f.get("scale")
         if scale is not None and (type(scale) is not int or not 0 <= scale <= 38):
-            _fail(text, f"{where}: scale = {scale!r}", "write a whole number of places from 0 to 38", f"scale = {scale!r}")
+            refuse(text, f"{where}: scale = {scale!r}", "write a whole number of places from 0 to 38", f"scale = {scale!r}")
         out.append(FieldMap([str(k) for k in key], f["name"], f["type"], null_means, bool(f.get("as_text", False)),
                             references=str(f.get("references", "")), entity=str(f.get("entity", "")), scale=scale))
     return out
@@ -355,13 +61,13 @@ def read_plan(path: str) -> tuple[dict, str]:
                           "commas on that line", file=path) from None
     check_shape(doc, text)
     if doc.get("version") != PLAN_VERSION:
-        _fail(text, f"version {doc.get('version')!r} is not {PLAN_VERSION}", f"set version = {PLAN_VERSION}",
+        refuse(text, f"version {doc.get('version')!r} is not {PLAN_VERSION}", f"set version = {PLAN_VERSION}",
               "version")
     for setting, allowed in (("how", ("left", "inner", "full")), ("cardinality", ("one-to-one", "one-to-many"))):
         value = doc.get("join", {}).get(setting, allowed[0])
         if value not in allowed:
-            _fail(text, f"[join] {setting} {value!r} is not one of {', '.join(allowed)}",
-                  f"set {setting} = {_v(allowed[0])}", f"{setting} =", after="[join]")
+            refuse(text, f"[join] {setting} {value!r} is not one of {', '.join(allowed)}",
+                  f"set {setting} = {toml_value(allowed[0])}", f"{setting} =", after="[join]")
     return doc, text
 
 
@@ -387,10 +93,10 @@ def plan_from_doc(doc: dict, text: str, exports: list, decoded: dict) -> Plan:
     for e in doc.get("entity", []):
         missing = {"handle", "table", "identity", "identity_column", "identity_type"} - set(e)
         if missing:
-            _fail(text, f"[[entity]] {e.get('handle', '?')} lacks {', '.join(sorted(missing))}",
+            refuse(text, f"[[entity]] {e.get('handle', '?')} lacks {', '.join(sorted(missing))}",
                   "every [[entity]] needs handle, table, identity, identity_column and identity_type", "[[entity]]")
         if e["identity_type"] not in TYPES:
-            _fail(text, f"entity {e['handle']!r}: unknown identity_type {e['identity_type']!r}",
+            refuse(text, f"entity {e['handle']!r}: unknown identity_type {e['identity_type']!r}",
                   f"use one of {', '.join(TYPES)}", f'identity_type = "{e["identity_type"]}"')
         group = EntityGroup(table=e["table"], key_column=f"{e['table']}_sk", identity=e["identity"],
                             identity_column=e["identity_column"], identity_type=e["identity_type"],
@@ -400,19 +106,19 @@ def plan_from_doc(doc: dict, text: str, exports: list, decoded: dict) -> Plan:
     for r in doc.get("record", []):
         file = r.get("file")
         if file not in by_name:
-            _fail(text, f"[[record]] file {file!r} is not among the inputs ({', '.join(by_name)})",
+            refuse(text, f"[[record]] file {file!r} is not among the inputs ({', '.join(by_name)})",
                   "give that file on the command line, or remove its [[record]] block", f'"{file}"')
         free = [e for e in by_name[file] if e.path not in taken]
         if not free:
-            _fail(text, f"[[record]] file {file!r} has more [[record]] blocks than inputs of that name "
+            refuse(text, f"[[record]] file {file!r} has more [[record]] blocks than inputs of that name "
                         f"({len(by_name[file])})", "give each of those files on the command line, in the order "
                   "the plan was written, or remove the extra block", f'"{file}"')
         missing = {"table", "key"} - set(r)
         if missing:
-            _fail(text, f"[[record]] {file} lacks {', '.join(sorted(missing))}",
+            refuse(text, f"[[record]] {file} lacks {', '.join(sorted(missing))}",
                   "every [[record]] needs file, table and key", f'file = "{file}"')
         if r.get("duplicates", "first") not in ("first", "last", "refuse"):
-            _fail(text, f"[[record]] {file}: unknown duplicates policy {r['duplicates']!r}",
+            refuse(text, f"[[record]] {file}: unknown duplicates policy {r['duplicates']!r}",
                   "use first, last or refuse", f'duplicates = "{r["duplicates"]}"')
         export = free[0]  # blocks of one file name take its inputs in order (the plan lists them so)
         taken.add(export.path)
@@ -423,7 +129,7 @@ def plan_from_doc(doc: dict, text: str, exports: list, decoded: dict) -> Plan:
                               scalars=_maps(text, r.get("columns"), f"record {file}.columns"),
                               parent_path=export.parent_path, parent_column=export.parent_column)
         if record.natural_key and record.natural_key[0] not in [f.column for f in record.scalars]:
-            _fail(text, f"[[record]] {file}: natural_key {record.natural_key[0]!r} is none of its columns",
+            refuse(text, f"[[record]] {file}: natural_key {record.natural_key[0]!r} is none of its columns",
                   f"use one of: {', '.join(f.column for f in record.scalars) or '(none)'}, or \"\" for none",
                   f'natural_key = "{record.natural_key[0]}"')
         planned = {f.path[0] for f in record.scalars}
@@ -432,17 +138,17 @@ def plan_from_doc(doc: dict, text: str, exports: list, decoded: dict) -> Plan:
             planned.add(nested["column"])
         for f in record.scalars:
             if f.path[0] not in columns:
-                _fail(text, f"column {f.path[0]!r} of {file} is gone from the data",
+                refuse(text, f"column {f.path[0]!r} of {file} is gone from the data",
                       "remove it from the plan's columns, or check the input file", f'"{f.path[0]}"')
         new = [c for c in columns if c not in planned]
         if new:
-            _fail(text, f"{file} has column(s) the plan does not know: {', '.join(new)}",
+            refuse(text, f"{file} has column(s) the plan does not know: {', '.join(new)}",
                   "write a fresh plan with `normalise plan`, or add them to the record's columns",
                   f'file = "{file}"')
         plan.records.append(record)
     unplanned = [e.name if len(by_name[e.name]) == 1 else e.path for e in exports if e.path not in taken]
     if unplanned:
-        _fail(text, f"input file(s) {', '.join(unplanned)} have no [[record]] block, so their rows would be lost",
+        refuse(text, f"input file(s) {', '.join(unplanned)} have no [[record]] block, so their rows would be lost",
               "write a fresh plan with `normalise plan`, or give only the files the plan names", "[[record]]")
     # entity lists whose handle no [[entity]] defines get an entity table of their own
     for record in plan.records:
@@ -466,7 +172,7 @@ def plan_from_doc(doc: dict, text: str, exports: list, decoded: dict) -> Plan:
                 if nested.kind == "entity-list" and nested.entity == handle:
                     nested.entity = group.table
                     if nested.identity != group.identity:
-                        _fail(text, f"nested column {nested.column!r} has identity {nested.identity!r} but entity "
+                        refuse(text, f"nested column {nested.column!r} has identity {nested.identity!r} but entity "
                                     f"{handle!r} is identified by {group.identity!r}",
                               "use the same identity, or give the column an entity handle of its own",
                               f'identity = "{nested.identity}"')
@@ -495,7 +201,7 @@ def plan_from_doc(doc: dict, text: str, exports: list, decoded: dict) -> Plan:
     for nested, _ in _inside(plan):
         for f in nested.row_fields:
             if f.entity and id(f) not in done:
-                _fail(text, f"field {'.'.join(f.path) or '(the object itself)'} of {nested.column!r} refers to "
+                refuse(text, f"field {'.'.join(f.path) or '(the object itself)'} of {nested.column!r} refers to "
                             f"entity {f.entity!r}, which no [[entity]] defines",
                       f"use one of: {', '.join(handles) or '(none)'}, or remove entity = from the field",
                       f'entity = "{f.entity}"')
@@ -506,20 +212,20 @@ def plan_from_doc(doc: dict, text: str, exports: list, decoded: dict) -> Plan:
     for v in doc.get("view", []):
         missing = {"name", "kind", "table"} - set(v)
         if missing:
-            _fail(text, f"[[view]] {v.get('name', '?')} lacks {', '.join(sorted(missing))}",
+            refuse(text, f"[[view]] {v.get('name', '?')} lacks {', '.join(sorted(missing))}",
                   "every [[view]] needs name, kind and table", f'name = "{v.get("name")}"', "[[view]]")
         if v["table"] not in names and v["table"] in handles:
             v = dict(v, table=handles[v["table"]].table)  # the handle of an entity whose table was renamed
         lists = v.get("lists", [])
         for name in [v.get("table")] + [n.partition(".")[0] for n in lists]:
             if name not in names:
-                _fail(text, f"view {v.get('name')!r} names table {name!r}, which the plan does not make",
+                refuse(text, f"view {v.get('name')!r} names table {name!r}, which the plan does not make",
                       f"use one of: {', '.join(sorted(names))}", f'"{name}"', after=f'name = "{v.get("name")}"')
         view = View(v["name"], v["kind"], v["table"], lists, date_column=v.get("date_column"),
                     separator=v.get("separator", "; "))
         for p in v.get("pick", []):
             if not {"name", "list", "attribute", "value"} <= set(p):
-                _fail(text, f"a pick of view {view.name!r} lacks "
+                refuse(text, f"a pick of view {view.name!r} lacks "
                             f"{', '.join(sorted({'name', 'list', 'attribute', 'value'} - set(p)))}",
                       "every [[view.pick]] needs name, list, attribute and value", "[[view.pick]]",
                       after=f'name = "{view.name}"')
@@ -536,13 +242,13 @@ def _check_names(text: str, plan: Plan) -> None:
     for t in plan.tables:
         if t.name in seen:
             what = "a bookkeeping table of the tool" if t.name in META_TABLES else "another table"
-            _fail(text, f"table name {t.name!r} is taken twice ({what} has it)", "give each table a name of its own",
+            refuse(text, f"table name {t.name!r} is taken twice ({what} has it)", "give each table a name of its own",
                   f'table = "{t.name}"', f'"{t.name}"')
         seen.add(t.name)
         columns: set = set()
         for c in t.columns:
             if c.name in columns:
-                _fail(text, f"table {t.name!r} has two columns named {c.name!r} (a key the tool adds, or another "
+                refuse(text, f"table {t.name!r} has two columns named {c.name!r} (a key the tool adds, or another "
                             f"field)", "give the field a name of its own", f'name = "{c.name}"', f'"{c.name}"')
             columns.add(c.name)
 
@@ -555,23 +261,23 @@ def _check_references(text: str, plan: Plan) -> None:
         named += [(n.column, n.references) for n in record.nested if n.kind == "value-list" and n.references]
         for column, table in named:
             if table not in keyed:
-                _fail(text, f"column {column!r} of {record.file} references {table!r}, which is not a record "
+                refuse(text, f"column {column!r} of {record.file} references {table!r}, which is not a record "
                             f"table with a natural key", f"use one of: {', '.join(sorted(keyed)) or '(none)'}, "
                       "or remove references to keep the values without a foreign key", f'"{table}"')
 
 
 def _check_view(text: str, plan: Plan, view: View) -> None:
     if view.name in {t.name for t in plan.tables} | {v.name for v in plan.views}:
-        _fail(text, f"view name {view.name!r} is already taken by a table or another view",
+        refuse(text, f"view name {view.name!r} is already taken by a table or another view",
               "give the view a name of its own", f'name = "{view.name}"')
     if view.kind not in ("record_summary", "entity_summary"):
-        _fail(text, f"view {view.name!r}: unknown kind {view.kind!r}", "use record_summary or entity_summary",
+        refuse(text, f"view {view.name!r}: unknown kind {view.kind!r}", "use record_summary or entity_summary",
               f'"{view.kind}"')
     end = 0 if view.kind == "record_summary" else 1
     from ..model.views import occurrence, references
 
     if end == 1 and not view.lists:
-        _fail(text, f"view {view.name!r} counts the records of {view.table!r} through no list",
+        refuse(text, f"view {view.name!r} counts the records of {view.table!r} through no list",
               "name the bridges or references it counts in lists, or remove the view", f'name = "{view.name}"')
     for name in view.lists:
         if "." in name:  # a reference: TABLE.COLUMN, a foreign key to one entity
@@ -580,36 +286,36 @@ def _check_view(text: str, plan: Plan, view: View) -> None:
                     end == 0 and table.name != view.table) or (end == 1 and next(
                         k for k in table.foreign_keys if k.columns[0] == name.partition(".")[2]).references
                                                                != view.table):
-                _fail(text, f"view {view.name!r} lists {name!r}, which is not a reference of {view.table!r}",
+                refuse(text, f"view {view.name!r} lists {name!r}, which is not a reference of {view.table!r}",
                       f"remove {name!r} from the view's lists", f'"{name}"', after=f'name = "{view.name}"')
             continue
         table = plan.table(name)
         if table.role != "bridge" or table.foreign_keys[end].references != view.table:
             what = "is owned by" if end == 0 else "links to"
-            _fail(text, f"view {view.name!r} lists {name!r}, which is not a bridge that {what} {view.table!r}",
+            refuse(text, f"view {view.name!r} lists {name!r}, which is not a bridge that {what} {view.table!r}",
                   f"remove {name!r} from the view's lists", f'"{name}"', after=f'name = "{view.name}"')
     for pick in view.picks:
         if pick.bridge not in view.lists:
-            _fail(text, f"pick {pick.name!r} uses list {pick.bridge!r}, which view {view.name!r} does not show",
+            refuse(text, f"pick {pick.name!r} uses list {pick.bridge!r}, which view {view.name!r} does not show",
                   "add the list to the view's lists", f'"{pick.name}"', after=f'name = "{view.name}"')
         if pick.attribute not in [c.name for c in plan.table(pick.bridge).columns]:
-            _fail(text, f"pick {pick.name!r}: {pick.attribute!r} is not a column of {pick.bridge!r}",
+            refuse(text, f"pick {pick.name!r}: {pick.attribute!r} is not a column of {pick.bridge!r}",
                   "name a link attribute of that bridge", f'"{pick.attribute}"', after=f'name = "{view.name}"')
     if view.date_column and view.kind == "entity_summary" and view.lists:
         owner = plan.table(occurrence(plan, view.lists[0])[1])
         if view.date_column not in [c.name for c in owner.columns]:
-            _fail(text, f"view {view.name!r}: {owner.name!r} has no column {view.date_column!r}",
+            refuse(text, f"view {view.name!r}: {owner.name!r} has no column {view.date_column!r}",
                   "name a date column of the records, or remove date_column", f'"{view.date_column}"')
 
 
 def _nested_from(text: str, n: dict, columns: dict, handles: dict, plan: Plan) -> NestedColumn:
     column = n.get("column")
     if "path" not in n and column not in columns:
-        _fail(text, f"nested column {column!r} is gone from the data", "remove its [[record.nested]] block",
+        refuse(text, f"nested column {column!r} is gone from the data", "remove its [[record.nested]] block",
               f'column = "{column}"')
     kind = n.get("kind")
     if kind not in KINDS:
-        _fail(text, f"nested column {column!r}: unknown kind {kind!r}", f"use one of {', '.join(KINDS)}",
+        refuse(text, f"nested column {column!r}: unknown kind {kind!r}", f"use one of {', '.join(KINDS)}",
               f'kind = "{kind}"')
     nested = NestedColumn(file=n.get("file", ""), column=column, kind=kind, table=n.get("table"),
                           entity=n.get("entity") or n.get("values_table"), path=n.get("path", ""),
@@ -618,18 +324,18 @@ def _nested_from(text: str, n: dict, columns: dict, handles: dict, plan: Plan) -
     needs = {"entity-list": ("table", "entity", "identity"), "child-list": ("table",), "object-child": ("table",),
              "value-list": ("table", "values_table")}.get(kind, ())
     if [k for k in needs if not n.get(k)]:
-        _fail(text, f"nested column {column!r} ({kind}) lacks {', '.join(k for k in needs if not n.get(k))}",
+        refuse(text, f"nested column {column!r} ({kind}) lacks {', '.join(k for k in needs if not n.get(k))}",
               f"a {kind} needs {', '.join(needs)}; or write a fresh plan with `normalise plan`", f'column = "{column}"')
     nested.children = [_nested_from(text, c, columns, handles, plan) for c in n.get("children", [])]
     nested.keyed, nested.keyed_value = str(n.get("keyed", "")), str(n.get("keyed_value", ""))
     if nested.keyed and kind not in ("entity-list", "child-list"):
-        _fail(text, f"nested column {column!r}: keyed = {nested.keyed!r} with kind {kind!r}",
+        refuse(text, f"nested column {column!r}: keyed = {nested.keyed!r} with kind {kind!r}",
               'an object keyed by data is a list of its keys: use kind = "entity-list" or "child-list", or '
               'keyed = ""', f'keyed = "{nested.keyed}"')
     if kind == "value-list":
         value_type = n.get("value_type", "text")
         if value_type not in ("integer", "real", "boolean", "text"):
-            _fail(text, f"nested column {column!r}: value_type {value_type!r}", "use integer, real, boolean or text",
+            refuse(text, f"nested column {column!r}: value_type {value_type!r}", "use integer, real, boolean or text",
                   f'value_type = "{value_type}"')
         nested.value_type = value_type
         nested.references = str(n.get("references", ""))
@@ -679,6 +385,6 @@ def _check_keys(text: str, values: list, nested: NestedColumn, group: EntityGrou
     new = sorted(found - known)
     if new:
         where = (f" (link attributes) or to the attributes of entity {group.table!r}" if group else "")
-        _fail(text, f"nested column {nested.column!r} has key(s) the plan does not know: {', '.join(new)}",
+        refuse(text, f"nested column {nested.column!r} has key(s) the plan does not know: {', '.join(new)}",
               f"add them to the fields of {nested.column!r}{where}, or write a fresh plan",
               f'column = "{nested.column}"')
