@@ -5,7 +5,8 @@ from .model.errors import NormaliseError, NotClean, UnreadableFile, UsageError
 from .infer import Options
 from .join import JoinOptions
 from .decode.literal import CellError, Limits, decode_json, decode_python_literal
-from .read import Export, RejectedRow, read
+from .model.export import Export, RejectedRow
+from .read import read
 from .pipeline import build_database, make_plan
 from .result import Built
 from .survey import survey

@@ -20,7 +20,7 @@ from pathlib import Path
 from .decode import DecodedColumn
 from .model.errors import NormaliseError, UsageError
 from .infer import detect_natural_key, scalar_column_type
-from .read import Export
+from .model.export import Export
 
 HOWS = ("left", "inner", "full")
 CARDINALITIES = ("one-to-one", "one-to-many")

@@ -55,7 +55,7 @@ def check_option_names(exports: list, decoded: dict, options=None, formats: dict
         UsageError: the option as written, what it expected and the names there are, the closest first.
 
     Example:
-        >>> from normalise.read import Export
+        >>> from normalise.model.export import Export
         >>> from normalise.decode import decode
         >>> from normalise.infer import Options
         >>> books = Export("books.csv", "csv", ["title", "senders"],

@@ -15,7 +15,8 @@ from .infer import (REFERENCE_MIN_SHARE, REFERENCE_MIN_VALUES, detect_natural_ke
 from .decode.literal import Limits
 from .option_values import check_values
 from .infer.profile import profile_values
-from .read import Export, read
+from .model.export import Export
+from .read import read
 
 SHOWN_MESSAGES = 5
 
