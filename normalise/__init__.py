@@ -1,13 +1,13 @@
 """normalise: turn flat exports with nested cells into a linked relational database."""
 
 from .decode import DecodedColumn, QuarantinedCell, decode, decode_column
-from .model.errors import NormaliseError, NotClean, UnreadableFile, UsageError
+from .decode.literal import CellError, Limits, decode_json, decode_python_literal
 from .infer import Options
 from .join import JoinOptions
-from .decode.literal import CellError, Limits, decode_json, decode_python_literal
+from .model.errors import NormaliseError, NotClean, UnreadableFile, UsageError
 from .model.export import Export, RejectedRow
-from .read import read
 from .pipeline import build_database, make_plan
+from .read import read
 from .result import Built
 from .survey import survey
 

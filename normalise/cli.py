@@ -5,17 +5,17 @@ from __future__ import annotations
 import argparse
 import errno
 import json
-import sqlite3
 import re
+import sqlite3
 import sys
 import warnings
 
 from . import option_values as values
 from .decode import parse_decode_option
-from .model.errors import (EXIT_DATA, EXIT_DESTINATION, EXIT_USAGE, LooksHeaderless, NormaliseError, NotClean,
-                     from_the_command_line)
-from .model.escapes import escape_surrogates
 from .decode.literal import DEFAULT_MAX_CELL_CHARS, DEFAULT_MAX_DEPTH, Limits
+from .model.errors import (EXIT_DATA, EXIT_DESTINATION, EXIT_USAGE, LooksHeaderless, NormaliseError, NotClean,
+                           from_the_command_line)
+from .model.escapes import escape_surrogates
 from .option_values import as_argument
 
 EXIT_CODES = """\
@@ -164,8 +164,8 @@ def _strict(result: dict) -> int:
 
 
 def _join_options(args):
-    from .model.errors import UsageError
     from .join import JoinOptions
+    from .model.errors import UsageError
 
     on = {}
     for spec in args.join:

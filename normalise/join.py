@@ -18,8 +18,8 @@ from dataclasses import dataclass, field
 from pathlib import Path
 
 from .decode import DecodedColumn
-from .model.errors import NormaliseError, UsageError
 from .infer import detect_natural_key, scalar_column_type
+from .model.errors import NormaliseError, UsageError
 from .model.export import Export
 
 HOWS = ("left", "inner", "full")

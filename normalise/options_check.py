@@ -24,9 +24,9 @@ from dataclasses import dataclass, field
 from pathlib import Path
 
 from .decode import format_choices
+from .infer import objects_of
 from .model.errors import UsageError
 from .model.names import closest_first
-from .infer import objects_of
 
 
 @dataclass

@@ -27,8 +27,8 @@ from dataclasses import dataclass, field, fields, replace
 from pathlib import Path
 
 from .decode import decisions, decode, first_value, late_decision
-from .join import Joined, JoinOptions, join
 from .decode.literal import Limits
+from .join import Joined, JoinOptions, join
 from .options_check import check_option_names
 from .progress import QUIET
 from .read import iter_chunks, read

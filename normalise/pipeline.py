@@ -13,33 +13,32 @@ import json
 import os
 import tempfile
 from contextlib import nullcontext
-from typing import NamedTuple
 from pathlib import Path
+from typing import NamedTuple
 
 from .build import InMemory, build_partitions, check_width, occurrence_columns, reference_values
 from .check import check_plan, check_rows
 from .decode import paused_gc
-from .model.errors import NotClean, speaks_to_callers
-from .infer import Options, infer_plan
-from .join import Joined, JoinOptions
 from .decode.literal import Limits
+from .infer import Options, infer_plan
+from .infer.planfile import join_settings, plan_from_doc, read_plan
+from .infer.plantext import plan_to_toml
+from .infer.sharing import widened
+from .join import Joined, JoinOptions
+from .model.errors import NotClean, speaks_to_callers
 from .model.names import quote_name
+from .model.plan import Plan
+from .model.schema import POSTGRESQL_MAX_COLUMNS
+from .model.views import add_pick
 from .option_values import check_values
 from .outputs import check_paths, destination_lock, lock_path, staged_outputs, writing
 from .partition import open_inputs
 from .progress import QUIET, Phases
 from .prove import LossDetected, loss_message, prove, sqlite_fetch
-from .model.plan import Plan
-from .infer.planfile import join_settings, plan_from_doc, read_plan
-from .infer.plantext import plan_to_toml
 from .report.manifest import manifest
 from .result import Built
-from .model.schema import POSTGRESQL_MAX_COLUMNS
-from .infer.sharing import widened
-from .model.views import add_pick
-from .write import SqliteWriter
-from .write import (DEFAULT_SCHEMA, destination, display_url, is_postgresql, postgresql_run_lock, write_parquet,
-                    write_postgresql)
+from .write import (DEFAULT_SCHEMA, SqliteWriter, destination, display_url, is_postgresql, postgresql_run_lock,
+                    write_parquet, write_postgresql)
 
 # The model is inferred from the first SAMPLE_ROWS records of each export, in
 # memory and in chunks alike, so the database never depends on the chunk size.

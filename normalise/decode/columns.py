@@ -34,7 +34,7 @@ from collections import Counter
 from dataclasses import dataclass, field
 
 from ..model.export import Export
-from .delimited import (AMBIGUITY_SHOWN, ambiguity_message, cut_pieces, detect_separator, join_separator_of)
+from .delimited import AMBIGUITY_SHOWN, ambiguity_message, cut_pieces, detect_separator, join_separator_of
 from .literal import CellError, Limits, check_limits, lone_surrogate_in
 from .nested import decode_json_cells, decode_python_cells, paused_gc
 

@@ -11,11 +11,11 @@ from ..model.exact import ABSENT as _ABSENT, get
 from ..model.names import Namer, singular, sql_name
 from ..model.plan import META_TABLES
 from .dependencies import ObjectTable, hashable, identity_candidates
-from .entities import group_entities, Member
-from .keyed import keyed_column, keys_like_codes, keyed_fields
+from .entities import Member, group_entities
+from .keyed import keyed_column, keyed_fields, keys_like_codes
 from .options import WIDE_OBJECT_KEYS, Options
 from .references import infer_references
-from .shapes import field_maps, object_paths, field_map, get_path, objects_of, scalar_fields, shape_of
+from .shapes import field_map, field_maps, get_path, object_paths, objects_of, scalar_fields, shape_of
 from .types import detect_natural_key, list_value_type, scalar_column_type
 
 

@@ -15,6 +15,7 @@ from .names import singular
 from .plan import META_ROLES
 from .views import name_column, view_columns
 
+
 def owner_fk(table: dict) -> dict | None:
     return next((f for f in table["foreign_keys"] if f["owner"]), None)
 

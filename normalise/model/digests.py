@@ -6,7 +6,7 @@ from __future__ import annotations
 
 from hashlib import blake2b
 
-from .exact import encode_canonical, json_pure, canonical_text
+from .exact import canonical_text, encode_canonical, json_pure
 
 
 def keyed_digest(key: int, value, pure: bool = False) -> int:

@@ -15,8 +15,8 @@ from __future__ import annotations
 
 from dataclasses import dataclass, field
 
-from .plan import TEXT_TYPES, Plan, Table
 from .names import fit, free_name, quote_name as _q, singular
+from .plan import TEXT_TYPES, Plan, Table
 
 LIST_SEPARATOR = "; "
 _DISPLAY_NAMES = ("name", "display_name", "full_name", "title", "label", "login", "username")

@@ -14,12 +14,12 @@ import sqlite3
 from collections import defaultdict
 from pathlib import Path
 
+from ..infer.sharing import widened_sentence
+from ..model.describe import display_column, owner_fk
 from ..model.errors import UsageError
 from ..model.escapes import clean
 from ..model.names import quote_name as _q
 from ..model.plan import META_ROLES, META_TABLES
-from ..model.describe import display_column, owner_fk
-from ..infer.sharing import widened_sentence
 
 HEAD_ROWS = 50  # rows of each bookkeeping table shown
 NOT_APPLICABLE = "not applicable (PostgreSQL)"  # SQLite's integrity_check, of a PostgreSQL build

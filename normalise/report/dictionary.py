@@ -12,8 +12,7 @@ from __future__ import annotations
 
 import re
 
-from ..model.describe import (VIEW_WHAT, code, column_meaning, source_label, sources, table_meaning,
-                       view_column_meaning)
+from ..model.describe import VIEW_WHAT, code, column_meaning, source_label, sources, table_meaning, view_column_meaning
 from ..model.escapes import clean
 from ..model.plan import META_ROLES
 

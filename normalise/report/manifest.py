@@ -3,9 +3,9 @@
 from __future__ import annotations
 
 from ..build import Built
-from ..outputs import mask_password
-from ..model.plan import Plan
 from ..infer.sharing import widened_sentence
+from ..model.plan import Plan
+from ..outputs import mask_password
 
 MANIFEST_VERSION = 1
 

@@ -14,8 +14,8 @@ from ..model.errors import NormaliseError
 from ..model.escapes import SURROGATE as _SURROGATE, printable
 from ..model.names import quote_name as _quote
 from ..model.plan import META_ROLES, Plan
-from ..progress import QUIET
 from ..model.views import view_sql
+from ..progress import QUIET
 from .ddl import metadata_for
 from .destinations import DestinationError, DestinationExists, DestinationFailed, display_url, postgresql_url
 

@@ -17,8 +17,8 @@ from sqlalchemy import event
 from ..model.escapes import printable
 from ..model.names import quote_name as _quote
 from ..model.plan import META_ROLES, Plan
-from ..progress import QUIET
 from ..model.views import view_sql
+from ..progress import QUIET
 from .ddl import metadata_for
 from .destinations import DestinationExists, DestinationLocked
 
