@@ -1,4 +1,4 @@
-"""One error family (normalise/errors.py): every error the tool raises on purpose is a ``NormaliseError``, which is
+"""One error family (normalise/model/errors.py): every error the tool raises on purpose is a ``NormaliseError``, which is
 a ``ValueError``, says how the command ends (``exit_code``) and, when it is about one place, gives the place as
 attributes (``file``, ``line``, ``column``, ``position``) besides naming it in the message.
 """

@@ -28,7 +28,7 @@ from demo.generate import generate
 from normalise.pipeline import build_database
 
 TITLES, CONTRIBUTIONS = "titles.csv", "contributions.csv"
-SEPARATOR = "; "  # the documented separator (normalise/views.py, LIST_SEPARATOR)
+SEPARATOR = "; "  # the documented separator (normalise/model/views.py, LIST_SEPARATOR)
 DECODERS = {  # demo/generate.py, module docstring
     "contributors": ast.literal_eval,
     "production_team": json.loads,
