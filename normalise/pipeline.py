@@ -13,6 +13,7 @@ import json
 import os
 import tempfile
 from contextlib import nullcontext
+from dataclasses import dataclass
 from pathlib import Path
 from typing import NamedTuple
 
@@ -245,49 +246,83 @@ def _build(paths: list[str], database: str, *, options, limits, formats, encodin
                 offset_record_keys(plan, [export], state)
             yield export, decoded
 
-    extra = {"set_aside_rows": joined.set_aside, "unmatched_rows": joined.unmatched}
-    locate = _locator(plan, partitions)
-    if postgresql:  # write_postgresql takes every row at once, in one COPY per table
-        rows = InMemory(plan)
-        with progress.building(inputs.records) as step:
-            built = build_partitions(plan, partitions, rows, extra, state, step.to)
-        missing = check_rows(plan, built.rows)
-        if missing:
-            from .check import IntegrityError
-            raise IntegrityError(f"{missing} foreign-key values name no row; nothing was written")
-        integrity = write_postgresql(plan, built.rows, order, database, schema=schema or DEFAULT_SCHEMA,
-                                     replace=replace, verify=verifier(plan, built, allow_lossy, locate(built)),
-                                     wait=wait, share_schema=share_schema, phases=progress)
-        result = manifest(plan, built, display_url(database), integrity, joined)
-        result["schema"] = integrity["schema"]
-        # date, timestamp and decimal columns PostgreSQL holds as TEXT, each with why (write.native_forms)
-        result["kept_as_text"] = integrity["kept_as_text"]
-        if not (parquet_dir or report_path or dictionary_path):
-            return _outputs(staged, database, plan, result, None, manifest_path, None, None, progress)
-        # Parquet, the report and the dictionary are read from a SQLite copy of the rows PostgreSQL was given
-        # (the same rows; PostgreSQL's own column types shown), made in a temporary directory
-        with tempfile.TemporaryDirectory(prefix="normalise-") as where:
-            copy = os.path.join(where, "rows.db")
-            writer = SqliteWriter(plan, order, copy)
-            for name in order:
-                if built.rows.get(name):
-                    writer.insert(name, built.rows[name])
-            writer.finish()
-            return _outputs(staged, f"{display_url(database)} (schema {integrity['schema']})", plan, result,
-                            parquet_dir, manifest_path, report_path, dictionary_path, progress, source=copy,
-                            postgresql={"types": integrity["sql_types"], "views": integrity["view_sql"]})
-    writer = SqliteWriter(plan, order, database, replace, append=append)
+    run = _Run(plan, order, inputs, partitions, {"set_aside_rows": joined.set_aside, "unmatched_rows": joined.unmatched},
+               state, _locator(plan, partitions), allow_lossy, progress)
+    outputs = dict(parquet_dir=parquet_dir, manifest_path=manifest_path, report_path=report_path,
+                   dictionary_path=dictionary_path)
+    if postgresql:
+        return _into_postgresql(run, database, staged, outputs, schema=schema or DEFAULT_SCHEMA, replace=replace,
+                                wait=wait, share_schema=share_schema)
+    return _into_sqlite(run, database, staged, outputs, replace=replace, append=append)
+
+
+@dataclass
+class _Run:
+    """What both destinations' builds take: the plan and its load order, the inputs and their partitions, the
+    join's bookkeeping rows, ``--append``'s state and the lossless proof's settings."""
+
+    plan: Plan
+    order: list[str]
+    inputs: object  # partition.Inputs
+    partitions: object  # (columns=None) -> every (export, decoded) partition
+    extra: dict  # the join's set-aside and unmatched rows
+    state: dict | None  # --append: what the database holds
+    locate: object  # where a loaded cell came from, for the proof's messages
+    allow_lossy: bool
+    progress: object  # progress.Phases
+
+    def build(self, sink):
+        with self.progress.building(self.inputs.records) as step:
+            return build_partitions(self.plan, self.partitions, sink, self.extra, self.state, step.to)
+
+
+def _into_postgresql(run: _Run, database: str, staged, outputs: dict, *, schema: str, replace: bool, wait: float,
+                     share_schema: bool) -> dict:
+    """Every row built in memory, then written in one transaction (one COPY per table), proved, reported."""
+    plan, progress = run.plan, run.progress
+    built = run.build(InMemory(plan))
+    missing = check_rows(plan, built.rows)
+    if missing:
+        from .check import IntegrityError
+        raise IntegrityError(f"{missing} foreign-key values name no row; nothing was written")
+    integrity = write_postgresql(plan, built.rows, run.order, database, schema=schema, replace=replace,
+                                 verify=verifier(plan, built, run.allow_lossy, run.locate(built)), wait=wait,
+                                 share_schema=share_schema, phases=progress)
+    result = manifest(plan, built, display_url(database), integrity, run.inputs.joined)
+    result["schema"] = integrity["schema"]
+    # date, timestamp and decimal columns PostgreSQL holds as TEXT, each with why (write.native_forms)
+    result["kept_as_text"] = integrity["kept_as_text"]
+    if not (outputs["parquet_dir"] or outputs["report_path"] or outputs["dictionary_path"]):
+        return _outputs(staged, database, plan, result, None, outputs["manifest_path"], None, None, progress)
+    # Parquet, the report and the dictionary are read from a SQLite copy of the rows PostgreSQL was given
+    # (the same rows; PostgreSQL's own column types shown), made in a temporary directory
+    with tempfile.TemporaryDirectory(prefix="normalise-") as where:
+        copy = os.path.join(where, "rows.db")
+        writer = SqliteWriter(plan, run.order, copy)
+        for name in run.order:
+            if built.rows.get(name):
+                writer.insert(name, built.rows[name])
+        writer.finish()
+        return _outputs(staged, f"{display_url(database)} (schema {integrity['schema']})", plan, result,
+                        outputs["parquet_dir"], outputs["manifest_path"], outputs["report_path"],
+                        outputs["dictionary_path"], progress, source=copy,
+                        postgresql={"types": integrity["sql_types"], "views": integrity["view_sql"]})
+
+
+def _into_sqlite(run: _Run, database: str, staged, outputs: dict, *, replace: bool, append: bool) -> dict:
+    """Rows written partition by partition into a temporary file, checked and proved before it is moved."""
+    plan, progress = run.plan, run.progress
+    writer = SqliteWriter(plan, run.order, database, replace, append=append)
     try:
-        with progress.building(inputs.records) as step:
-            built = build_partitions(plan, partitions, _Written(writer, plan, append), extra, state, step.to)
+        built = run.build(_Written(writer, plan, append))
     except BaseException:
         writer.abort()
         raise
     # rows are loaded without per-row foreign-key lookups: PRAGMA foreign_key_check runs before the move
     # (appended rows may name rows already in the database, which it checks too)
-    integrity = writer.finish(verifier(plan, built, allow_lossy, locate(built)), move=False, phases=progress)
+    integrity = writer.finish(verifier(plan, built, run.allow_lossy, run.locate(built)), move=False, phases=progress)
     staged.database(writer)
-    result = manifest(plan, built, os.fspath(database), integrity, joined, row_counts=writer.row_counts)
+    result = manifest(plan, built, os.fspath(database), integrity, run.inputs.joined, row_counts=writer.row_counts)
     if append:  # the manifest counts what the database now holds
         import sqlite3
 
@@ -295,8 +330,8 @@ def _build(paths: list[str], database: str, *, options, limits, formats, encodin
             for t in result["tables"]:
                 t["rows"] = con.execute(f'SELECT count(*) FROM "{t["name"]}"').fetchone()[0]
         result["appended"] = True
-    return _outputs(staged, database, plan, result, parquet_dir, manifest_path, report_path, dictionary_path,
-                    progress)
+    return _outputs(staged, database, plan, result, outputs["parquet_dir"], outputs["manifest_path"],
+                    outputs["report_path"], outputs["dictionary_path"], progress)
 
 
 class _Written:
