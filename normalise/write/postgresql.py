@@ -371,45 +371,10 @@ def write_postgresql(plan: Plan, rows: dict[str, list[tuple]], order: list[str],
             raw.add_notice_handler(lambda d: truncated.append(d.message_primary or "")
                                    if d.sqlstate == pg_errors.NameTooLong.sqlstate else None)
             cursor = raw.cursor()
-            if wait is None:
-                cursor.execute("SELECT pg_catalog.pg_advisory_xact_lock(%s)", (lock,))
-            else:
-                _pg_try_lock(cursor, lock, wait, f"schema {schema!r} of {shown}")
-            existing = dict(_pg_relations(cursor, schema))
-            ours = _pg_registered(cursor, schema, existing)
-            _pg_refuse_occupied(existing, ours, plan, replace, share_schema, f"schema {schema!r} of {shown}")
-            cursor.execute("SELECT count(*) FROM pg_catalog.pg_namespace WHERE nspname = %s", (schema,))
-            if not cursor.fetchone()[0]:  # (IF NOT EXISTS would still need CREATE on the database)
-                cursor.execute(sql.SQL("CREATE SCHEMA {}").format(ident))
-            for kind in dict.fromkeys(_PG_DROP.values()):  # views first: they depend on the tables
-                names = [name for name in ours if _PG_DROP[existing[name]] == kind]
-                if names:  # no CASCADE: objects built on these tables stop the run
-                    cursor.execute(sql.SQL(f"DROP {kind} ") + sql.SQL(", ").join(
-                        sql.Identifier(schema, n) for n in names))
+            _pg_make_room(cursor, schema, lock, wait, plan, replace, share_schema, shown)
             cursor.execute(sql.SQL("SET LOCAL search_path TO {}, pg_temp").format(ident))
-            with phases.phase("writing", total=sum(len(rows[n]) for n in order) or None, unit="rows",
-                              scale=True) as step:
-                for name in order:  # foreign keys after the rows: PostgreSQL then checks them in one pass
-                    conn.execute(sa.schema.CreateTable(md.tables[name], include_foreign_key_constraints=[]))
-                for name in order:
-                    if rows[name]:
-                        _copy_rows(cursor, schema, md.tables[name], rows[name], plan.table(name).role)
-                        step.update(len(rows[name]))
-            constraints = [fk for name in order
-                           for fk in sorted(md.tables[name].foreign_key_constraints, key=lambda c: str(c.name))]
-            indexes = [index for name in order for index in sorted(md.tables[name].indexes, key=lambda i: str(i.name))]
-            with phases.phase("indexing", total=len(constraints) + len(indexes) + len(plan.views) or None,
-                              unit="keys, indexes and views") as step:
-                for fk in constraints:  # PostgreSQL checks every row as it adds a foreign key
-                    conn.execute(sa.schema.AddConstraint(fk))
-                    step.update()
-                for index in indexes:
-                    conn.execute(sa.schema.CreateIndex(index))
-                    step.update()
-                for view in plan.views:
-                    cursor.execute(sql.SQL("CREATE VIEW {} AS ").format(sql.Identifier(schema, view.name))
-                                   + sql.SQL(view_sql(view, plan, "postgresql", forms)))
-                    step.update()
+            _pg_load(conn, cursor, schema, md, plan, rows, order, phases)
+            _pg_keys_indexes_views(conn, cursor, schema, md, plan, order, forms, phases)
             _pg_comment(cursor, schema, plan, forms, kept)
             _pg_register(cursor, schema, order, plan)
             if truncated:
@@ -429,13 +394,7 @@ def write_postgresql(plan: Plan, rows: dict[str, list[tuple]], order: list[str],
                     step.update()
             for name in order:
                 cursor.execute(sql.SQL("ANALYZE {}").format(sql.Identifier(schema, name)))
-            # each column's type as PostgreSQL holds it, for the report and the data dictionary
-            cursor.execute("SELECT table_name, column_name, upper(data_type) FROM information_schema.columns "
-                           "WHERE table_schema = %s", (schema,))
-            sql_types = {f"{t}.{c}": type_ for t, c, type_ in cursor.fetchall()}
-            cursor.execute("SELECT viewname, definition FROM pg_catalog.pg_views WHERE schemaname = %s", (schema,))
-            view_sql_there = {name: f"CREATE VIEW {_quote(name)} AS {definition.strip()}"
-                              for name, definition in cursor.fetchall()}
+            sql_types, view_sql_there = _pg_as_held(cursor, schema)
     except pg_errors.DependentObjectsStillExist as exc:
         raise DestinationError(f"--replace cannot drop the tables of schema {schema!r} of {shown}: "
                                f"{server_message(exc)}; nothing was changed") from exc
@@ -452,3 +411,68 @@ def write_postgresql(plan: Plan, rows: dict[str, list[tuple]], order: list[str],
     if verify is not None:
         result["proof"] = proof
     return result
+
+
+def _pg_make_room(cursor, schema: str, lock: int, wait: float | None, plan: Plan, replace: bool,
+                  share_schema: bool, shown: str) -> None:
+    """The schema's lock taken, what it holds checked, the schema made when missing and, with ``replace``, the
+    tables and views an earlier run made there dropped (views first: they depend on the tables)."""
+    from psycopg import sql
+
+    if wait is None:
+        cursor.execute("SELECT pg_catalog.pg_advisory_xact_lock(%s)", (lock,))
+    else:
+        _pg_try_lock(cursor, lock, wait, f"schema {schema!r} of {shown}")
+    existing = dict(_pg_relations(cursor, schema))
+    ours = _pg_registered(cursor, schema, existing)
+    _pg_refuse_occupied(existing, ours, plan, replace, share_schema, f"schema {schema!r} of {shown}")
+    cursor.execute("SELECT count(*) FROM pg_catalog.pg_namespace WHERE nspname = %s", (schema,))
+    if not cursor.fetchone()[0]:  # (IF NOT EXISTS would still need CREATE on the database)
+        cursor.execute(sql.SQL("CREATE SCHEMA {}").format(sql.Identifier(schema)))
+    for kind in dict.fromkeys(_PG_DROP.values()):
+        names = [name for name in ours if _PG_DROP[existing[name]] == kind]
+        if names:  # no CASCADE: objects built on these tables stop the run
+            cursor.execute(sql.SQL(f"DROP {kind} ") + sql.SQL(", ").join(sql.Identifier(schema, n) for n in names))
+
+
+def _pg_load(conn, cursor, schema: str, md: sa.MetaData, plan: Plan, rows: dict, order: list[str], phases) -> None:
+    """Every table created without its foreign keys, then its rows loaded with COPY."""
+    with phases.phase("writing", total=sum(len(rows[n]) for n in order) or None, unit="rows", scale=True) as step:
+        for name in order:  # foreign keys after the rows: PostgreSQL then checks them in one pass
+            conn.execute(sa.schema.CreateTable(md.tables[name], include_foreign_key_constraints=[]))
+        for name in order:
+            if rows[name]:
+                _copy_rows(cursor, schema, md.tables[name], rows[name], plan.table(name).role)
+                step.update(len(rows[name]))
+
+
+def _pg_keys_indexes_views(conn, cursor, schema: str, md: sa.MetaData, plan: Plan, order: list[str], forms: dict,
+                           phases) -> None:
+    """The foreign keys added (PostgreSQL checks every row as it adds one), the indexes built, the views made."""
+    from psycopg import sql
+
+    constraints = [fk for name in order
+                   for fk in sorted(md.tables[name].foreign_key_constraints, key=lambda c: str(c.name))]
+    indexes = [index for name in order for index in sorted(md.tables[name].indexes, key=lambda i: str(i.name))]
+    with phases.phase("indexing", total=len(constraints) + len(indexes) + len(plan.views) or None,
+                      unit="keys, indexes and views") as step:
+        for fk in constraints:
+            conn.execute(sa.schema.AddConstraint(fk))
+            step.update()
+        for index in indexes:
+            conn.execute(sa.schema.CreateIndex(index))
+            step.update()
+        for view in plan.views:
+            cursor.execute(sql.SQL("CREATE VIEW {} AS ").format(sql.Identifier(schema, view.name))
+                           + sql.SQL(view_sql(view, plan, "postgresql", forms)))
+            step.update()
+
+
+def _pg_as_held(cursor, schema: str) -> tuple[dict, dict]:
+    """Each column's type and each view's definition as PostgreSQL holds them, for the report and the data
+    dictionary: ("table.column" -> type, view -> its CREATE VIEW)."""
+    cursor.execute("SELECT table_name, column_name, upper(data_type) FROM information_schema.columns "
+                   "WHERE table_schema = %s", (schema,))
+    sql_types = {f"{t}.{c}": type_ for t, c, type_ in cursor.fetchall()}
+    cursor.execute("SELECT viewname, definition FROM pg_catalog.pg_views WHERE schemaname = %s", (schema,))
+    return sql_types, {name: f"CREATE VIEW {_quote(name)} AS {definition.strip()}" for name, definition in cursor.fetchall()}
