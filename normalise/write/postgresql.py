@@ -475,4 +475,5 @@ def _pg_as_held(cursor, schema: str) -> tuple[dict, dict]:
                    "WHERE table_schema = %s", (schema,))
     sql_types = {f"{t}.{c}": type_ for t, c, type_ in cursor.fetchall()}
     cursor.execute("SELECT viewname, definition FROM pg_catalog.pg_views WHERE schemaname = %s", (schema,))
-    return sql_types, {name: f"CREATE VIEW {_quote(name)} AS {definition.strip()}" for name, definition in cursor.fetchall()}
+    views = {name: f"CREATE VIEW {_quote(name)} AS {definition.strip()}" for name, definition in cursor.fetchall()}
+    return sql_types, views
