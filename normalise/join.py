@@ -148,6 +148,8 @@ def join(exports: list[Export], decoded: dict, options: JoinOptions, natural_key
     return result
 
 
+# Long (about 90 lines): one join's duplicates, matches and unmatched rows on both sides, counted in one pass so
+# that every row of either file is accounted for exactly once.
 def _join_one(result: Joined, combined: JoinedExport, combined_cols: dict, main: Export, main_key: str,
               other: Export, right_col: str, decoded: dict, options: JoinOptions) -> None:
     right_keys = _key_values(other, decoded, right_col)

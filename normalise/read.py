@@ -305,6 +305,8 @@ def iter_chunks(path: str | os.PathLike, chunk_rows: int, *, encoding: str | Non
     yield from _iter_delimited(path, encoding or "utf-8-sig", delimiter, chunk_rows, header)
 
 
+# Long (about 110 lines): a generator whose state (the line tap, the header, an open quote at the end of a
+# chunk, rejected rows) lasts for the whole file; its parts cannot be left and re-entered apart.
 def _iter_delimited(path: str, encoding: str, delimiter: str | None, chunk_rows: int | None,
                     has_header: bool = True):
     suffix = Path(path).suffix.lower()

@@ -197,6 +197,8 @@ def decode_column(name: str, cells: list, lines: list[int], file: str,
         return _decode_column(name, cells, lines, file, limits, forced, raw_surrogates, decided)
 
 
+# Long (about 160 lines) on purpose: one pass over a column's cells, whose classification, detection, decoding
+# and quarantine share the per-row lists (values, texts, raws, kinds); apart, they would pass all of them around.
 def _decode_column(name: str, cells: list, lines: list[int], file: str, limits: Limits,
                    forced: tuple[str, str | None] | None, raw_surrogates: bool,
                    decided: ColumnFormat | None = None) -> DecodedColumn:

@@ -77,6 +77,8 @@ def join_settings(doc: dict) -> dict:
             "separate": bool(j.get("separate", False)), "on": {k: (v, None) for k, v in j.get("on", {}).items()}}
 
 
+# Long (about 155 lines): a plan file's blocks read in the order they name each other (records, entities, nested
+# columns, views), each checked against the data at its own line; the checks share the maps of what is named.
 def plan_from_doc(doc: dict, text: str, exports: list, decoded: dict) -> Plan:
     """Rebuild the plan from its file and check that it still fits the decoded data."""
     from ..model.schema import add_tables

@@ -19,6 +19,8 @@ from .shapes import field_map, field_maps, get_path, object_paths, objects_of, s
 from .types import detect_natural_key, list_value_type, scalar_column_type
 
 
+# Long (about 110 lines): the inference's steps in their order (records and their keys, nested columns, entity
+# groups, tables, references, views), each a call; what remains is the loop that hands each the one before's result.
 def infer_plan(exports: list, decoded: dict, options: Options | None = None):
     """Infer the relational model of decoded exports.
 

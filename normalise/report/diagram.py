@@ -128,6 +128,8 @@ def schema_graph(model: dict) -> nx.DiGraph:
     return graph
 
 
+# Long (about 150 lines): the layered layout's steps (bands, columns by depth, barycentre sweeps, stacking) share
+# the maps of each table's band, column and order.
 def layout_schema(model: dict, rounds: int = 4) -> Layout:
     """A deterministic layered layout of the schema.
 

@@ -149,6 +149,8 @@ def _stem(path: str) -> str:
     return Path(str(path)).stem
 
 
+# Long (about 95 lines): the reconciliation table of every input, then of every nested column, each row's
+# figures and their sources side by side; a table of the report is one function.
 def _reconciliation_section(model: dict) -> str:
     m = model.get("manifest") or {}
     by_file = model["data"]["by_file"]
