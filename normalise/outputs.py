@@ -180,7 +180,7 @@ def destination_lock(database, wait: float = 0.0):
         os.write(fd, f"{os.getpid()}\n".encode())
         hold = os.environ.get(HOLD_LOCK_ENV)
         if hold:
-            time.sleep(float(hold))
+            _hold(hold)
         yield path
     finally:
         try:
@@ -188,6 +188,19 @@ def destination_lock(database, wait: float = 0.0):
         except OSError:
             pass
         os.close(fd)  # closing the descriptor releases flock(2)'s lock
+
+
+def _hold(hold: str) -> None:
+    """For the tests of concurrent runs (``HOLD_LOCK_ENV``): keep the lock ``hold`` seconds, or, when ``hold`` is
+    a path, until that file exists (at most five minutes), so a test decides when the first run lets go."""
+    try:
+        time.sleep(float(hold))
+        return
+    except ValueError:
+        pass
+    deadline = time.monotonic() + 300
+    while not os.path.exists(hold) and time.monotonic() < deadline:
+        time.sleep(0.02)
 
 
 def _try_lock(path: str):

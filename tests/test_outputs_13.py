@@ -140,10 +140,12 @@ def _wait_for_holder(db: Path, proc: subprocess.Popen) -> None:
 
 def test_second_append_at_once_is_refused_and_the_first_ones_rows_are_all_there(kits, tmp_path):
     db = _copy_db(kits, tmp_path)
-    first = _append(kits, db, kits["more"], **{HOLD_LOCK_ENV: "2"})
+    release = tmp_path / "release"  # the first run holds the lock until this file exists, however slow the machine
+    first = _append(kits, db, kits["more"], **{HOLD_LOCK_ENV: str(release)})
     _wait_for_holder(db, first)
     second = _append(kits, db, kits["other"])  # --wait 0, the default: refused at once
     out2, err2 = second.communicate(timeout=120)
+    release.touch()
     out1, err1 = first.communicate(timeout=300)
     assert first.returncode == 0, err1
     lines = err2.strip().splitlines()
@@ -159,9 +161,12 @@ def test_second_append_at_once_is_refused_and_the_first_ones_rows_are_all_there(
 def test_second_append_at_once_waits_and_reads_what_the_first_wrote(kits, tmp_path):
     """The 200,000 lost rows of the issue: the second run must read the database after the first's move."""
     db = _copy_db(kits, tmp_path)
-    first = _append(kits, db, kits["more"], **{HOLD_LOCK_ENV: "1"})
+    release = tmp_path / "release"
+    first = _append(kits, db, kits["more"], **{HOLD_LOCK_ENV: str(release)})
     _wait_for_holder(db, first)
     second = _append(kits, db, kits["other"], "--wait", "240")
+    time.sleep(1)  # the second run is started and waiting (or still starting: it waits all the same)
+    release.touch()
     _, err1 = first.communicate(timeout=300)
     _, err2 = second.communicate(timeout=300)
     assert first.returncode == 0, err1
