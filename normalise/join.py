@@ -36,7 +36,7 @@ class CardinalityViolation(NormaliseError):
 @dataclass
 class JoinedExport(Export):
     """The main export with the columns of the exports joined to it (``record_keys``, ``main_rows``,
-    ``main_rows_read`` and ``origin`` set; the fields are ``read.Export``'s)."""
+    ``main_rows_read`` and ``origin`` set; the fields are ``model.export.Export``'s)."""
 
     inner_unmatched: dict = field(default_factory=dict)  # row -> why an inner join sets it aside
     origin_lines: dict = field(default_factory=dict)  # joined column -> line in its own file, per row
@@ -248,7 +248,7 @@ def _join_one(result: Joined, combined: JoinedExport, combined_cols: dict, main:
 @dataclass
 class LinkedExport(Export):
     """A further export whose rows each belong to one record of the main export (one-to-many): ``parent_path``,
-    ``parent_column``, ``main_rows_read`` and ``rows_unmatched`` set (``read.Export``'s fields)."""
+    ``parent_column``, ``main_rows_read`` and ``rows_unmatched`` set (``model.export.Export``'s fields)."""
 
 
 def _link_many(result: Joined, main: Export, main_key: str, other: Export, right_col: str, decoded: dict,

@@ -25,8 +25,8 @@ try:
 except ImportError:  # pragma: no cover - platforms without fcntl (Windows)
     fcntl = None
 
-# Test hook: seconds a run sleeps once it holds the destination lock, so a test can start a second run
-# while the first one certainly holds it. Never set outside tests.
+# Test hook: a file a run waits for once it holds the destination lock (``_hold``), so a test can start a second
+# run while the first one certainly holds it. Never set outside tests.
 HOLD_LOCK_ENV = "NORMALISE_TEST_HOLD_LOCK"
 
 
@@ -190,16 +190,11 @@ def destination_lock(database, wait: float = 0.0):
         os.close(fd)  # closing the descriptor releases flock(2)'s lock
 
 
-def _hold(hold: str) -> None:
-    """For the tests of concurrent runs (``HOLD_LOCK_ENV``): keep the lock ``hold`` seconds, or, when ``hold`` is
-    a path, until that file exists (at most five minutes), so a test decides when the first run lets go."""
-    try:
-        time.sleep(float(hold))
-        return
-    except ValueError:
-        pass
+def _hold(release: str) -> None:
+    """For the tests of concurrent runs (``HOLD_LOCK_ENV``): keep the lock until the file ``release`` exists (at
+    most five minutes), so a test decides when the first run lets go."""
     deadline = time.monotonic() + 300
-    while not os.path.exists(hold) and time.monotonic() < deadline:
+    while not os.path.exists(release) and time.monotonic() < deadline:
         time.sleep(0.02)
 
 

@@ -83,7 +83,7 @@ class Prepared(NamedTuple):
     """What ``prepare`` hands back: the plan and the inputs it was made from, read whole."""
 
     plan: Plan
-    exports: list  # read.Export of each input, after the join
+    exports: list  # model.export.Export of each input, after the join
     decoded: dict  # export's path -> {column: decode.DecodedColumn}
     joined: Joined  # the join's set-aside and unmatched rows and its counts
 
@@ -246,8 +246,8 @@ def _build(paths: list[str], database: str, *, options, limits, formats, encodin
                 offset_record_keys(plan, [export], state)
             yield export, decoded
 
-    run = _Run(plan, order, inputs, partitions, {"set_aside_rows": joined.set_aside, "unmatched_rows": joined.unmatched},
-               state, _locator(plan, partitions), allow_lossy, progress)
+    extra = {"set_aside_rows": joined.set_aside, "unmatched_rows": joined.unmatched}
+    run = _Run(plan, order, inputs, partitions, extra, state, _locator(plan, partitions), allow_lossy, progress)
     outputs = dict(parquet_dir=parquet_dir, manifest_path=manifest_path, report_path=report_path,
                    dictionary_path=dictionary_path)
     if postgresql:
@@ -275,6 +275,10 @@ class _Run:
         with self.progress.building(self.inputs.records) as step:
             return build_partitions(self.plan, self.partitions, sink, self.extra, self.state, step.to)
 
+    def verify(self, built):
+        """The lossless proof of what ``build`` gave, for the writer to run before the database is in place."""
+        return verifier(self.plan, built, self.allow_lossy, self.locate(built))
+
 
 def _into_postgresql(run: _Run, database: str, staged, outputs: dict, *, schema: str, replace: bool, wait: float,
                      share_schema: bool) -> dict:
@@ -286,7 +290,7 @@ def _into_postgresql(run: _Run, database: str, staged, outputs: dict, *, schema:
         from .check import IntegrityError
         raise IntegrityError(f"{missing} foreign-key values name no row; nothing was written")
     integrity = write_postgresql(plan, built.rows, run.order, database, schema=schema, replace=replace,
-                                 verify=verifier(plan, built, run.allow_lossy, run.locate(built)), wait=wait,
+                                 verify=run.verify(built), wait=wait,
                                  share_schema=share_schema, phases=progress)
     result = manifest(plan, built, display_url(database), integrity, run.inputs.joined)
     result["schema"] = integrity["schema"]
@@ -304,8 +308,7 @@ def _into_postgresql(run: _Run, database: str, staged, outputs: dict, *, schema:
                 writer.insert(name, built.rows[name])
         writer.finish()
         return _outputs(staged, f"{display_url(database)} (schema {integrity['schema']})", plan, result,
-                        outputs["parquet_dir"], outputs["manifest_path"], outputs["report_path"],
-                        outputs["dictionary_path"], progress, source=copy,
+                        **outputs, phases=progress, source=copy,
                         postgresql={"types": integrity["sql_types"], "views": integrity["view_sql"]})
 
 
@@ -320,7 +323,7 @@ def _into_sqlite(run: _Run, database: str, staged, outputs: dict, *, replace: bo
         raise
     # rows are loaded without per-row foreign-key lookups: PRAGMA foreign_key_check runs before the move
     # (appended rows may name rows already in the database, which it checks too)
-    integrity = writer.finish(verifier(plan, built, run.allow_lossy, run.locate(built)), move=False, phases=progress)
+    integrity = writer.finish(run.verify(built), move=False, phases=progress)
     staged.database(writer)
     result = manifest(plan, built, os.fspath(database), integrity, run.inputs.joined, row_counts=writer.row_counts)
     if append:  # the manifest counts what the database now holds
@@ -330,8 +333,7 @@ def _into_sqlite(run: _Run, database: str, staged, outputs: dict, *, replace: bo
             for t in result["tables"]:
                 t["rows"] = con.execute(f'SELECT count(*) FROM "{t["name"]}"').fetchone()[0]
         result["appended"] = True
-    return _outputs(staged, database, plan, result, outputs["parquet_dir"], outputs["manifest_path"],
-                    outputs["report_path"], outputs["dictionary_path"], progress)
+    return _outputs(staged, database, plan, result, **outputs, phases=progress)
 
 
 class _Written:

@@ -1,5 +1,4 @@
-"""What a build counts per input file (rows and elements read, loaded, set aside, quarantined) and returns.
-"""
+"""What a build counts per input file (rows and elements read, loaded, set aside, quarantined) and returns."""
 
 from __future__ import annotations
 

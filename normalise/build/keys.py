@@ -70,8 +70,6 @@ class KeySpace:
 # Rows owned by a record get record key * 2**24 + position: with record keys below 2**29 every such key is
 # below 2**53, like the hashed ones.
 RECORD_KEY_LIMIT = 1 << 29
-
-
 POSITION_BITS = 24
 
 

@@ -1,14 +1,8 @@
-"""How a value is stored in a column of a plan type, and spelt as text for keys and comparisons.
-"""
+"""How a value is stored in a column of a plan type, and spelt as text for keys and comparisons."""
 
 from __future__ import annotations
 
-from ..model.exact import json_text
-
-_INT64_MIN = -(1 << 63)
-
-
-_INT64_MAX = (1 << 63) - 1
+from ..model.exact import INT64_MAX, INT64_MIN, json_text
 
 
 def to_sql_value(value, type_: str):
@@ -25,7 +19,7 @@ def to_sql_value(value, type_: str):
                 return None
         # SQLite's INTEGER holds 64 bits; a bigger value is not an integer of the column
         # (stored as NULL and reported, like any value of another type)
-        return value if _INT64_MIN <= value <= _INT64_MAX else None
+        return value if INT64_MIN <= value <= INT64_MAX else None
     if type_ == "real":
         try:
             return float(value)
@@ -66,14 +60,14 @@ def all_usable(idents: list, type_: str) -> bool:
     """Whether every value is a usable identity (``usable_identity``), judged on the column at once."""
     kinds = set(map(type, idents))
     if type_ == "integer":
-        return kinds == {int} and _INT64_MIN <= min(idents) and max(idents) <= _INT64_MAX
+        return kinds == {int} and INT64_MIN <= min(idents) and max(idents) <= INT64_MAX
     return not kinds & {type(None), dict, list, tuple, set, bool}
 
 
 def fits_int64(col: list) -> bool:
     """Whether a column of ints (and None) fits SQLite's 64-bit INTEGER."""
     ints = [v for v in col if v is not None]
-    return not ints or (_INT64_MIN <= min(ints) and max(ints) <= _INT64_MAX)
+    return not ints or (INT64_MIN <= min(ints) and max(ints) <= INT64_MAX)
 
 
 STORED_AS_IS = {  # Python types a column stores without conversion (None is NULL)

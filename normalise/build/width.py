@@ -1,5 +1,4 @@
-"""A table wider than the database allows is refused before anything is written (it would fail half-way).
-"""
+"""A table wider than the database allows is refused before anything is written (it would fail half-way)."""
 
 from __future__ import annotations
 

@@ -39,8 +39,6 @@ from .literal import CellError, Limits, check_limits, lone_surrogate_in
 from .nested import decode_json_cells, decode_python_cells, paused_gc
 
 FORMATS = ("json", "python-literal", "delimited", "text")
-
-
 EMPTY_MARKERS = frozenset(["", "[]", "{}", "()", "None", "null", "nan", "NaN"])
 
 
@@ -53,8 +51,6 @@ _NESTED_START = frozenset("[{(")
 # when at least this many cells, and this share of the nested cells, need it;
 # fewer are malformed cells of the main format and go to quarantine.
 MIXED_MIN_CELLS = 3
-
-
 MIXED_MIN_SHARE = 0.05
 
 

@@ -20,8 +20,6 @@ NAME_SUFFIXES = ("Jr", "Sr", "II", "III", "IV", "V", "PhD", "Ph.D", "MD", "M.D",
 
 
 _SUFFIX_WORDS = "|".join(re.escape(s) for s in sorted(NAME_SUFFIXES, key=len, reverse=True))
-
-
 _SUFFIX_PIECE = re.compile(rf"(?i)(?:{_SUFFIX_WORDS})\.?")  # fullmatch against a stripped piece
 
 
@@ -294,8 +292,6 @@ def _pieces_stand_alone(texts: list[str], cut: list, sep: str) -> bool:
 
 # A run of letters (with the marks inside names: O'Neil, Mary-Jane, St.John) or of digits.
 _LETTER_RUN = re.compile(r"[^\W\d_]+(?:['’.\-][^\W\d_]+)*")
-
-
 _DIGIT_RUN = re.compile(r"\d+")
 
 

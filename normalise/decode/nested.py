@@ -29,8 +29,6 @@ _SIMPLE_STRING = re.compile(r"""('[^'\x00\ud800-\udfff]*'|"[^"\x00\ud800-\udfff]
 
 # What may stand between string tokens in a cell the bulk route accepts.
 _SIMPLE_SKELETON = re.compile(r"(?:[ \t\r\n\[\]{},:0-9.eE+\-]++|None|True|False)*+")
-
-
 _WORDS = (("None", "null"), ("True", "true"), ("False", "false"))
 
 
@@ -100,14 +98,8 @@ _pyliteral = _load_accelerator()
 
 # Looked up one by one: an accelerator built from older sources lacks the newer functions.
 _many_py_to_json = getattr(_pyliteral, "many_py_to_json", None)
-
-
 _json_values = getattr(_pyliteral, "json_values", None)
-
-
 ACCELERATED = _many_py_to_json is not None
-
-
 _LEFT = object()  # stands for a cell the C reader leaves to the exact path
 
 

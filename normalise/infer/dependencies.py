@@ -11,11 +11,7 @@ from dataclasses import dataclass
 from itertools import chain
 
 DEFAULT_VIOLATION_THRESHOLD = 0.05
-
-
 ID_NAME = re.compile(r"(?i)^(id|key|code|uuid|guid|slug)$|(_id|_key|_code|_uuid|Id|ID|_no|_number)$")
-
-
 _POSITION_NAME = re.compile(r"(?i)^(position|pos|order|ordinal|index|idx|rank|seq|sequence|sort_order)$")
 
 

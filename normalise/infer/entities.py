@@ -33,8 +33,6 @@ def _entity_name(identity: str, column: str) -> str:
 
 
 SAME_SHAPE_FIELDS = 4  # objects with at least this many fields, nearly all in common, are of one kind
-
-
 SAME_SHAPE_SHARE = 0.8  # Jaccard share of the field names two object sets have in common
 
 

@@ -13,8 +13,6 @@ from .options import WIDE_OBJECT_KEYS, Options
 
 # A key that reads as a code: short, no spaces (ISO 4217 "EUR", ISO 639-3 "deu", a year "2018", "1F3FB")
 _CODE_KEY = re.compile(r"[A-Za-z0-9][A-Za-z0-9_.+-]{0,11}")
-
-
 KEYED_MIN_VARYING = 5  # keys, each in a few objects only, that make objects keyed by data
 
 

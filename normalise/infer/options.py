@@ -1,5 +1,4 @@
-"""What a user may decide for the inference: natural keys, the duplicates policy and the tolerated share of violations.
-"""
+"""What a user may decide for the inference: natural keys, the duplicates policy, the share of violations tolerated."""
 
 from __future__ import annotations
 
@@ -8,8 +7,6 @@ from dataclasses import dataclass
 from .dependencies import DEFAULT_VIOLATION_THRESHOLD
 
 NATURAL_KEY_MIN_DISTINCT = 0.98  # a few duplicates are set aside, not a reason to reject the key
-
-
 WIDE_OBJECT_KEYS = 20  # a single object with more keys becomes a 1:1 child table
 
 

@@ -21,14 +21,8 @@ class InvalidPlan(NormaliseError):
 
 
 NAME = "name"  # a SQL name as the tool makes them: [a-z0-9_], not starting with a digit, at most 60 characters
-
-
 TEXT, FLAG, WHOLE, SHARE, TEXTS = "text", "true or false", "a whole number", "a number from 0 to 1", "texts"
-
-
 REQUIRED = "required"  # a block's keys that must be there
-
-
 FIELD = {REQUIRED: ("key", "name", "type"), "key": "path", "name": NAME, "type": TYPES, "null": ("null", "absent"), "as_text": FLAG,
          "references": NAME, "entity": NAME, "scale": WHOLE}
 
@@ -40,8 +34,6 @@ NESTED = {REQUIRED: ("column", "kind"), "column": TEXT, "path": TEXT, "file": TE
 
 
 NESTED["children"] = [NESTED]
-
-
 SCHEMA = {
     "version": WHOLE, "violation_threshold": SHARE,
     "join": {"how": ("left", "inner", "full"), "cardinality": ("one-to-one", "one-to-many"), "separate": FLAG,

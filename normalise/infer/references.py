@@ -12,8 +12,6 @@ from .dependencies import ID_NAME, is_scalar
 # territory with no row of its own) do not break the reference; they are kept and counted. The figures are a
 # choice of this project, not a published rule; a plan sets or removes any reference (``references = ...``).
 REFERENCE_MIN_SHARE = 0.9
-
-
 REFERENCE_MIN_VALUES = 3
 
 

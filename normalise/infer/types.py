@@ -11,14 +11,8 @@ from .dependencies import ID_NAME, is_scalar
 from .options import NATURAL_KEY_MIN_DISTINCT
 
 _INTEGER = re.compile(r"[-+]?(0|[1-9]\d{0,17})")  # leading zeros are codes, not numbers
-
-
 _REAL = re.compile(r"[-+]?((0|[1-9]\d*)(\.\d*)?|\.\d+)([eE][-+]?\d+)?")
-
-
 _DATE = re.compile(r"\d{4}-\d{2}-\d{2}")
-
-
 _TIMESTAMP = re.compile(r"\d{4}-\d{2}-\d{2}[T ]\d{2}:\d{2}(:\d{2}(\.\d+)?)?(Z|[+-]\d{2}:?\d{2})?")
 
 

@@ -14,11 +14,8 @@ import ast
 import json
 import math
 
-_INT64_MIN = -(1 << 63)
-
-
-_INT64_MAX = (1 << 63) - 1
-
+INT64_MIN = -(1 << 63)  # what SQLite's INTEGER and PostgreSQL's BIGINT hold
+INT64_MAX = (1 << 63) - 1
 
 ABSENT = object()  # a key an object does not have (None is a value: null)
 
@@ -67,7 +64,7 @@ def to_column(value, type_: str, as_text: bool):
             return None
         elif kind is not int:
             return None
-        return value if _INT64_MIN <= value <= _INT64_MAX else None
+        return value if INT64_MIN <= value <= INT64_MAX else None
     if type_ == "real":
         if as_text:
             if kind is not str:
@@ -142,8 +139,6 @@ def store(value, type_: str, as_text: bool = False):
 
 # Values ast.literal_eval gives that JSON has no form for (Python language reference, "Literals")
 _PYTHON_ONLY = (bytes, complex, set, frozenset, type(...))
-
-
 _INF = float("inf")
 
 

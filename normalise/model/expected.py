@@ -15,8 +15,6 @@ class _Mismatch:
 
 
 NOT_HELD = _Mismatch()
-
-
 VALUE_TYPES = {"text": str, "integer": int, "real": float, "boolean": bool}  # a value list's type: its values
 
 

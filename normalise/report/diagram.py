@@ -16,44 +16,18 @@ from ..model.plan import META_ROLES
 from .markup import esc, shorten, svg_number
 
 CHAR = 6.7  # width of one character of the 11px monospace text in the boxes (0.6 em, rounded up)
-
-
 NAME_CHAR = 7.9  # 13px bold monospace
-
-
 ROW = 17
-
-
 HEAD = 38
-
-
 FOOT = 20
-
-
 PAD = 9
-
-
 MIN_W = 170
-
-
 MAX_W = 340
-
-
 HGAP = 96  # between columns: room for the lines and their end marks
-
-
 VGAP = 16
-
-
 BAND_PAD = 14
-
-
 BAND_LABEL = 22
-
-
 BAND_GAP = 26
-
-
 MARGIN = 16
 
 

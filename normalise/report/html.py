@@ -297,8 +297,6 @@ def _integrity_section(model: dict) -> str:
 
 
 _META_LABEL = {meta.role: name for name, meta in META_TABLES.items()}  # a role's table
-
-
 _META_LIMITS = {"raw": 160, "cells": 160, "excerpt": 80, "message": 240}
 
 

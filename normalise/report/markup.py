@@ -11,11 +11,7 @@ from collections import defaultdict
 from ..model.escapes import clean
 
 NONE = "<span class=null>\u2014</span>"
-
-
 NOT_EQUAL = "\u2260"
-
-
 DASH = "\u2014"
 
 

@@ -1,5 +1,4 @@
-"""Parquet: one file per table and view, with the plan's explicit Arrow schema (empty tables typed alike).
-"""
+"""Parquet: one file per table and view, with the plan's explicit Arrow schema (empty tables typed alike)."""
 
 from __future__ import annotations
 

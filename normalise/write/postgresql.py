@@ -59,16 +59,12 @@ def proof_queries(plan: Plan, forms: dict) -> dict[str, str]:
 
 
 DEFAULT_SCHEMA = "normalise"
-
-
 PG_MAX_IDENTIFIER = 63  # bytes: NAMEDATALEN - 1; PostgreSQL truncates longer names with only a notice
 
 
 # The register of a schema: one row per table and view a run made there (and the register itself), so that
 # --replace drops those and nothing else.
 PG_REGISTER = "normalise_register"
-
-
 _PG_DROP = {"v": "VIEW", "m": "MATERIALIZED VIEW", "f": "FOREIGN TABLE", "r": "TABLE", "p": "TABLE"}
 
 
