@@ -164,7 +164,7 @@ def check_faithful(cells: list, col) -> None:
     """Scalar values are the cells as given; a delimited column gives every text cell back exactly."""
     for i, cell in enumerate(cells):
         value = col.values[i]
-        if col.format == "scalar" and value is not None and value != cell:
+        if col.format == "text" and value is not None and value != cell:
             raise InvariantBroken(f"scalar cell {cell!r} stored as {value!r}")
         if col.format == "delimited" and isinstance(cell, str):
             back = col.layout[i] if col.layout[i] is not None else (

@@ -21,6 +21,7 @@ from .decode import DecodedColumn
 from .infer import detect_natural_key, scalar_column_type
 from .model.errors import NormaliseError, UsageError
 from .model.export import Export
+from .model.kinds import Format
 
 HOWS = ("left", "inner", "full")
 CARDINALITIES = ("one-to-one", "one-to-many")
@@ -72,7 +73,7 @@ def find_relation(main: Export, main_key: str, other: Export, decoded: dict) -> 
     keys = set(_key_values(main, decoded, main_key))
     best = None
     for name, col in decoded[other.path].items():
-        if col.format not in ("scalar",):
+        if col.format != Format.TEXT:
             continue
         values = {v for v in _key_values(other, decoded, name) if v is not None}
         if not values:
@@ -99,7 +100,8 @@ def join(exports: list[Export], decoded: dict, options: JoinOptions, natural_key
     main_cols = decoded[main.path]
     main_key = natural_keys.get(main.name)
     if main_key is None:
-        types = {n: scalar_column_type(c.values) for n, c in main_cols.items() if c.format in ("scalar", "empty")}
+        types = {n: scalar_column_type(c.values)
+                 for n, c in main_cols.items() if c.format in (Format.TEXT, Format.EMPTY)}
         main_key = detect_natural_key(list(types), {n: main_cols[n].values for n in types}, types)
     if main_key is None:
         if options.on:
@@ -122,7 +124,7 @@ def join(exports: list[Export], decoded: dict, options: JoinOptions, natural_key
             if right_col not in decoded[other.path]:
                 raise UsageError(f"--join {other.name}.{right_col}: {other.path} has no column {right_col!r} "
                                  f"(columns: {', '.join(other.columns)})")
-            if decoded[other.path][right_col].format not in ("scalar", "empty"):
+            if decoded[other.path][right_col].format not in (Format.TEXT, Format.EMPTY):
                 raise UsageError(f"--join {other.name}.{right_col}: that column holds nested values, not keys; "
                                  "name the column of plain values that holds the main file's keys")
         else:
@@ -290,7 +292,7 @@ def _link_many(result: Joined, main: Export, main_key: str, other: Export, right
                                       col.format_counts, col.separator, col.ambiguity, col.forced, col.rejoined,
                                       col.join_separator,
                                       None if col.layout is None else [col.layout[j] for j in keep])
-    columns[column] = DecodedColumn(column, "scalar", cells[column])
+    columns[column] = DecodedColumn(column, Format.TEXT, cells[column])
     result.exports[result.exports.index(other)] = linked
     result.decoded[other.path] = columns
     right_set = {k for k in right_keys if k is not None}

@@ -26,6 +26,7 @@ from pathlib import Path
 from .decode import format_choices
 from .infer import objects_of
 from .model.errors import UsageError
+from .model.kinds import Format
 from .model.names import closest_first
 
 
@@ -156,7 +157,7 @@ def _columns(exports: list, decoded: dict, join_options) -> list[_Column]:
                 # columns are named by these options (and a detected join key, left out by the join, is scalar)
                 new = name if name not in taken else f"{export.name}_{name}"
                 taken.add(new)
-                if decoded[export.path][name].format not in ("scalar", "empty"):
+                if decoded[export.path][name].format not in (Format.TEXT, Format.EMPTY):
                     column.names |= {(None, new), (export.name, new), (main.name, new)}
                     column.members.add((export.name, new))
             out.append(column)

@@ -20,6 +20,7 @@ from .model.digests import DIGEST_MODULUS, InputDigests, keyed_digest
 from .model.errors import NormaliseError
 from .model.exact import ABSENT, from_literal, keyed_object, pointer, pointer_keys, put, same, stored_back
 from .model.expected import object_back
+from .model.kinds import Kind
 from .model.names import quote_name as _q
 from .model.plan import TEXT_TYPES
 from .model.schema import record_parts
@@ -53,8 +54,8 @@ def rebuild_cells(plan, fetch, impure: set | None = None, only: set | None = Non
         nested_wanted = [n for n in record.nested if only is None or (record.table, n.column) in only]
         if not wanted and not nested_wanted:
             continue
-        needs_rows = wanted or any(n.kind == "object-columns" for n in nested_wanted)
-        needed = {f.column for f in wanted} | {f.column for n in nested_wanted if n.kind == "object-columns"
+        needs_rows = wanted or any(n.kind == Kind.OBJECT_COLUMNS for n in nested_wanted)
+        needed = {f.column for f in wanted} | {f.column for n in nested_wanted if n.kind == Kind.OBJECT_COLUMNS
                                                for f in n.row_fields}
         names, rows = _record_rows(plan, record.table, fetch, needed) if needs_rows else ([], [])
         at = {n: j for j, n in enumerate(names)}
@@ -64,7 +65,7 @@ def rebuild_cells(plan, fetch, impure: set | None = None, only: set | None = Non
                                                if r[j] is not None}
         for nested in nested_wanted:
             cells: dict[int, object] = {}
-            if nested.kind == "object-columns":
+            if nested.kind == Kind.OBJECT_COLUMNS:
                 js = [at[f.column] for f in nested.row_fields]
                 lists = _child_lists(plan, nested, fetch, traces)
                 entities = _referred(plan, nested.row_fields, fetch, traces)
@@ -174,9 +175,9 @@ def _owned(plan, nested, fetch, traces) -> dict[int, object]:
     rows = fetch(table_query(nested.table))
     elements = traces["elements"]
     traced = {sk for t, sk in elements if t == nested.table}
-    lists = _child_lists(plan, nested, fetch, traces) if nested.kind != "value-list" else []
+    lists = _child_lists(plan, nested, fetch, traces) if nested.kind != Kind.VALUE_LIST else []
     entities = _referred(plan, nested.row_fields, fetch, traces)
-    if nested.kind == "object-child":
+    if nested.kind == Kind.OBJECT_CHILD:
         make = row_objects(nested.row_fields, 2, entities)
         out = {}
         for r in rows:
@@ -187,14 +188,14 @@ def _owned(plan, nested, fetch, traces) -> dict[int, object]:
             out[r[1]] = _apply(obj, elements[(nested.table, r[0])]) if r[0] in traced else obj
         return out
     rows.sort(key=itemgetter(1, names.index("list_position")))
-    if nested.kind == "value-list":
+    if nested.kind == Kind.VALUE_LIST:
         vt = getattr(nested, "value_type", "text")
         values = {sk: stored_back(v, vt, False)  # a third column, when there, names the record (references)
                   for sk, v, *_ in fetch(table_query(nested.entity))}
         made = [(r[1], values[r[2]]) for r in rows]
     else:
-        make = row_objects(nested.row_fields, 4 if nested.kind == "entity-list" else 3, entities)
-        if nested.kind == "entity-list":
+        make = row_objects(nested.row_fields, 4 if nested.kind == Kind.ENTITY_LIST else 3, entities)
+        if nested.kind == Kind.ENTITY_LIST:
             entity = _entity_objects(plan, nested.entity, fetch, traces)
             made = [(r[1], {**entity[r[2]], **make(r)}) for r in rows]
         else:

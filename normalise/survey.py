@@ -15,6 +15,7 @@ from .infer import (REFERENCE_MIN_SHARE, REFERENCE_MIN_VALUES, detect_natural_ke
 from .infer.profile import profile_values
 from .model.errors import speaks_to_callers
 from .model.export import Export
+from .model.kinds import Format
 from .option_values import check_values
 from .read import read
 
@@ -32,7 +33,7 @@ def survey_column(export: Export, column: DecodedColumn) -> dict:
                    "quarantined": len(column.quarantined)}
     if column.name != export.header_names.get(column.name, column.name):
         entry["name_in_file"] = export.header_names[column.name]
-    if column.format in ("scalar", "empty"):
+    if column.format in (Format.TEXT, Format.EMPTY):
         entry["shape"] = "scalar"
         entry["type"] = scalar_type([v for v in values if v is not None])
     else:
@@ -44,7 +45,7 @@ def survey_column(export: Export, column: DecodedColumn) -> dict:
             entry["identity_candidates"] = [c.to_json() for c in identity_candidates(objects, owners)]
     if column.separator is not None:
         entry["separator"] = column.separator
-    if column.format == "delimited":
+    if column.format == Format.DELIMITED:
         entry["rejoined"] = column.rejoined  # values that kept a name suffix ("Carl Dole, Jr.")
     if column.ambiguity:
         entry["ambiguous"] = True
@@ -100,7 +101,8 @@ def _reference_evidence(surveyed: list, files: list[dict]) -> None:
     of a file (``references`` in the entry), the evidence a build goes by to make it a foreign key."""
     keys, key_columns, key_of = {}, {}, {}
     for export, columns in surveyed:
-        types = {n: scalar_column_type(c.values) for n, c in columns.items() if c.format in ("scalar", "empty")}
+        types = {n: scalar_column_type(c.values)
+                 for n, c in columns.items() if c.format in (Format.TEXT, Format.EMPTY)}
         key = detect_natural_key(list(types), {n: columns[n].values for n in types}, types)
         if key:
             keys[export.name] = reference_texts(columns[key].values, False)
@@ -135,7 +137,7 @@ def render(result: dict) -> str:
         if f["rejected_rows"] > len(f["rejected"]):
             out.append(f"  ... and {f['rejected_rows'] - len(f['rejected'])} more rejected rows")
         for c in f["columns"]:
-            if c["format"] in ("scalar", "empty"):
+            if c["format"] in (Format.TEXT, Format.EMPTY):
                 head = f"  {c['name']}: {c['type']}"
             else:
                 head = f"  {c['name']}: {c['format']} {c['shape']}"

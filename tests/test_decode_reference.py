@@ -519,7 +519,7 @@ def test_many_names_refused_in_linear_time():
     ("json", '["abcdef"]', '["abcdefg"]'),
     ("python-literal", "['abcdef']", "['abcdefg']"),
     ("delimited", "ab|cd|efgh", "ab|cd|efghi"),
-    ("scalar", "abcdefghij", "abcdefghijk"),
+    ("text", "abcdefghij", "abcdefghijk"),
 ])
 def test_cell_above_max_cell_chars_is_quarantined(fmt, small, big):
     limits = Limits(max_cell_chars=10)

@@ -75,7 +75,7 @@ def test_python_strip_removes_unicode_spaces():
 def test_scalar_cells_keep_their_surrounding_whitespace():
     cells = ["  Ann ", "\tBo", "Cy\u00a0", "\u3000Di\u3000", "Ed", " 7 "]
     col = column(cells)
-    assert col.format == "scalar"
+    assert col.format == "text"
     assert col.values == cells
 
 
@@ -157,7 +157,7 @@ EMOTICONS = [":)", ";)", ":(", ":D", ";-)", ":-(", ";P", ":o", ":)", ";)"]
 
 def test_emoticons_stay_text():
     col = column(EMOTICONS * 3)
-    assert col.format == "scalar" and col.separator is None
+    assert col.format == "text" and col.separator is None
     assert col.values == EMOTICONS * 3  # ";)" is ";)", never ")"
     assert detect_separator(EMOTICONS) is None
 
@@ -219,7 +219,7 @@ def test_keywords_that_rarely_repeat_are_a_list():
 ])
 def test_prose_with_commas_stays_text(cells):
     col = column(cells)
-    assert col.format == "scalar", col.values
+    assert col.format == "text", col.values
     assert col.values == cells
 
 

@@ -90,8 +90,8 @@ def test_a_table_wider_than_sqlite_allows_is_refused_before_writing():
 
 
 def test_decode_as_text_keeps_json_lines_objects_as_json_text():
-    col = decode_column("obj", [{"a": 1}, None, [1, "é"]], [1, 2, 3], "x.jsonl", forced=("scalar", None))
-    assert col.values == ['{"a": 1}', None, '[1, "é"]'] and col.format == "scalar"
+    col = decode_column("obj", [{"a": 1}, None, [1, "é"]], [1, 2, 3], "x.jsonl", forced=("text", None))
+    assert col.values == ['{"a": 1}', None, '[1, "é"]'] and col.format == "text"
 
 
 def test_identity_candidates_of_a_wide_object_take_bounded_time():

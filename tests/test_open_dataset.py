@@ -92,7 +92,7 @@ def test_survey_of_zone1970(zone1970):
     # the other columns are single values: coordinates and names have no
     # separator, and the comments are prose whose commas do not make lists
     for name in ("coordinates", "tz", "comments"):
-        assert columns[name]["format"] == "scalar", name
+        assert columns[name]["format"] == "text", name
     filled = sum(len(row) == 4 and row[3] != "" for row in rows)
     assert columns["comments"]["fill_rate"] == pytest.approx(filled / len(rows), abs=1e-4)
 

@@ -348,7 +348,7 @@ def test_json_lines_fields_holding_lists_or_objects_count_as_decoded(tmp_path):
     assert columns["people"].values[0] == [{"pid": 0, "name": "N0"}]
     assert columns["people"].format_counts == {"json": 6}
     assert columns["meta"].format == "json"
-    assert columns["id"].format == "scalar"
+    assert columns["id"].format == "text"
     entry = {c["name"]: c for c in survey([path])["files"][0]["columns"]}
     assert entry["people"]["shape"] == "object-list"
     assert entry["meta"]["shape"] == "object"

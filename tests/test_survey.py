@@ -150,7 +150,7 @@ def test_survey_function_and_cli_agree(demo, demo_json):
 def test_nested_columns_encoding_and_shape(demo_json):
     columns = columns_of(file_entry(demo_json, "contributions.csv"))
     assert list(columns) == ["title_key", *NESTED]
-    assert columns["title_key"]["format"] == "scalar"
+    assert columns["title_key"]["format"] == "text"
     for name, (encoding, shape, separator) in NESTED.items():
         assert (columns[name]["format"], columns[name]["shape"]) == (encoding, shape), name
         assert columns[name].get("separator") == separator, name
@@ -160,7 +160,7 @@ def test_nested_columns_encoding_and_shape(demo_json):
 def test_titles_columns_are_scalars_with_types(demo_json):
     columns = columns_of(file_entry(demo_json, "titles.csv"))
     assert {name: (c["format"], c["shape"]) for name, c in columns.items()} == {
-        name: ("scalar", "scalar") for name in TITLE_TYPES}
+        name: ("text", "scalar") for name in TITLE_TYPES}
     assert {name: c["type"] for name, c in columns.items()} == TITLE_TYPES
     assert all(c["quarantined"] == 0 for c in columns.values())
 
@@ -264,7 +264,7 @@ def test_decode_override_text(demo, capsys):
     _out, _planted, paths = demo
     result = cli_json(capsys, paths[1], "--decode", "formats=text")
     column = columns_of(result["files"][0])["formats"]
-    assert (column["format"], column["shape"], column["type"]) == ("scalar", "scalar", "text")
+    assert (column["format"], column["shape"], column["type"]) == ("text", "scalar", "text")
     assert "separator" not in column
 
 
@@ -283,7 +283,7 @@ def test_decode_overrides_combine(demo, capsys):
     result = cli_json(capsys, paths[1], "--decode", "formats=text",
                       "--decode", "production_team=python-literal")
     columns = columns_of(result["files"][0])
-    assert columns["formats"]["format"] == "scalar"
+    assert columns["formats"]["format"] == "text"
     assert columns["production_team"]["format"] == "python-literal"
 
 

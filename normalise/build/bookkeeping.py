@@ -7,6 +7,7 @@ from __future__ import annotations
 
 from operator import itemgetter
 
+from ..model.kinds import Kind
 from ..model.plan import Plan
 from ..model.schema import record_parts, record_row_columns
 
@@ -47,7 +48,7 @@ def entity_members(plan: Plan, entity: str) -> list[tuple]:
 
     def visit(nested, path: str, owner_table: str) -> None:
         here = nested.table or owner_table
-        if nested.kind == "entity-list" and nested.entity == entity:
+        if nested.kind == Kind.ENTITY_LIST and nested.entity == entity:
             fk = next(k for k in plan.table(nested.table).foreign_keys if k.references == entity)
             out.append((nested.table, fk.columns[0], nested.column, [], path))
         for f in nested.row_fields:

@@ -4,6 +4,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass, field
 
+from ..model.kinds import Kind
 from ..model.plan import NestedColumn
 
 
@@ -65,7 +66,7 @@ class Audit:
             keys = {f.path[0] for f in nested.row_fields if f.path} | {c.path.split(".")[0] for c in nested.children}
             if nested.identity:
                 keys.add(nested.identity)
-            if nested.kind == "entity-list":
+            if nested.kind == Kind.ENTITY_LIST:
                 keys |= {f.path[0] for f in entities[nested.entity].group.attributes}
             found = self._known[id(nested)] = frozenset(keys)
         return found

@@ -6,8 +6,9 @@ from __future__ import annotations
 
 from collections import Counter
 
-from ..model.exact import ABSENT
 from ..infer import reference_text
+from ..model.exact import ABSENT
+from ..model.kinds import Format, Kind
 from ..model.plan import Plan, RecordSource
 from ..model.schema import reference_columns
 
@@ -26,7 +27,7 @@ class References:
 
     def __init__(self, plan: Plan, state: dict | None):
         self.value_lists = {n.entity: n for r in plan.records for n in r.nested
-                            if n.kind == "value-list" and n.references}
+                            if n.kind == Kind.VALUE_LIST and n.references}
         self.columns = {r.table: reference_columns(r) for r in plan.records}  # [(FieldMap, foreign-key column)]
         self.targets = ({n.references for n in self.value_lists.values()}
                         | {f.references for found in self.columns.values() for f, _ in found})
@@ -111,7 +112,7 @@ class References:
             missing = [sk for sk in used if linked.get(sk) is None]
             unmatched = sum(used[sk] for sk in missing)
             figures.append(_reference_figures(
-                f"{nested.file}:{nested.column}", "value-list", table, plan.table(table).columns[-1].name,
+                f"{nested.file}:{nested.column}", Kind.VALUE_LIST, table, plan.table(table).columns[-1].name,
                 nested.references, sum(used.values()), unmatched, len(missing),
                 [unlinked[sk] for sk in missing if sk in unlinked], len(used)))
         for record in plan.records:
@@ -154,7 +155,7 @@ def set_column(plan: Plan, rows: dict, table: str, column: str, pairs: list[tupl
 def reference_values(record: RecordSource, column: str, col, rows: list[int]) -> list:
     """What the lossless proof compares a column's cells with: the decoded values, and a delimited cell's text."""
     nested = next((n for n in record.nested if n.column == column), None)
-    if nested is not None and nested.separator and col.format == "delimited":
+    if nested is not None and nested.separator and col.format == Format.DELIMITED:
         return delimited_texts(col, rows, nested.separator)
     return [col.values[i] for i in rows]
 

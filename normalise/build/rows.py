@@ -19,6 +19,7 @@ from ..model.errors import NormaliseError
 from ..model.exact import (ABSENT, get, is_negative_zero, keyed_items, literal, pointer, same, store, stored_back,
                            value_key)
 from ..model.expected import VALUE_TYPES, expect_cell, expect_element, usable_identity
+from ..model.kinds import Format, Kind
 from ..model.plan import META_TABLES, NestedColumn, Plan, RecordSource
 from .bookkeeping import entity_members, meta_order, name_map, record_splits
 from .counts import Audit, Built, FileCounts
@@ -139,7 +140,7 @@ class Builder:
             col = columns[nested.column]
             if getattr(col, "rejoined", 0):
                 self.rejoined[f"{export.path}:{nested.column}"] += col.rejoined
-            if nested.separator and col.format == "delimited":  # the proof compares the cell's own text
+            if nested.separator and col.format == Format.DELIMITED:  # the proof compares the cell's own text
                 texts = self._delimited_cells(record, nested, col, kept, keys, export)
                 self.inputs.add(record.table, nested.column, keys, texts, kept, set())
             else:
@@ -152,7 +153,7 @@ class Builder:
         out = rows[record.table]
         # a single object made columns of the record: its columns, entity references among them
         held = [self._object_columns(record, nested, order, columns[nested.column].values, kept, record_keys, export)
-                for order, nested in enumerate(record.nested) if nested.kind == "object-columns"]
+                for order, nested in enumerate(record.nested) if nested.kind == Kind.OBJECT_COLUMNS]
         out += map(tuple, zip(keys, *scalar_cols, *[col for cols in held for col in cols], *reference_cols))
         if record.table in self.parts:
             self._split_rows(record.table, len(out) - len(kept))
@@ -351,7 +352,7 @@ class Builder:
     def _check_cell(self, record: RecordSource, nested: NestedColumn, value, sk: int, export, i: int,
                     col=None) -> None:
         """A cell whose rows do not give it back exactly is traced whole (columns not traced ``_by_field``)."""
-        group = self.entities[nested.entity].group if nested.kind == "entity-list" else None
+        group = self.entities[nested.entity].group if nested.kind == Kind.ENTITY_LIST else None
         expected = expect_cell(nested, value, group.identity_type if group else None,
                                group.attributes if group else (), self.groups)
         if not same(expected, value):
@@ -376,7 +377,7 @@ class Builder:
         whole (``_check_cell``).
         """
         kind, lines = nested.kind, export.lines
-        if kind == "object-columns":  # its fields are the record's columns (_object_columns): the lists inside
+        if kind == Kind.OBJECT_COLUMNS:  # its fields are the record's columns (_object_columns): the lists inside
             found = [(v, o, i) for v, o, i in zip(values, owners, rows_of) if isinstance(v, dict)]
             c.elements_decoded += len(found)
             c.elements_written += len(found)
@@ -388,7 +389,7 @@ class Builder:
                                                                           c, whole)
         if not items:
             return whole
-        vt = nested.value_type if kind == "value-list" else None
+        vt = nested.value_type if kind == Kind.VALUE_LIST else None
         if max(item_owners) < RECORD_KEY_LIMIT and max(positions) < (1 << POSITION_BITS):
             keys = [(o << POSITION_BITS) | p for o, p in zip(item_owners, positions)]  # row_key, a column at once
         else:
@@ -396,7 +397,7 @@ class Builder:
             keys = [row_key(source, o, p) for o, p in zip(item_owners, positions)]
         table = self.rows[nested.table]
         c.elements_written += len(keys)
-        if kind == "value-list":
+        if kind == Kind.VALUE_LIST:
             found = self.values.get(nested.entity)
             if found is None:
                 found = self.values[nested.entity] = ValueTable()
@@ -407,7 +408,7 @@ class Builder:
             return whole
         links = self._link_columns(nested, order, items, keys, item_owners, positions, item_rows, export, whole,
                                    by_field)
-        if kind == "entity-list":
+        if kind == Kind.ENTITY_LIST:
             places = [(lines[i], order, p) for i, p in zip(item_rows, positions)]
 
             def where(j):
@@ -416,7 +417,7 @@ class Builder:
 
             entity_keys = self.entities[nested.entity].add_column(idents, items, places, where, item_rows)
             table.extend(zip(keys, item_owners, entity_keys, positions, *links))
-        elif kind == "object-child":
+        elif kind == Kind.OBJECT_CHILD:
             table.extend(zip(keys, item_owners, *links))
         else:
             table.extend(zip(keys, item_owners, positions, *links))
@@ -431,7 +432,7 @@ class Builder:
         another type, not an object, no usable identity) are quarantined and left out. Adds to ``whole`` the record
         rows whose cells the rows cannot give back (``by_field``)."""
         kind, audit = nested.kind, self.audit
-        if kind == "object-child":
+        if kind == Kind.OBJECT_CHILD:
             items, item_owners, positions, item_rows = list(values), list(owners), [0] * len(values), list(rows_of)
         else:
             items, item_owners, positions, item_rows = [], [], [], []
@@ -448,8 +449,8 @@ class Builder:
         if not items:
             return [], [], [], [], None
         c.elements_decoded += len(items)
-        vt = nested.value_type if kind == "value-list" else None
-        if kind == "value-list":  # a value the list's type cannot hold is not a value of the list
+        vt = nested.value_type if kind == Kind.VALUE_LIST else None
+        if kind == Kind.VALUE_LIST:  # a value the list's type cannot hold is not a value of the list
             bad = [k for k, x in enumerate(items) if x is None or isinstance(x, (dict, list, tuple))
                    or vt != "text" and store(x, vt)[0] is None]
             want = VALUE_TYPES[vt]
@@ -458,7 +459,7 @@ class Builder:
         else:
             bad = [k for k, x in enumerate(items) if type(x) is not dict]
         idents = None
-        if kind == "entity-list":
+        if kind == Kind.ENTITY_LIST:
             identity, identity_type = nested.identity, self.entities[nested.entity].group.identity_type
             given = [o.get(identity) if type(o) is dict else None for o in items]
             idents = [match_key(v) or None for v in given] if nested.matched else given
@@ -473,11 +474,11 @@ class Builder:
             whole.update(item_rows[k] for k in bad)
             for k in bad:
                 x = items[k]
-                if kind == "object-child":
+                if kind == Kind.OBJECT_CHILD:
                     message = "expected an object"
                 elif x is None:
                     message = "null element in a list"
-                elif kind == "value-list":
+                elif kind == Kind.VALUE_LIST:
                     message = ("nested element in a list of values" if isinstance(x, (dict, list, tuple))
                                else f"not {vt}, the list's type")
                 elif type(x) is not dict:
@@ -507,7 +508,7 @@ class Builder:
         if by_field and any(len(f.path) > 1 or f.entity for f in nested.row_fields):
             # fields of sub-objects: a sub-object that is null, empty or holds more keys than the model cannot be
             # told from its fields, so each element is compared with what its row gives back (model.expected.expect_cell)
-            group = self.entities[nested.entity].group if nested.kind == "entity-list" else None
+            group = self.entities[nested.entity].group if nested.kind == Kind.ENTITY_LIST else None
             for k, o in enumerate(items):
                 back = expect_element(nested, o, group.identity_type if group else None,
                                       group.attributes if group else (), self.groups)
@@ -520,7 +521,7 @@ class Builder:
         # A key the model does not have is reported for the objects of a list; a single object's keys may be
         # the attributes of the entity it is (a reference), which ``known`` does not list, and its cell is
         # compared whole
-        if nested.kind != "object-child" and not set(chain.from_iterable(items)) <= known:
+        if nested.kind != Kind.OBJECT_CHILD and not set(chain.from_iterable(items)) <= known:
             for k, (o, i) in enumerate(zip(items, rows_of)):
                 if not o.keys() <= known:
                     audit.note_keys(nested, o, path, lines[i])
@@ -556,7 +557,7 @@ class Builder:
                     if by_field:  # each such value is kept on its row, and the column reported
                         audit.note_type(path, f"{nested.column}.{f.column}", f.type, v, lines[i])
                         keep(k, f.path, v, f"not {f.type} as given")
-                    elif stored is None and v is not None and nested.kind != "object-child":
+                    elif stored is None and v is not None and nested.kind != Kind.OBJECT_CHILD:
                         # compared whole, a list's column is reported where it holds NULL for a value
                         audit.note_type(path, f"{nested.column}.{f.column}", f.type, v, lines[i])
                 col = converted
@@ -707,7 +708,7 @@ def _by_field(nested: NestedColumn) -> bool:
     """A top-level list without lists inside its objects keeps what its rows cannot give back field by field
     (a key the model lacks, null for absent, a value of another type, each on its bridge or child row); any
     other nested column, its cell whole when its rows differ from it (``Builder._check_cell``)."""
-    return nested.kind in ("entity-list", "child-list", "value-list") and not nested.children and not nested.path
+    return nested.kind in (Kind.ENTITY_LIST, Kind.CHILD_LIST, Kind.VALUE_LIST) and not nested.children and not nested.path
 
 
 def _quarantine_element(quarantine: list, export, i, nested, position, message, c: FileCounts) -> None:

@@ -5,7 +5,7 @@ Formats of a column's text cells:
 * ``json``           JSON text (RFC 8259)
 * ``python-literal`` the repr of lists, dicts, tuples, strings, numbers, None/True/False
 * ``delimited``      values joined by a separator (``poetry|essays``)
-* ``scalar``         plain text or numbers
+* ``text``           plain text or numbers, each cell one value
 
 Empty markers (blank, ``[]``, ``{}``, ``None``, ``null``, ``nan``) are empty,
 never values; they are whole cells, so a string "None" inside a nested value is
@@ -34,11 +34,12 @@ from collections import Counter
 from dataclasses import dataclass, field
 
 from ..model.export import Export
+from ..model.kinds import Format
 from .delimited import AMBIGUITY_SHOWN, ambiguity_message, cut_pieces, detect_separator, join_separator_of
 from .literal import CellError, Limits, check_limits, lone_surrogate_in
 from .nested import decode_json_cells, decode_python_cells, paused_gc
 
-FORMATS = ("json", "python-literal", "delimited", "text")
+FORMATS = (Format.JSON, Format.PYTHON_LITERAL, Format.DELIMITED, Format.TEXT)  # what --decode may force
 EMPTY_MARKERS = frozenset(["", "[]", "{}", "()", "None", "null", "nan", "NaN"])
 
 
@@ -77,7 +78,7 @@ class DecodedColumn:
     """One column after decoding: a value per row (None when empty or quarantined)."""
 
     name: str
-    format: str  # json | python-literal | delimited | scalar | mixed | empty
+    format: Format
     values: list
     quarantined: list[QuarantinedCell] = field(default_factory=list)
     format_counts: dict[str, int] = field(default_factory=dict)
@@ -109,18 +110,18 @@ class ColumnFormat:
     Detection looks at a whole column (the share of nested cells, the separator that repeats, whether enough
     cells need the other grammar); a cell decoded with the decisions of the column's first rows decodes the
     same in any part of the file, so the database does not depend on how the file is cut into chunks.
-    ``format``: json, python-literal, delimited or scalar, as detected (or forced); ``primary``: the grammar a
+    ``format``: json, python-literal, delimited or text, as detected (or forced); ``primary``: the grammar a
     nested cell is read with first; ``mixed``: whether cells of the other grammar are values (enough of them
     among the first rows) rather than malformed cells; ``separator`` and ``join_separator``: a delimited
     column's; ``column_format``: the column's ``DecodedColumn.format`` (``mixed`` or ``empty`` too).
     """
 
-    format: str
+    format: Format
     separator: str | None = None
-    primary: str | None = None
+    primary: Format | None = None
     mixed: bool = False
     join_separator: str | None = None
-    column_format: str = "scalar"
+    column_format: Format = Format.TEXT
 
 
 def excerpt(text: str, position: int | None, width: int = 24) -> str:
@@ -155,7 +156,7 @@ def parse_decode_option(spec: str) -> tuple[str, str, str | None]:
     if fmt not in FORMATS:
         raise UsageError(f"--decode {spec!r}: unknown format {fmt!r}; use one of {', '.join(FORMATS)}"
                          " (delimited may name its separator: delimited:;)")
-    if sep and fmt != "delimited":
+    if sep and fmt != Format.DELIMITED:
         raise UsageError(f"--decode {spec!r}: only delimited takes a separator")
     return column, fmt, (sep or None)
 
@@ -229,8 +230,8 @@ def _decode_column(name: str, cells: list, lines: list[int], file: str, limits: 
                 counts["empty"] += 1
             elif raw_surrogates and lone_surrogate_in(cell):
                 pending_bad.append(i)
-            elif forced and forced[0] == "scalar":  # --decode COLUMN=text: the value as its JSON text
-                counts["scalar"] += 1
+            elif forced and forced[0] == Format.TEXT:  # --decode COLUMN=text: the value as its JSON text
+                counts[Format.TEXT] += 1
                 values[i] = json.dumps(cell, ensure_ascii=False)
             else:
                 counts["json"] += 1
@@ -239,7 +240,7 @@ def _decode_column(name: str, cells: list, lines: list[int], file: str, limits: 
             if isinstance(cell, float) and cell != cell:
                 counts["empty"] += 1
             else:
-                counts["scalar"] += 1
+                counts[Format.TEXT] += 1
                 values[i] = cell
 
     def quarantine(i: int, text: str, error: CellError) -> None:
@@ -256,14 +257,14 @@ def _decode_column(name: str, cells: list, lines: list[int], file: str, limits: 
     else:
         fmt, sep = forced if forced else _detect_format(texts, kinds)
     detected, primary, mixed, join_sep = fmt, None, False, None
-    if fmt in ("json", "python-literal", "mixed"):
+    if fmt in (Format.JSON, Format.PYTHON_LITERAL, Format.MIXED):
         nested = [k for k, kind in enumerate(kinds) if kind == "nested" or forced]
         if decided is not None:
             primary = decided.primary
         else:
-            primary = fmt if fmt != "mixed" else _dominant_nested(texts, nested)
+            primary = fmt if fmt != Format.MIXED else _dominant_nested(texts, nested)
         decoded = _decode_many(primary, [texts[k] for k in nested], limits, raw_surrogates)
-        other = "python-literal" if primary == "json" else "json"
+        other = Format.PYTHON_LITERAL if primary == Format.JSON else Format.JSON
         failed = [j for j, v in enumerate(decoded) if isinstance(v, CellError)]
         retry = {}
         if failed and not forced and (decided is None or decided.mixed):
@@ -276,9 +277,9 @@ def _decode_column(name: str, cells: list, lines: list[int], file: str, limits: 
                 retry = {}  # a stray cell of the other grammar is a malformed cell, not a format
             else:
                 fmt, mixed = "mixed", True
-        if primary == "python-literal" or retry:  # values that may hold what JSON has not, for the proof
-            impure = {text_rows[nested[j]] for j in getattr(decoded, "exact", ())} if primary != "json" else set()
-            impure |= {text_rows[nested[j]] for j in retry} if other == "python-literal" else set()
+        if primary == Format.PYTHON_LITERAL or retry:  # values that may hold what JSON has not, for the proof
+            impure = {text_rows[nested[j]] for j in getattr(decoded, "exact", ())} if primary != Format.JSON else set()
+            impure |= {text_rows[nested[j]] for j in retry} if other == Format.PYTHON_LITERAL else set()
         for j, value in enumerate(decoded):
             k = nested[j]
             row = text_rows[k]
@@ -292,15 +293,11 @@ def _decode_column(name: str, cells: list, lines: list[int], file: str, limits: 
             else:
                 counts[primary] += 1
                 values[row] = value if _is_present(value) else None
-        plain = [k for k, kind in enumerate(kinds) if kind == "text"] if not forced else []
-        for k in plain:
-            counts["text"] += 1
-            if not forced:
-                quarantine(text_rows[k], texts[k],
-                           CellError(f"plain text in a {primary} column", 1))
-                counts["text"] -= 1
+        if not forced:  # forced, every text cell was read in the grammar
+            for k in (k for k, kind in enumerate(kinds) if kind == "text"):
+                quarantine(text_rows[k], texts[k], CellError(f"plain text in a {primary} column", 1))
         column_format = fmt
-    elif fmt == "delimited":
+    elif fmt == Format.DELIMITED:
         column_format = "delimited"
         sep = sep or detect_separator(texts) or "|"
         join_sep = decided.join_separator if decided is not None else join_separator_of(raws, sep)
@@ -326,7 +323,7 @@ def _decode_column(name: str, cells: list, lines: list[int], file: str, limits: 
                     layout[row] = None
             counts["delimited" if parts else "empty"] += 1
     else:
-        column_format = "scalar"
+        column_format = Format.TEXT
         for k, text in enumerate(raws):
             try:
                 check_limits(text, limits)
@@ -334,24 +331,24 @@ def _decode_column(name: str, cells: list, lines: list[int], file: str, limits: 
                 quarantine(text_rows[k], text, exc)
                 continue
             values[text_rows[k]] = text
-            counts["scalar"] += 1
+            counts[Format.TEXT] += 1
     if decided is not None:
         column_format = decided.column_format
-    elif counts.get("json") and column_format == "scalar" and not texts:
-        column_format = "json"  # JSON Lines fields that arrived decoded
-    elif counts.get("json") and column_format in ("scalar", "python-literal") and texts:
-        if column_format == "python-literal" or counts["scalar"]:
-            column_format = "mixed"
-    if decided is None and not any(v for k, v in counts.items() if k not in ("empty", "invalid")) \
+    elif counts.get(Format.JSON) and column_format == Format.TEXT and not texts:
+        column_format = Format.JSON  # JSON Lines fields that arrived decoded
+    elif counts.get(Format.JSON) and column_format in (Format.TEXT, Format.PYTHON_LITERAL) and texts:
+        if column_format == Format.PYTHON_LITERAL or counts[Format.TEXT]:
+            column_format = Format.MIXED
+    if decided is None and not any(v for k, v in counts.items() if k not in (Format.EMPTY, "invalid")) \
             and not counts.get("invalid"):
-        column_format = "empty"
-    if column_format == "json" or column_format == "delimited":
+        column_format = Format.EMPTY
+    if column_format == Format.JSON or column_format == Format.DELIMITED:
         impure = set()
-    column = DecodedColumn(name, column_format, values, quarantined,
-                           {k: v for k, v in sorted(counts.items()) if v}, sep if column_format == "delimited" else None,
+    column = DecodedColumn(name, column_format, values, quarantined, {k: v for k, v in sorted(counts.items()) if v},
+                           sep if column_format == Format.DELIMITED else None,
                            forced=bool(forced), impure=impure,
                            decision=decided or ColumnFormat(detected, sep, primary, mixed, join_sep, column_format))
-    if column_format == "delimited":
+    if column_format == Format.DELIMITED:
         column.ambiguity = ambiguity
         column.rejoined = rejoined
         column.join_separator = join_sep
@@ -365,7 +362,7 @@ def _is_present(value) -> bool:
 
 
 def _decode_many(fmt: str, texts: list[str], limits: Limits, raw_surrogates: bool = True) -> list:
-    if fmt == "json":
+    if fmt == Format.JSON:
         return decode_json_cells(texts, limits, raw_surrogates)
     return decode_python_cells(texts, limits)
 
@@ -393,7 +390,7 @@ def _dominant_nested(texts: list[str], nested: list[int]) -> str:
 
 def _detect_format(texts: list[str], kinds: list[str]) -> tuple[str, str | None]:
     if not texts:
-        return "scalar", None
+        return Format.TEXT, None
     nested = [k for k, kind in enumerate(kinds) if kind == "nested"]
     if len(nested) >= 0.5 * len(texts):
         return _dominant_nested(texts, nested), None
@@ -401,7 +398,7 @@ def _detect_format(texts: list[str], kinds: list[str]) -> tuple[str, str | None]
     sep = detect_separator(plain[:5000])
     if sep is not None:
         return "delimited", sep
-    return "scalar", None
+    return Format.TEXT, None
 
 
 def decode(export: Export, limits: Limits = Limits(),
@@ -420,8 +417,6 @@ def decode(export: Export, limits: Limits = Limits(),
     out = {}
     for name in export.columns:
         forced = formats.get(name)
-        if forced and forced[0] == "text":
-            forced = ("scalar", None)
         cells, lines = export.cells[name], export.lines
         decision = decided.get(name) if decided else None
         if decision is None and sample is not None and len(cells) > sample:

@@ -18,6 +18,7 @@ from __future__ import annotations
 import tomllib
 from pathlib import Path
 
+from ..model.kinds import Format, Kind
 from ..model.plan import META_TABLES, TYPES, EntityGroup, FieldMap, NestedColumn, Plan, RecordSource
 from ..model.views import Pick, View
 from .planschema import KINDS, InvalidPlan, PlanText, check_shape, refuse
@@ -155,7 +156,7 @@ def plan_from_doc(doc: dict, text: str, exports: list, decoded: dict) -> Plan:
     # entity lists whose handle no [[entity]] defines get an entity table of their own
     for record in plan.records:
         for nested in record.nested:
-            if nested.kind != "entity-list" or nested.entity in handles:
+            if nested.kind != Kind.ENTITY_LIST or nested.entity in handles:
                 continue
             objects, _ = objects_of(_values(decoded[record.path][nested.column].values, nested))
             fields, _ = scalar_fields(objects)
@@ -171,7 +172,7 @@ def plan_from_doc(doc: dict, text: str, exports: list, decoded: dict) -> Plan:
     for handle, group in handles.items():
         for record in plan.records:
             for nested in record.nested:
-                if nested.kind == "entity-list" and nested.entity == handle:
+                if nested.kind == Kind.ENTITY_LIST and nested.entity == handle:
                     nested.entity = group.table
                     if nested.identity != group.identity:
                         refuse(text, f"nested column {nested.column!r} has identity {nested.identity!r} but entity "
@@ -181,7 +182,7 @@ def plan_from_doc(doc: dict, text: str, exports: list, decoded: dict) -> Plan:
                     group.members.append(f"{nested.file}:{nested.column}")
                     _check_keys(text, _values(decoded[record.path][nested.column].values, nested), nested, group)
         for nested, inner in _inside(plan):  # entity lists inside objects, and references to single objects
-            if nested.path and nested.kind == "entity-list" and nested.entity == handle and id(nested) not in done:
+            if nested.path and nested.kind == Kind.ENTITY_LIST and nested.entity == handle and id(nested) not in done:
                 nested.entity = group.table
                 group.members.append(Found.name_of(nested))
                 done.add(id(nested))
@@ -197,7 +198,7 @@ def plan_from_doc(doc: dict, text: str, exports: list, decoded: dict) -> Plan:
             plan.entities.append(group)
     for record in plan.records:  # objects that are no entities: child rows or record columns
         for nested in record.nested:
-            if nested.kind in ("child-list", "object-columns", "object-child"):
+            if nested.kind in (Kind.CHILD_LIST, Kind.OBJECT_COLUMNS, Kind.OBJECT_CHILD):
                 _check_keys(text, _values(decoded[record.path][nested.column].values, nested), nested,
                             groups={g.table: g for g in plan.entities})
     for nested, _ in _inside(plan):
@@ -260,7 +261,7 @@ def _check_references(text: str, plan: Plan) -> None:
     keyed = {r.table for r in plan.records if r.natural_key}
     for record in plan.records:
         named = [(f.path[0], f.references) for f in record.scalars if f.references]
-        named += [(n.column, n.references) for n in record.nested if n.kind == "value-list" and n.references]
+        named += [(n.column, n.references) for n in record.nested if n.kind == Kind.VALUE_LIST and n.references]
         for column, table in named:
             if table not in keyed:
                 refuse(text, f"column {column!r} of {record.file} references {table!r}, which is not a record "
@@ -323,18 +324,18 @@ def _nested_from(text: str, n: dict, columns: dict, handles: dict, plan: Plan) -
                           entity=n.get("entity") or n.get("values_table"), path=n.get("path", ""),
                           identity=n.get("identity", ""), matched=bool(n.get("matched", False)),
                           row_fields=_maps(text, n.get("fields"), f"{column}.fields"))
-    needs = {"entity-list": ("table", "entity", "identity"), "child-list": ("table",), "object-child": ("table",),
-             "value-list": ("table", "values_table")}.get(kind, ())
+    needs = {Kind.ENTITY_LIST: ("table", "entity", "identity"), Kind.CHILD_LIST: ("table",), Kind.OBJECT_CHILD: ("table",),
+             Kind.VALUE_LIST: ("table", "values_table")}.get(kind, ())
     if [k for k in needs if not n.get(k)]:
         refuse(text, f"nested column {column!r} ({kind}) lacks {', '.join(k for k in needs if not n.get(k))}",
               f"a {kind} needs {', '.join(needs)}; or write a fresh plan with `normalise plan`", f'column = "{column}"')
     nested.children = [_nested_from(text, c, columns, handles, plan) for c in n.get("children", [])]
     nested.keyed, nested.keyed_value = str(n.get("keyed", "")), str(n.get("keyed_value", ""))
-    if nested.keyed and kind not in ("entity-list", "child-list"):
+    if nested.keyed and kind not in (Kind.ENTITY_LIST, Kind.CHILD_LIST):
         refuse(text, f"nested column {column!r}: keyed = {nested.keyed!r} with kind {kind!r}",
               'an object keyed by data is a list of its keys: use kind = "entity-list" or "child-list", or '
               'keyed = ""', f'keyed = "{nested.keyed}"')
-    if kind == "value-list":
+    if kind == Kind.VALUE_LIST:
         value_type = n.get("value_type", "text")
         if value_type not in ("integer", "real", "boolean", "text"):
             refuse(text, f"nested column {column!r}: value_type {value_type!r}", "use integer, real, boolean or text",
@@ -342,7 +343,7 @@ def _nested_from(text: str, n: dict, columns: dict, handles: dict, plan: Plan) -
         nested.value_type = value_type
         nested.references = str(n.get("references", ""))
     decoded = columns.get(column) if "path" not in n else None
-    if kind == "value-list" and decoded is not None and decoded.format == "delimited":
+    if kind == Kind.VALUE_LIST and decoded is not None and decoded.format == Format.DELIMITED:
         nested.separator = str(n.get("separator", decoded.join_separator or decoded.separator or ""))
     return nested
 

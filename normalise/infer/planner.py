@@ -8,6 +8,7 @@ from pathlib import Path
 
 from ..model.decimals import decimal_scale
 from ..model.exact import ABSENT as _ABSENT, get
+from ..model.kinds import Format, Kind
 from ..model.names import Namer, singular, sql_name
 from ..model.plan import META_TABLES
 from .dependencies import ObjectTable, hashable, identity_candidates
@@ -43,7 +44,7 @@ def infer_plan(exports: list, decoded: dict, options: Options | None = None):
         names = Namer([record.key_column])
         for name, col in columns.items():
             shape = "scalar"
-            if col.format not in ("scalar", "empty"):
+            if col.format not in (Format.TEXT, Format.EMPTY):
                 shape = shape_of(col.values)
             if shape == "scalar":
                 t = scalar_column_type(col.values)
@@ -54,15 +55,16 @@ def infer_plan(exports: list, decoded: dict, options: Options | None = None):
                                                scale=decimal_scale(col.values) if t == "decimal" else None))
                 continue
             origin = export.origin.get(name)
-            nested = NestedColumn(file=Path(origin[0]).stem if origin else export.name, column=name, kind="")
+            nested = NestedColumn(file=Path(origin[0]).stem if origin else export.name, column=name,
+                                  kind=None)  # decided below
             values = col.values
             if shape == "object":
                 values = keyed_column(nested, values, options, export.name)
                 if nested.keyed:
                     shape = "object-list"
             if shape == "scalar-list":
-                nested.kind = "value-list"
-                if col.format == "delimited":
+                nested.kind = Kind.VALUE_LIST
+                if col.format == Format.DELIMITED:
                     nested.separator = col.join_separator or col.separator or ""
                 else:
                     nested.value_type = list_value_type(col.values)
@@ -71,7 +73,7 @@ def infer_plan(exports: list, decoded: dict, options: Options | None = None):
                 table = ObjectTable(objects)
                 fields, lists = scalar_fields(objects, table=table)
                 wide = len(fields) > WIDE_OBJECT_KEYS
-                nested.kind = "object-child" if wide else "object-columns"
+                nested.kind = Kind.OBJECT_CHILD if wide else Kind.OBJECT_COLUMNS
                 refs = found.references(nested, export.name, objects, table, itself=True)
                 found.row_fields(nested, objects, table, fields, refs, Namer() if wide else names,
                             "" if wide else name + "_")
@@ -90,7 +92,7 @@ def infer_plan(exports: list, decoded: dict, options: Options | None = None):
                 if wanted is None:
                     candidates = identity_candidates(objects, owners, options.violation_threshold, table)
                     wanted = candidates[0].field if candidates else ""
-                nested.kind = "entity-list" if wanted else "child-list"
+                nested.kind = Kind.ENTITY_LIST if wanted else Kind.CHILD_LIST
                 nested.identity = wanted
                 if wanted:
                     found.members.append(Member(nested, table, wanted, nested.matched,
@@ -118,9 +120,9 @@ def infer_plan(exports: list, decoded: dict, options: Options | None = None):
     for record in plan.records:
         owner = singular(record.table)
         for nested in record.nested:
-            if nested.kind in ("entity-list", "value-list", "child-list", "object-child"):
+            if nested.kind in (Kind.ENTITY_LIST, Kind.VALUE_LIST, Kind.CHILD_LIST, Kind.OBJECT_CHILD):
                 nested.table = tables(f"{owner}_{nested.column}")
-            if nested.kind == "value-list":
+            if nested.kind == Kind.VALUE_LIST:
                 nested.entity = tables(singular(sql_name(nested.column)))
             for child in nested.children:
                 _name_children(child, nested.table or record.table, tables)
@@ -136,7 +138,7 @@ def infer_plan(exports: list, decoded: dict, options: Options | None = None):
 
 def _name_children(nested, owner_table: str, tables: Namer) -> None:
     nested.table = tables(f"{singular(owner_table)}_{nested.path.replace('.', '_')}")
-    if nested.kind == "value-list":
+    if nested.kind == Kind.VALUE_LIST:
         nested.entity = tables(singular(sql_name(nested.path.split(".")[-1])) + "_value")
     for child in nested.children:
         _name_children(child, nested.table, tables)
@@ -166,9 +168,9 @@ def _child_lists(file: str, column: str, objects: list[dict], lists: list[list[s
         wrapped = [v if isinstance(v, (list, tuple)) else [v] for v in inner if v is not None]
         inner = [v for v in inner if isinstance(v, (list, tuple))]
         items = [x for v in inner for x in v if x is not None]
-        nested = NestedColumn(file, column, "", path=".".join(path), keyed=key, keyed_value=value_field)
+        nested = NestedColumn(file, column, None, path=".".join(path), keyed=key, keyed_value=value_field)
         if items and all(isinstance(x, dict) for x in items):
-            nested.kind = "child-list"
+            nested.kind = Kind.CHILD_LIST
             sub_table = ObjectTable(items)
             fields, sub = scalar_fields(items, table=sub_table)
             if found is None:
@@ -177,7 +179,7 @@ def _child_lists(file: str, column: str, objects: list[dict], lists: list[list[s
                 owners = [k for k, v in enumerate(inner) for x in v if x is not None]
                 wanted = found.identity_of(nested, file, owners, items, sub_table)
                 if wanted:
-                    nested.kind, nested.identity = "entity-list", wanted
+                    nested.kind, nested.identity = Kind.ENTITY_LIST, wanted
                     found.members.append(Member(nested, sub_table, wanted, False, found.name_of(nested),
                                                  path[-1]))
                 refs = found.references(nested, file, items, sub_table)
@@ -185,7 +187,7 @@ def _child_lists(file: str, column: str, objects: list[dict], lists: list[list[s
                             "")
             nested.children = _child_lists(file, column + "." + ".".join(path), items, sub, sub_table, found)
         else:
-            nested.kind = "value-list"
+            nested.kind = Kind.VALUE_LIST
             nested.value_type = list_value_type(wrapped)
         out.append(nested)
     return out
@@ -276,7 +278,7 @@ class Found:
         return self.identity_of(nested, file, list(range(len(objects))), objects, table) if objects else ""
 
     def row_fields(self, nested, objects, table, fields, refs, names: Namer, prefix: str) -> None:
-        if not refs and nested.kind != "entity-list":
+        if not refs and nested.kind != Kind.ENTITY_LIST:
             nested.row_fields = [field_map(objects, p, names(prefix + "_".join(p)), table) for p in fields]
             return
         self.pending.append((nested, objects, table, fields, refs, names, prefix))
@@ -285,7 +287,7 @@ class Found:
         """Each row's columns: references first (the entity's key), then the fields no entity table holds."""
         for nested, objects, table, fields, refs, names, prefix in self.pending:
             held = set()
-            if nested.kind == "entity-list":
+            if nested.kind == Kind.ENTITY_LIST:
                 group = plan.entity_group(nested.entity)
                 held |= {(nested.identity,)} | {tuple(f.path) for f in group.attributes}
             for ref in refs:
@@ -300,7 +302,7 @@ def _free_key_names(plan, nested, owner_key: str) -> None:
     """A row's column named like a key its table is given (its own, its owner's, the entity's) is renamed."""
     if nested.table:
         taken = {f"{nested.table}_sk", owner_key, "list_position"}
-        if nested.kind == "entity-list":
+        if nested.kind == Kind.ENTITY_LIST:
             taken.add(f"{nested.entity}_sk")
         names = Namer(sorted(taken))
         for f in nested.row_fields:

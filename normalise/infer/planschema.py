@@ -8,10 +8,11 @@ import os
 from difflib import get_close_matches
 
 from ..model.errors import EXIT_USAGE, NormaliseError
+from ..model.kinds import Kind
 from ..model.plan import TYPES
 from .plantext import toml_value
 
-KINDS = ("entity-list", "child-list", "value-list", "object-columns", "object-child")
+KINDS = (Kind.ENTITY_LIST, Kind.CHILD_LIST, Kind.VALUE_LIST, Kind.OBJECT_COLUMNS, Kind.OBJECT_CHILD)
 
 
 class InvalidPlan(NormaliseError):

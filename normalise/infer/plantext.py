@@ -7,6 +7,7 @@ from __future__ import annotations
 import json
 import re
 
+from ..model.kinds import Kind
 from ..model.plan import TYPES, FieldMap, NestedColumn, Plan
 
 PLAN_VERSION = 1  # the plan file format's version, written at its top
@@ -130,11 +131,11 @@ def _nested_toml(nested: NestedColumn, header: str) -> list[str]:
                    f"(\"\" = not keyed)")
         if nested.keyed_value:
             out.append(f"keyed_value = {toml_value(nested.keyed_value)}  # the field of each key's scalar value")
-    if nested.kind == "entity-list":
+    if nested.kind == Kind.ENTITY_LIST:
         out += [f"entity = {toml_value(nested.entity)}  # handle of an [[entity]]", f"identity = {toml_value(nested.identity)}"]
         if nested.matched:
             out.append("matched = true")
-    if nested.kind == "value-list":
+    if nested.kind == Kind.VALUE_LIST:
         out.append(f"values_table = {toml_value(nested.entity)}")
         if nested.separator:
             out.append(f"separator = {toml_value(nested.separator)}  # between the values of a delimited cell")
@@ -142,8 +143,8 @@ def _nested_toml(nested: NestedColumn, header: str) -> list[str]:
             out.append(f"value_type = {toml_value(nested.value_type)}  # integer | real | boolean | text")
         if nested.references:
             out.append(f"references = {toml_value(nested.references)}  # the values are natural keys of this record table")
-    label = {"entity-list": "link attributes (kept on the bridge)", "child-list": "fields",
-             "object-columns": "record columns", "object-child": "fields"}.get(nested.kind)
+    label = {Kind.ENTITY_LIST: "link attributes (kept on the bridge)", Kind.CHILD_LIST: "fields",
+             Kind.OBJECT_COLUMNS: "record columns", Kind.OBJECT_CHILD: "fields"}.get(nested.kind)
     if label:
         out.append(f"fields = [  # {label}")
         out += [f"  {toml_value(f)}," for f in _fields(nested.row_fields)]

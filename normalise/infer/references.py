@@ -4,6 +4,7 @@ natural key (most of the values, at least a few), made foreign keys.
 
 from __future__ import annotations
 
+from ..model.kinds import Kind
 from ..model.names import singular
 from .dependencies import ID_NAME, is_scalar
 
@@ -113,7 +114,7 @@ def infer_references(plan, decoded: dict) -> None:
     for record in plan.records:
         columns = decoded[record.path]
         for nested in record.nested:
-            if nested.kind != "value-list" or nested.path or nested.value_type not in ("text", "integer"):
+            if nested.kind != Kind.VALUE_LIST or nested.path or nested.value_type not in ("text", "integer"):
                 continue
             texts = reference_texts(columns[nested.column].values, True)
             found = reference_evidence(texts, keys)

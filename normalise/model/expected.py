@@ -5,6 +5,7 @@
 from __future__ import annotations
 
 from .exact import ABSENT, get, is_negative_zero, keyed_items, keyed_object, put, store, stored_back
+from .kinds import Kind
 
 
 class _Mismatch:
@@ -73,11 +74,11 @@ def expect_cell(nested, value, identity_type: str | None = None, attributes=(), 
     needs a trace of its own. ``groups`` maps entity tables to their ``EntityGroup`` (references).
     """
     kind = nested.kind
-    if kind in ("object-columns", "object-child"):
+    if kind in (Kind.OBJECT_COLUMNS, Kind.OBJECT_CHILD):
         if type(value) is not dict:
             return NOT_HELD
         expected = _object_expected(nested, value, identity_type, attributes, groups)
-        if kind == "object-columns" and not any(
+        if kind == Kind.OBJECT_COLUMNS and not any(
                 (_referred(value, f, groups) if f.entity else store(get(value, f.path), f.type, f.as_text)[0])
                 is not None for f in nested.row_fields) and not any(
                     type(get(value, c.path.split("."))) is list and get(value, c.path.split(".")) for c in nested.children):
@@ -144,7 +145,7 @@ def _object_expected(nested, obj: dict, identity_type, attributes, groups=None) 
 
 def _own(nested, identity_type, attributes, groups) -> tuple:
     """The identity type and attributes of a nested column's own entities (an entity list inside objects)."""
-    if nested.kind == "entity-list" and groups and nested.entity in groups:
+    if nested.kind == Kind.ENTITY_LIST and groups and nested.entity in groups:
         group = groups[nested.entity]
         return group.identity_type, group.attributes
     return identity_type, attributes
@@ -152,14 +153,14 @@ def _own(nested, identity_type, attributes, groups) -> tuple:
 
 def expect_element(nested, x, identity_type, attributes, groups: dict | None = None):
     kind = nested.kind
-    if kind == "value-list":
+    if kind == Kind.VALUE_LIST:
         if type(x) is not VALUE_TYPES[nested.value_type] or is_negative_zero(x):
             return NOT_HELD  # a value of another type than the list's (or a null, a list, -0.0) is not held
         return x
     if type(x) is not dict:
         return NOT_HELD
     out = _object_expected(nested, x, identity_type, attributes, groups)
-    if kind == "entity-list":
+    if kind == Kind.ENTITY_LIST:
         ident = x.get(nested.identity, ABSENT)
         if nested.matched:
             if ident is ABSENT or not isinstance(ident, str):

@@ -9,67 +9,82 @@ lists, so a plan can be printed, compared, saved and replayed.
 from __future__ import annotations
 
 from dataclasses import asdict, dataclass, field
-from typing import NamedTuple
+from typing import ClassVar, NamedTuple
 
-# A column's type, as plans and plan files name it (``write.TYPES`` gives each its SQL type). Dates and timestamps
-# are ISO 8601 text: SQLite has no date type, and such text sorts and compares correctly. A decimal is a number
-# whose written digits matter ("12.50"): its text on SQLite, NUMERIC on PostgreSQL (decimals.py).
-TYPES = ("integer", "real", "decimal", "text", "boolean", "date", "timestamp")
-TEXT_TYPES = ("text", "decimal", "date", "timestamp")  # the types whose values are text
+from .kinds import Kind, Role, Type
+
+TYPES = tuple(Type)  # a column's type, as plans and plan files name it (kinds.Type)
+TEXT_TYPES = (Type.TEXT, Type.DECIMAL, Type.DATE, Type.TIMESTAMP)  # the types whose values are text
 
 
 class MetaTable(NamedTuple):
     """A bookkeeping table: its role, and its columns after the surrogate key as (name, type, nullable)."""
 
-    role: str
-    columns: tuple[tuple[str, str, bool], ...]
+    role: Role
+    columns: tuple[tuple[str, Type, bool], ...]
 
 
 # The bookkeeping tables every database has, in the order they are made and loaded: what the run did not
 # load as data, kept so that every input row, nested element and value is accounted for.
 META_TABLES = {
-    "rejected_rows": MetaTable("rejected", (("file", "text", False), ("line", "integer", False),
-                                            ("reason", "text", False), ("raw", "text", False))),
-    "set_aside_rows": MetaTable("set_aside", (("file", "text", False), ("line", "integer", False),
-                                              ("natural_key", "text", True), ("reason", "text", False),
-                                              ("kept_line", "integer", True), ("cells", "text", False))),
-    "unmatched_rows": MetaTable("unmatched", (("file", "text", False), ("line", "integer", False),
-                                              ("join_key", "text", True), ("reason", "text", False),
-                                              ("cells", "text", False))),
-    "quarantined_cells": MetaTable("quarantine", (("file", "text", False), ("line", "integer", False),
-                                                  ("column_name", "text", False), ("position", "integer", True),
-                                                  ("excerpt", "text", False), ("message", "text", False))),
-    "attribute_variants": MetaTable("variants", (("entity_table", "text", False), ("entity_sk", "integer", False),
-                                                 ("natural_key", "text", False), ("attribute", "text", False),
-                                                 ("value", "text", True), ("occurrences", "integer", False),
-                                                 ("chosen", "boolean", False))),
+    "rejected_rows": MetaTable(Role.REJECTED, (("file", Type.TEXT, False), ("line", Type.INTEGER, False),
+                                            ("reason", Type.TEXT, False), ("raw", Type.TEXT, False))),
+    "set_aside_rows": MetaTable(Role.SET_ASIDE, (("file", Type.TEXT, False), ("line", Type.INTEGER, False),
+                                              ("natural_key", Type.TEXT, True), ("reason", Type.TEXT, False),
+                                              ("kept_line", Type.INTEGER, True), ("cells", Type.TEXT, False))),
+    "unmatched_rows": MetaTable(Role.UNMATCHED, (("file", Type.TEXT, False), ("line", Type.INTEGER, False),
+                                              ("join_key", Type.TEXT, True), ("reason", Type.TEXT, False),
+                                              ("cells", Type.TEXT, False))),
+    "quarantined_cells": MetaTable(Role.QUARANTINE, (("file", Type.TEXT, False), ("line", Type.INTEGER, False),
+                                                  ("column_name", Type.TEXT, False), ("position", Type.INTEGER, True),
+                                                  ("excerpt", Type.TEXT, False), ("message", Type.TEXT, False))),
+    "attribute_variants": MetaTable(Role.VARIANTS, (("entity_table", Type.TEXT, False),
+                                                 ("entity_sk", Type.INTEGER, False),
+                                                 ("natural_key", Type.TEXT, False), ("attribute", Type.TEXT, False),
+                                                 ("value", Type.TEXT, True), ("occurrences", Type.INTEGER, False),
+                                                 ("chosen", Type.BOOLEAN, False))),
     # a value the model's columns cannot give back exactly, kept verbatim (original: Python literal text
     # that ast.literal_eval reads back; NULL when the key was absent), at its place in a row
-    "value_traces": MetaTable("traces", (("table_name", "text", False), ("row_sk", "integer", False),
-                                         ("owner_sk", "integer", True), ("position", "integer", True),
-                                         ("column_name", "text", False), ("path", "text", False),
-                                         ("reason", "text", False), ("original", "text", True),
-                                         ("file", "text", True), ("line", "integer", True))),
+    "value_traces": MetaTable(Role.TRACES, (("table_name", Type.TEXT, False), ("row_sk", Type.INTEGER, False),
+                                         ("owner_sk", Type.INTEGER, True), ("position", Type.INTEGER, True),
+                                         ("column_name", Type.TEXT, False), ("path", Type.TEXT, False),
+                                         ("reason", Type.TEXT, False), ("original", Type.TEXT, True),
+                                         ("file", Type.TEXT, True), ("line", Type.INTEGER, True))),
     # every name taken from the data (file, header, object key) and the SQL name it was given
-    "name_map": MetaTable("names", (("table_name", "text", False), ("column_name", "text", True),
-                                    ("name_in_input", "text", False), ("found_in", "text", False))),
+    "name_map": MetaTable(Role.NAMES, (("table_name", Type.TEXT, False), ("column_name", Type.TEXT, True),
+                                    ("name_in_input", Type.TEXT, False), ("found_in", Type.TEXT, False))),
     # what the data dictionary says of every table, view and column (describe.descriptions); SQLite keeps no
     # comments, PostgreSQL has them also as COMMENT ON
-    "descriptions": MetaTable("descriptions", (("table_name", "text", False), ("column_name", "text", True),
-                                               ("description", "text", False))),
+    "descriptions": MetaTable(Role.DESCRIPTIONS, (("table_name", Type.TEXT, False),
+                                                   ("column_name", Type.TEXT, True),
+                                               ("description", Type.TEXT, False))),
 }
 META_ROLES = frozenset(t.role for t in META_TABLES.values())
-ROLES = ("record", "record_part", "entity", "bridge", "child", *(t.role for t in META_TABLES.values()))
+ROLES = tuple(Role)
+assert set(ROLES) == {Role.RECORD, Role.RECORD_PART, Role.ENTITY, Role.BRIDGE, Role.CHILD} | META_ROLES
+
+
+class _Named:
+    """A dataclass whose fields named in ``_names`` hold members of an enum (``kinds``): text given is converted
+    as it is set, at construction or later, so an unknown name fails where it is set."""
+
+    _names: ClassVar[dict] = {}
+
+    def __setattr__(self, name, value):
+        convert = self._names.get(name)
+        super().__setattr__(name, value if convert is None or value is None else convert(value))
 
 
 @dataclass
-class Column:
+class Column(_Named):
     name: str
-    type: str  # one of TYPES
+    type: Type
     nullable: bool = True
     unique: bool = False
     source: str | None = None  # where the values come from: "file:column" or a path inside it
     scale: int | None = None  # a decimal's places (FieldMap.scale)
+    _names: ClassVar[dict] = {"type": Type}
+
 
 
 @dataclass
@@ -80,9 +95,9 @@ class ForeignKey:
 
 
 @dataclass
-class Table:
+class Table(_Named):
     name: str
-    role: str
+    role: Role
     columns: list[Column]
     primary_key: list[str]
     natural_key: list[str] = field(default_factory=list)
@@ -90,6 +105,8 @@ class Table:
     foreign_keys: list[ForeignKey] = field(default_factory=list)
     unique: list[list[str]] = field(default_factory=list)
     sources: list[dict] = field(default_factory=list)  # [{"file": str, "column": str | None}]
+    _names: ClassVar[dict] = {"role": Role}
+
 
     def column(self, name: str) -> Column:
         for c in self.columns:
@@ -99,12 +116,12 @@ class Table:
 
 
 @dataclass
-class FieldMap:
+class FieldMap(_Named):
     """One field of nested objects (or one scalar column) and the column it becomes."""
 
     path: list[str]  # keys leading to the value inside an object; [column] for a scalar column
     column: str
-    type: str
+    type: Type
     null_means: str = "null"  # what NULL in the column stands for: "null" (the value None) or "absent" (no key)
     as_text: bool = False  # the values arrive as text ("7") and the type is read from it (CSV cells)
     # an entity reference: ``path`` leads to a single object with an identity ([]: the object itself), held as
@@ -112,29 +129,33 @@ class FieldMap:
     entity: str = ""
     references: str = ""  # a scalar column whose values are natural keys of this record table (a foreign key)
     scale: int | None = None  # a decimal column's places, the most in the sample: the scale of its Parquet type
+    _names: ClassVar[dict] = {"type": Type}
+
 
 
 @dataclass
-class EntityGroup:
+class EntityGroup(_Named):
     """Nested columns whose objects are one kind of entity, sharing one entity table."""
 
     table: str
     key_column: str  # surrogate key column
     identity: str  # the identity field inside the objects
     identity_column: str  # its column in the entity table (the natural key)
-    identity_type: str
+    identity_type: Type
     attributes: list[FieldMap] = field(default_factory=list)  # entity attributes
     members: list[str] = field(default_factory=list)  # "file:column" of each nested column
     matched: bool = False  # identity is a field's normalised text (NFKC, case folded, spaces collapsed)
+    _names: ClassVar[dict] = {"identity_type": Type}
+
 
 
 @dataclass
-class NestedColumn:
+class NestedColumn(_Named):
     """How one nested input column becomes tables."""
 
     file: str
     column: str
-    kind: str  # entity-list | child-list | value-list | object-columns | object-child | scalar
+    kind: Kind
     table: str | None = None  # bridge, child or value-bridge table
     entity: str | None = None  # entity or value table
     # the fields kept on the rows this column makes: a bridge row's link attributes, a child row's fields, an
@@ -149,6 +170,8 @@ class NestedColumn:
     keyed: str = ""  # an object keyed by data, read as a list of objects: the field its keys go to ("" = not)
     keyed_value: str = ""  # ... and the field a scalar value goes to ("" when the values are objects)
     references: str = ""  # a value list whose values are natural keys of this record table (a foreign key)
+    _names: ClassVar[dict] = {"kind": Kind, "value_type": Type}
+
 
 
 @dataclass

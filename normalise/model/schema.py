@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+from .kinds import Kind
 from .names import Namer, singular
 from .plan import META_TABLES, Column, FieldMap, ForeignKey, NestedColumn, Plan, RecordSource, Table
 
@@ -36,10 +37,10 @@ def add_tables(plan: Plan) -> None:
             cols.append(Column(f.column, f.type, nullable=not is_key, unique=is_key,
                                source=f.path[0], scale=f.scale))
         for nested in record.nested:
-            if nested.kind == "object-columns":
+            if nested.kind == Kind.OBJECT_COLUMNS:
                 cols += [Column(f.column, f.type, source=".".join([nested.column, *f.path]), scale=f.scale)
                          for f in nested.row_fields]
-        fks = [fk for nested in record.nested if nested.kind == "object-columns"
+        fks = [fk for nested in record.nested if nested.kind == Kind.OBJECT_COLUMNS
                for fk in _references(plan, nested.row_fields)]
         if record.parent_path:  # one-to-many: each record belongs to a record of the main export
             parent = next(r for r in plan.records if r.path == record.parent_path)
@@ -74,7 +75,7 @@ def reference_columns(record: RecordSource) -> list[tuple[FieldMap, str]]:
     value as its natural key.
     """
     taken = [record.key_column] + [f.column for f in record.scalars]
-    taken += [f.column for n in record.nested if n.kind == "object-columns" for f in n.row_fields]
+    taken += [f.column for n in record.nested if n.kind == Kind.OBJECT_COLUMNS for f in n.row_fields]
     names = Namer(taken)
     return [(f, names(f"{f.column}_sk")) for f in record.scalars if f.references]
 
@@ -98,7 +99,7 @@ def own_key(table: str) -> str:
 
 
 def _nested_tables(plan: Plan, nested: NestedColumn, owner: str, owner_key: str) -> None:
-    if nested.kind in ("object-columns", "scalar"):
+    if nested.kind in (Kind.OBJECT_COLUMNS, "scalar"):
         for child in nested.children:
             _nested_tables(plan, child, owner, owner_key)
         return
@@ -110,13 +111,13 @@ def _nested_tables(plan: Plan, nested: NestedColumn, owner: str, owner_key: str)
     unique = [[owner_key, POSITION]]
     position = POSITION
     role = "child"
-    if nested.kind == "entity-list":
+    if nested.kind == Kind.ENTITY_LIST:
         group = plan.entity_group(nested.entity)
         entity_column = names(group.key_column)  # the owner's key column may carry the same name
         cols.append(Column(entity_column, "integer", nullable=False))
         fks.append(ForeignKey([entity_column], group.table, [group.key_column]))
         role = "bridge"
-    elif nested.kind == "value-list":
+    elif nested.kind == Kind.VALUE_LIST:
         value_key = own_key(nested.entity)
         value_column = singular(nested.entity) if not nested.entity.endswith("_value") else "value"
         plan.tables.append(Table(nested.entity, "entity",
@@ -129,7 +130,7 @@ def _nested_tables(plan: Plan, nested: NestedColumn, owner: str, owner_key: str)
         cols.append(Column(value_column, "integer", nullable=False))
         fks.append(ForeignKey([value_column], nested.entity, [value_key]))
         role = "bridge"
-    elif nested.kind == "object-child":
+    elif nested.kind == Kind.OBJECT_CHILD:
         position = None
         unique = [[owner_key]]
     if position:
@@ -137,7 +138,7 @@ def _nested_tables(plan: Plan, nested: NestedColumn, owner: str, owner_key: str)
     cols += [Column(f.column, f.type, source=".".join(f.path), scale=f.scale) for f in nested.row_fields]
     fks += _references(plan, nested.row_fields)
     if nested.keyed:  # an object keyed by data: one row per owner and key (a repeating group, first normal form)
-        if nested.kind == "entity-list":
+        if nested.kind == Kind.ENTITY_LIST:
             key_column = entity_column if nested.identity == nested.keyed else None
         else:
             key_column = next((f.column for f in nested.row_fields if f.path == [nested.keyed]), None)
@@ -194,5 +195,5 @@ def record_row_columns(record: RecordSource) -> list[str]:
     """The columns of a record's row as the build makes it, in order, before a wide one is split: its key,
     its scalars, the fields of its object columns, the keys of the records its values name."""
     names = [record.key_column] + [f.column for f in record.scalars]
-    names += [f.column for n in record.nested if n.kind == "object-columns" for f in n.row_fields]
+    names += [f.column for n in record.nested if n.kind == Kind.OBJECT_COLUMNS for f in n.row_fields]
     return names + [column for _, column in reference_columns(record)]
