@@ -15,6 +15,7 @@ import sqlite3
 import sqlalchemy as sa
 
 from ..model.errors import EXIT_USAGE, NormaliseError
+from ..model.kinds import Role
 from ..model.names import quote_name as _q
 from ..model.plan import META_ROLES, Plan
 from .values import canonical, value_text
@@ -56,7 +57,7 @@ def read_state(database: str, plan: Plan) -> dict:
             rows = con.execute(f"SELECT * FROM {_q(group.table)}").fetchall()
             state["entities"][group.table] = {canonical(r[1], group.identity_type): r for r in rows}
         for t in plan.tables:
-            if t.role == "entity" and t.name not in state["entities"]:  # tables of scalar values
+            if t.role == Role.ENTITY and t.name not in state["entities"]:  # tables of scalar values
                 value_type = t.columns[1].type
                 state["values"][t.name] = {value_text(v if value_type != "boolean" else bool(v), value_type): (sk, v)
                                            for sk, v, *_ in con.execute(f"SELECT * FROM {_q(t.name)}")}

@@ -7,7 +7,7 @@ from __future__ import annotations
 
 from operator import itemgetter
 
-from ..model.kinds import Kind
+from ..model.kinds import Kind, Role
 from ..model.plan import Plan
 from ..model.schema import record_parts, record_row_columns
 
@@ -67,7 +67,7 @@ def occurrence_columns(plan: Plan, table: str, fk_column: str) -> tuple:
     """Where in a table's rows the key, the owner, the list position and a foreign key are (None: none)."""
     t = plan.table(table)
     names = [c.name for c in t.columns]
-    owner = names.index(t.foreign_keys[0].columns[0]) if t.role in ("bridge", "child") else None
+    owner = names.index(t.foreign_keys[0].columns[0]) if t.role in (Role.BRIDGE, Role.CHILD) else None
     position = names.index(t.position_column) if t.position_column else None
     return 0, owner, position, names.index(fk_column)
 

@@ -18,7 +18,7 @@ from __future__ import annotations
 import tomllib
 from pathlib import Path
 
-from ..model.kinds import Format, Kind
+from ..model.kinds import Format, Kind, Role, ViewKind
 from ..model.plan import META_TABLES, TYPES, EntityGroup, FieldMap, NestedColumn, Plan, RecordSource
 from ..model.views import Pick, View
 from .planschema import KINDS, InvalidPlan, PlanText, check_shape, refuse
@@ -273,10 +273,10 @@ def _check_view(text: str, plan: Plan, view: View) -> None:
     if view.name in {t.name for t in plan.tables} | {v.name for v in plan.views}:
         refuse(text, f"view name {view.name!r} is already taken by a table or another view",
               "give the view a name of its own", f'name = "{view.name}"')
-    if view.kind not in ("record_summary", "entity_summary"):
+    if view.kind not in (ViewKind.RECORD_SUMMARY, ViewKind.ENTITY_SUMMARY):
         refuse(text, f"view {view.name!r}: unknown kind {view.kind!r}", "use record_summary or entity_summary",
               f'"{view.kind}"')
-    end = 0 if view.kind == "record_summary" else 1
+    end = 0 if view.kind == ViewKind.RECORD_SUMMARY else 1
     from ..model.views import occurrence, references
 
     if end == 1 and not view.lists:
@@ -293,7 +293,7 @@ def _check_view(text: str, plan: Plan, view: View) -> None:
                       f"remove {name!r} from the view's lists", f'"{name}"', after=f'name = "{view.name}"')
             continue
         table = plan.table(name)
-        if table.role != "bridge" or table.foreign_keys[end].references != view.table:
+        if table.role != Role.BRIDGE or table.foreign_keys[end].references != view.table:
             what = "is owned by" if end == 0 else "links to"
             refuse(text, f"view {view.name!r} lists {name!r}, which is not a bridge that {what} {view.table!r}",
                   f"remove {name!r} from the view's lists", f'"{name}"', after=f'name = "{view.name}"')
@@ -304,7 +304,7 @@ def _check_view(text: str, plan: Plan, view: View) -> None:
         if pick.attribute not in [c.name for c in plan.table(pick.bridge).columns]:
             refuse(text, f"pick {pick.name!r}: {pick.attribute!r} is not a column of {pick.bridge!r}",
                   "name a link attribute of that bridge", f'"{pick.attribute}"', after=f'name = "{view.name}"')
-    if view.date_column and view.kind == "entity_summary" and view.lists:
+    if view.date_column and view.kind == ViewKind.ENTITY_SUMMARY and view.lists:
         owner = plan.table(occurrence(plan, view.lists[0])[1])
         if view.date_column not in [c.name for c in owner.columns]:
             refuse(text, f"view {view.name!r}: {owner.name!r} has no column {view.date_column!r}",

@@ -11,6 +11,7 @@ from __future__ import annotations
 import re
 
 from .escapes import clean
+from .kinds import Role
 from .names import singular
 from .plan import META_ROLES
 from .views import name_column, view_columns
@@ -130,20 +131,20 @@ def table_meaning(table: dict, tables: dict, quote=code) -> str:
     fk = owner_fk(table)
     if name in META_MEANING and role in META_ROLES:
         return META_MEANING[name][0]
-    if role == "record":
+    if role == Role.RECORD:
         key = ", ".join(quote(c) for c in table["natural_key"])
         return (f"One row per record of the export {where or quote(name)}"
                 + (f", identified by its natural key {key}" if key else "") + ".")
-    if role == "record_part" and fk:
+    if role == Role.RECORD_PART and fk:
         return (f"The rest of the columns of {quote(fk['references'])}, too many for one table: one row per "
                 f"{quote(fk['references'])} row, joined on its surrogate key {quote(fk['columns'][0])}.")
-    if role == "entity":
+    if role == Role.ENTITY:
         ident = ", ".join(quote(c) for c in table["natural_key"])
         return (f"One row per distinct {quote(name)} found in {where or 'the nested lists'}"
                 + (f", identified by {ident}" if ident else "") + "; each appears once however many lists name it.")
-    if role in ("bridge", "child") and fk:
+    if role in (Role.BRIDGE, Role.CHILD) and fk:
         others = [f for f in table["foreign_keys"] if not f["owner"]]
-        if role == "bridge" and others:
+        if role == Role.BRIDGE and others:
             ent = ", ".join(quote(f["references"]) for f in others)
             return (f"Links each {quote(fk['references'])} row to the {ent} rows listed in {where or 'its list'}, "
                     f"one row per element" + (", in list order" if table["position_column"] else "")
@@ -188,14 +189,14 @@ def column_meaning(table: dict, column: dict, tables: dict, quote=code) -> tuple
     if name == table.get("position_column"):
         return ", ".join(keys), "Position of the element in its list in the input cell, counted from 1."
     source = column.get("source")
-    if role in ("record", "record_part"):
+    if role in (Role.RECORD, Role.RECORD_PART):
         if name in table["natural_key"]:
             return ", ".join(keys), "Natural key of the record in the export (unique)."
         if source and "." in source:
             col, _, path = source.partition(".")
             return ", ".join(keys), f"Field {quote(path)} of the object in column {quote(col)}."
         return ", ".join(keys), f"Column {quote(source or name)} of the export, as typed by normalise."
-    if role == "entity":
+    if role == Role.ENTITY:
         if name in table["natural_key"]:
             if source:
                 return ", ".join(keys), (f"Identity of the entity: field {quote(source)} of the objects in the lists "
@@ -204,10 +205,10 @@ def column_meaning(table: dict, column: dict, tables: dict, quote=code) -> tuple
         return ", ".join(keys), (f"Attribute of the entity: field {quote(source or name)} of its objects. Where one "
                                  "entity was written with different values, the most frequent one is kept and every "
                                  f"variant is in {quote('attribute_variants')}.")
-    if role == "bridge":
+    if role == Role.BRIDGE:
         return ", ".join(keys), (f"Link attribute: field {quote(source or name)} of each element of the list; it "
                                  "describes this link (the same entity may have another value in another list).")
-    if role == "child":
+    if role == Role.CHILD:
         return ", ".join(keys), f"Field {quote(source or name)} of each element."
     return ", ".join(keys), ""
 
@@ -235,12 +236,12 @@ def view_column_meaning(view: dict, column: str, tables: dict, quote=code) -> st
         if column.startswith(("first_", "last_")):
             which, rest = column.split("_", 1)
             which = "earliest" if which == "first" else "latest"
-            owners = [t for t in tables.values() if t["role"] == "record" and singular(t["name"]) == rest]
+            owners = [t for t in tables.values() if t["role"] == Role.RECORD and singular(t["name"]) == rest]
             if owners:
                 key = quote(owners[0]["natural_key"][0]) if owners[0]["natural_key"] else "key"
                 return (f"The {key} of the {which} {quote(owners[0]['name'])} record the entity appears in "
                         "(by the records' date).")
-            dated = [t for t in tables.values() if t["role"] == "record"
+            dated = [t for t in tables.values() if t["role"] == Role.RECORD
                      and any(c["name"] == rest for c in t["columns"])]
             if dated:
                 return f"The {which} {quote(rest)} of the records the entity appears in."
@@ -263,7 +264,7 @@ def plan_model(plan) -> dict:
         fks = [{"columns": list(fk.columns), "references": fk.references, "ref_columns": list(fk.ref_columns),
                 "unique": any(set(u) == set(fk.columns) for u in uniques) or set(t.primary_key) == set(fk.columns),
                 "owner": False} for fk in t.foreign_keys]
-        if t.role in ("bridge", "child", "record_part") and fks:
+        if t.role in (Role.BRIDGE, Role.CHILD, Role.RECORD_PART) and fks:
             fks[0]["owner"] = True
         tables.append({"name": t.name, "role": t.role, "rows": 0, "sources": list(t.sources),
                        "primary_key": list(t.primary_key), "natural_key": list(t.natural_key),

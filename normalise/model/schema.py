@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-from .kinds import Kind
+from .kinds import Kind, Role
 from .names import Namer, singular
 from .plan import META_TABLES, Column, FieldMap, ForeignKey, NestedColumn, Plan, RecordSource, Table
 
@@ -169,7 +169,7 @@ def split_wide_records(plan: Plan) -> None:
          ('items_part_4', 'record_part', 204)]
     """
     names = Namer([t.name for t in plan.tables] + list(META_TABLES))
-    for table in [t for t in plan.tables if t.role == "record" and len(t.columns) > MAX_COLUMNS]:
+    for table in [t for t in plan.tables if t.role == Role.RECORD and len(t.columns) > MAX_COLUMNS]:
         key = table.primary_key[0]
         held = {key, *table.natural_key, *(c for fk in table.foreign_keys for c in fk.columns)}
         rest = [c for c in table.columns if c.name not in held]
@@ -188,7 +188,7 @@ def split_wide_records(plan: Plan) -> None:
 
 def record_parts(plan: Plan, table: str) -> list[Table]:
     """The 1:1 tables holding the rest of a wide record table's columns, in order (``split_wide_records``)."""
-    return [t for t in plan.tables if t.role == "record_part" and t.foreign_keys[0].references == table]
+    return [t for t in plan.tables if t.role == Role.RECORD_PART and t.foreign_keys[0].references == table]
 
 
 def record_row_columns(record: RecordSource) -> list[str]:

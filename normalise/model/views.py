@@ -15,6 +15,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass, field
 
+from .kinds import Role, ViewKind
 from .names import fit, free_name, quote_name as _q, singular
 from .plan import TEXT_TYPES, Plan, Table
 
@@ -91,12 +92,12 @@ def occurrence(plan: Plan, entry: str) -> tuple[str, str, str, str] | None:
     table = plan.table(name)
     link = f"b.{_q(column if dot else table.foreign_keys[1].columns[0])}"
     source, alias, here, n = f"{_q(name)} b", "b", table, 0
-    while here.role != "record":
-        if here.role not in ("bridge", "child"):
+    while here.role != Role.RECORD:
+        if here.role not in (Role.BRIDGE, Role.CHILD):
             return None
         fk = here.foreign_keys[0]
         parent = plan.table(fk.references)
-        if parent.role == "record":
+        if parent.role == Role.RECORD:
             return source, parent.name, f"{alias}.{_q(fk.columns[0])}", link
         n += 1
         source += (f" JOIN {_q(parent.name)} p{n} ON p{n}.{_q(parent.primary_key[0])} = "
@@ -110,15 +111,15 @@ def default_views(plan: Plan) -> list[View]:
     records hold (through bridges, or references on their rows and on their child rows)."""
     views = []
     taken = {t.name for t in plan.tables}
-    bridges = [t for t in plan.tables if t.role == "bridge"]
-    for record in (t for t in plan.tables if t.role == "record"):
+    bridges = [t for t in plan.tables if t.role == Role.BRIDGE]
+    for record in (t for t in plan.tables if t.role == Role.RECORD):
         own = [b.name for b in bridges if b.foreign_keys[0].references == record.name] + references(plan, record)
         if own:
             name = _free(f"{record.name}_summary", taken)
             views.append(View(name, "record_summary", record.name, own))
-    entries = [b.name for b in bridges] + [r for t in plan.tables if t.role in ("record", "bridge", "child")
+    entries = [b.name for b in bridges] + [r for t in plan.tables if t.role in (Role.RECORD, Role.BRIDGE, Role.CHILD)
                                            for r in references(plan, t)]
-    for entity in (t for t in plan.tables if t.role == "entity"):
+    for entity in (t for t in plan.tables if t.role == Role.ENTITY):
         used = []
         for entry in entries:
             name, dot, column = entry.partition(".")
@@ -232,7 +233,7 @@ def view_sql(view: View, plan: Plan, dialect: str, forms: dict | None = None) ->
     ``forms`` maps (table, column) to the ``datetimes.TextForm`` of the date and timestamp columns
     PostgreSQL holds natively (``write.native_forms``); the others are text.
     """
-    alias = "r" if view.kind == "record_summary" else "e"
+    alias = "r" if view.kind == ViewKind.RECORD_SUMMARY else "e"
     columns = ", ".join(c.expression if c.expression == f"{alias}.{_q(c.name)}" else f"{c.expression} AS {_q(c.name)}"
                         for c in view_columns(view, plan, dialect, forms))
     joins = "".join(" " + j for j in _aggregate_joins(view, plan, dialect, forms or {}))
@@ -242,7 +243,7 @@ def view_sql(view: View, plan: Plan, dialect: str, forms: dict | None = None) ->
 def view_columns(view: View, plan: Plan, dialect: str = "sqlite", forms: dict | None = None) -> list[ViewColumn]:
     """The columns of a view, in order: what ``view_sql`` selects, with the plan type of each."""
     forms = forms or {}
-    if view.kind == "record_summary":
+    if view.kind == ViewKind.RECORD_SUMMARY:
         return _record_summary(view, plan, dialect, forms)
     return _entity_summary(view, plan, dialect, forms)
 
@@ -311,10 +312,10 @@ def add_pick(plan: Plan, spec: str) -> Pick:
     if not (eq and colon and eq2 and name and column and attribute):
         raise UsageError(f"--pick {spec!r}: expected NAME=COLUMN:ATTRIBUTE=VALUE, "
                          "e.g. --pick first_editor=contributors:role=editor")
-    bridges = [t for t in plan.tables if t.role == "bridge" and
+    bridges = [t for t in plan.tables if t.role == Role.BRIDGE and
                (t.name == column or any(s.get("column") == column for s in t.sources))]
     if not bridges:
-        lists = sorted({s["column"] for t in plan.tables if t.role == "bridge" for s in t.sources})
+        lists = sorted({s["column"] for t in plan.tables if t.role == Role.BRIDGE for s in t.sources})
         raise UsageError(f"--pick {spec!r}: no list of entities comes from {column!r} "
                          f"(lists: {closest_first(column, lists)})")
     bridge = bridges[0]
@@ -322,7 +323,7 @@ def add_pick(plan: Plan, spec: str) -> Pick:
         raise UsageError(f"--pick {spec!r}: {attribute!r} is not a link attribute of {bridge.name} "
                          f"(columns: {closest_first(attribute, [c.name for c in bridge.columns])})")
     for view in plan.views:
-        if view.kind == "record_summary" and bridge.name in view.lists:
+        if view.kind == ViewKind.RECORD_SUMMARY and bridge.name in view.lists:
             pick = Pick(name, bridge.name, attribute, value)
             view.picks.append(pick)
             return pick
@@ -417,7 +418,7 @@ def _entity_summary_joined(view: View, plan: Plan, forms: dict) -> list[ViewColu
 def _aggregate_joins(view: View, plan: Plan, dialect: str, forms: dict) -> list[str]:
     """The LEFT JOINs of PostgreSQL's entity summary: one GROUP BY per list over its whole table, the
     distinct records in total, and the first and last record by date (ROW_NUMBER); none elsewhere."""
-    if dialect != "postgresql" or view.kind != "entity_summary":
+    if dialect != "postgresql" or view.kind != ViewKind.ENTITY_SUMMARY:
         return []
     key = _q(plan.table(view.table).primary_key[0])
     joins, unions = [], []

@@ -18,6 +18,7 @@ from ..infer.sharing import widened_sentence
 from ..model.describe import display_column, owner_fk
 from ..model.errors import UsageError
 from ..model.escapes import clean
+from ..model.kinds import Role
 from ..model.names import quote_name as _q
 from ..model.plan import META_ROLES, META_TABLES
 
@@ -165,7 +166,7 @@ def _table(conn: sqlite3.Connection, name: str, known: dict | None) -> dict:
         order = [(f.get("references"), list(f.get("columns") or [])) for f in known.get("foreign_keys") or []]
         foreign_keys.sort(key=lambda f: order.index((f["references"], f["columns"]))
                           if (f["references"], f["columns"]) in order else len(order))
-        if table["role"] in ("bridge", "child", "record_part") and foreign_keys:
+        if table["role"] in (Role.BRIDGE, Role.CHILD, Role.RECORD_PART) and foreign_keys:
             foreign_keys[0]["owner"] = True
     return table
 
@@ -210,10 +211,10 @@ def _infer_roles(tables: list[dict]) -> None:
             t["role"] = "bridge" if len(_owning_keys(t)) > 1 else "child"
         else:
             t["role"] = "entity" if t["name"] in referenced else "record"
-        if t["role"] in ("record", "entity"):
+        if t["role"] in (Role.RECORD, Role.ENTITY):
             single = [u for u in t["unique"] if len(u) == 1 and u != t["primary_key"]]
             t["natural_key"] = single[0] if single else []
-        if "list_position" in cols and t["role"] in ("bridge", "child"):
+        if "list_position" in cols and t["role"] in (Role.BRIDGE, Role.CHILD):
             t["position_column"] = "list_position"
 
 
@@ -238,21 +239,21 @@ def _collect(conn: sqlite3.Connection, model: dict, head_rows: int) -> dict:
             continue
         cols = [c["name"] for c in table["columns"]]
         order = ", ".join(_q(c) for c in ("file", "line") if c in cols) or "rowid"
-        if table["role"] == "variants" and {"entity_table", "natural_key", "attribute"} <= set(cols):
+        if table["role"] == Role.VARIANTS and {"entity_table", "natural_key", "attribute"} <= set(cols):
             order = "entity_table, natural_key, attribute" + (", chosen DESC" if "chosen" in cols else "") \
                     + (", occurrences DESC" if "occurrences" in cols else "")
-        limit = head_rows * 10 if table["role"] == "variants" else head_rows
+        limit = head_rows * 10 if table["role"] == Role.VARIANTS else head_rows
         cur = conn.execute(f"SELECT * FROM {_q(name)} ORDER BY {order} LIMIT ?", (limit,))
         shown = [d[0] for d in cur.description]
         data["meta"][table["role"]] = {"table": name, "columns": shown, "rows": cur.fetchall(), "total": table["rows"]}
         if "file" in cols:
             for file, n in conn.execute(f"SELECT file, count(*) FROM {_q(name)} GROUP BY file ORDER BY file"):
                 data["by_file"].setdefault(file, {})[table["role"]] = n
-        if table["role"] == "variants" and {"entity_table", "entity_sk", "attribute"} <= set(cols):
+        if table["role"] == Role.VARIANTS and {"entity_table", "entity_sk", "attribute"} <= set(cols):
             data["meta"]["variants"]["conflicts"] = conn.execute(
                 f"SELECT count(*) FROM (SELECT DISTINCT entity_table, entity_sk, attribute FROM {_q(name)})"
             ).fetchone()[0]
-    for entity in (t for t in model["tables"] if t["role"] == "entity" and len(t["primary_key"]) == 1):
+    for entity in (t for t in model["tables"] if t["role"] == Role.ENTITY and len(t["primary_key"]) == 1):
         refs = [(t["name"], f["columns"][0]) for t in model["tables"] for f in t["foreign_keys"]
                 if f["references"] == entity["name"] and not f["owner"] and len(f["columns"]) == 1
                 and f["ref_columns"] == entity["primary_key"]]

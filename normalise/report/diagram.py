@@ -12,6 +12,7 @@ import networkx as nx
 
 from ..model.describe import owner_fk, source_label
 from ..model.escapes import clean
+from ..model.kinds import Role
 from ..model.plan import META_ROLES
 from .markup import esc, shorten, svg_number
 
@@ -120,7 +121,7 @@ def layout_schema(model: dict, rounds: int = 4) -> Layout:
     graph = schema_graph(model)
     boxes = {n: _box(t) for n, t in tables.items()}
     meta = [n for n, t in tables.items() if t["role"] in META_ROLES]
-    entities = [n for n, t in tables.items() if t["role"] == "entity" and n not in meta]
+    entities = [n for n, t in tables.items() if t["role"] == Role.ENTITY and n not in meta]
     rest = [n for n in tables if n not in meta and n not in entities]
     rest_set = set(rest)
     owner = {}

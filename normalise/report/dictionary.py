@@ -14,6 +14,7 @@ import re
 
 from ..model.describe import VIEW_WHAT, code, column_meaning, source_label, sources, table_meaning, view_column_meaning
 from ..model.escapes import clean
+from ..model.kinds import Role
 from ..model.plan import META_ROLES
 
 TYPE_WORDS = {
@@ -72,7 +73,7 @@ def _column_source(table: dict, column: dict) -> str:
     """Where the values of a column came from in the input, as far as the manifest says."""
     source = column.get("source")
     srcs = sources(table)
-    value_list = table["role"] == "entity" and column["name"] in table["natural_key"] and srcs
+    value_list = table["role"] == Role.ENTITY and column["name"] in table["natural_key"] and srcs
     if not srcs or (source is None and not value_list):
         if column["name"] in table["primary_key"]:
             return "assigned by normalise"
@@ -81,7 +82,7 @@ def _column_source(table: dict, column: dict) -> str:
         if any(column["name"] in f["columns"] for f in table["foreign_keys"]):
             return "key of the referenced row"
         return "\u2014"
-    if table["role"] in ("record", "record_part"):
+    if table["role"] in (Role.RECORD, Role.RECORD_PART):
         return "; ".join(f"{code(f)} column {code(source)}" for f, _ in srcs)
     places = "; ".join(f"{code(f)} column {code(c)}" if c else code(f) for f, c in srcs)
     if source is None:

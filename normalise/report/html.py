@@ -26,6 +26,7 @@ from pathlib import Path
 from ..model.describe import owner_fk, source_label
 from ..model.errors import EXIT_USAGE, NormaliseError
 from ..model.escapes import clean
+from ..model.kinds import Role
 from ..model.plan import META_ROLES, META_TABLES
 from .catalog import HEAD_ROWS, NOT_APPLICABLE, read_database
 from .diagram import Layout, layout_schema, render_diagram
@@ -154,7 +155,7 @@ def _stem(path: str) -> str:
 def _reconciliation_section(model: dict) -> str:
     m = model.get("manifest") or {}
     by_file = model["data"]["by_file"]
-    records = [t for t in model["tables"] if t["role"] == "record"]
+    records = [t for t in model["tables"] if t["role"] == Role.RECORD]
     parts = []
     inputs = [i for i in m.get("inputs", []) if isinstance(i, dict)]
     if inputs:
