@@ -2,10 +2,9 @@
 
 from .decode import DecodedColumn, QuarantinedCell, decode, decode_column
 from .decode.literal import CellError, Limits, decode_json, decode_python_literal
-from .infer import Options
-from .join import JoinOptions
 from .model.errors import NormaliseError, NotClean, UnreadableFile, UsageError
 from .model.export import Export, RejectedRow
+from .model.settings import JoinOptions, Options, Settings
 from .pipeline import build_database, make_plan
 from .read import read
 from .result import Built
@@ -23,6 +22,7 @@ __all__ = [
     "Options",
     "QuarantinedCell",
     "RejectedRow",
+    "Settings",
     "UnreadableFile",
     "UsageError",
     "build_database",

@@ -131,18 +131,11 @@ def _pairs(specs: list[str], option: str) -> dict:
 
 
 def cmd_build(args) -> int:
-    from .infer import Options
+    from .progress import Phases
     from .report.manifest import summary
 
-    options = Options(natural_keys=_pairs(args.key, "--key"), duplicates=args.duplicates,
-                      violation_threshold=args.threshold, identities=_pairs(args.identity, "--identity"),
-                      merge=[m.split(",") for m in args.merge], no_merge=args.no_merge,
-                      match=_pairs(args.match, "--match"))
-    join_options = _join_options(args)
-    from .progress import Phases
-
     # every phase on the terminal (stderr), nothing when it is not one or with --quiet (progress.py)
-    result = _run_build(args, options, join_options, Phases(args.files, enabled=False if args.quiet else None))
+    result = _run_build(args, _settings(args), Phases(args.files, enabled=False if args.quiet else None))
     if not args.quiet:
         print(summary(result))
         for what, path in (("report", args.report), ("data dictionary", args.dictionary)):
@@ -163,9 +156,10 @@ def _strict(result: dict) -> int:
     return 0
 
 
-def _join_options(args):
-    from .join import JoinOptions
+def _settings(args):
+    """The run's one ``Settings`` from the command line (model/settings.py)."""
     from .model.errors import UsageError
+    from .model.settings import Settings
 
     on = {}
     for spec in args.join:
@@ -175,8 +169,11 @@ def _join_options(args):
             raise UsageError(f"--join {spec!r}: expected FILE.COLUMN (the joined file's key column), "
                              "optionally =MAINCOLUMN, e.g. --join contributions.title_key")
         on[file] = (column, left.rpartition(".")[2] or None)
-    return JoinOptions(how=args.how, cardinality=args.cardinality, on=on, separate=args.separate,
-                       duplicates=args.duplicates)
+    return Settings(natural_keys=_pairs(args.key, "--key"), duplicates=args.duplicates,
+                    violation_threshold=args.threshold, identities=_pairs(args.identity, "--identity"),
+                    merge=[m.split(",") for m in args.merge], no_merge=args.no_merge,
+                    match=_pairs(args.match, "--match"), how=args.how, cardinality=args.cardinality, on=on,
+                    separate=args.separate)
 
 
 def _join_arguments(p) -> None:
@@ -190,10 +187,10 @@ def _join_arguments(p) -> None:
     p.add_argument("--separate", action="store_true", help="join nothing: every file its own record table")
 
 
-def _run_build(args, options, join_options, progress):
+def _run_build(args, settings, progress):
     from .pipeline import build_database
 
-    return build_database(args.files, args.db, options=options, limits=_limits(args), join_options=join_options,
+    return build_database(args.files, args.db, options=settings, limits=_limits(args),
                             formats=_formats(args), encoding=args.encoding, delimiter=_delimiter(args),
                             replace=args.replace, manifest_path=args.manifest, picks=args.pick,
                             parquet_dir=args.parquet, plan_path=args.plan, chunk_rows=args.chunk_rows or None,
@@ -204,16 +201,11 @@ def _run_build(args, options, join_options, progress):
 
 
 def cmd_plan(args) -> int:
-    from .infer import Options
     from .pipeline import make_plan
 
-    options = Options(natural_keys=_pairs(args.key, "--key"), duplicates=args.duplicates,
-                      violation_threshold=args.threshold, identities=_pairs(args.identity, "--identity"),
-                      merge=[m.split(",") for m in args.merge], no_merge=args.no_merge,
-                      match=_pairs(args.match, "--match"))
-    text = make_plan(args.files, args.output, options=options, limits=_limits(args), formats=_formats(args),
+    text = make_plan(args.files, args.output, options=_settings(args), limits=_limits(args), formats=_formats(args),
                      encoding=args.encoding, delimiter=_delimiter(args), picks=args.pick, plan_path=args.plan,
-                     join_options=_join_options(args), header=not args.no_header)
+                     header=not args.no_header)
     if not args.output:
         print(text)
     else:

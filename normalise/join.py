@@ -22,9 +22,8 @@ from .infer import detect_natural_key, scalar_column_type
 from .model.errors import NormaliseError, UsageError
 from .model.export import Export
 from .model.kinds import Format
+from .model.settings import HOWS, Settings
 
-HOWS = ("left", "inner", "full")
-CARDINALITIES = ("one-to-one", "one-to-many")
 MIN_OVERLAP = 0.5  # share of a column's distinct values found among the main keys
 EXAMPLES = 5
 FULL_JOIN_KEY_BASE = 10**9  # records that only the n-th file has get key n * 10**9 + line
@@ -52,16 +51,6 @@ class Joined:
     unmatched: list[tuple] = field(default_factory=list)  # rows of unmatched_rows
     inputs: list[dict] = field(default_factory=list)  # counts of the joined files
     inner_unmatched: dict = field(default_factory=dict)  # main row -> why an inner one-to-many join sets it aside
-    settings: "JoinOptions | None" = None
-
-
-@dataclass
-class JoinOptions:
-    how: str = "left"
-    cardinality: str = "one-to-one"
-    on: dict = field(default_factory=dict)  # right file stem -> (right column, left column or None)
-    separate: bool = False  # never join; every file its own record table
-    duplicates: str = "first"
 
 
 def _key_values(export: Export, decoded: dict, column: str) -> list:
@@ -84,8 +73,9 @@ def find_relation(main: Export, main_key: str, other: Export, decoded: dict) -> 
     return None if best is None else best[1]
 
 
-def join(exports: list[Export], decoded: dict, options: JoinOptions, natural_keys: dict) -> Joined:
+def join(exports: list[Export], decoded: dict, options: Settings) -> Joined:
     """Join every export that relates to the first one; the others stay separate record tables."""
+    natural_keys = options.natural_keys
     result = Joined(list(exports), dict(decoded))
     others = {name for e in exports[1:] for name in (e.name, Path(e.path).name)}
     for file in options.on:
@@ -153,7 +143,7 @@ def join(exports: list[Export], decoded: dict, options: JoinOptions, natural_key
 # Long (about 90 lines): one join's duplicates, matches and unmatched rows on both sides, counted in one pass so
 # that every row of either file is accounted for exactly once.
 def _join_one(result: Joined, combined: JoinedExport, combined_cols: dict, main: Export, main_key: str,
-              other: Export, right_col: str, decoded: dict, options: JoinOptions) -> None:
+              other: Export, right_col: str, decoded: dict, options: Settings) -> None:
     right_keys = _key_values(other, decoded, right_col)
     left_keys = _key_values(main, decoded, main_key)
     first: dict[str, int] = {}
@@ -254,7 +244,7 @@ class LinkedExport(Export):
 
 
 def _link_many(result: Joined, main: Export, main_key: str, other: Export, right_col: str, decoded: dict,
-               options: JoinOptions) -> None:
+               options: Settings) -> None:
     """One-to-many: the further file stays a record table of its own, each row keyed to its main record.
 
     Its rows whose key names no main record are kept in ``unmatched_rows`` (a full

@@ -18,8 +18,7 @@ import codecs
 import math
 
 from .model.errors import UsageError
-
-DUPLICATES = ("first", "last", "refuse")
+from .model.settings import CARDINALITIES, DUPLICATES, HOWS
 
 
 def _refuse(option: str, value, expected: str, got: str):
@@ -151,8 +150,8 @@ def choice(option: str, choices: tuple, value) -> str:
     return value
 
 
-def check_values(*, encoding_name=None, delimiter_char=None, limits=None, chunk_rows=None, options=None,
-                 join_options=None) -> str | None:
+def check_values(*, encoding_name=None, delimiter_char=None, limits=None, chunk_rows=None,
+                 settings=None) -> str | None:
     """Refuse values no pass can work with, before any work; returns the delimiter as the reader takes it.
 
     Raises:
@@ -174,14 +173,11 @@ def check_values(*, encoding_name=None, delimiter_char=None, limits=None, chunk_
         whole_number("--max-cell-chars", 1, limits.max_cell_chars)
     if chunk_rows is not None:
         whole_number("--chunk-rows", 0, chunk_rows)  # 0: read the file at once
-    if options is not None:
-        share("--threshold", options.violation_threshold)
-        choice("--duplicates", DUPLICATES, options.duplicates)
-    if join_options is not None:
-        from .join import CARDINALITIES, HOWS
-
-        choice("--how", HOWS, join_options.how)
-        choice("--cardinality", CARDINALITIES, join_options.cardinality)
+    if settings is not None:  # model.settings.Settings
+        share("--threshold", settings.violation_threshold)
+        choice("--duplicates", DUPLICATES, settings.duplicates)
+        choice("--how", HOWS, settings.how)
+        choice("--cardinality", CARDINALITIES, settings.cardinality)
     return delimiter_char
 
 

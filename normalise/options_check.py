@@ -41,16 +41,14 @@ class _Column:
     members: set = field(default_factory=set)  # (FILE, COLUMN) that --merge and --no-merge accept
 
 
-def check_option_names(exports: list, decoded: dict, options=None, formats: dict | None = None,
-                       join_options=None) -> None:
+def check_option_names(exports: list, decoded: dict, settings=None, formats: dict | None = None) -> None:
     """Refuse an option that names a file, column or field the inputs do not have.
 
     Parameters:
         exports: the input files as read, the main one first (before any join).
         decoded: each export's path mapped to its ``{column: DecodedColumn}``.
-        options: ``infer.Options`` (natural keys, identities, match, merge, no-merge).
+        settings: ``model.settings.Settings`` (natural keys, identities, match, merge, no-merge, ``--join``).
         formats: ``--decode`` as ``{column: (format, separator)}``.
-        join_options: ``join.JoinOptions`` (its ``on``: the ``--join`` columns).
 
     Raises:
         UsageError: the option as written, what it expected and the names there are, the closest first.
@@ -58,33 +56,32 @@ def check_option_names(exports: list, decoded: dict, options=None, formats: dict
     Example:
         >>> from normalise.model.export import Export
         >>> from normalise.decode import decode
-        >>> from normalise.infer import Options
+        >>> from normalise.model.settings import Settings
         >>> books = Export("books.csv", "csv", ["title", "senders"],
         ...                {"title": ["A"], "senders": ['[{"id": 1, "name": "Tamsel"}]']}, [2])
-        >>> check_option_names([books], {"books.csv": decode(books)}, Options(identities={"sender": "id"}))
+        >>> check_option_names([books], {"books.csv": decode(books)}, Settings(identities={"sender": "id"}))
         Traceback (most recent call last):
         ...
         normalise.model.errors.UsageError: --identity sender=id: books.csv has no column 'sender' (columns: senders, title)
     """
-    if options is not None:
-        _check_keys(exports, options.natural_keys)
-    _check_formats(exports, formats or {})
-    if join_options is not None:
-        _check_join(exports, join_options.on)
-    if options is None:
+    if settings is None:
+        _check_formats(exports, formats or {})
         return
-    columns = _columns(exports, decoded, join_options)
-    for ref, wanted in options.identities.items():
+    _check_keys(exports, settings.natural_keys)
+    _check_formats(exports, formats or {})
+    _check_join(exports, settings.on)
+    columns = _columns(exports, decoded, settings)
+    for ref, wanted in settings.identities.items():
         _check_fields(f"--identity {ref}={wanted}", ref, wanted, columns, exports)
-    for ref, wanted in options.match.items():
+    for ref, wanted in settings.match.items():
         option = f"--match {ref}={wanted}"
         if not wanted:
             raise UsageError(f"{option}: expected COLUMN=FIELD, the field whose text the objects are matched on")
         _check_fields(option, ref, wanted, columns, exports)
-    for group in options.merge:
+    for group in settings.merge:
         for ref in group:
             _objects(f"--merge {','.join(group)}", ref, columns, exports, members=True)
-    for ref in options.no_merge:
+    for ref in settings.no_merge:
         _objects(f"--no-merge {ref}", ref, columns, exports, members=True)
 
 
@@ -137,15 +134,15 @@ def _check_join(exports: list, on: dict) -> None:
                              f"(columns: {closest_first(left, main.columns)})")
 
 
-def _columns(exports: list, decoded: dict, join_options) -> list[_Column]:
+def _columns(exports: list, decoded: dict, settings) -> list[_Column]:
     """Every input column with the names ``infer_plan`` finds it by, joined or not."""
     main = exports[0]
-    joins = (len(exports) > 1 and join_options is not None and not join_options.separate
-             and join_options.cardinality != "one-to-many")
+    joins = (len(exports) > 1 and settings is not None and not settings.separate
+             and settings.cardinality != "one-to-many")
     taken = set(main.columns)  # the names of the combined export, as join.join makes them
     out = []
     for export in exports:
-        stated = (join_options.on.get(export.name) or join_options.on.get(Path(export.path).name)
+        stated = (settings.on.get(export.name) or settings.on.get(Path(export.path).name)
                   if joins and export is not main else None)
         for name in export.columns:
             column = _Column(export.path, name, decoded[export.path][name].values)

@@ -28,7 +28,8 @@ from pathlib import Path
 
 from .decode import decisions, decode, first_value, late_decision
 from .decode.literal import Limits
-from .join import Joined, JoinOptions, join
+from .join import Joined, join
+from .model.settings import Settings
 from .options_check import check_option_names
 from .progress import QUIET
 from .read import iter_chunks, read
@@ -60,29 +61,29 @@ class Inputs:
 
 
 def open_inputs(paths: list[str], *, sample: int, limits: Limits = Limits(), formats: dict | None = None,
-                encoding: str | None = None, delimiter: str | None = None, header: bool = True, options=None,
-                join_options: JoinOptions | None = None, natural_keys: dict | None = None,
-                chunk_rows: int | None = None, streamed: bool = True, phases=QUIET) -> Inputs:
+                encoding: str | None = None, delimiter: str | None = None, header: bool = True,
+                settings: Settings = Settings(), named: Settings | None = None, chunk_rows: int | None = None,
+                streamed: bool = True, phases=QUIET) -> Inputs:
     """Read and decode the inputs (and join them), and check the options' names on their first records.
 
     One CSV or TSV file is read ``chunk_rows`` records at a time unless ``streamed`` is false; anything else,
-    or with ``streamed`` false, is read whole.
+    or with ``streamed`` false, is read whole. ``named``: the settings whose names of files, columns and fields
+    are checked against the inputs (default ``settings``; a plan file's own are checked with their lines).
     """
-    join_options = join_options or JoinOptions(duplicates=getattr(options, "duplicates", "first"))
+    named = settings if named is None else named
     if streamed and len(paths) == 1 and Path(paths[0]).suffix.lower() not in JSON_LINES:
         return _Streamed(paths[0], sample=sample, limits=limits, formats=formats, encoding=encoding,
-                         delimiter=delimiter, header=header, options=options, join_options=join_options,
-                         chunk_rows=chunk_rows, phases=phases).inputs
+                         delimiter=delimiter, header=header, settings=settings,
+                         named=named, chunk_rows=chunk_rows, phases=phases).inputs
     return _Whole(paths, sample=sample, limits=limits, formats=formats, encoding=encoding, delimiter=delimiter,
-                  header=header, options=options, join_options=join_options,
-                  natural_keys=natural_keys or {}, phases=phases).inputs
+                  header=header, settings=settings, named=named, phases=phases).inputs
 
 
 class _Whole:
     """Inputs read whole, decoded and joined in memory (several files, JSON Lines)."""
 
-    def __init__(self, paths, *, sample, limits, formats, encoding, delimiter, header, options, join_options,
-                 natural_keys, phases=QUIET):
+    def __init__(self, paths, *, sample, limits, formats, encoding, delimiter, header, settings, named,
+                 phases=QUIET):
         exports = []
         with phases.phase("reading", total=len(paths), unit="files") as step:
             for p in paths:
@@ -90,10 +91,9 @@ class _Whole:
                 step.update()
         with phases.phase("decoding", total=sum(len(e.columns) for e in exports), unit="columns") as step:
             decoded = {e.path: decode(e, limits, formats, sample=sample, done=step.update) for e in exports}
-        check_option_names(*head(exports, decoded, sample), options, formats, join_options)
+        check_option_names(*head(exports, decoded, sample), named, formats)
         with phases.phase("joining") if len(exports) > 1 else nullcontext():
-            self.joined = join(exports, decoded, join_options, natural_keys)
-        self.joined.settings = join_options
+            self.joined = join(exports, decoded, settings)
         exports, decoded = head(self.joined.exports, self.joined.decoded, sample)
         late = []
         for i, export in enumerate(self.joined.exports):
@@ -118,7 +118,7 @@ class _Streamed:
     """One CSV or TSV file read in chunks: its first records decide its formats and its plan, then the rest
     is read and decoded a chunk at a time; reading it again (``columns``) reads the file again."""
 
-    def __init__(self, path, *, sample, limits, formats, encoding, delimiter, header, options, join_options,
+    def __init__(self, path, *, sample, limits, formats, encoding, delimiter, header, settings, named,
                  chunk_rows, phases=QUIET):
         self.path, self.limits, self.formats, self.chunk_rows = path, limits, formats, chunk_rows
         self.reading = dict(encoding=encoding, delimiter=delimiter, header=header)
@@ -153,9 +153,9 @@ class _Streamed:
             decoded = {path: {c: replace(col, values=col.values + later_decoded[c].values)
                               for c, col in decoded[path].items()}}
             found = _late(later, later_decoded, windows, sample)
-        check_option_names(exports, decoded, options, formats, join_options)  # a --join too: there is no other file
+        check_option_names(exports, decoded, named, formats)  # a --join too: there is no other file
         self.pending = (start, start_decoded, chunks)
-        self.inputs = Inputs((exports, decoded), Joined([], {}, settings=join_options), self.blocks, found)
+        self.inputs = Inputs((exports, decoded), Joined([], {}), self.blocks, found)
         gc.collect()  # once, while the heap is small: format detection leaves exceptions (and the frames they hold)
 
     def _windows(self, start, empty: list[str], sample: int, ended: bool):

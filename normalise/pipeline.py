@@ -21,15 +21,16 @@ from .build import InMemory, build_partitions, check_width, occurrence_columns, 
 from .check import check_plan, check_rows
 from .decode import paused_gc
 from .decode.literal import Limits
-from .infer import Options, infer_plan
-from .infer.planfile import join_settings, plan_from_doc, read_plan
+from .infer import infer_plan
+from .infer.planfile import plan_from_doc, read_plan, settings_from_doc
 from .infer.plantext import plan_to_toml
 from .infer.sharing import widened
-from .join import Joined, JoinOptions
+from .join import Joined
 from .model.errors import NotClean, speaks_to_callers
 from .model.names import quote_name
 from .model.plan import Plan
 from .model.schema import POSTGRESQL_MAX_COLUMNS
+from .model.settings import JoinOptions, Options, Settings, settings_of
 from .model.views import add_pick
 from .option_values import check_values
 from .outputs import check_paths, destination_lock, lock_path, staged_outputs, writing
@@ -46,31 +47,26 @@ from .write import (DEFAULT_SCHEMA, SqliteWriter, destination, display_url, is_p
 SAMPLE_ROWS = 5000
 
 
-def _open(paths: list[str], *, options: Options | None, limits: Limits, formats: dict | None, encoding: str | None,
-          delimiter: str | None, join_options: JoinOptions | None, picks: list[str] | None, plan_path: str | None,
+def _open(paths: list[str], *, settings: Settings, limits: Limits, formats: dict | None, encoding: str | None,
+          delimiter: str | None, picks: list[str] | None, plan_path: str | None,
           header: bool, chunk_rows: int | None = None, streamed: bool = False, phases=QUIET):
     """The inputs (``partition.Inputs``) and the plan made from their first records, or read from ``plan_path``
     and checked against them."""
-    options = options or Options()
     doc = text = None
-    natural_keys = dict(options.natural_keys)
-    if plan_path:  # the plan's own join settings and natural keys decide, as they do for the build
+    named = settings  # what the options name is checked against the inputs; a plan file's own names, by planfile
+    if plan_path:  # the plan's own settings (its join, natural keys, duplicates) decide, as they do for the build
         doc, text = read_plan(plan_path)
-        settings = join_settings(doc)
-        records = doc.get("record", [])
-        duplicates = records[0].get("duplicates", options.duplicates) if records else options.duplicates
-        join_options = JoinOptions(how=settings["how"], cardinality=settings["cardinality"], on=settings["on"],
-                                   separate=settings["separate"], duplicates=duplicates)
-        natural_keys = {r["file"]: r["natural_key"] for r in records if r.get("natural_key")}
+        settings = settings_from_doc(doc, settings)
     inputs = open_inputs(paths, sample=SAMPLE_ROWS, limits=limits, formats=formats, encoding=encoding,
-                         delimiter=delimiter, header=header, options=options, join_options=join_options,
-                         natural_keys=natural_keys, chunk_rows=chunk_rows, streamed=streamed, phases=phases)
+                         delimiter=delimiter, header=header, settings=settings, named=named, chunk_rows=chunk_rows,
+                         streamed=streamed, phases=phases)
     with phases.phase("planning"):
-        plan = plan_from_doc(doc, text, *inputs.sample) if doc is not None else infer_plan(*inputs.sample, options)
+        plan = (plan_from_doc(doc, text, *inputs.sample, settings) if doc is not None
+                else infer_plan(*inputs.sample, settings))
     if doc is None:
         # sharing between columns decided over every record, not only the sample (sharing.py)
         read_again = phases.counting("sharing", lambda columns: inputs.partitions(chunk_rows, columns))
-        wider, found = widened(plan, options, inputs.sample, read_again)
+        wider, found = widened(plan, settings, inputs.sample, read_again)
         if found:
             plan = infer_plan(*inputs.sample, wider)
         plan.widened = inputs.late + found  # columns whose values start late (partition.py), then sharing
@@ -98,10 +94,10 @@ def prepare(paths: list[str], *, options: Options | None = None, limits: Limits 
 
     With ``plan_path`` the plan comes from that file, checked against the data.
     """
-    delimiter = check_values(encoding_name=encoding, delimiter_char=delimiter, limits=limits, options=options,
-                             join_options=join_options)
-    plan, inputs = _open(paths, options=options, limits=limits, formats=formats, encoding=encoding,
-                         delimiter=delimiter, join_options=join_options, picks=picks, plan_path=plan_path,
+    settings = settings_of(options, join_options)
+    delimiter = check_values(encoding_name=encoding, delimiter_char=delimiter, limits=limits, settings=settings)
+    plan, inputs = _open(paths, settings=settings, limits=limits, formats=formats, encoding=encoding,
+                         delimiter=delimiter, picks=picks, plan_path=plan_path,
                          header=header)
     joined = inputs.joined
     return Prepared(plan, joined.exports, joined.decoded, joined)
@@ -115,7 +111,7 @@ def make_plan(paths: str | os.PathLike | list[str], output: str | None = None, *
         check_paths([("input", p) for p in paths] + [("--plan", kwargs.get("plan_path"))], [("-o", output)])
     prepared = prepare(paths, **kwargs)
     plan, joined = prepared.plan, prepared.joined
-    s = joined.settings
+    s = plan.settings
     on = {Path(j["right"]).stem: (j["on"][0][1], None) for j in joined.joins}
     text = plan_to_toml(plan, {"how": s.how, "cardinality": s.cardinality, "separate": s.separate, "on": on})
     if output:
@@ -170,8 +166,9 @@ def build_database(paths: str | os.PathLike | list[str], database: str | os.Path
         [('person', 'entity', 1), ('books', 'record', 1), ('book_people', 'bridge', 1), ('name_map', 'names', 5)]
     """
     paths = path_list(paths)
+    settings = settings_of(options, join_options)
     delimiter = check_values(encoding_name=encoding, delimiter_char=delimiter, limits=limits, chunk_rows=chunk_rows,
-                             options=options, join_options=join_options)
+                             settings=settings)
     progress = Phases.of(progress, paths)
     kind, database = destination(database)
     postgresql = kind == "postgresql"
@@ -191,8 +188,8 @@ def build_database(paths: str | os.PathLike | list[str], database: str | os.Path
                 [("--db", sqlite_db), ("the lock file of --db", sqlite_db and lock_path(sqlite_db)),
                  ("--manifest", manifest_path), ("--report", report_path), ("--dictionary", dictionary_path)],
                 [("--parquet", parquet_dir)])
-    kwargs = dict(options=options, limits=limits, formats=formats, encoding=encoding, delimiter=delimiter,
-                  replace=replace, join_options=join_options, manifest_path=manifest_path, picks=picks,
+    kwargs = dict(settings=settings, limits=limits, formats=formats, encoding=encoding, delimiter=delimiter,
+                  replace=replace, manifest_path=manifest_path, picks=picks,
                   parquet_dir=parquet_dir, plan_path=plan_path, schema=schema, chunk_rows=chunk_rows,
                   progress=progress, report_path=report_path, dictionary_path=dictionary_path, append=append,
                   allow_lossy=allow_lossy, wait=wait, header=header, share_schema=share_schema)
@@ -212,15 +209,15 @@ def build_database(paths: str | os.PathLike | list[str], database: str | os.Path
     return built
 
 
-def _build(paths: list[str], database: str, *, options, limits, formats, encoding, delimiter, replace,
-           join_options, manifest_path, picks, parquet_dir, plan_path, schema, chunk_rows, progress,
+def _build(paths: list[str], database: str, *, settings, limits, formats, encoding, delimiter, replace,
+           manifest_path, picks, parquet_dir, plan_path, schema, chunk_rows, progress,
            report_path, dictionary_path, append, allow_lossy, wait, staged, header=True,
            share_schema=False) -> dict:
     """``build_database`` once its paths are checked and its destination locked; outputs go to ``staged``."""
     postgresql = is_postgresql(database)
-    plan, inputs = _open(paths, options=options, limits=limits, formats=formats, encoding=encoding,
-                         delimiter=delimiter, join_options=join_options, picks=picks, plan_path=plan_path,
-                         header=header, chunk_rows=chunk_rows, streamed=True, phases=progress)
+    plan, inputs = _open(paths, settings=settings, limits=limits, formats=formats, encoding=encoding,
+                         delimiter=delimiter, picks=picks, plan_path=plan_path, header=header, chunk_rows=chunk_rows,
+                         streamed=True, phases=progress)
     inputs.sample = None  # the model is made: its records need not stay in memory
     order = check_plan(plan)
     # a table wider than the database allows is refused before anything is written (it would fail half-way)
@@ -431,6 +428,6 @@ def _outputs(staged, database, plan, result: dict, parquet_dir, manifest_path, r
             with writing("--report" if report_path else "--dictionary", report_path or dictionary_path):
                 write_outputs(source, result, report_path=report_path and staged.file(report_path),
                               dictionary_path=dictionary_path and staged.file(dictionary_path), shown_as=database,
-                              postgresql=postgresql)
+                              postgresql=postgresql, plan=plan)
             step.update()
     return result

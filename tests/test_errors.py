@@ -13,13 +13,13 @@ import warnings
 import pytest
 
 import normalise
-from normalise import decode_json, decode_python_literal
+from normalise import JoinOptions, decode_json, decode_python_literal
 from normalise.cli import exit_code, main
-from normalise.model.errors import EXIT_DATA, EXIT_DESTINATION, EXIT_USAGE, MissingInput, NormaliseError, UnreadableFile
-from normalise.join import CardinalityViolation, JoinOptions
 from normalise.decode.literal import CellError
-from normalise.pipeline import build_database, make_plan
 from normalise.infer.planfile import InvalidPlan
+from normalise.join import CardinalityViolation
+from normalise.model.errors import EXIT_DATA, EXIT_DESTINATION, EXIT_USAGE, MissingInput, NormaliseError, UnreadableFile
+from normalise.pipeline import build_database, make_plan
 from normalise.read import read
 
 

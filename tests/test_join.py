@@ -24,9 +24,10 @@ import sqlite3
 import pytest
 
 from demo.generate import generate
+from normalise import JoinOptions
 from normalise.cli import main
+from normalise.join import CardinalityViolation
 from normalise.model.errors import UsageError
-from normalise.join import CardinalityViolation, JoinOptions
 from normalise.pipeline import build_database
 
 TITLES, CONTRIBUTIONS = "titles.csv", "contributions.csv"

@@ -28,10 +28,9 @@ import pandas as pd
 import pytest
 
 from demo.generate import generate
-from normalise import pipeline
+from normalise import JoinOptions, pipeline
 from normalise.build import DuplicateNaturalKey
 from normalise.infer import Options
-from normalise.join import JoinOptions
 from normalise.pipeline import build_database, make_plan
 from tests import test_corpus
 from tests.test_corpus import CASES, CORPUS, inputs_for, run_commands

@@ -25,10 +25,10 @@ import sqlite3
 import pytest
 
 from demo.generate import generate
+from normalise import JoinOptions
 from normalise.cli import main
-from normalise.join import JoinOptions
-from normalise.pipeline import build_database, make_plan
 from normalise.infer.planfile import InvalidPlan
+from normalise.pipeline import build_database, make_plan
 
 TITLES, CONTRIBUTIONS = "titles.csv", "contributions.csv"
 
@@ -469,10 +469,10 @@ def test_input_file_the_plan_does_not_name(demo, tmp_path):
 
 def test_column_types_and_bookkeeping_tables_are_declared_once():
     """``plan.TYPES`` and ``plan.META_TABLES`` are the one declaration; what maps them covers them exactly."""
-    from normalise.report import catalog, dictionary
     from normalise import write
     from normalise.model.plan import META_ROLES, META_TABLES, TEXT_TYPES, TYPES, Plan
     from normalise.model.schema import add_tables
+    from normalise.report import catalog, dictionary
 
     assert list(write.TYPES) == list(TYPES) and list(dictionary.TYPE_WORDS) == list(TYPES)
     assert set(TEXT_TYPES) <= set(TYPES) and set(catalog._SQL_TYPES.values()) <= set(TYPES)

@@ -14,7 +14,7 @@ import sqlite3
 
 import pytest
 
-from normalise.join import JoinOptions
+from normalise import JoinOptions
 from normalise.pipeline import build_database, make_plan
 from normalise.survey import survey
 from tests.open_data import check_lossless, check_pragmas, record_table, referred_rows

@@ -10,7 +10,8 @@ from collections import Counter, defaultdict
 from dataclasses import dataclass
 from itertools import chain
 
-DEFAULT_VIOLATION_THRESHOLD = 0.05
+from ..model.settings import DEFAULT_VIOLATION_THRESHOLD
+
 ID_NAME = re.compile(r"(?i)^(id|key|code|uuid|guid|slug)$|(_id|_key|_code|_uuid|Id|ID|_no|_number)$")
 _POSITION_NAME = re.compile(r"(?i)^(position|pos|order|ordinal|index|idx|rank|seq|sequence|sort_order)$")
 

@@ -16,10 +16,12 @@ forbidden merge): its entity table is then inferred for it alone.
 from __future__ import annotations
 
 import tomllib
+from dataclasses import replace
 from pathlib import Path
 
 from ..model.kinds import Format, Kind, Role, ViewKind
 from ..model.plan import META_TABLES, TYPES, EntityGroup, FieldMap, NestedColumn, Plan, RecordSource
+from ..model.settings import Settings
 from ..model.views import Pick, View
 from .planschema import KINDS, InvalidPlan, PlanText, check_shape, refuse
 from .plantext import PLAN_VERSION, toml_value
@@ -72,22 +74,30 @@ def read_plan(path: str) -> tuple[dict, str]:
     return doc, text
 
 
-def join_settings(doc: dict) -> dict:
+def settings_from_doc(doc: dict, base: Settings = Settings()) -> Settings:
+    """The settings a plan file says (its ``[join]``, each record's natural key, the main record's duplicates
+    policy, the violation threshold) over ``base`` (what the command line said besides)."""
     j = doc.get("join", {})
-    return {"how": j.get("how", "left"), "cardinality": j.get("cardinality", "one-to-one"),
-            "separate": bool(j.get("separate", False)), "on": {k: (v, None) for k, v in j.get("on", {}).items()}}
+    records = doc.get("record", [])
+    return replace(base, how=j.get("how", "left"), cardinality=j.get("cardinality", "one-to-one"),
+                   separate=bool(j.get("separate", False)), on={k: (v, None) for k, v in j.get("on", {}).items()},
+                   duplicates=records[0].get("duplicates", base.duplicates) if records else base.duplicates,
+                   natural_keys={r["file"]: r["natural_key"] for r in records if r.get("natural_key")},
+                   violation_threshold=float(doc.get("violation_threshold", base.violation_threshold)))
 
 
 # Long (about 155 lines): a plan file's blocks read in the order they name each other (records, entities, nested
 # columns, views), each checked against the data at its own line; the checks share the maps of what is named.
-def plan_from_doc(doc: dict, text: str, exports: list, decoded: dict) -> Plan:
-    """Rebuild the plan from its file and check that it still fits the decoded data."""
+def plan_from_doc(doc: dict, text: str, exports: list, decoded: dict, settings: Settings | None = None) -> Plan:
+    """Rebuild the plan from its file and check that it still fits the decoded data; ``settings``: the run's
+    (``settings_from_doc``), held by the plan."""
     from ..model.schema import add_tables
     from .dependencies import entity_attributes
     from .planner import Found
     from .shapes import objects_of, scalar_fields, type_at
 
-    plan = Plan(violation_threshold=float(doc.get("violation_threshold", 0.05)))
+    settings = settings or settings_from_doc(doc)
+    plan = Plan(violation_threshold=settings.violation_threshold, settings=settings)
     by_name: dict[str, list] = {}  # file stem -> its inputs, in order: a/titles.csv and b/titles.csv share one
     for e in exports:
         by_name.setdefault(e.name, []).append(e)

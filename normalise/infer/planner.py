@@ -10,11 +10,12 @@ from ..model.decimals import decimal_scale
 from ..model.exact import ABSENT as _ABSENT, get
 from ..model.kinds import Format, Kind
 from ..model.names import Namer, singular, sql_name
-from ..model.plan import META_TABLES
+from ..model.plan import META_TABLES, FieldMap, NestedColumn, Plan, RecordSource
+from ..model.settings import Options, Settings, settings_of
 from .dependencies import ObjectTable, hashable, identity_candidates
 from .entities import Member, group_entities
 from .keyed import keyed_column, keyed_fields, keys_like_codes
-from .options import WIDE_OBJECT_KEYS, Options
+from .options import WIDE_OBJECT_KEYS
 from .references import infer_references
 from .shapes import field_map, field_maps, get_path, object_paths, objects_of, scalar_fields, shape_of
 from .types import detect_natural_key, list_value_type, scalar_column_type
@@ -22,17 +23,15 @@ from .types import detect_natural_key, list_value_type, scalar_column_type
 
 # Long (about 110 lines): the inference's steps in their order (records and their keys, nested columns, entity
 # groups, tables, references, views), each a call; what remains is the loop that hands each the one before's result.
-def infer_plan(exports: list, decoded: dict, options: Options | None = None):
+def infer_plan(exports: list, decoded: dict, settings: Settings | Options | None = None) -> Plan:
     """Infer the relational model of decoded exports.
 
     ``decoded`` maps each export's path to its ``{column: DecodedColumn}``.
     """
-    from ..model.plan import FieldMap, NestedColumn, Plan, RecordSource
-
-    options = options or Options()
-    plan = Plan(violation_threshold=options.violation_threshold)
+    settings = settings_of(settings)
+    plan = Plan(violation_threshold=settings.violation_threshold, settings=settings)
     tables = Namer(META_TABLES)
-    found = Found(options)  # where entities are: lists of them and single objects with an identity
+    found = Found(settings)  # where entities are: lists of them and single objects with an identity
 
     for export in exports:
         columns = decoded[export.path]
@@ -40,7 +39,7 @@ def infer_plan(exports: list, decoded: dict, options: Options | None = None):
         scalar_values, scalar_types = {}, {}
         record = RecordSource(file=export.name, path=export.path, table=record_table,
                               key_column=f"{singular(record_table)}_sk", natural_key=[],
-                              duplicates=options.duplicates)
+                              duplicates=settings.duplicates)
         names = Namer([record.key_column])
         for name, col in columns.items():
             shape = "scalar"
@@ -59,7 +58,7 @@ def infer_plan(exports: list, decoded: dict, options: Options | None = None):
                                   kind=None)  # decided below
             values = col.values
             if shape == "object":
-                values = keyed_column(nested, values, options, export.name)
+                values = keyed_column(nested, values, settings, export.name)
                 if nested.keyed:
                     shape = "object-list"
             if shape == "scalar-list":
@@ -83,14 +82,14 @@ def infer_plan(exports: list, decoded: dict, options: Options | None = None):
                 table = ObjectTable(objects)
                 # FILE:COLUMN names the file the column comes from (a joined file's own name), as
                 # entity members and --no-merge do; the main file's name and the bare column also work
-                wanted = options.identities.get(f"{nested.file}:{name}", options.identities.get(
-                    f"{export.name}:{name}", options.identities.get(name)))
-                matched = options.match.get(f"{nested.file}:{name}", options.match.get(
-                    f"{export.name}:{name}", options.match.get(name)))
+                wanted = settings.identities.get(f"{nested.file}:{name}", settings.identities.get(
+                    f"{export.name}:{name}", settings.identities.get(name)))
+                matched = settings.match.get(f"{nested.file}:{name}", settings.match.get(
+                    f"{export.name}:{name}", settings.match.get(name)))
                 if matched:
                     wanted, nested.matched = matched, True
                 if wanted is None:
-                    candidates = identity_candidates(objects, owners, options.violation_threshold, table)
+                    candidates = identity_candidates(objects, owners, settings.violation_threshold, table)
                     wanted = candidates[0].field if candidates else ""
                 nested.kind = Kind.ENTITY_LIST if wanted else Kind.CHILD_LIST
                 nested.identity = wanted
@@ -102,7 +101,7 @@ def infer_plan(exports: list, decoded: dict, options: Options | None = None):
                 found.row_fields(nested, objects, table, fields, refs, Namer(["list_position"] if wanted else []), "")
                 nested.children = _child_lists(export.name, name, objects, lists, table, found)
             record.nested.append(nested)
-        chosen = options.natural_keys.get(export.name)
+        chosen = settings.natural_keys.get(export.name)
         if chosen is None:
             chosen = detect_natural_key(list(scalar_values), scalar_values, scalar_types)
         if chosen:
@@ -115,7 +114,7 @@ def infer_plan(exports: list, decoded: dict, options: Options | None = None):
         plan.records.append(record)
 
     found.settle()
-    group_entities(plan, found.members, options, tables)
+    group_entities(plan, found.members, settings, tables)
     found.make_row_fields(plan)
     for record in plan.records:
         owner = singular(record.table)
@@ -200,8 +199,8 @@ class Found:
     to it, so the rows' columns (``NestedColumn.row_fields``) are made after the entities are grouped.
     """
 
-    def __init__(self, options: "Options"):
-        self.options = options
+    def __init__(self, settings: "Settings"):
+        self.settings = settings
         self.members: list[Member] = []
         self.pending: list[tuple] = []
 
@@ -215,8 +214,8 @@ class Found:
         name = self.name_of(nested, path)
         bare = name.split(":", 1)[1]
         for key in (name, f"{file}:{bare}", bare):
-            if key in self.options.identities:
-                return self.options.identities[key]
+            if key in self.settings.identities:
+                return self.settings.identities[key]
         return None
 
     def identity_of(self, nested, file: str, owners: list[int], objects: list[dict], table: ObjectTable) -> str:
@@ -224,7 +223,7 @@ class Found:
         forced = self._forced(nested, file)
         if forced is not None:
             return forced
-        candidates = identity_candidates(objects, owners, self.options.violation_threshold, table)
+        candidates = identity_candidates(objects, owners, self.settings.violation_threshold, table)
         named = [c for c in candidates if c.named_like_identity]
         return named[0].field if named else ""
 

@@ -12,6 +12,7 @@ from dataclasses import asdict, dataclass, field
 from typing import ClassVar, NamedTuple
 
 from .kinds import Kind, Role, Type
+from .settings import Settings
 
 TYPES = tuple(Type)  # a column's type, as plans and plan files name it (kinds.Type)
 TEXT_TYPES = (Type.TEXT, Type.DECIMAL, Type.DATE, Type.TIMESTAMP)  # the types whose values are text
@@ -200,6 +201,7 @@ class Plan:
     # entity tables the sample kept apart and every record showed to be one (sharing.widened): what the run
     # reports; not part of a saved plan, whose entity members already say it
     widened: list = field(default_factory=list)
+    settings: Settings = field(default_factory=Settings)  # what the run was made with (model/settings.py)
 
     def table(self, name: str) -> Table:
         for t in self.tables:

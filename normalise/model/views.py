@@ -227,6 +227,12 @@ class ViewColumn:
     type: str
 
 
+# The views' SQL is text, not SQLAlchemy Core. What differs between the dialects is not what Core compiles per
+# dialect (quoting, LIMIT, types) but how a value becomes the same text on both: SQLite's printf('%!.15g') for a REAL
+# against PostgreSQL's to_char EEEE and trim_scale (_PG_REAL_TEXT), a native date's text form (TextForm.text_sql),
+# COLLATE "C" for SQLite's byte order, and an ordered aggregate that SQLite before 3.44 lacks (_ordered_join). In
+# Core each of these is a custom construct with a compile rule per dialect holding the same text as here, so the
+# branches would remain, behind one more layer; the tests compare both backends' views value by value.
 def view_sql(view: View, plan: Plan, dialect: str, forms: dict | None = None) -> str:
     """The SELECT that defines a view, in the given dialect ("sqlite" or "postgresql").
 

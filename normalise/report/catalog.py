@@ -1,10 +1,11 @@
-"""Reading a written SQLite database back: the model the HTML report and the data dictionary show.
+"""The model the HTML report and the data dictionary show, and the rows of the database they show.
 
-Everything is read from the database itself: the catalog (``sqlite_master``,
-``PRAGMA table_info``, ``PRAGMA foreign_key_list``, ``PRAGMA index_list``),
-``count(*)`` of each table and the bookkeeping tables, and SQLite's own checks.
-The run's manifest, when there is one, adds roles and where each table and
-column came from in the input; without it the roles are inferred from the keys.
+After a build the model is the run's own: its plan (tables, keys, roles, columns, views) and its counts
+(``planned``). For a database on its own (``normalise report DB``) it is read from the database: the catalog
+(``sqlite_master``, ``PRAGMA table_info``, ``PRAGMA foreign_key_list``, ``PRAGMA index_list``), ``count(*)`` of
+each table; a manifest, when there is one, adds roles and where each table and column came from in the input,
+and without one the roles are inferred from the keys. Either way the database is read for SQLite's own checks
+and for the rows shown: the head of each bookkeeping table, the most referenced entities, list lengths.
 The model is a plain dict; ``report.html`` and ``report.dictionary`` render it.
 """
 
@@ -14,13 +15,19 @@ import sqlite3
 from collections import defaultdict
 from pathlib import Path
 
+from sqlalchemy.dialects import sqlite as sqlite_dialect
+
 from ..infer.sharing import widened_sentence
-from ..model.describe import display_column, owner_fk
+from ..model.describe import display_column, owner_fk, plan_model
 from ..model.errors import UsageError
 from ..model.escapes import clean
 from ..model.kinds import Role
 from ..model.names import quote_name as _q
 from ..model.plan import META_ROLES, META_TABLES
+from ..model.views import view_sql
+from ..write.ddl import metadata_for
+
+_SQLITE = sqlite_dialect.dialect()
 
 HEAD_ROWS = 50  # rows of each bookkeeping table shown
 NOT_APPLICABLE = "not applicable (PostgreSQL)"  # SQLite's integrity_check, of a PostgreSQL build
@@ -44,7 +51,7 @@ def connect(database) -> sqlite3.Connection:
 
 
 def read_database(database, manifest: dict | None = None, *, manifest_origin: str | None = None,
-                  head_rows: int = HEAD_ROWS, shown_as=None, postgresql: dict | None = None) -> dict:
+                  head_rows: int = HEAD_ROWS, shown_as=None, postgresql: dict | None = None, plan=None) -> dict:
     """Everything the report and the data dictionary show, read from a SQLite database.
 
     ``manifest`` (the build's) adds roles, sources and the rows read; without it the roles are inferred
@@ -54,11 +61,15 @@ def read_database(database, manifest: dict | None = None, *, manifest_origin: st
     ``postgresql`` (``{"types": {"table.column": SQL type}, "views": {view: CREATE VIEW}}``) says the database is a PostgreSQL build's,
     read through a SQLite copy of the rows the run wrote there (``pipeline._outputs``): each column's type is
     PostgreSQL's, and SQLite's ``integrity_check`` of the copy is not shown as the database's.
+
+    ``plan`` (with the build's ``manifest``): the run's own, whose model, counts and views are shown as the
+    run made them (``planned``); the database is then read only for its checks and the rows the report shows.
+    Without it (``normalise report`` of a database on its own) the model is read from SQLite's catalog.
     """
     conn = connect(database)
     try:
         origin = manifest_origin or ("the build" if manifest is not None else None)
-        model = _catalog(conn, manifest)
+        model = planned(plan, manifest) if plan is not None and manifest is not None else _catalog(conn, manifest)
         model["database"] = str(shown_as or database)
         model["manifest"] = manifest
         model["manifest_origin"] = origin
@@ -76,6 +87,29 @@ def read_database(database, manifest: dict | None = None, *, manifest_origin: st
         model["data"] = _collect(conn, model, head_rows)
     finally:
         conn.close()
+    return model
+
+
+def planned(plan, manifest: dict) -> dict:
+    """The model the report and the data dictionary show, from the run's plan and its manifest's counts: what
+    ``_catalog`` reads back from a database, made without reading it (``describe.plan_model``).
+
+    Each column's SQL type is the one its table was declared with on SQLite (``write.metadata_for``), each view's
+    SQL the SELECT it was made from (``views.view_sql``); rows are the build's counts."""
+    model = plan_model(plan)
+    counts = {t.get("name"): t.get("rows") for t in manifest.get("tables", []) if isinstance(t, dict)}
+    declared = {t.name: {c.name: c.type.compile(dialect=_SQLITE) for c in t.columns}
+                for t in metadata_for(plan).tables.values()}
+    for t in model["tables"]:
+        t["rows"] = t["manifest_rows"] = counts.get(t["name"], 0)
+        for c in t["columns"]:
+            c["sql_type"] = declared.get(t["name"], {}).get(c["name"], "")
+    views = {v.name: v for v in plan.views}
+    for v in model["views"]:
+        v["sql"] = f"CREATE VIEW {_q(v['name'])} AS {view_sql(views[v['name']], plan, 'sqlite')}"
+        for c in v["columns"]:
+            c.setdefault("sql_type", "")
+    model["notes"] = [clean(widened_sentence(w)) for w in manifest.get("widened", []) if isinstance(w, dict)]
     return model
 
 

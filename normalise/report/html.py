@@ -6,11 +6,14 @@ reconciliation of rows and nested elements, SQLite's integrity checks, the
 quarantined cells, rejected, set-aside and unmatched rows, the attribute
 conflicts, the most frequent entities and the distribution of list lengths.
 
-Everything is read back from the database itself (``catalog.read_database``:
-the catalog, ``count(*)`` of each table and the bookkeeping tables). The run's
-manifest (returned by the build, or given as a file) adds what the database
-cannot say: roles, where each table and column came from in the input, and the
-rows read. Every number is labelled with the table (or the manifest) it comes from.
+After a build the model shown is the plan's and the row counts are the build's
+(``catalog.planned``); the database is read only for what it alone can say: its
+own checks, the bookkeeping tables' rows and the most frequent entities. Given a
+database without its plan (``normalise report``), the catalog is read back from
+SQLite instead (``catalog.read_database``). The run's manifest (returned by the
+build, or given as a file) adds roles, where each table and column came from in
+the input, and the rows read. Every number is labelled with the table (or the
+manifest) it comes from.
 
 The file has no script and loads nothing: inline CSS and inline SVG only, and a
 Content-Security-Policy that forbids any other source. Every text taken from the
@@ -414,11 +417,12 @@ def write_report(database, path, manifest: dict | None = None, *, model: dict | 
 
 
 def write_outputs(database, manifest: dict | None = None, *, report_path=None, dictionary_path=None,
-                  manifest_origin: str | None = None, shown_as=None, postgresql: dict | None = None) -> dict:
-    """Write the HTML report and/or the data dictionary from one reading of the database (``postgresql``:
-    see ``catalog.read_database``)."""
+                  manifest_origin: str | None = None, shown_as=None, postgresql: dict | None = None,
+                  plan=None) -> dict:
+    """Write the HTML report and/or the data dictionary from one reading of the database (``postgresql``
+    and ``plan``, the build's own: see ``catalog.read_database``)."""
     model = read_database(database, manifest, manifest_origin=manifest_origin, shown_as=shown_as,
-                          postgresql=postgresql)
+                          postgresql=postgresql, plan=plan)
     written = {}
     if report_path:
         written["report"] = write_report(database, report_path, model=model)
