@@ -1,10 +1,10 @@
 """normalise: turn flat exports with nested cells into a linked relational database."""
 
 from .decode import DecodedColumn, QuarantinedCell, decode, decode_column
-from .decode.literal import CellError, Limits, decode_json, decode_python_literal
+from .decode.literal import CellError, decode_json, decode_python_literal
 from .model.errors import NormaliseError, NotClean, UnreadableFile, UsageError
 from .model.export import Export, RejectedRow
-from .model.settings import JoinOptions, Options, Settings
+from .model.settings import JoinOptions, Limits, Options, Settings
 from .pipeline import build_database, make_plan
 from .read import read
 from .result import Built

@@ -12,10 +12,10 @@ import warnings
 
 from . import option_values as values
 from .decode import parse_decode_option
-from .decode.literal import DEFAULT_MAX_CELL_CHARS, DEFAULT_MAX_DEPTH, Limits
 from .model.errors import (EXIT_DATA, EXIT_DESTINATION, EXIT_USAGE, LooksHeaderless, NormaliseError, NotClean,
                            from_the_command_line)
 from .model.escapes import escape_surrogates
+from .model.settings import DEFAULT_MAX_CELL_CHARS, DEFAULT_MAX_DEPTH, Limits
 from .option_values import as_argument
 
 EXIT_CODES = """\

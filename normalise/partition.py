@@ -27,9 +27,8 @@ from dataclasses import dataclass, field, fields, replace
 from pathlib import Path
 
 from .decode import decisions, decode, first_value, late_decision
-from .decode.literal import Limits
 from .join import Joined, join
-from .model.settings import Settings
+from .model.settings import Limits, Settings
 from .options_check import check_option_names
 from .progress import QUIET
 from .read import iter_chunks, read

@@ -20,7 +20,6 @@ from typing import NamedTuple
 from .build import InMemory, build_partitions, check_width, occurrence_columns, reference_values
 from .check import check_plan, check_rows
 from .decode import paused_gc
-from .decode.literal import Limits
 from .infer import infer_plan
 from .infer.planfile import plan_from_doc, read_plan, settings_from_doc
 from .infer.plantext import plan_to_toml
@@ -30,7 +29,7 @@ from .model.errors import NotClean, speaks_to_callers
 from .model.names import quote_name
 from .model.plan import Plan
 from .model.schema import POSTGRESQL_MAX_COLUMNS
-from .model.settings import JoinOptions, Options, Settings, settings_of
+from .model.settings import JoinOptions, Limits, Options, Settings, settings_of
 from .model.views import add_pick
 from .option_values import check_values
 from .outputs import check_paths, destination_lock, lock_path, staged_outputs, writing
@@ -47,7 +46,7 @@ from .write import (DEFAULT_SCHEMA, SqliteWriter, destination, display_url, is_p
 SAMPLE_ROWS = 5000
 
 
-def _open(paths: list[str], *, settings: Settings, limits: Limits, formats: dict | None, encoding: str | None,
+def _open(paths: list[str], *, settings: Settings, formats: dict | None, encoding: str | None,
           delimiter: str | None, picks: list[str] | None, plan_path: str | None,
           header: bool, chunk_rows: int | None = None, streamed: bool = False, phases=QUIET):
     """The inputs (``partition.Inputs``) and the plan made from their first records, or read from ``plan_path``
@@ -57,7 +56,7 @@ def _open(paths: list[str], *, settings: Settings, limits: Limits, formats: dict
     if plan_path:  # the plan's own settings (its join, natural keys, duplicates) decide, as they do for the build
         doc, text = read_plan(plan_path)
         settings = settings_from_doc(doc, settings)
-    inputs = open_inputs(paths, sample=SAMPLE_ROWS, limits=limits, formats=formats, encoding=encoding,
+    inputs = open_inputs(paths, sample=SAMPLE_ROWS, limits=settings.limits, formats=formats, encoding=encoding,
                          delimiter=delimiter, header=header, settings=settings, named=named, chunk_rows=chunk_rows,
                          streamed=streamed, phases=phases)
     with phases.phase("planning"):
@@ -85,7 +84,7 @@ class Prepared(NamedTuple):
 
 
 @speaks_to_callers
-def prepare(paths: list[str], *, options: Options | None = None, limits: Limits = Limits(),
+def prepare(paths: list[str], *, options: Options | None = None, limits: Limits | None = None,
             formats: dict | None = None, encoding: str | None = None, delimiter: str | None = None,
             join_options: JoinOptions | None = None, picks: list[str] | None = None,
             plan_path: str | None = None, header: bool = True) -> Prepared:
@@ -94,9 +93,10 @@ def prepare(paths: list[str], *, options: Options | None = None, limits: Limits 
 
     With ``plan_path`` the plan comes from that file, checked against the data.
     """
-    settings = settings_of(options, join_options)
-    delimiter = check_values(encoding_name=encoding, delimiter_char=delimiter, limits=limits, settings=settings)
-    plan, inputs = _open(paths, settings=settings, limits=limits, formats=formats, encoding=encoding,
+    settings = settings_of(options, join_options, limits)
+    delimiter = check_values(encoding_name=encoding, delimiter_char=delimiter, limits=settings.limits,
+                             settings=settings)
+    plan, inputs = _open(paths, settings=settings, formats=formats, encoding=encoding,
                          delimiter=delimiter, picks=picks, plan_path=plan_path,
                          header=header)
     joined = inputs.joined
@@ -131,7 +131,7 @@ def path_list(paths) -> list[str]:
 @speaks_to_callers
 @paused_gc()
 def build_database(paths: str | os.PathLike | list[str], database: str | os.PathLike, *, options: Options | None = None,
-                   limits: Limits = Limits(), formats: dict | None = None, encoding: str | None = None,
+                   limits: Limits | None = None, formats: dict | None = None, encoding: str | None = None,
                    delimiter: str | None = None, replace: bool = False, join_options: JoinOptions | None = None,
                    manifest_path: str | None = None, picks: list[str] | None = None,
                    parquet_dir: str | None = None, plan_path: str | None = None,
@@ -166,9 +166,9 @@ def build_database(paths: str | os.PathLike | list[str], database: str | os.Path
         [('person', 'entity', 1), ('books', 'record', 1), ('book_people', 'bridge', 1), ('name_map', 'names', 5)]
     """
     paths = path_list(paths)
-    settings = settings_of(options, join_options)
-    delimiter = check_values(encoding_name=encoding, delimiter_char=delimiter, limits=limits, chunk_rows=chunk_rows,
-                             settings=settings)
+    settings = settings_of(options, join_options, limits)
+    delimiter = check_values(encoding_name=encoding, delimiter_char=delimiter, limits=settings.limits,
+                             chunk_rows=chunk_rows, settings=settings)
     progress = Phases.of(progress, paths)
     kind, database = destination(database)
     postgresql = kind == "postgresql"
@@ -188,7 +188,7 @@ def build_database(paths: str | os.PathLike | list[str], database: str | os.Path
                 [("--db", sqlite_db), ("the lock file of --db", sqlite_db and lock_path(sqlite_db)),
                  ("--manifest", manifest_path), ("--report", report_path), ("--dictionary", dictionary_path)],
                 [("--parquet", parquet_dir)])
-    kwargs = dict(settings=settings, limits=limits, formats=formats, encoding=encoding, delimiter=delimiter,
+    kwargs = dict(settings=settings, formats=formats, encoding=encoding, delimiter=delimiter,
                   replace=replace, manifest_path=manifest_path, picks=picks,
                   parquet_dir=parquet_dir, plan_path=plan_path, schema=schema, chunk_rows=chunk_rows,
                   progress=progress, report_path=report_path, dictionary_path=dictionary_path, append=append,
@@ -209,13 +209,13 @@ def build_database(paths: str | os.PathLike | list[str], database: str | os.Path
     return built
 
 
-def _build(paths: list[str], database: str, *, settings, limits, formats, encoding, delimiter, replace,
+def _build(paths: list[str], database: str, *, settings, formats, encoding, delimiter, replace,
            manifest_path, picks, parquet_dir, plan_path, schema, chunk_rows, progress,
            report_path, dictionary_path, append, allow_lossy, wait, staged, header=True,
            share_schema=False) -> dict:
     """``build_database`` once its paths are checked and its destination locked; outputs go to ``staged``."""
     postgresql = is_postgresql(database)
-    plan, inputs = _open(paths, settings=settings, limits=limits, formats=formats, encoding=encoding,
+    plan, inputs = _open(paths, settings=settings, formats=formats, encoding=encoding,
                          delimiter=delimiter, picks=picks, plan_path=plan_path, header=header, chunk_rows=chunk_rows,
                          streamed=True, phases=progress)
     inputs.sample = None  # the model is made: its records need not stay in memory

@@ -9,13 +9,13 @@ from __future__ import annotations
 import os
 
 from .decode import DecodedColumn, decode
-from .decode.literal import Limits
 from .infer import (REFERENCE_MIN_SHARE, REFERENCE_MIN_VALUES, detect_natural_key, identity_candidates, is_reference,
                     objects_of, reference_evidence, reference_texts, scalar_column_type, scalar_type)
 from .infer.profile import profile_values
 from .model.errors import speaks_to_callers
 from .model.export import Export
 from .model.kinds import Format
+from .model.settings import Limits
 from .option_values import check_values
 from .read import read
 

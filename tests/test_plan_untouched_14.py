@@ -19,8 +19,8 @@ import dataclasses
 import pytest
 
 from normalise import pipeline
-from normalise.pipeline import build_database, make_plan
 from normalise.model.settings import Settings
+from normalise.pipeline import build_database, make_plan, prepare
 from tests.test_report_from_plan_14 import _countries_csv, _zone_tsv
 
 
@@ -69,3 +69,16 @@ def test_settings_cannot_be_changed():
         settings.duplicates = "last"
     with pytest.raises(TypeError):
         settings.natural_keys["people"] = "other"
+
+
+def test_the_plan_holds_the_limits_it_was_made_with(tmp_path):
+    """Limits are a setting of the run like the others: given as ``limits=`` or inside ``Settings``, the plan says
+    which bounded its cells, and a cell beyond them is quarantined (RFC 8259 section 9 lets a parser limit depth)."""
+    from normalise import Limits, Settings
+
+    path = tmp_path / "t.csv"
+    path.write_text('id,tree\n1,"[[[1]]]"\n2,"[1]"\n', encoding="utf-8")
+    assert prepare([str(path)], limits=Limits(max_depth=2)).plan.settings.limits == Limits(max_depth=2)
+    assert prepare([str(path)]).plan.settings.limits == Limits()
+    built = build_database([str(path)], str(tmp_path / "t.db"), options=Settings(limits=Limits(max_depth=2)))
+    assert built["cells_quarantined"] == 1

@@ -13,26 +13,17 @@ from __future__ import annotations
 import ast
 import json
 import re
-from dataclasses import dataclass
 from itertools import accumulate
 
 from ..model.errors import NormaliseError
 from ..model.escapes import SURROGATE
+from ..model.settings import Limits
 
 # CPython's tokenizer refuses more than 200 nested brackets ("too many nested
 # parentheses"); json.loads recurses in C and hits RecursionError near 1,000.
 # The tool's own limit is checked first, so neither parser is ever pushed there.
 PYTHON_PARSER_MAX_DEPTH = 200
-DEFAULT_MAX_DEPTH = 100
-DEFAULT_MAX_CELL_CHARS = 16 * 1024 * 1024
 
-
-@dataclass(frozen=True)
-class Limits:
-    """Bounds on one cell; a cell beyond them is quarantined with a message."""
-
-    max_depth: int = DEFAULT_MAX_DEPTH
-    max_cell_chars: int = DEFAULT_MAX_CELL_CHARS
 
 
 class CellError(NormaliseError):

@@ -1,7 +1,7 @@
 """Every choice a run is made with, in one immutable object: what the user decided and what the inference may not.
 
 A run's ``Settings`` are made once, before anything is read: from the command line or the Python API
-(``settings_of``: ``Options`` and ``JoinOptions`` folded together, each field once), or from a plan file
+(``settings_of``: ``Options``, ``JoinOptions`` and ``Limits`` folded together, each field once), or from a plan file
 (``planfile.settings_from_doc``). Every pass reads them (the join, the inference, the sharing pass) and none
 writes them; a pass that finds something new (the sharing pass, ``sharing.widened``) makes new settings with
 ``dataclasses.replace``. The plan holds the settings it was made with (``Plan.settings``), so a plan says every
@@ -21,7 +21,7 @@ Example:
 
 from __future__ import annotations
 
-from dataclasses import dataclass, fields, replace
+from dataclasses import asdict, dataclass, fields, replace
 from typing import Mapping
 
 from .errors import UsageError
@@ -30,6 +30,9 @@ DEFAULT_VIOLATION_THRESHOLD = 0.05  # the share of records that may break a depe
 DUPLICATES = ("first", "last", "refuse")
 HOWS = ("left", "inner", "full")
 CARDINALITIES = ("one-to-one", "one-to-many")
+
+DEFAULT_MAX_DEPTH = 100
+DEFAULT_MAX_CELL_CHARS = 16 * 1024 * 1024
 
 _FROZEN_MAPPINGS = ("natural_keys", "identities", "match", "keyed", "on")
 
@@ -51,6 +54,14 @@ class ReadOnly(dict):
 
 
 @dataclass(frozen=True)
+class Limits:
+    """Bounds on one cell; a cell beyond them is quarantined with a message."""
+
+    max_depth: int = DEFAULT_MAX_DEPTH
+    max_cell_chars: int = DEFAULT_MAX_CELL_CHARS
+
+
+@dataclass(frozen=True)
 class Settings:
     """What a user can decide instead of the inference, and how further exports are joined."""
 
@@ -66,6 +77,7 @@ class Settings:
     cardinality: str = "one-to-one"  # one-to-one | one-to-many: rows of a joined file per main record
     on: Mapping[str, tuple[str, str | None]] = None  # joined file stem -> (its key column, main column or None)
     separate: bool = False  # never join: every file its own record table
+    limits: Limits = None  # bounds on one cell (depth, characters); beyond them a cell is quarantined
 
     def __post_init__(self):
         for name in _FROZEN_MAPPINGS:
@@ -73,6 +85,7 @@ class Settings:
             object.__setattr__(self, name, value if isinstance(value, ReadOnly) else ReadOnly(value))
         object.__setattr__(self, "merge", tuple(tuple(group) for group in self.merge or ()))
         object.__setattr__(self, "no_merge", tuple(self.no_merge or ()))
+        object.__setattr__(self, "limits", self.limits or Limits())
 
     def to_dict(self) -> dict:
         """The settings as plain data (dicts and lists), for a manifest or a saved plan."""
@@ -81,6 +94,8 @@ class Settings:
             value = getattr(self, f.name)
             if isinstance(value, Mapping):
                 value = {k: list(v) if isinstance(v, tuple) else v for k, v in value.items()}
+            elif isinstance(value, Limits):
+                value = asdict(value)
             elif isinstance(value, tuple):
                 value = [list(v) if isinstance(v, tuple) else v for v in value]
             out[f.name] = value
@@ -113,8 +128,9 @@ class JoinOptions:
     duplicates: str = "first"
 
 
-def settings_of(options: Options | Settings | None = None, join_options: JoinOptions | None = None) -> Settings:
-    """The one ``Settings`` of a run given the API's ``Options`` and ``JoinOptions`` (either may be absent).
+def settings_of(options: Options | Settings | None = None, join_options: JoinOptions | None = None,
+                limits: Limits | None = None) -> Settings:
+    """The one ``Settings`` of a run given the API's ``Options``, ``JoinOptions`` and ``Limits`` (any may be absent).
 
     Duplicates are one policy, of records and of joined rows alike: the one that is not the default wins, and two
     different ones are refused.
@@ -124,11 +140,12 @@ def settings_of(options: Options | Settings | None = None, join_options: JoinOpt
         'last'
     """
     if isinstance(options, Settings):
-        base = options
+        base = options if limits is None else replace(options, limits=limits)
     else:
         o = options or Options()
         base = Settings(natural_keys=o.natural_keys, duplicates=o.duplicates, violation_threshold=o.violation_threshold,
-                        identities=o.identities, merge=o.merge, match=o.match, no_merge=o.no_merge, keyed=o.keyed)
+                        identities=o.identities, merge=o.merge, match=o.match, no_merge=o.no_merge, keyed=o.keyed,
+                        limits=limits)
     if join_options is None:
         return base
     duplicates = {base.duplicates, join_options.duplicates} - {"first"} or {"first"}
