@@ -92,7 +92,11 @@ def _box(table: dict) -> Box:
 
 
 def schema_graph(model: dict) -> nx.DiGraph:
-    """Tables (nodes) and foreign keys (edges from the referencing table to the referenced one)."""
+    """Tables (nodes) and foreign keys (edges from the referencing table to the referenced one).
+
+    The graph of the report's model, not of a plan (``check.table_graph``): ``normalise report DB`` draws a
+    database that comes with no plan, read back from its catalog; a build's model is its plan's
+    (``catalog.planned``), so both graphs then have the same nodes and edges."""
     graph = nx.DiGraph()
     for t in model["tables"]:
         graph.add_node(t["name"], role=t["role"])
