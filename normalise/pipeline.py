@@ -27,7 +27,7 @@ from .infer.sharing import widened
 from .join import Joined
 from .model.errors import NotClean, speaks_to_callers
 from .model.names import quote_name
-from .model.plan import Plan
+from .model.plan import Plan, seal
 from .model.schema import POSTGRESQL_MAX_COLUMNS
 from .model.settings import JoinOptions, Limits, Options, Settings, settings_of
 from .model.views import add_pick
@@ -71,7 +71,7 @@ def _open(paths: list[str], *, settings: Settings, formats: dict | None, encodin
         plan.widened = inputs.late + found  # columns whose values start late (partition.py), then sharing
     for spec in picks or ():
         add_pick(plan, spec)
-    return plan, inputs
+    return seal(plan), inputs  # made: every later pass reads it and none can set a field of it
 
 
 class Prepared(NamedTuple):

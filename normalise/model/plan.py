@@ -8,7 +8,7 @@ lists, so a plan can be printed, compared, saved and replayed.
 
 from __future__ import annotations
 
-from dataclasses import asdict, dataclass, field
+from dataclasses import asdict, dataclass, field, fields
 from typing import ClassVar, NamedTuple
 
 from .kinds import Kind, Role, Type
@@ -65,7 +65,48 @@ ROLES = tuple(Role)
 assert set(ROLES) == {Role.RECORD, Role.RECORD_PART, Role.ENTITY, Role.BRIDGE, Role.CHILD} | META_ROLES
 
 
-class _Named:
+class Sealable:
+    """A part of a plan that can be sealed (``seal``): once the plan is made, setting a field raises, so no pass
+    after planning can change a decision under the ones that follow it. (Lists inside stay lists: that no pass
+    changes them either is what ``tests/test_plan_untouched_14.py`` checks.)"""
+
+    def __setattr__(self, name, value):
+        if self.__dict__.get("_sealed"):
+            raise AttributeError(f"the plan is made: {type(self).__name__}.{name} cannot be set now (every pass after "
+                                 "planning reads the plan; a new decision makes a new plan)")
+        super().__setattr__(name, value)
+
+
+def seal(plan: Plan) -> Plan:
+    """``plan`` with every part of it sealed (``Sealable``); returned for chaining.
+
+    Example:
+        >>> p = seal(Plan(tables=[Table("t", "record", [Column("t_sk", "integer")], ["t_sk"])]))
+        >>> p.tables[0].columns[0].type = "text"
+        Traceback (most recent call last):
+        ...
+        AttributeError: the plan is made: Column.type cannot be set now (every pass after planning reads the plan; a new decision makes a new plan)
+    """
+    seen = set()
+
+    def walk(value):
+        if isinstance(value, (list, tuple)):
+            for v in value:
+                walk(v)
+        elif isinstance(value, dict):
+            for v in value.values():
+                walk(v)
+        elif isinstance(value, Sealable) and id(value) not in seen:
+            seen.add(id(value))
+            for f in fields(value):
+                walk(getattr(value, f.name))
+            value.__dict__["_sealed"] = True
+
+    walk(plan)
+    return plan
+
+
+class _Named(Sealable):
     """A dataclass whose fields named in ``_names`` hold members of an enum (``kinds``): text given is converted
     as it is set, at construction or later, so an unknown name fails where it is set."""
 
@@ -89,7 +130,7 @@ class Column(_Named):
 
 
 @dataclass
-class ForeignKey:
+class ForeignKey(Sealable):
     columns: list[str]
     references: str
     ref_columns: list[str]
@@ -176,7 +217,7 @@ class NestedColumn(_Named):
 
 
 @dataclass
-class RecordSource:
+class RecordSource(Sealable):
     """One input file and its record table."""
 
     file: str
@@ -192,7 +233,7 @@ class RecordSource:
 
 
 @dataclass
-class Plan:
+class Plan(Sealable):
     records: list[RecordSource] = field(default_factory=list)
     entities: list[EntityGroup] = field(default_factory=list)
     tables: list[Table] = field(default_factory=list)

@@ -17,14 +17,14 @@ from dataclasses import dataclass, field
 
 from .kinds import Role, ViewKind
 from .names import fit, free_name, quote_name as _q, singular
-from .plan import TEXT_TYPES, Plan, Table
+from .plan import TEXT_TYPES, Plan, Sealable, Table
 
 LIST_SEPARATOR = "; "
 _DISPLAY_NAMES = ("name", "display_name", "full_name", "title", "label", "login", "username")
 
 
 @dataclass
-class Pick:
+class Pick(Sealable):
     """The first entity of a list whose link attribute equals a value, as one column."""
 
     name: str
@@ -34,7 +34,7 @@ class Pick:
 
 
 @dataclass
-class View:
+class View(Sealable):
     name: str
     kind: str  # record_summary | entity_summary
     table: str
@@ -219,7 +219,7 @@ def _ordered_join(dialect: str, text: str, order: str, source: str, separator: s
 
 
 @dataclass
-class ViewColumn:
+class ViewColumn(Sealable):
     """One column of a view: its name, its SELECT expression, and the plan type of its values."""
 
     name: str
