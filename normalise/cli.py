@@ -173,7 +173,7 @@ def _settings(args):
                     violation_threshold=args.threshold, identities=_pairs(args.identity, "--identity"),
                     merge=[m.split(",") for m in args.merge], no_merge=args.no_merge,
                     match=_pairs(args.match, "--match"), how=args.how, cardinality=args.cardinality, on=on,
-                    separate=args.separate)
+                    separate=args.separate, limits=_limits(args))
 
 
 def _join_arguments(p) -> None:
@@ -190,7 +190,7 @@ def _join_arguments(p) -> None:
 def _run_build(args, settings, progress):
     from .pipeline import build_database
 
-    return build_database(args.files, args.db, options=settings, limits=_limits(args),
+    return build_database(args.files, args.db, options=settings,
                             formats=_formats(args), encoding=args.encoding, delimiter=_delimiter(args),
                             replace=args.replace, manifest_path=args.manifest, picks=args.pick,
                             parquet_dir=args.parquet, plan_path=args.plan, chunk_rows=args.chunk_rows or None,
@@ -203,7 +203,7 @@ def _run_build(args, settings, progress):
 def cmd_plan(args) -> int:
     from .pipeline import make_plan
 
-    text = make_plan(args.files, args.output, options=_settings(args), limits=_limits(args), formats=_formats(args),
+    text = make_plan(args.files, args.output, options=_settings(args), formats=_formats(args),
                      encoding=args.encoding, delimiter=_delimiter(args), picks=args.pick, plan_path=args.plan,
                      header=not args.no_header)
     if not args.output:

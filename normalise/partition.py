@@ -28,7 +28,7 @@ from pathlib import Path
 
 from .decode import decisions, decode, first_value, late_decision
 from .join import Joined, join
-from .model.settings import Limits, Settings
+from .model.settings import Settings
 from .options_check import check_option_names
 from .progress import QUIET
 from .read import iter_chunks, read
@@ -59,7 +59,7 @@ class Inputs:
             yield from split(export, decoded, size)
 
 
-def open_inputs(paths: list[str], *, sample: int, limits: Limits = Limits(), formats: dict | None = None,
+def open_inputs(paths: list[str], *, sample: int, formats: dict | None = None,
                 encoding: str | None = None, delimiter: str | None = None, header: bool = True,
                 settings: Settings = Settings(), named: Settings | None = None, chunk_rows: int | None = None,
                 streamed: bool = True, phases=QUIET) -> Inputs:
@@ -70,6 +70,7 @@ def open_inputs(paths: list[str], *, sample: int, limits: Limits = Limits(), for
     are checked against the inputs (default ``settings``; a plan file's own are checked with their lines).
     """
     named = settings if named is None else named
+    limits = settings.limits  # the cell bounds are settings of the run like the others
     if streamed and len(paths) == 1 and Path(paths[0]).suffix.lower() not in JSON_LINES:
         return _Streamed(paths[0], sample=sample, limits=limits, formats=formats, encoding=encoding,
                          delimiter=delimiter, header=header, settings=settings,

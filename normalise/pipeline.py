@@ -56,7 +56,7 @@ def _open(paths: list[str], *, settings: Settings, formats: dict | None, encodin
     if plan_path:  # the plan's own settings (its join, natural keys, duplicates) decide, as they do for the build
         doc, text = read_plan(plan_path)
         settings = settings_from_doc(doc, settings)
-    inputs = open_inputs(paths, sample=SAMPLE_ROWS, limits=settings.limits, formats=formats, encoding=encoding,
+    inputs = open_inputs(paths, sample=SAMPLE_ROWS, formats=formats, encoding=encoding,
                          delimiter=delimiter, header=header, settings=settings, named=named, chunk_rows=chunk_rows,
                          streamed=streamed, phases=phases)
     with phases.phase("planning"):

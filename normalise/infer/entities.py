@@ -11,8 +11,8 @@ from dataclasses import dataclass
 import networkx as nx
 
 from ..model.names import Namer, singular, sql_name
+from ..model.settings import Settings
 from .dependencies import ObjectTable, entity_attributes
-from .options import Options
 from .shapes import field_map, scalar_fields
 from .types import value_type
 
@@ -114,7 +114,7 @@ class Member:
     tentative: bool = False  # single objects whose identities never repeat: an entity only if shared
 
 
-def group_entities(plan, members: list, options: Options, tables: Namer) -> None:
+def group_entities(plan, members: list, options: Settings, tables: Namer) -> None:
     """Put the members (entity lists and references) of one identity space into one entity table.
 
     Two members share a table when they have the same identity field and agree on the entities they

@@ -8,8 +8,9 @@ from collections import Counter
 from itertools import chain
 
 from ..model.names import Namer, singular, sql_name
+from ..model.settings import Settings
 from .dependencies import ObjectTable
-from .options import WIDE_OBJECT_KEYS, Options
+from .options import WIDE_OBJECT_KEYS
 
 # A key that reads as a code: short, no spaces (ISO 4217 "EUR", ISO 639-3 "deu", a year "2018", "1F3FB")
 _CODE_KEY = re.compile(r"[A-Za-z0-9][A-Za-z0-9_.+-]{0,11}")
@@ -65,7 +66,7 @@ def keyed_shape(objects: list[dict]) -> str:
 def keyed_fields(objects: list[dict], name: str, forced: str | None = None) -> tuple[str, str]:
     """The fields an object keyed by data is read into: (its keys' field, a scalar value's field), or ("", "").
 
-    ``forced`` (from ``Options.keyed``) names the keys' field whatever the evidence; "" says not keyed.
+    ``forced`` (from ``Settings.keyed``) names the keys' field whatever the evidence; "" says not keyed.
 
     Example:
         >>> keyed_fields([{"deu": "German"}, {"fra": "French"}], "languages", forced="code")
@@ -84,7 +85,7 @@ def keyed_fields(objects: list[dict], name: str, forced: str | None = None) -> t
     return key, ("value" if shape == "scalars" else "")
 
 
-def keyed_column(nested, values: list, options: Options, file: str) -> list:
+def keyed_column(nested, values: list, options: Settings, file: str) -> list:
     """A column of objects keyed by data as lists of objects (``nested.keyed`` says so); else its values."""
     from ..model.exact import keyed_items
 

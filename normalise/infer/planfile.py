@@ -97,7 +97,7 @@ def plan_from_doc(doc: dict, text: str, exports: list, decoded: dict, settings: 
     from .shapes import objects_of, scalar_fields, type_at
 
     settings = settings or settings_from_doc(doc)
-    plan = Plan(violation_threshold=settings.violation_threshold, settings=settings)
+    plan = Plan(settings=settings)
     by_name: dict[str, list] = {}  # file stem -> its inputs, in order: a/titles.csv and b/titles.csv share one
     for e in exports:
         by_name.setdefault(e.name, []).append(e)

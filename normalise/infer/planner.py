@@ -29,7 +29,7 @@ def infer_plan(exports: list, decoded: dict, settings: Settings | Options | None
     ``decoded`` maps each export's path to its ``{column: DecodedColumn}``.
     """
     settings = settings_of(settings)
-    plan = Plan(violation_threshold=settings.violation_threshold, settings=settings)
+    plan = Plan(settings=settings)
     tables = Namer(META_TABLES)
     found = Found(settings)  # where entities are: lists of them and single objects with an identity
 

@@ -8,7 +8,7 @@ lists, so a plan can be printed, compared, saved and replayed.
 
 from __future__ import annotations
 
-from dataclasses import asdict, dataclass, field, fields
+from dataclasses import dataclass, field, fields
 from typing import ClassVar, NamedTuple
 
 from .kinds import Kind, Role, Type
@@ -238,7 +238,6 @@ class Plan(Sealable):
     entities: list[EntityGroup] = field(default_factory=list)
     tables: list[Table] = field(default_factory=list)
     views: list = field(default_factory=list)  # views.View
-    violation_threshold: float = 0.05
     # entity tables the sample kept apart and every record showed to be one (sharing.widened): what the run
     # reports; not part of a saved plan, whose entity members already say it
     widened: list = field(default_factory=list)
@@ -256,5 +255,7 @@ class Plan(Sealable):
                 return g
         raise KeyError(table)
 
-    def to_dict(self) -> dict:
-        return asdict(self)
+    @property
+    def violation_threshold(self) -> float:
+        """The share of records that may break a dependency or a key and still keep it (``Settings``)."""
+        return self.settings.violation_threshold

@@ -21,7 +21,7 @@ Example:
 
 from __future__ import annotations
 
-from dataclasses import asdict, dataclass, fields, replace
+from dataclasses import dataclass, replace
 from typing import Mapping
 
 from .errors import UsageError
@@ -86,20 +86,6 @@ class Settings:
         object.__setattr__(self, "merge", tuple(tuple(group) for group in self.merge or ()))
         object.__setattr__(self, "no_merge", tuple(self.no_merge or ()))
         object.__setattr__(self, "limits", self.limits or Limits())
-
-    def to_dict(self) -> dict:
-        """The settings as plain data (dicts and lists), for a manifest or a saved plan."""
-        out = {}
-        for f in fields(self):
-            value = getattr(self, f.name)
-            if isinstance(value, Mapping):
-                value = {k: list(v) if isinstance(v, tuple) else v for k, v in value.items()}
-            elif isinstance(value, Limits):
-                value = asdict(value)
-            elif isinstance(value, tuple):
-                value = [list(v) if isinstance(v, tuple) else v for v in value]
-            out[f.name] = value
-        return out
 
 
 @dataclass
