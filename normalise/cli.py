@@ -196,7 +196,7 @@ def _run_build(args, settings, progress):
                             parquet_dir=args.parquet, plan_path=args.plan, chunk_rows=args.chunk_rows or None,
                             progress=progress, schema=args.schema,
                             append=args.append, report_path=args.report, dictionary_path=args.dictionary,
-                            allow_lossy=args.allow_lossy, wait=args.wait, header=not args.no_header,
+                            allow_lossy=args.allow_lossy, verify=args.verify, wait=args.wait, header=not args.no_header,
                             share_schema=args.share_schema)
 
 
@@ -292,6 +292,10 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--wait", type=float, default=0.0, metavar="SECONDS",
                    help="when another run is writing the same database, wait up to this long for it "
                         "(default 0: refuse at once, exit 3)")
+    p.add_argument("--verify", choices=["quick", "full"], default="quick",
+                   help="SQLite's own check of the file it wrote, beside PRAGMA foreign_key_check and the lossless "
+                        "proof: quick (PRAGMA quick_check, the default) or full (PRAGMA integrity_check, which also "
+                        "checks every index against its table; slower on big files)")
     p.add_argument("--allow-lossy", action="store_true",
                    help="keep the database even when a value rebuilt from it differs from the export "
                         "(the manifest, the summary and the report say so)")

@@ -38,8 +38,8 @@ from .progress import QUIET, Phases
 from .prove import LossDetected, loss_message, prove, sqlite_fetch
 from .report.manifest import manifest
 from .result import Built
-from .write import (DEFAULT_SCHEMA, SqliteWriter, destination, display_url, is_postgresql, postgresql_run_lock,
-                    write_parquet, write_postgresql)
+from .write import (BTREE_CHECKS, DEFAULT_SCHEMA, SqliteWriter, destination, display_url, is_postgresql,
+                    postgresql_run_lock, write_parquet, write_postgresql)
 
 # The model is inferred from the first SAMPLE_ROWS records of each export, in
 # memory and in chunks alike, so the database never depends on the chunk size.
@@ -138,7 +138,7 @@ def build_database(paths: str | os.PathLike | list[str], database: str | os.Path
                    schema: str | None = None, chunk_rows: int | None = None, progress=None,
                    report_path: str | None = None, dictionary_path: str | None = None,
                    append: bool = False, allow_lossy: bool = False, wait: float = 0.0, header: bool = True,
-                   share_schema: bool = False, strict: bool = False) -> Built:
+                   share_schema: bool = False, strict: bool = False, verify: str = "quick") -> Built:
     """Run every pass on the exports and write a SQLite database; returns the manifest as a ``Built``
     (a dict, its fields also attributes, with ``frame(name)`` giving any table or view as a DataFrame).
 
@@ -148,6 +148,8 @@ def build_database(paths: str | os.PathLike | list[str], database: str | os.Path
 
     Before a SQLite database is moved into place every loaded cell is rebuilt from its tables and
     compared with the input (``prove.py``); a difference raises ``LossDetected`` unless ``allow_lossy``.
+    SQLite's own check of the file beside ``PRAGMA foreign_key_check`` is ``quick_check`` by default and
+    ``integrity_check`` with ``verify="full"`` (``write.sqlite.BTREE_CHECKS`` says what each covers).
 
     No output may be an input or another output (``outputs.check_paths``, before anything runs). The run
     holds its destination's lock throughout (``outputs.destination_lock``: a second run on the same
@@ -180,6 +182,14 @@ def build_database(paths: str | os.PathLike | list[str], database: str | os.Path
         from .model.errors import UsageError
         raise UsageError("--append adds to an existing SQLite database; it goes with neither --replace nor a "
                          "PostgreSQL --db")
+    if verify not in BTREE_CHECKS:
+        from .model.errors import UsageError
+        raise UsageError(f"--verify {verify!r}: expected one of {', '.join(BTREE_CHECKS)} (quick: PRAGMA "
+                         "quick_check, the default; full: PRAGMA integrity_check)")
+    if verify == "full" and postgresql:
+        from .model.errors import UsageError
+        raise UsageError("--verify full runs SQLite's PRAGMA integrity_check; a PostgreSQL --db has no such check "
+                         "(the server checks every key and constraint as the rows go in)")
     if not isinstance(wait, (int, float)) or not 0 <= wait < float("inf"):
         from .model.errors import UsageError
         raise UsageError(f"--wait {wait!r}: expected a number of seconds, 0 or more")
@@ -192,7 +202,7 @@ def build_database(paths: str | os.PathLike | list[str], database: str | os.Path
                   replace=replace, manifest_path=manifest_path, picks=picks,
                   parquet_dir=parquet_dir, plan_path=plan_path, schema=schema, chunk_rows=chunk_rows,
                   progress=progress, report_path=report_path, dictionary_path=dictionary_path, append=append,
-                  allow_lossy=allow_lossy, wait=wait, header=header, share_schema=share_schema)
+                  allow_lossy=allow_lossy, wait=wait, header=header, share_schema=share_schema, verify=verify)
     if postgresql:  # a session lock of the schema for the whole run, as the lock file beside a SQLite database
         with postgresql_run_lock(database, schema or DEFAULT_SCHEMA, wait), staged_outputs() as staged:
             result = _build(paths, database, staged=staged, **kwargs)
@@ -211,7 +221,7 @@ def build_database(paths: str | os.PathLike | list[str], database: str | os.Path
 
 def _build(paths: list[str], database: str, *, settings, formats, encoding, delimiter, replace,
            manifest_path, picks, parquet_dir, plan_path, schema, chunk_rows, progress,
-           report_path, dictionary_path, append, allow_lossy, wait, staged, header=True,
+           report_path, dictionary_path, append, allow_lossy, wait, staged, header=True, verify="quick",
            share_schema=False) -> dict:
     """``build_database`` once its paths are checked and its destination locked; outputs go to ``staged``."""
     postgresql = is_postgresql(database)
@@ -250,7 +260,7 @@ def _build(paths: list[str], database: str, *, settings, formats, encoding, deli
     if postgresql:
         return _into_postgresql(run, database, staged, outputs, schema=schema or DEFAULT_SCHEMA, replace=replace,
                                 wait=wait, share_schema=share_schema)
-    return _into_sqlite(run, database, staged, outputs, replace=replace, append=append)
+    return _into_sqlite(run, database, staged, outputs, replace=replace, append=append, verify=verify)
 
 
 @dataclass
@@ -309,10 +319,11 @@ def _into_postgresql(run: _Run, database: str, staged, outputs: dict, *, schema:
                         postgresql={"types": integrity["sql_types"], "views": integrity["view_sql"]})
 
 
-def _into_sqlite(run: _Run, database: str, staged, outputs: dict, *, replace: bool, append: bool) -> dict:
+def _into_sqlite(run: _Run, database: str, staged, outputs: dict, *, replace: bool, append: bool,
+                 verify: str = "quick") -> dict:
     """Rows written partition by partition into a temporary file, checked and proved before it is moved."""
     plan, progress = run.plan, run.progress
-    writer = SqliteWriter(plan, run.order, database, replace, append=append)
+    writer = SqliteWriter(plan, run.order, database, replace, append=append, verify_level=verify)
     try:
         built = run.build(_Written(writer, plan, append))
     except BaseException:

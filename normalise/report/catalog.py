@@ -73,7 +73,9 @@ def read_database(database, manifest: dict | None = None, *, manifest_origin: st
         model["database"] = str(shown_as or database)
         model["manifest"] = manifest
         model["manifest_origin"] = origin
-        model["integrity"] = _integrity(conn)
+        # the b-tree check the build ran (--verify: quick_check by default), the full one for a database alone
+        model["integrity"] = _integrity(conn, ((manifest or {}).get("integrity") or {}).get("btree_check")
+                                        or "integrity_check")
         model["destination"] = "postgresql" if postgresql is not None else "sqlite"
         if postgresql is not None:
             types, views = postgresql.get("types", {}), postgresql.get("views", {})
@@ -252,11 +254,15 @@ def _infer_roles(tables: list[dict]) -> None:
             t["position_column"] = "list_position"
 
 
-def _integrity(conn: sqlite3.Connection) -> dict:
+def _integrity(conn: sqlite3.Connection, btree_check: str = "integrity_check") -> dict:
+    """SQLite's own checks of the file: ``foreign_key_check`` and ``btree_check`` (``quick_check`` or
+    ``integrity_check``, as ``write.sqlite.BTREE_CHECKS`` names them); its outcome is kept as ``integrity_check``."""
+    if btree_check not in ("quick_check", "integrity_check"):  # a manifest's text, never run as given
+        btree_check = "integrity_check"
     violations = conn.execute("PRAGMA foreign_key_check").fetchall()
-    check = [r[0] for r in conn.execute("PRAGMA integrity_check")]
+    check = [r[0] for r in conn.execute(f"PRAGMA {btree_check}")]
     return {"foreign_key_violations": len(violations), "violations": violations[:HEAD_ROWS],
-            "integrity_check": "ok" if check == ["ok"] else "; ".join(map(clean, check))}
+            "integrity_check": "ok" if check == ["ok"] else "; ".join(map(clean, check)), "btree_check": btree_check}
 
 
 # --- the numbers shown, each from one query ---------------------------------------------------------

@@ -82,7 +82,7 @@ def _tiles(model: dict) -> str:
         (f"{len(model['tables']):,}", "tables", False),
         (f"{sum(t['rows'] for t in model['tables'] if t['role'] not in META_ROLES):,}", "rows in data tables", False),
         (f"{integ['foreign_key_violations']:,}", "foreign-key violations", integ["foreign_key_violations"] > 0),
-        (esc(integ["integrity_check"], 40), "integrity_check", integ["integrity_check"] not in ("ok", NOT_APPLICABLE)),
+        (esc(integ["integrity_check"], 40), integ.get("btree_check", "integrity_check"), integ["integrity_check"] not in ("ok", NOT_APPLICABLE)),
         ({True: "yes", False: "NO", None: "unknown"}[reconciled], "rows and elements reconciled", reconciled is False),
         _proof_tile(model),
         (f"{meta.get('quarantine', {}).get('total', 0):,}", "quarantined cells", False),
@@ -270,7 +270,7 @@ def _integrity_section(model: dict) -> str:
              f'<td class="{"ok" if not integ["foreign_key_violations"] else "bad"}">'
              f'{number(integ["foreign_key_violations"])} violations</td>',
              cell(f"{m['foreign_key_violations']} violations" if "foreign_key_violations" in m else DASH)],
-            [f"<td>{code('PRAGMA integrity_check')}</td>",
+            [f"<td>{code('PRAGMA ' + integ.get('btree_check', 'integrity_check'))}</td>",
              f'<td class="{"ok" if integ["integrity_check"] in ("ok", NOT_APPLICABLE) else "bad"}">'
              f'{esc(integ["integrity_check"], 300)}</td>',
              cell(m.get("integrity_check", DASH))],

@@ -55,6 +55,8 @@ def manifest(plan: Plan, built: Built, database: str, integrity: dict, joined=No
                       "attributes": [f.column for f in g.attributes]} for g in plan.entities],
         "integrity": {"foreign_key_violations": integrity["foreign_key_violations"],
                       "integrity_check": integrity.get("integrity_check"),
+                      # which PRAGMA gave integrity_check's outcome: quick_check (default) or integrity_check
+                      "btree_check": integrity.get("btree_check"),
                       "reconciled": reconciled, **_proof(integrity)},
     }
 
@@ -120,7 +122,8 @@ def summary(m: dict) -> str:
         out.append(f"  {where}: {n:,} delimited values kept whole with their name suffix (\"Dole, Jr.\" is one value)")
     integ = m["integrity"]
     out.append(f"  integrity: {integ['foreign_key_violations']} foreign-key violations, "
-               f"integrity_check {integ['integrity_check']}, reconciled: {'yes' if integ['reconciled'] else 'NO'}")
+               f"{integ.get('btree_check') or 'integrity_check'} {integ['integrity_check']}, "
+               f"reconciled: {'yes' if integ['reconciled'] else 'NO'}")
     if "cells_checked" in integ:
         out.append(f"  lossless proof: {integ['cells_rebuilt_exactly']:,} of {integ['cells_checked']:,} cells rebuilt "
                    f"exactly from the database"

@@ -13,9 +13,9 @@ from .destinations import (ACCEPTED_DESTINATIONS, DestinationError, DestinationE
 from .parquet import ARROW_TYPES, arrow_field, write_parquet
 from .postgresql import (DEFAULT_SCHEMA, PG_MAX_IDENTIFIER, PG_REGISTER, UnstorableValue, column_notes, native_forms,
                          postgresql_run_lock, proof_queries, server_message, write_postgresql)
-from .sqlite import SqliteWriter, sqlite_engine, write_sqlite
+from .sqlite import BTREE_CHECKS, SqliteWriter, sqlite_engine, write_sqlite
 
-__all__ = ["ACCEPTED_DESTINATIONS", "ARROW_TYPES", "DEFAULT_SCHEMA", "DestinationError", "DestinationExists",
+__all__ = ["ACCEPTED_DESTINATIONS", "ARROW_TYPES", "BTREE_CHECKS", "DEFAULT_SCHEMA", "DestinationError", "DestinationExists",
            "DestinationFailed", "DestinationLocked", "PG_MAX_IDENTIFIER", "PG_REGISTER", "SqliteWriter",
            "TYPES", "UnstorableValue", "arrow_field", "column_notes", "destination", "display_url",
            "is_postgresql", "metadata_for", "native_forms", "postgresql_run_lock", "postgresql_url",
