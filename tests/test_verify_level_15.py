@@ -60,7 +60,7 @@ def test_the_command_takes_verify_and_says_which_check_ran(tmp_path):
 
 
 def test_a_wrong_level_is_refused_before_anything_is_written(tmp_path):
-    with pytest.raises(UsageError, match="--verify 'thorough'"):
+    with pytest.raises(UsageError, match="verify 'thorough': expected one of quick, full"):
         build_database(_zone_tsv(tmp_path), tmp_path / "x.db", verify="thorough")
     with pytest.raises(UsageError, match="PostgreSQL"):
         build_database(_zone_tsv(tmp_path), "postgresql+psycopg://u@127.0.0.1:1/none", verify="full")
