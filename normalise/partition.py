@@ -62,28 +62,31 @@ class Inputs:
 def open_inputs(paths: list[str], *, sample: int, formats: dict | None = None,
                 encoding: str | None = None, delimiter: str | None = None, header: bool = True,
                 settings: Settings = Settings(), named: Settings | None = None, chunk_rows: int | None = None,
-                streamed: bool = True, phases=QUIET) -> Inputs:
+                streamed: bool = True, phases=QUIET, also: dict | None = None) -> Inputs:
     """Read and decode the inputs (and join them), and check the options' names on their first records.
 
     One CSV or TSV file is read ``chunk_rows`` records at a time unless ``streamed`` is false; anything else,
     or with ``streamed`` false, is read whole. ``named``: the settings whose names of files, columns and fields
     are checked against the inputs (default ``settings``; a plan file's own are checked with their lines).
+    ``also`` (input path -> line numbers): records past the first ones that join the sample all the same, those
+    a build found the plan made without them could not hold (``pipeline``, "widening").
     """
+    also = {path: set(lines) for path, lines in (also or {}).items() if lines}
     named = settings if named is None else named
     limits = settings.limits  # the cell bounds are settings of the run like the others
     if streamed and len(paths) == 1 and Path(paths[0]).suffix.lower() not in JSON_LINES:
         return _Streamed(paths[0], sample=sample, limits=limits, formats=formats, encoding=encoding,
                          delimiter=delimiter, header=header, settings=settings,
-                         named=named, chunk_rows=chunk_rows, phases=phases).inputs
+                         named=named, chunk_rows=chunk_rows, phases=phases, also=also.get(paths[0], set())).inputs
     return _Whole(paths, sample=sample, limits=limits, formats=formats, encoding=encoding, delimiter=delimiter,
-                  header=header, settings=settings, named=named, phases=phases).inputs
+                  header=header, settings=settings, named=named, phases=phases, also=also).inputs
 
 
 class _Whole:
     """Inputs read whole, decoded and joined in memory (several files, JSON Lines)."""
 
     def __init__(self, paths, *, sample, limits, formats, encoding, delimiter, header, settings, named,
-                 phases=QUIET):
+                 phases=QUIET, also=None):
         exports = []
         with phases.phase("reading", total=len(paths), unit="files") as step:
             for p in paths:
@@ -98,8 +101,10 @@ class _Whole:
         late = []
         for i, export in enumerate(self.joined.exports):
             windows = late_windows(export, sample)
-            if windows:  # the records from each such column's first value join the sample
-                rows = window_rows(windows, sample, export.number_of_records)
+            wanted = (also or {}).get(export.path)
+            extra = [r for r, line in enumerate(export.lines) if r >= sample and line in wanted] if wanted else []
+            if windows or extra:  # the records from each such column's first value join the sample, and ``also``
+                rows = sorted(set(window_rows(windows, sample, export.number_of_records)) | set(extra))
                 whole = self.joined.decoded[export.path]
                 exports[i] = concat([exports[i], _take(export, rows)])
                 decoded[export.path] = {c: replace(col, values=col.values[:sample] + [whole[c].values[r] for r in rows])
@@ -119,7 +124,7 @@ class _Streamed:
     is read and decoded a chunk at a time; reading it again (``columns``) reads the file again."""
 
     def __init__(self, path, *, sample, limits, formats, encoding, delimiter, header, settings, named,
-                 chunk_rows, phases=QUIET):
+                 chunk_rows, phases=QUIET, also=frozenset()):
         self.path, self.limits, self.formats, self.chunk_rows = path, limits, formats, chunk_rows
         self.reading = dict(encoding=encoding, delimiter=delimiter, header=header)
         self.phases = phases
@@ -153,6 +158,13 @@ class _Streamed:
             decoded = {path: {c: replace(col, values=col.values + later_decoded[c].values)
                               for c, col in decoded[path].items()}}
             found = _late(later, later_decoded, windows, sample)
+        wanted = set(also) - set(exports[0].lines)
+        taken = self._lines(wanted) if wanted else None
+        if taken is not None:  # records a build found the plan could not hold join the sample (``also``)
+            taken_decoded = decode(taken, limits, formats, decided=self.decided)
+            exports = [concat([exports[0], taken])]
+            decoded = {path: {c: replace(col, values=col.values + taken_decoded[c].values)
+                              for c, col in decoded[path].items()}}
         check_option_names(exports, decoded, named, formats)  # a --join too: there is no other file
         self.pending = (start, start_decoded, chunks)
         self.inputs = Inputs((exports, decoded), Joined([], {}), self.blocks, found)
@@ -189,6 +201,19 @@ class _Streamed:
             return {}, None
         at = {r: k for k, r in enumerate(index)}
         return {c: (at[a], min(b, offset) - a) for c, (a, b) in spans.items()}, concat(pieces)
+
+    def _lines(self, wanted: set):
+        """The file's records at the line numbers ``wanted``, read again from the file, in file order."""
+        pieces, last = [], max(wanted)
+        with self.phases.phase("widening", unit="records") as step:
+            for chunk in iter_chunks(self.path, self.chunk_rows, **self.reading):
+                keep = [i for i, line in enumerate(chunk.lines) if line in wanted]
+                if keep:
+                    pieces.append(_take(chunk, keep))
+                step.update(chunk.number_of_records)
+                if chunk.lines and chunk.lines[-1] >= last:
+                    break
+        return concat(pieces) if pieces else None
 
     def blocks(self, columns=None):
         if columns is None and self.pending is not None:  # the first reading, taken up where the sample stopped

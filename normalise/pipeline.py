@@ -9,6 +9,7 @@ partition size gives the same database.
 
 from __future__ import annotations
 
+import dataclasses
 import json
 import os
 import tempfile
@@ -25,7 +26,7 @@ from .infer.planfile import plan_from_doc, read_plan, settings_from_doc
 from .infer.plantext import plan_to_toml
 from .infer.sharing import widened
 from .join import Joined
-from .model.errors import NotClean, speaks_to_callers
+from .model.errors import NormaliseError, NotClean, speaks_to_callers
 from .model.names import quote_name
 from .model.plan import Plan, seal
 from .model.schema import POSTGRESQL_MAX_COLUMNS
@@ -48,9 +49,26 @@ SAMPLE_ROWS = 5000
 
 def _open(paths: list[str], *, settings: Settings, formats: dict | None, encoding: str | None,
           delimiter: str | None, picks: list[str] | None, plan_path: str | None,
-          header: bool, chunk_rows: int | None = None, streamed: bool = False, phases=QUIET):
+          header: bool, chunk_rows: int | None = None, streamed: bool = False, phases=QUIET,
+          contradicted: list | None = None):
     """The inputs (``partition.Inputs``) and the plan made from their first records, or read from ``plan_path``
-    and checked against them."""
+    and checked against them.
+
+    ``contradicted``: what an earlier build of the same inputs found that the plan made from their first records
+    could not hold (``build.counts.Audit.contradictions``); the records that show it join the sample, and the
+    plan says so (``Plan.widened``).
+    """
+    also, links, texts = {}, set(settings.link_fields), {}
+    for c in contradicted or ():
+        if "dependency" in c:  # the identity does not determine the field: it stays on the link
+            links.update((m, c["field"]) for m in c["members"])
+        elif "text" in c:  # a text its column's type cannot hold: the type is decided with it
+            texts.setdefault((c["file"], c["column"]), []).append(c["text"])
+        else:  # a key the objects did not have: its record joins the sample
+            also.setdefault(c["file"], set()).add(c["line"])
+    if contradicted:
+        settings = dataclasses.replace(settings, link_fields=tuple(sorted(links)), column_texts=tuple(
+            (*where, tuple(found)) for where, found in sorted(texts.items())))
     doc = text = None
     named = settings  # what the options name is checked against the inputs; a plan file's own names, by planfile
     if plan_path:  # the plan's own settings (its join, natural keys, duplicates) decide, as they do for the build
@@ -58,7 +76,7 @@ def _open(paths: list[str], *, settings: Settings, formats: dict | None, encodin
         settings = settings_from_doc(doc, settings)
     inputs = open_inputs(paths, sample=SAMPLE_ROWS, formats=formats, encoding=encoding,
                          delimiter=delimiter, header=header, settings=settings, named=named, chunk_rows=chunk_rows,
-                         streamed=streamed, phases=phases)
+                         streamed=streamed, phases=phases, also=also)
     with phases.phase("planning"):
         plan = (plan_from_doc(doc, text, *inputs.sample, settings) if doc is not None
                 else infer_plan(*inputs.sample, settings))
@@ -68,7 +86,10 @@ def _open(paths: list[str], *, settings: Settings, formats: dict | None, encodin
         wider, found = widened(plan, settings, inputs.sample, read_again)
         if found:
             plan = infer_plan(*inputs.sample, wider)
-        plan.widened = inputs.late + found  # columns whose values start late (partition.py), then sharing
+        # columns whose values start late (partition.py), sharing, then what later records contradicted
+        plan.widened = inputs.late + found + [
+            {"contradicted": "dependency" if "dependency" in c else "key" if "key" in c else "type", **c}
+            for c in contradicted or ()]
     for spec in picks or ():
         add_pick(plan, spec)
     return seal(plan), inputs  # made: every later pass reads it and none can set a field of it
@@ -96,11 +117,43 @@ def prepare(paths: list[str], *, options: Options | None = None, limits: Limits 
     settings = settings_of(options, join_options, limits)
     delimiter = check_values(encoding_name=encoding, delimiter_char=delimiter, limits=settings.limits,
                              settings=settings)
-    plan, inputs = _open(paths, settings=settings, formats=formats, encoding=encoding,
-                         delimiter=delimiter, picks=picks, plan_path=plan_path,
-                         header=header)
-    joined = inputs.joined
+    contradicted: list[dict] = []
+    while True:  # the plan a build would use: widened as a build widens it (``_build``), here in memory
+        plan, inputs = _open(paths, settings=settings, formats=formats, encoding=encoding,
+                             delimiter=delimiter, picks=picks, plan_path=plan_path,
+                             header=header, contradicted=contradicted)
+        joined = inputs.joined
+        rounds = len({c["round"] for c in contradicted})
+        if plan_path is not None or rounds >= MAX_WIDENINGS:
+            break
+        try:
+            check_plan(plan)
+        except NormaliseError:  # refused as the build refuses it, when it is built
+            break
+        extra = {"set_aside_rows": joined.set_aside, "unmatched_rows": joined.unmatched}
+        built = build_partitions(plan, lambda columns=None: inputs.partitions(None, columns), InMemory(plan), extra)
+        found = _new_contradictions(built.contradictions, _lines_of(inputs.sample), contradicted)
+        if not found:
+            break
+        contradicted = contradicted + [{**c, "round": rounds + 1} for c in found]
     return Prepared(plan, joined.exports, joined.decoded, joined)
+
+
+def _lines_of(sample) -> dict[str, set]:
+    """The line numbers of the records a plan was made from (``partition.Inputs.sample``), per input path."""
+    return {e.path: set(e.lines) for e in sample[0]}
+
+
+def _new_contradictions(found: list[dict], sampled: dict[str, set], known: list[dict]) -> list[dict]:
+    """Of what a build found the plan could not hold, what widening can mend and has not tried (``known``): a
+    field the identity does not determine, a text its column's type cannot hold, and a key in records whose lines
+    are not yet among those ``sampled``, the records the plan was made from."""
+    def what(c: dict) -> tuple:
+        return c["file"], c["column"], c.get("field"), c.get("text"), c.get("key")
+
+    tried = set(map(what, known))
+    return [c for c in found if what(c) not in tried
+            and ("dependency" in c or "text" in c or c["line"] not in sampled.get(c["file"], ()))]
 
 
 @speaks_to_callers
@@ -223,11 +276,54 @@ def _build(paths: list[str], database: str, *, settings, formats, encoding, deli
            manifest_path, picks, parquet_dir, plan_path, schema, chunk_rows, progress,
            report_path, dictionary_path, append, allow_lossy, wait, staged, header=True, verify="quick",
            share_schema=False) -> dict:
-    """``build_database`` once its paths are checked and its destination locked; outputs go to ``staged``."""
+    """``build_database`` once its paths are checked and its destination locked; outputs go to ``staged``.
+
+    Widening: the plan is made from the first records, and a later record may hold what it cannot (a key its
+    objects do not have, a value its column's type cannot hold). When the plan was inferred (not read from a
+    file, not appended to a database of its own), the build stops before anything is in place, those records
+    join the sample, the plan is made again and the build runs again (at most ``MAX_WIDENINGS`` times); the
+    manifest's ``widened`` says which records did it. Otherwise such values are kept as given in
+    ``value_traces``, with a quarantine row naming the first line.
+    """
+    contradicted: list[dict] = []
+    while True:
+        try:
+            return _build_once(paths, database, settings=settings, formats=formats, encoding=encoding,
+                               delimiter=delimiter, replace=replace, manifest_path=manifest_path, picks=picks,
+                               parquet_dir=parquet_dir, plan_path=plan_path, schema=schema, chunk_rows=chunk_rows,
+                               progress=progress, report_path=report_path, dictionary_path=dictionary_path,
+                               append=append, allow_lossy=allow_lossy, wait=wait, staged=staged, header=header,
+                               verify=verify, share_schema=share_schema, contradicted=contradicted,
+                               widen=plan_path is None and not append
+                               and len({c["round"] for c in contradicted}) < MAX_WIDENINGS)
+        except _Contradicted as c:
+            round_ = len({x["round"] for x in contradicted}) + 1
+            contradicted = contradicted + [{**x, "round": round_} for x in c.found]
+
+
+# builds made again when later records contradict the plan (``_build``); past them, such values are traced
+MAX_WIDENINGS = 3
+
+
+class _Contradicted(NormaliseError):
+    """A build found records past the sample that the plan cannot hold (``_Run.build``); ``found`` says which."""
+
+    def __init__(self, found: list[dict]):
+        super().__init__(f"{len(found)} records past the first ones contradict the plan")
+        self.found = found
+
+
+def _build_once(paths: list[str], database: str, *, settings, formats, encoding, delimiter, replace,
+                manifest_path, picks, parquet_dir, plan_path, schema, chunk_rows, progress,
+                report_path, dictionary_path, append, allow_lossy, wait, staged, header=True, verify="quick",
+                share_schema=False, contradicted=(), widen=False) -> dict:
+    """One build of ``_build``'s: raises ``_Contradicted`` (``widen``) when records past the sample contradict the
+    plan, before anything is in place."""
     postgresql = is_postgresql(database)
     plan, inputs = _open(paths, settings=settings, formats=formats, encoding=encoding,
                          delimiter=delimiter, picks=picks, plan_path=plan_path, header=header, chunk_rows=chunk_rows,
-                         streamed=True, phases=progress)
+                         streamed=True, phases=progress, contradicted=contradicted)
+    sampled = _lines_of(inputs.sample)
     inputs.sample = None  # the model is made: its records need not stay in memory
     order = check_plan(plan)
     # a table wider than the database allows is refused before anything is written (it would fail half-way)
@@ -254,7 +350,12 @@ def _build(paths: list[str], database: str, *, settings, formats, encoding, deli
             yield export, decoded
 
     extra = {"set_aside_rows": joined.set_aside, "unmatched_rows": joined.unmatched}
-    run = _Run(plan, order, inputs, partitions, extra, state, _locator(plan, partitions), allow_lossy, progress)
+    def widening(found: list[dict]) -> list[dict]:
+        """What a build found that records not yet in the sample show: the plan made with them may hold it."""
+        return _new_contradictions(found, sampled, contradicted) if widen else []
+
+    run = _Run(plan, order, inputs, partitions, extra, state, _locator(plan, partitions), allow_lossy, progress,
+               widening)
     outputs = dict(parquet_dir=parquet_dir, manifest_path=manifest_path, report_path=report_path,
                    dictionary_path=dictionary_path)
     if postgresql:
@@ -277,10 +378,15 @@ class _Run:
     locate: object  # where a loaded cell came from, for the proof's messages
     allow_lossy: bool
     progress: object  # progress.Phases
+    widening: object = lambda found: []  # (contradictions) -> those the plan is made again for (``_build``)
 
     def build(self, sink):
         with self.progress.building(self.inputs.records) as step:
-            return build_partitions(self.plan, self.partitions, sink, self.extra, self.state, step.to)
+            built = build_partitions(self.plan, self.partitions, sink, self.extra, self.state, step.to)
+        found = self.widening(built.contradictions)
+        if found:
+            raise _Contradicted(found)
+        return built
 
     def verify(self, built):
         """The lossless proof of what ``build`` gave, for the writer to run before the database is in place."""

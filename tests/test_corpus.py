@@ -350,6 +350,9 @@ def check_build(results: dict, expect: dict, work: Path, inputs: list[str]) -> N
             assert hits, f"expected quarantined {q}; got {[(l, c, m) for _, l, c, _, _, m in quarantined]}"
         if "quarantined_count" in expect:
             assert len(quarantined) == expect["quarantined_count"], quarantined
+        # records past the sample the plan was made again for (pipeline._build, "widening"): the manifest says so
+        said = [(w["line"], w["column"], w["contradicted"]) for w in manifest["widened"] if "contradicted" in w]
+        assert said == [(w["line"], w["column"], w["contradicted"]) for w in expect.get("widened", [])], said
         for q in expect.get("rejected", []):
             hits = [reason for _, line, reason, _ in rejected if line == q["line"] and q.get("reason", "") in reason]
             assert hits, f"expected rejected {q}; got {[(l, reason) for _, l, reason, _ in rejected]}"

@@ -42,6 +42,7 @@ def test_empty_lists_under_keys_left_out_of_the_model_are_not_quarantined(tmp_pa
     carries nothing, so it is not a lost value; a non-empty list later under such a key still is, and is
     reported from its own line."""
     monkeypatch.setattr(pipeline, "SAMPLE_ROWS", 3)  # the model sees only lines 1-3
+    monkeypatch.setattr(pipeline, "MAX_WIDENINGS", 0)  # the plan of lines 1-3 kept (widening: test_widening_17)
     records = []
     for line in range(1, 8):
         people = [{"id": 1, "name": "Ann", "notes": []}, {"id": 2, "name": "Bob", "notes": ()}]
@@ -59,6 +60,14 @@ def test_empty_lists_under_keys_left_out_of_the_model_are_not_quarantined(tmp_pa
     # the file's lines are its records' lines (one record a line, the first on line 1)
     assert [(line, column) for line, column, _, _ in rows] == [(6, "kids.tags"), (6, "people.notes")]
     assert all("appears in 1 object(s)" in message for _, _, _, message in rows)
+    # widened, line 6's record joins the sample: both keys are in the model and nothing is quarantined
+    monkeypatch.undo()
+    monkeypatch.setattr(pipeline, "SAMPLE_ROWS", 3)
+    m = build_database([str(path)], str(tmp_path / "widened.db"), chunk_rows=chunk_rows)
+    assert quarantined(tmp_path / "widened.db") == []
+    assert sorted((w["line"], w["column"], w["key"]) for w in m["widened"] if w.get("contradicted") == "key") == [
+        (6, "kids", "tags"), (6, "people", "notes")]
+    assert m["integrity"]["cells_rebuilt_exactly"] == m["integrity"]["cells_checked"]
 
 
 # --- 2. the entity summary's records_in_total ------------------------------------------------

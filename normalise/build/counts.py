@@ -4,6 +4,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass, field
 
+from ..infer.types import scalar_type
 from ..model.kinds import Kind
 from ..model.plan import NestedColumn
 
@@ -43,6 +44,8 @@ class Built:
     rejoined: dict = field(default_factory=dict)  # "file:column" -> values whose name suffix was rejoined
     column_updates: dict = field(default_factory=dict)  # (table, column) -> [(value, row sk)] to set at the end
     references: list = field(default_factory=list)  # per reference to a record table: values, matched, unmatched
+    # what later records held that the plan, made from the first ones, did not foresee (``Audit.contradictions``)
+    contradictions: list = field(default_factory=list)
 
 
 class Audit:
@@ -59,6 +62,10 @@ class Audit:
         self._known: dict[int, frozenset] = {}
         self.unplanned: dict[tuple, list] = {}  # (file, column, key) -> [first line, count]
         self.mismatched: dict[tuple, list] = {}  # (file, column, type) -> [first line, count, example]
+        # (file, column, type, the value's own kind) -> [first line, example]: one record per kind of value that
+        # does not fit, so a plan made again with those records in its sample holds them all (``contradictions``)
+        self.kinds: dict[tuple, list] = {}
+        self.dependencies: list[dict] = []  # entity attributes every record shows are not the identity's
 
     def known(self, nested: NestedColumn, entities: dict) -> frozenset:
         found = self._known.get(id(nested))
@@ -85,11 +92,49 @@ class Audit:
             entry[0] = min(entry[0], line)  # the first line in the file, whatever order the columns are read in
             entry[1] += 1
 
-    def note_type(self, path: str, column: str, type_: str, value, line: int) -> None:
+    def note_type(self, path: str, column: str, type_: str, value, line: int, widen: bool = False) -> None:
+        """A value the column's type cannot hold; ``widen``: a text among texts, which a plan made again with it
+        holds exactly (``note_kind``)."""
         entry = self.mismatched.setdefault((path, column, type_), [line, 0, value])
         if line < entry[0]:  # the first line in the file and its value, whatever order the columns are read in
             entry[0], entry[2] = line, value
         entry[1] += 1
+        if widen:
+            self.note_kind(path, column, type_, value, line)
+
+    def note_kind(self, path: str, column: str, type_: str, value: str, line: int) -> None:
+        """The first line of each kind of text (``infer.types.scalar_type``) a column of texts typed ``type_``
+        cannot hold: a plan made with those records in its sample gives the column a type that holds them all.
+
+        Only texts among texts: the type of a column of texts comes from their patterns (``scalar_type``) and
+        text holds every one exactly. Decoded values of several types (an integer and a text, a list among
+        scalars) have no such type: a plan made with them would trace every value, or hold the field in no
+        column at all, where tracing the few that do not fit loses nothing.
+        """
+        kind = scalar_type([value])
+        first = self.kinds.setdefault((path, column, type_, kind), [line, value])
+        if line < first[0]:
+            first[:] = [line, value]
+
+    def note_dependency(self, path: str, table: str, column: str, group, figures: list) -> None:
+        """An entity attribute the identity does not determine over every record (``Builder.finish``): ``figures``
+        is ``[occurrences of repeated identities, violations, whether presence varies, first line of a variant]``."""
+        occurrences, violations, varies, line = figures
+        self.dependencies.append({"file": path, "line": line, "column": f"{table}.{column}",
+                                  "dependency": f"{group.identity} -> {column}", "members": list(group.members),
+                                  "field": column, "occurrences": occurrences, "violations": violations,
+                                  "presence_varies": varies})
+
+    def contradictions(self) -> list[dict]:
+        """What later records held that the plan did not foresee, each with the first line that shows it: a key
+        the model does not hold, or a value its column's type cannot hold (one line per kind of value)."""
+        found = [{"file": path, "line": line, "column": column, "key": key}
+                 for (path, column, key), (line, _) in self.unplanned.items()]
+        found += [{"file": path, "line": line, "column": column, "type": str(type_), "value": repr(value)[:80],
+                   "text": value}
+                  for (path, column, type_, _), (line, value) in self.kinds.items()]
+        found += self.dependencies
+        return sorted(found, key=lambda c: (c["file"], c["line"], c["column"]))
 
     def report(self) -> None:
         for (path, column, key), (line, n) in self.unplanned.items():

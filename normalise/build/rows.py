@@ -276,11 +276,12 @@ class Builder:
         if f.type == "text" and set(map(type, vals)) <= {str, type(None)}:
             return vals  # text stays text: the common case, nothing to check
         out = []
+        texts = set(map(type, vals)) <= {str, type(None)}  # a CSV cell's text: a plan made again may widen it
         for v, i in zip(vals, kept):
             stored, exact = store(v, f.type, f.as_text)
             out.append(stored)
             if not exact:
-                self.audit.note_type(export.path, f.column, f.type, v, export.lines[i])
+                self.audit.note_type(export.path, f.column, f.type, v, export.lines[i], widen=texts and v is not None)
                 self.trace(record.table, record_keys[i], None, None, f.path[0], "", f"not {f.type} as given",
                            v, export.path, export.lines[i])
         return out
@@ -649,7 +650,12 @@ class Builder:
         updates, column_updates, references = self.record_references.finish(self.plan)
         for table, acc in self.entities.items():
             held = [{} for _ in acc.keys]  # per attribute: canonical -> key of the value the entity row gives back
+            # per attribute, over every record: [occurrences of repeated identities, violations, presence
+            # varies, first line of a second value] (infer.dependencies' measure, absence a value of its own)
+            measured = [[0, 0, False, None] for _ in acc.keys]
             for text, chosen_values, per_attribute in acc.choose():
+                for k, found in enumerate(per_attribute):
+                    _measure(measured[k], found)
                 first = acc.first[text]
                 sk, natural = first[0], first[1]
                 chosen = []
@@ -681,6 +687,11 @@ class Builder:
                 if row != first and text not in acc.preexisting:  # appended: existing rows stay as they are
                     updates.setdefault(table, []).append(row)
             self._trace_occurrences(table, acc, held, occurrences)
+            if not acc.group.matched and not self.state:
+                for (column, _, _), figures in zip(acc.keys, measured):
+                    occurrences_, violations, varies, _ = figures
+                    if occurrences_ and (varies or violations / occurrences_ > self.plan.violation_threshold):
+                        self.audit.note_dependency(self._entity_path(acc.group), table, column, acc.group, figures)
         self.meta["name_map"] = name_map(self.plan) if not self.state else []  # appended: the map is there
         self.meta["descriptions"] = descriptions(self.plan) if not self.state else []  # the data dictionary's text
         offsets = self.state["meta_offset"] if self.state else {}
@@ -693,7 +704,24 @@ class Builder:
         return Built(rows, counts, conflicts, merges=merges,
                      cells_quarantined_by_file=dict(self.quarantined_by_file), updates=updates,
                      inputs=self.inputs, trace_reasons=dict(self.trace_reasons),
-                     rejoined=dict(self.rejoined), column_updates=column_updates, references=references)
+                     rejoined=dict(self.rejoined), column_updates=column_updates, references=references,
+                     contradictions=self.audit.contradictions())
+
+
+def _measure(figures: list, found: list) -> None:
+    """Add one entity's variants of one attribute (``(value, count, first place)``, in file order) to
+    ``figures``: a repeated identity's occurrences, those that differ from its most frequent value, whether
+    some occurrences carry the field and others not, and the first line where a second value appears."""
+    total = sum(n for _, n, _ in found)
+    if total < 2:
+        return
+    figures[0] += total
+    figures[1] += total - max(n for _, n, _ in found)
+    if len(found) > 1:
+        absent = [v is ABSENT for v, _, _ in found]
+        figures[2] = figures[2] or any(absent) and not all(absent)
+        line = found[1][2][0]
+        figures[3] = line if figures[3] is None else min(figures[3], line)
 
 
 @dataclass

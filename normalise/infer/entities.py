@@ -171,7 +171,8 @@ def group_entities(plan, members: list, options: Settings, tables: Namer) -> Non
                                   if f != identity]
         else:
             attrs = entity_attributes(objects, identity, top, options.violation_threshold, objects_table)
-        group.attributes = [field_map(objects, [f], names(f), objects_table) for f in attrs]
+        links = {f for m, f in options.link_fields if m in group.members}  # every record said so (widening)
+        group.attributes = [field_map(objects, [f], names(f), objects_table) for f in attrs if f not in links]
         plan.entities.append(group)
         for m in chosen:
             members[m].holder.entity = table

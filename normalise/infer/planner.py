@@ -46,12 +46,15 @@ def infer_plan(exports: list, decoded: dict, settings: Settings | Options | None
             if col.format not in (Format.TEXT, Format.EMPTY):
                 shape = shape_of(col.values)
             if shape == "scalar":
-                t = scalar_column_type(col.values)
+                # texts later records hold that the first records' type could not (the build's widening)
+                later = [t for p, c, texts in settings.column_texts if (p, c) == (export.path, name) for t in texts]
+                values = col.values + later if later else col.values
+                t = scalar_column_type(values)
                 scalar_values[name] = col.values
                 scalar_types[name] = t
-                as_text = t in ("integer", "real") and any(type(v) is str for v in col.values)
+                as_text = t in ("integer", "real") and any(type(v) is str for v in values)
                 record.scalars.append(FieldMap([name], names(name), t, as_text=as_text,
-                                               scale=decimal_scale(col.values) if t == "decimal" else None))
+                                               scale=decimal_scale(values) if t == "decimal" else None))
                 continue
             origin = export.origin.get(name)
             nested = NestedColumn(file=Path(origin[0]).stem if origin else export.name, column=name,

@@ -193,6 +193,22 @@ def widened_sentence(w: dict) -> str:
         ...                   "identity": "person_id", "identities_in_common": 2, "compared": ["name"]})
         'c:authors and c:editors share 2 person_id values past the first records the model was made from, and agree on name: one entity table (person), not person and person_2'
     """
+    if "contradicted" in w:  # a record past the first ones that the plan made from them could not hold (pipeline)
+        where = f"line {w.get('line', 0):,} of {Path(str(w.get('file', ''))).name}"
+        if w["contradicted"] == "dependency":
+            occurrences, violations = w.get("occurrences", 0), w.get("violations", 0)
+            why = ("some occurrences of an identity carry the field and others do not"
+                   if w.get("presence_varies") else
+                   f"{violations:,} of {occurrences:,} occurrences of repeated identities disagree with the most "
+                   f"frequent value")
+            return (f"{w.get('column', '')}: over every record {w.get('dependency', '')} does not hold ({why}; a "
+                    f"second value first on {where}): the field is kept on each link, not on the entity; the plan "
+                    f"was made again")
+        if w["contradicted"] == "key":
+            return (f"{w.get('column', '')} carries key {w.get('key', '')!r} on {where}, which no object in the "
+                    f"first records had: the plan was made again with that record in its sample")
+        return (f"{w.get('column', '')} holds {w.get('value', '')} on {where}, which is not {w.get('type', '')}, "
+                f"the type the first records gave: the plan was made again with that record in its sample")
     if "column" in w:  # a column with no value in the first records (partition.py)
         return (f"{w['column']} has no value in the first {w.get('first_records', 0):,} records; its format "
                 f"({w.get('format', '')}) and its model come from the {w.get('records', 0):,} records from its first "

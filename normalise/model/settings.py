@@ -78,6 +78,12 @@ class Settings:
     on: Mapping[str, tuple[str, str | None]] = None  # joined file stem -> (its key column, main column or None)
     separate: bool = False  # never join: every file its own record table
     limits: Limits = None  # bounds on one cell (depth, characters); beyond them a cell is quarantined
+    # ("file:column", field) pairs every record showed the identity does not determine, though the first records
+    # did: kept on the link (bridge), not the entity table (set by the build's widening, ``pipeline._build``)
+    link_fields: tuple[tuple[str, str], ...] = ()
+    # (input path, column, texts) of columns of texts whose later records hold texts the first records' type cannot
+    # hold: the column's type is decided on its first records and these (set by the build's widening)
+    column_texts: tuple[tuple[str, str, tuple[str, ...]], ...] = ()
 
     def __post_init__(self):
         for name in _FROZEN_MAPPINGS:
@@ -85,6 +91,8 @@ class Settings:
             object.__setattr__(self, name, value if isinstance(value, ReadOnly) else ReadOnly(value))
         object.__setattr__(self, "merge", tuple(tuple(group) for group in self.merge or ()))
         object.__setattr__(self, "no_merge", tuple(self.no_merge or ()))
+        object.__setattr__(self, "link_fields", tuple(tuple(pair) for pair in self.link_fields or ()))
+        object.__setattr__(self, "column_texts", tuple((p, c, tuple(t)) for p, c, t in self.column_texts or ()))
         object.__setattr__(self, "limits", self.limits or Limits())
 
 
