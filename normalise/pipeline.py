@@ -299,6 +299,10 @@ def _build(paths: list[str], database: str, *, settings, formats, encoding, deli
         except _Contradicted as c:
             round_ = len({x["round"] for x in contradicted}) + 1
             contradicted = contradicted + [{**x, "round": round_} for x in c.found]
+            first = min(c.found, key=lambda x: (x["file"], x["line"]))
+            progress.say(f"widening: {len(c.found)} finding(s) past the first records contradict the plan (first: "
+                         f"{first['column']}, line {first['line']:,} of {os.path.basename(first['file'])}); the plan "
+                         f"is made again and the build runs again (round {round_} of at most {MAX_WIDENINGS})")
 
 
 # builds made again when later records contradict the plan (``_build``); past them, such values are traced

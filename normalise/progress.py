@@ -86,6 +86,11 @@ class Phases:
         finally:
             bar.close()
 
+    def say(self, text: str) -> None:
+        """One line between the phases' bars (a build made again, ``pipeline._build``), when shown at all."""
+        if self.enabled:
+            tqdm.write(text, file=self.stream)
+
     def building(self, records: int | None = None):
         """The building phase: over ``records`` when the inputs were read whole, else over the characters of
         the input file read (its share of the file)."""

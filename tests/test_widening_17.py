@@ -148,3 +148,13 @@ def test_the_plan_command_gives_the_plan_the_build_uses(tmp_path, monkeypatch):
         for name in tables:  # the same rows, in the same order
             assert a.execute(f'SELECT * FROM "{name}"').fetchall() == b.execute(f'SELECT * FROM "{name}"').fetchall()
     assert m["integrity"]["cells_rebuilt_exactly"] == m["integrity"]["cells_checked"]
+
+
+def test_the_command_says_it_widened_and_why(tmp_path, monkeypatch):
+    """The summary names each widening with its line; the manifest keeps it (what the report shows)."""
+    path = _countries_csv(tmp_path)
+    monkeypatch.setattr(pipeline, "SAMPLE_ROWS", 30)
+    from normalise.report.manifest import summary
+    m = build_database(path, tmp_path / "out.db")
+    text = summary(dict(m))
+    assert "area holds '0.49' on line 100 of countries.csv, which is not integer" in text

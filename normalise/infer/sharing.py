@@ -208,7 +208,7 @@ def widened_sentence(w: dict) -> str:
             return (f"{w.get('column', '')} carries key {w.get('key', '')!r} on {where}, which no object in the "
                     f"first records had: the plan was made again with that record in its sample")
         return (f"{w.get('column', '')} holds {w.get('value', '')} on {where}, which is not {w.get('type', '')}, "
-                f"the type the first records gave: the plan was made again with that record in its sample")
+                f"the type the first records gave: the column's type was decided again with that value")
     if "column" in w:  # a column with no value in the first records (partition.py)
         return (f"{w['column']} has no value in the first {w.get('first_records', 0):,} records; its format "
                 f"({w.get('format', '')}) and its model come from the {w.get('records', 0):,} records from its first "
