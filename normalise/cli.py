@@ -197,7 +197,7 @@ def _run_build(args, settings, progress):
                             progress=progress, schema=args.schema,
                             append=args.append, report_path=args.report, dictionary_path=args.dictionary,
                             allow_lossy=args.allow_lossy, verify=args.verify, wait=args.wait, header=not args.no_header,
-                            share_schema=args.share_schema)
+                            share_schema=args.share_schema, workers=args.workers, dask=args.dask)
 
 
 def cmd_plan(args) -> int:
@@ -288,6 +288,12 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--chunk-rows", type=as_argument(values.whole_number, "--chunk-rows", 0), default=5000,
                    metavar="N",
                    help="records read at a time when one CSV/TSV file is built (bounded memory; 0: all at once)")
+    p.add_argument("--workers", type=as_argument(values.whole_number, "--workers", 0), default=1, metavar="N",
+                   help="build the partitions (--chunk-rows records each) in N processes at once, merged in input "
+                        "order: the same database (default 1: this process; 0: one per core)")
+    p.add_argument("--dask", metavar="ADDRESS",
+                   help="build the partitions as tasks of a Dask cluster: a scheduler's address (tcp://host:8786) "
+                        "or local:N for N local worker processes (needs the dask extra)")
     p.add_argument("--quiet", action="store_true", help="print nothing but errors (no progress)")
     p.add_argument("--wait", type=float, default=0.0, metavar="SECONDS",
                    help="when another run is writing the same database, wait up to this long for it "

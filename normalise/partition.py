@@ -49,13 +49,16 @@ class Inputs:
     _blocks: object  # (columns) -> iterator of (export, decoded): every record, in order, in blocks
     late: list = field(default_factory=list)  # columns with no value in the first records (``_late``)
     records: int | None = None  # rows of every input when read whole (the building phase's total); else None
+    decoding: tuple | None = None  # (limits, formats, decisions): how a partition read but not decoded is decoded
 
-    def partitions(self, size: int | None, columns: set | None = None):
+    def partitions(self, size: int | None, columns: set | None = None, raw: bool = False):
         """Every record in partitions of at most ``size`` records, in order: ``(export, decoded)``.
 
-        ``columns``: decode only those (when the input is read again for them); default all.
+        ``columns``: decode only those (when the input is read again for them); default all. ``raw``: a
+        partition read in chunks may come undecoded (decoded None), for whoever builds it to decode
+        (``build.parallel``, with ``decoding``); one read whole comes decoded.
         """
-        for export, decoded in self._blocks(columns):
+        for export, decoded in self._blocks(columns, raw):
             yield from split(export, decoded, size)
 
 
@@ -114,7 +117,7 @@ class _Whole:
         self.inputs = Inputs((exports, decoded), self.joined, self.blocks, late,
                              sum(e.number_of_records + len(e.rejected) for e in self.joined.exports))
 
-    def blocks(self, columns=None):
+    def blocks(self, columns=None, raw=False):
         for export in self.joined.exports:
             yield export, self.joined.decoded[export.path]
 
@@ -167,7 +170,8 @@ class _Streamed:
                               for c, col in decoded[path].items()}}
         check_option_names(exports, decoded, named, formats)  # a --join too: there is no other file
         self.pending = (start, start_decoded, chunks)
-        self.inputs = Inputs((exports, decoded), Joined([], {}), self.blocks, found)
+        self.inputs = Inputs((exports, decoded), Joined([], {}), self.blocks, found,
+                             decoding=(limits, formats, self.decided))
         gc.collect()  # once, while the heap is small: format detection leaves exceptions (and the frames they hold)
 
     def _windows(self, start, empty: list[str], sample: int, ended: bool):
@@ -215,7 +219,7 @@ class _Streamed:
                     break
         return concat(pieces) if pieces else None
 
-    def blocks(self, columns=None):
+    def blocks(self, columns=None, raw=False):
         if columns is None and self.pending is not None:  # the first reading, taken up where the sample stopped
             start, start_decoded, chunks = self.pending
             self.pending = None
@@ -226,7 +230,7 @@ class _Streamed:
         for chunk in chunks:
             if columns is not None:
                 chunk = replace(chunk, columns=[c for c in chunk.columns if c in columns])
-            yield chunk, decode(chunk, self.limits, self.formats, decided=self.decided)
+            yield chunk, None if raw else decode(chunk, self.limits, self.formats, decided=self.decided)
 
 
 def split(export, decoded: dict, size: int | None):
@@ -268,6 +272,8 @@ def _partition(export, decoded: dict, a: int, b: int) -> tuple:
     inner = export.inner_unmatched
     if inner is not None:
         part.inner_unmatched = {i - a: why for i, why in inner.items() if a <= i < b}
+    if decoded is None:  # read, not yet decoded (``Inputs.partitions``' raw)
+        return part, None
     columns = {}
     for name, col in decoded.items():
         impure = col.impure if whole or col.impure is None else {i - a for i in col.impure if a <= i < b}

@@ -45,6 +45,8 @@ from .write import (BTREE_CHECKS, DEFAULT_SCHEMA, SqliteWriter, destination, dis
 # The model is inferred from the first SAMPLE_ROWS records of each export, in
 # memory and in chunks alike, so the database never depends on the chunk size.
 SAMPLE_ROWS = 5000
+# records per partition when partitions are built apart (--workers, --dask) and no chunk_rows is given
+PARTITION_ROWS = 5000
 
 
 def _open(paths: list[str], *, settings: Settings, formats: dict | None, encoding: str | None,
@@ -191,7 +193,8 @@ def build_database(paths: str | os.PathLike | list[str], database: str | os.Path
                    schema: str | None = None, chunk_rows: int | None = None, progress=None,
                    report_path: str | None = None, dictionary_path: str | None = None,
                    append: bool = False, allow_lossy: bool = False, wait: float = 0.0, header: bool = True,
-                   share_schema: bool = False, strict: bool = False, verify: str = "quick") -> Built:
+                   share_schema: bool = False, strict: bool = False, verify: str = "quick", workers: int = 1,
+                   dask: str | None = None) -> Built:
     """Run every pass on the exports and write a SQLite database; returns the manifest as a ``Built``
     (a dict, its fields also attributes, with ``frame(name)`` giving any table or view as a DataFrame).
 
@@ -211,6 +214,10 @@ def build_database(paths: str | os.PathLike | list[str], database: str | os.Path
 
     With ``strict``, a build that rejected a row or quarantined a cell raises ``errors.NotClean`` once
     everything is written (its ``result`` is the ``Built``).
+
+    ``workers``: partitions (``chunk_rows`` records each) built by that many processes at once, merged in
+    order (``build.reduce``); ``dask``: built as tasks of a Dask cluster instead (a scheduler's address, or
+    ``local:N``). Either gives the database one process gives.
 
     Example:
         >>> import tempfile, os
@@ -246,6 +253,9 @@ def build_database(paths: str | os.PathLike | list[str], database: str | os.Path
     if not isinstance(wait, (int, float)) or not 0 <= wait < float("inf"):
         from .model.errors import UsageError
         raise UsageError(f"--wait {wait!r}: expected a number of seconds, 0 or more")
+    runner = _runner(workers, dask, append)
+    if runner is not None and chunk_rows is None:  # partitions to share out: the command line's default size
+        chunk_rows = PARTITION_ROWS
     sqlite_db = None if postgresql else database
     check_paths([("input", p) for p in paths] + [("--plan", plan_path)],
                 [("--db", sqlite_db), ("the lock file of --db", sqlite_db and lock_path(sqlite_db)),
@@ -255,7 +265,8 @@ def build_database(paths: str | os.PathLike | list[str], database: str | os.Path
                   replace=replace, manifest_path=manifest_path, picks=picks,
                   parquet_dir=parquet_dir, plan_path=plan_path, schema=schema, chunk_rows=chunk_rows,
                   progress=progress, report_path=report_path, dictionary_path=dictionary_path, append=append,
-                  allow_lossy=allow_lossy, wait=wait, header=header, share_schema=share_schema, verify=verify)
+                  allow_lossy=allow_lossy, wait=wait, header=header, share_schema=share_schema, verify=verify,
+                  runner=runner)
     if postgresql:  # a session lock of the schema for the whole run, as the lock file beside a SQLite database
         with postgresql_run_lock(database, schema or DEFAULT_SCHEMA, wait), staged_outputs() as staged:
             result = _build(paths, database, staged=staged, **kwargs)
@@ -275,7 +286,7 @@ def build_database(paths: str | os.PathLike | list[str], database: str | os.Path
 def _build(paths: list[str], database: str, *, settings, formats, encoding, delimiter, replace,
            manifest_path, picks, parquet_dir, plan_path, schema, chunk_rows, progress,
            report_path, dictionary_path, append, allow_lossy, wait, staged, header=True, verify="quick",
-           share_schema=False) -> dict:
+           share_schema=False, runner=None) -> dict:
     """``build_database`` once its paths are checked and its destination locked; outputs go to ``staged``.
 
     Widening: the plan is made from the first records, and a later record may hold what it cannot (a key its
@@ -293,7 +304,7 @@ def _build(paths: list[str], database: str, *, settings, formats, encoding, deli
                                parquet_dir=parquet_dir, plan_path=plan_path, schema=schema, chunk_rows=chunk_rows,
                                progress=progress, report_path=report_path, dictionary_path=dictionary_path,
                                append=append, allow_lossy=allow_lossy, wait=wait, staged=staged, header=header,
-                               verify=verify, share_schema=share_schema, contradicted=contradicted,
+                               verify=verify, share_schema=share_schema, contradicted=contradicted, runner=runner,
                                widen=plan_path is None and not append
                                and len({c["round"] for c in contradicted}) < MAX_WIDENINGS)
         except _Contradicted as c:
@@ -303,6 +314,33 @@ def _build(paths: list[str], database: str, *, settings, formats, encoding, deli
             progress.say(f"widening: {len(c.found)} finding(s) past the first records contradict the plan (first: "
                          f"{first['column']}, line {first['line']:,} of {os.path.basename(first['file'])}); the plan "
                          f"is made again and the build runs again (round {round_} of at most {MAX_WIDENINGS})")
+
+
+def _runner(workers, dask: str | None, append: bool):
+    """Who builds the partitions: None (this process), a pool of ``workers`` processes, or a Dask cluster."""
+    from .model.errors import UsageError
+
+    if isinstance(workers, bool) or not isinstance(workers, int) or workers < 0:
+        raise UsageError(f"--workers {workers!r}: expected a whole number of processes (0: one per core)")
+    if dask is not None and (not isinstance(dask, str) or not (dask.startswith("local:") or "://" in dask)):
+        raise UsageError(f"--dask {dask!r}: expected a scheduler's address (tcp://host:8786) or local:N")
+    if dask is not None and dask.startswith("local:") and not dask[6:].isdigit():
+        raise UsageError(f"--dask {dask!r}: local:N takes a number of worker processes")
+    if append and (dask is not None or workers != 1):
+        raise UsageError("--append builds in one process (it reads the database's keys as it goes); leave out "
+                         "--workers and --dask")
+    from .build.parallel import DaskRunner, ProcessRunner
+
+    if dask is not None:
+        try:
+            import distributed
+            del distributed
+        except ImportError:
+            raise UsageError("--dask needs Dask's distributed scheduler: pip install 'normalise-exports[dask]'")
+        return DaskRunner(dask)
+    if workers == 1:
+        return None
+    return ProcessRunner(workers or None)
 
 
 # builds made again when later records contradict the plan (``_build``); past them, such values are traced
@@ -320,7 +358,7 @@ class _Contradicted(NormaliseError):
 def _build_once(paths: list[str], database: str, *, settings, formats, encoding, delimiter, replace,
                 manifest_path, picks, parquet_dir, plan_path, schema, chunk_rows, progress,
                 report_path, dictionary_path, append, allow_lossy, wait, staged, header=True, verify="quick",
-                share_schema=False, contradicted=(), widen=False) -> dict:
+                share_schema=False, contradicted=(), widen=False, runner=None) -> dict:
     """One build of ``_build``'s: raises ``_Contradicted`` (``widen``) when records past the sample contradict the
     plan, before anything is in place."""
     postgresql = is_postgresql(database)
@@ -345,9 +383,9 @@ def _build_once(paths: list[str], database: str, *, settings, formats, encoding,
         state = read_state(os.fspath(database), plan)
     joined = inputs.joined
 
-    def partitions(columns=None):
+    def partitions(columns=None, raw=False):
         """Every record in partitions of ``chunk_rows``; appended records keyed after those already there."""
-        for export, decoded in inputs.partitions(chunk_rows, columns):
+        for export, decoded in inputs.partitions(chunk_rows, columns, raw):
             if state:
                 from .build.append import offset_record_keys
                 offset_record_keys(plan, [export], state)
@@ -359,7 +397,7 @@ def _build_once(paths: list[str], database: str, *, settings, formats, encoding,
         return _new_contradictions(found, sampled, contradicted) if widen else []
 
     run = _Run(plan, order, inputs, partitions, extra, state, _locator(plan, partitions), allow_lossy, progress,
-               widening)
+               widening, runner)
     outputs = dict(parquet_dir=parquet_dir, manifest_path=manifest_path, report_path=report_path,
                    dictionary_path=dictionary_path)
     if postgresql:
@@ -383,10 +421,12 @@ class _Run:
     allow_lossy: bool
     progress: object  # progress.Phases
     widening: object = lambda found: []  # (contradictions) -> those the plan is made again for (``_build``)
+    runner: object = None  # build.parallel's ProcessRunner or DaskRunner; None: this process builds
 
     def build(self, sink):
         with self.progress.building(self.inputs.records) as step:
-            built = build_partitions(self.plan, self.partitions, sink, self.extra, self.state, step.to)
+            built = build_partitions(self.plan, self.partitions, sink, self.extra, self.state, step.to,
+                                     self.runner, self.inputs.decoding)
         found = self.widening(built.contradictions)
         if found:
             raise _Contradicted(found)

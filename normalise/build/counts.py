@@ -46,6 +46,9 @@ class Built:
     references: list = field(default_factory=list)  # per reference to a record table: values, matched, unmatched
     # what later records held that the plan, made from the first ones, did not foresee (``Audit.contradictions``)
     contradictions: list = field(default_factory=list)
+    # a partitioned build (``build_partitions``' runner): who built the partitions, how many were merged as built
+    # apart, how many were built again in order, and why (``reduce.conflict``); empty when one process built all
+    partitions: dict = field(default_factory=dict)
 
 
 class Audit:

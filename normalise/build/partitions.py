@@ -4,15 +4,19 @@ a writer, and the bookkeeping made from the plan (the name map, entity members, 
 
 from __future__ import annotations
 
+from collections import Counter
+
 from ..model.plan import Plan
 from .bookkeeping import occurrence_columns
 from .counts import Built
+from .parallel import decode_partition
+from .reduce import conflict, merge
 from .references import set_column
 from .rows import Builder
 
 
 def build_partitions(plan: Plan, partitions, rows, extra: dict | None = None, state: dict | None = None,
-                     progress=None) -> Built:
+                     progress=None, runner=None, decoding: tuple | None = None) -> Built:
     """Rows for every table of the plan, made a partition at a time and handed to ``rows`` as they are made.
 
     The one build path: the records come in partitions of any size (``partitions(columns)`` iterates every
@@ -22,6 +26,12 @@ def build_partitions(plan: Plan, partitions, rows, extra: dict | None = None, st
     (``complete``): ``InMemory`` holds them, ``pipeline`` writes them to SQLite as they come. ``extra`` holds
     rows made by earlier passes (the join's set-aside and unmatched rows); ``state`` what an existing database
     holds (``--append``); ``progress(records and rows rejected so far, characters read)``.
+
+    ``runner`` (``parallel.ProcessRunner``, ``parallel.DaskRunner``; not with ``state``): the partitions are
+    built apart, each by a ``Builder`` of its own, and merged here in input order (``reduce``); a partition
+    that cannot be merged (``reduce.conflict``) is built again here, so the rows are those of one
+    ``Builder``. ``partitions(None, raw=True)`` may then give partitions not yet decoded (decoded None),
+    which ``decoding`` decodes (``parallel.decode_partition``), where they are built.
     """
     builder = Builder(plan, extra, state)
     needed = builder.key_columns()
@@ -29,13 +39,28 @@ def build_partitions(plan: Plan, partitions, rows, extra: dict | None = None, st
         for export, columns in partitions(needed):
             builder.learn_last(export, columns)
     done = 0
-    for export, columns in partitions(None):
-        builder.add(export, columns)
-        rows.insert(builder.take_rows())
+    if runner is None:
+        made = ((export, columns, None) for export, columns in partitions(None))
+    else:
+        made = runner.map(plan, builder.last, partitions(None, raw=True), decoding)
+    apart, again = 0, Counter()  # partitions merged as built apart; built again here, and why
+    for export, columns, alone in made:
+        why = None if alone is None else conflict(builder, alone[1])
+        if alone is not None and why is None:
+            rows.insert(merge(builder, alone[1], alone[0]))
+            apart += 1
+        else:
+            if why:
+                again[why] += 1
+            builder.add(export, columns if columns is not None else decode_partition(export, decoding))
+            rows.insert(builder.take_rows())
         done += export.number_of_records + len(export.rejected)
         if progress:
             progress(done, export.chars_read)
     built = builder.finish(rows.occurrences)
+    if runner is not None:
+        built.partitions = {"built_by": runner.describe(), "merged": apart, "built_again": sum(again.values()),
+                            "why_again": dict(sorted(again.items()))}
     rows.complete(built)
     return built
 
@@ -74,7 +99,7 @@ def build(plan: Plan, exports: list, decoded: dict, extra: dict | None = None, s
 
     ``extra`` holds rows made by earlier passes (the join's set-aside and unmatched rows).
     """
-    def partitions(columns=None):
+    def partitions(columns=None, raw=False):
         for export in exports:
             yield export, decoded[export.path]
 

@@ -89,7 +89,7 @@ CALLER_NAMES = {
     "--db": "database", "--replace": "replace=True", "--append": "append=True", "--manifest": "manifest_path",
     "--plan": "plan_path", "--pick": "picks", "--report": "report_path", "--dictionary": "dictionary_path",
     "--parquet": "parquet_dir", "--schema": "schema", "--share-schema": "share_schema=True", "--wait": "wait",
-    "--allow-lossy": "allow_lossy=True", "--verify": "verify", "--chunk-rows": "chunk_rows",
+    "--allow-lossy": "allow_lossy=True", "--verify": "verify", "--workers": "workers", "--dask": "dask", "--chunk-rows": "chunk_rows",
     "--no-header": "header=False",
     "--encoding": "encoding", "--delimiter": "delimiter", "--decode": "formats", "--strict": "strict=True",
     "--quiet": "progress=False", "--max-depth": "limits.max_depth", "--max-cell-chars": "limits.max_cell_chars",

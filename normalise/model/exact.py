@@ -17,7 +17,20 @@ import math
 INT64_MIN = -(1 << 63)  # what SQLite's INTEGER and PostgreSQL's BIGINT hold
 INT64_MAX = (1 << 63) - 1
 
-ABSENT = object()  # a key an object does not have (None is a value: null)
+class _Absent:
+    """The type of ``ABSENT``: one instance, which stays itself when pickled (a partition built in another
+    process hands its values back; ``build.parallel``)."""
+
+    __slots__ = ()
+
+    def __reduce__(self):
+        return "ABSENT"  # pickled by name: unpickling gives this module's ABSENT
+
+    def __repr__(self):
+        return "ABSENT"
+
+
+ABSENT = _Absent()  # a key an object does not have (None is a value: null)
 
 
 def value_key(value):

@@ -30,6 +30,7 @@ def manifest(plan: Plan, built: Built, database: str, integrity: dict, joined=No
     for i in joined_inputs:
         reconciled &= i["rows_read"] == (i["records_loaded"] + i["rows_set_aside"] + i["rows_rejected"]
                                          + i["rows_unmatched"])
+    partitioned = {"partitions": dict(built.partitions)} if built.partitions else {}
     return {
         "manifest_version": MANIFEST_VERSION,
         "database": mask_password(database),
@@ -58,6 +59,7 @@ def manifest(plan: Plan, built: Built, database: str, integrity: dict, joined=No
                       # which PRAGMA gave integrity_check's outcome: quick_check (default) or integrity_check
                       "btree_check": integrity.get("btree_check"),
                       "reconciled": reconciled, **_proof(integrity)},
+        **partitioned,  # a partitioned build (--workers, --dask): who built the partitions, merged how
     }
 
 
@@ -118,6 +120,11 @@ def summary(m: dict) -> str:
                    f"values name a record" + (f"; {r['unmatched']:,} name none ({r['distinct_unmatched']:,} distinct, "
                                               f"kept with a NULL key)" if r["unmatched"] else ""))
     out.append(f"  conflicts: {m['conflicts']} (all variants in attribute_variants)")
+    p = m.get("partitions")
+    if p:
+        again = "; ".join(f"{n} {why}" for why, n in p["why_again"].items())
+        out.append(f"  partitions: {p['merged'] + p['built_again']:,} built by {p['built_by']}, {p['merged']:,} merged "
+                   f"as built, {p['built_again']:,} built again in order" + (f" ({again})" if again else ""))
     for where, n in m.get("values_rejoined", {}).items():
         out.append(f"  {where}: {n:,} delimited values kept whole with their name suffix (\"Dole, Jr.\" is one value)")
     integ = m["integrity"]
