@@ -158,8 +158,24 @@ def row_objects(fields, start: int, entities: dict | None = None):
     keys = [f.path[0] for f in fields]
     plain = all(len(f.path) == 1 and (f.type in TEXT_TYPES or
                                       f.type in ("integer", "real") and not f.as_text) for f in fields)
-    if not plain:
+    if not plain and any(len(f.path) != 1 for f in fields):
         return lambda r: object_back(fields, r[start:])
+    if not plain:  # one key per field, some read back through their type (booleans, numbers kept as text, ...)
+        read_back = [(f.path[0], f.type, f.as_text) for f in fields
+                     if not (f.type in TEXT_TYPES or f.type in ("integer", "real") and not f.as_text)]
+        absent = [f.path[0] for f in fields if f.null_means == "absent"]
+
+        def make(r):
+            obj = dict(zip(keys, r[start:]))
+            for k, type_, as_text in read_back:
+                v = obj[k]
+                if v is not None:
+                    obj[k] = stored_back(v, type_, as_text)
+            for k in absent:
+                if obj[k] is None:
+                    del obj[k]
+            return obj
+        return make
     if all(f.null_means == "null" for f in fields):
         return lambda r: dict(zip(keys, r[start:]))
     if all(f.null_means == "absent" for f in fields):

@@ -548,7 +548,8 @@ class Builder:
                     keep(k, f.path, ABSENT, "an absent key where the column's NULL means null")
             col = [None if v is ABSENT else v for v in col]
             if not (set(map(type, col)) <= STORED_AS_IS[f.type] and (f.type != "integer" or fits_int64(col))
-                    and not f.as_text and not (f.type == "real" and 0.0 in col)):
+                    and not f.as_text and not (f.type == "real" and 0.0 in col
+                                               and any(map(is_negative_zero, [v for v in col if v == 0.0])))):
                 converted = []
                 for k, (v, i) in enumerate(zip(col, rows_of)):
                     stored, exact = store(v, f.type, f.as_text)
