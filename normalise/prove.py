@@ -36,16 +36,18 @@ def table_query(table: str) -> str:
     return f"SELECT * FROM {_q(table)}"
 
 
-def rebuild_cells(plan, fetch, impure: set | None = None, only: set | None = None
+def rebuild_cells(plan, fetch, impure: set | None = None, only: set | None = None, traces: dict | None = None
                   ) -> dict[tuple[str, str], dict[int, object]]:
     """Every non-empty cell of the loaded records, rebuilt from the database: (table, column) -> {sk: value}.
 
     ``fetch(sql)`` runs a query on the written database and returns its rows. ``impure``, when given,
     receives the (table, column) and (table, column, sk) whose values came partly from ``value_traces``
     (only those may hold what JSON has not). ``only``, when given, is the (table, column) to rebuild.
+    ``traces``: the value traces and the entity and value objects already read (``read_traces``), when
+    the cells are rebuilt a range of records at a time.
     """
-    traces = _traces(fetch, {r.table for r in plan.records})
-    traces["entities"] = {}  # entity table -> {key: its object}, read once
+    if traces is None:
+        traces = read_traces(plan, fetch)
     traced_tables = {t for t, _ in traces["elements"]}
     impure = set() if impure is None else impure
     out: dict[tuple[str, str], dict[int, object]] = {}
@@ -120,6 +122,14 @@ def _tables_of(nested) -> set:
     for child in nested.children:
         found |= _tables_of(child)
     return found
+
+
+def read_traces(plan, fetch) -> dict:
+    """What every part of a rebuild reads once: the value traces, and room for the entity and value objects."""
+    traces = _traces(fetch, {r.table for r in plan.records})
+    traces["entities"] = {}  # entity table -> {key: its object}, read once
+    traces["values"] = {}  # value table -> {key: its value}, read once
+    return traces
 
 
 def _traces(fetch, record_tables: set) -> dict:
@@ -206,8 +216,10 @@ def _owned(plan, nested, fetch, traces) -> dict[int, object]:
     rows.sort(key=itemgetter(1, names.index("list_position")))
     if nested.kind == Kind.VALUE_LIST:
         vt = getattr(nested, "value_type", "text")
-        values = {sk: stored_back(v, vt, False)  # a third column, when there, names the record (references)
-                  for sk, v, *_ in fetch(table_query(nested.entity))}
+        values = traces["values"].get(nested.entity)
+        if values is None:
+            values = traces["values"][nested.entity] = {  # a third column, when there, names the record (references)
+                sk: stored_back(v, vt, False) for sk, v, *_ in fetch(table_query(nested.entity))}
         made = [(r[1], values[r[2]]) for r in rows]
     else:
         make = row_objects(nested.row_fields, 4 if nested.kind == Kind.ENTITY_LIST else 3, entities)
@@ -268,21 +280,74 @@ def _rebuilt(plan, fetch, key, records: dict, impure: set | None = None) -> dict
     return cells
 
 
-def _sums(plan, fetch, keys: set, records: dict) -> dict:
-    """(cells, digest sum) of each rebuilt column, as ``InputDigests`` sums the input's."""
-    impure: set = set()
-    rebuilt = rebuild_cells(plan, fetch, impure, keys)
-    out = {}
-    for key, cells in rebuilt.items():
-        loaded = records.get(key[0], set())
-        whole = key in impure
-        got = n = 0
-        for sk, v in cells.items():
-            if sk in loaded:
-                got += keyed_digest(sk, v, not whole and (key[0], key[1], sk) not in impure)
-                n += 1
-        out[key] = (n, got % DIGEST_MODULUS)
-    return out
+def _sums(plan, fetch, keys: set, records: dict, batch: int | None = None) -> dict:
+    """(cells, digest sum) of each rebuilt column, as ``InputDigests`` sums the input's.
+
+    ``batch``: the cells are rebuilt ``batch`` records at a time (by record key, each table's rows of those
+    records read through its owner's index, ``_Scoped``), so memory is bounded by the batch, not the input.
+    """
+    out: dict = {key: [0, 0] for key in keys}
+    traces = read_traces(plan, fetch)
+    for table in sorted({t for t, _ in keys}):
+        wanted = {k for k in keys if k[0] == table}
+        loaded = records.get(table, set())
+        ranges = [(None, None)]
+        if batch and len(loaded) > batch:
+            ordered = sorted(loaded)
+            ranges = [(ordered[i], ordered[min(i + batch, len(ordered)) - 1]) for i in range(0, len(ordered), batch)]
+        for lo, hi in ranges:
+            impure: set = set()
+            rebuilt = rebuild_cells(plan, fetch if lo is None else _Scoped(plan, fetch, lo, hi), impure, wanted, traces)
+            for key, cells in rebuilt.items():
+                whole = key in impure
+                got, n = out.setdefault(key, [0, 0])[1], 0
+                for sk, v in cells.items():
+                    if sk in loaded and (lo is None or lo <= sk <= hi):  # traced cells come whatever the range
+                        got += keyed_digest(sk, v, not whole and (key[0], key[1], sk) not in impure)
+                        n += 1
+                out[key][0] += n
+                out[key][1] = got % DIGEST_MODULUS
+    return {key: tuple(v) for key, v in out.items()}
+
+
+class _Scoped:
+    """A SQLite ``fetch`` whose whole-table queries (``table_query``) of record tables and the tables they own
+    give only the rows of records keyed ``lo`` to ``hi``: a record table's (and its 1:1 parts') by key, a
+    bridge's or child's through its owner column (the foreign-key index), a grandchild's through its owner's
+    rows in range; entity, value and bookkeeping tables whole."""
+
+    def __init__(self, plan, fetch, lo: int, hi: int):
+        self.fetch = fetch
+        self.where: dict[str, str] = {}
+        owners: dict[str, tuple] = {}  # table -> (its owner column, the owning table; None for a record table)
+        for record in plan.records:
+            for t in [plan.table(record.table), *record_parts(plan, record.table)]:
+                owners[t.name] = (t.columns[0].name, None)
+
+            def walk(nested, parent):
+                below = parent
+                if nested.table:
+                    owners[nested.table] = (plan.table(nested.table).columns[1].name, parent)
+                    below = nested.table
+                for child in nested.children:
+                    walk(child, below)
+
+            for nested in record.nested:
+                walk(nested, record.table)
+
+        def where(table: str) -> str:
+            column, parent = owners[table]
+            if parent is None or owners[parent][1] is None:
+                return f"{_q(column)} BETWEEN {int(lo)} AND {int(hi)}"
+            key = plan.table(parent).columns[0].name
+            return f"{_q(column)} IN (SELECT {_q(key)} FROM {_q(parent)} WHERE {where(parent)})"
+
+        for table in owners:
+            self.where[table_query(table)] = where(table)
+
+    def __call__(self, sql: str) -> list:
+        scope = self.where.get(sql)
+        return self.fetch(sql if scope is None else f"{sql} WHERE {scope}")
 
 
 def _units(plan) -> list[set]:
@@ -294,11 +359,15 @@ def _units(plan) -> list[set]:
     return [u for u in units if u]
 
 
+# records rebuilt at a time by each process of the proof (``_sums``' batch): memory bounded by the batch
+PROOF_BATCH = 5000
+
+
 def _unit_sums(job) -> dict:
     path, plan, keys, records = job
     fetch, close = sqlite_fetch(path)
     try:
-        return _sums(plan, fetch, keys, records)
+        return _sums(plan, fetch, keys, records, PROOF_BATCH)
     finally:
         close()
 
