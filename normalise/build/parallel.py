@@ -5,8 +5,8 @@ of its own in another process (``ProcessRunner``, a pool on this machine) or on 
 
 A runner's ``map(plan, last, partitions, decoding)`` takes the partitions ``(export, decoded or None)`` in
 order and yields ``(export, decoded or None, (rows, builder))`` in the same order; ``decoding`` (limits,
-formats, decisions) decodes a partition that comes undecoded. At most ``depth`` partitions are in flight,
-so memory stays bounded by the partition size whatever the input's.
+formats, decisions) decodes a partition that comes undecoded. At most one partition more than there are
+workers is in flight, so memory stays bounded by the partition size whatever the input's.
 """
 
 from __future__ import annotations
@@ -70,7 +70,7 @@ class ProcessRunner:
         from concurrent.futures import ProcessPoolExecutor
 
         with ProcessPoolExecutor(self.workers, initializer=_start, initargs=(plan, last, decoding)) as pool:
-            yield from _ordered(lambda e, d: pool.submit(_build_here, e, d), partitions, 2 * self.workers)
+            yield from _ordered(lambda e, d: pool.submit(_build_here, e, d), partitions, self.workers + 1)
 
     def describe(self) -> str:
         return f"{self.workers} processes"
@@ -97,7 +97,7 @@ class DaskRunner:
             workers = max(1, len(client.scheduler_info().get("workers", {})))
             shared = client.scatter([plan, last, decoding], broadcast=True)
             yield from _ordered(lambda e, d: client.submit(build_alone, *shared[:2], e, d, shared[2], pure=False),
-                                partitions, 2 * workers)
+                                partitions, workers + 1)
         finally:
             client.close()
             if cluster is not None:
