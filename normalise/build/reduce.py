@@ -80,22 +80,10 @@ def merge(whole: Builder, part: Builder, rows: dict[str, list[tuple]]) -> dict[s
         held = whole.values.get(table)
         if held is None:
             held = whole.values[table] = ValueTable()
-        new = set()
-        for text, entry in found.rows.items():
-            if text not in held.rows:
-                held.rows[text] = entry
-                held.space.holds(text, entry[0])
-                new.add(entry[0])
-        rows[table] = [r for r in rows.get(table, ()) if r[0] in new]
+        rows[table] = _first_seen(held.rows, held.space, found.rows, rows.get(table, ()))
     for table, acc in part.entities.items():
         held = whole.entities[table]
-        new = set()
-        for text, row in acc.first.items():
-            if text not in held.first:
-                held.first[text] = row
-                held.space.holds(text, row[0])
-                new.add(row[0])
-        rows[table] = [r for r in rows.get(table, ()) if r[0] in new]
+        rows[table] = _first_seen(held.first, held.space, acc.first, rows.get(table, ()))
         for kind, seen in acc.seen.items():
             into = held.seen.setdefault(kind, {})
             for ident, hit in seen.items():
@@ -114,6 +102,18 @@ def merge(whole: Builder, part: Builder, rows: dict[str, list[tuple]]) -> dict[s
                 reference.setdefault(text, h)
             held.differing[k] += acc.differing[k]
     return rows
+
+
+def _first_seen(held: dict, space, found: dict, made) -> list[tuple]:
+    """Add the texts of ``found`` (text -> row, its key first) that ``held`` lacks, with their keys; returns the
+    rows of ``made`` that are theirs: the rows of entities or values no earlier partition made."""
+    new = set()
+    for text, row in found.items():
+        if text not in held:
+            held[text] = row
+            space.holds(text, row[0])
+            new.add(row[0])
+    return [r for r in made if r[0] in new]
 
 
 def _merge_audit(whole, part) -> None:
