@@ -30,7 +30,8 @@ exit codes:
      there, a destination that exists (without --replace or --append) or is not a usable database
   3  destination: the call and the data were right but the outputs could not be written: another run
      holds the destination (try again, or --wait), another program has the database locked, the disk is
-     full, the PostgreSQL server is unreachable or refused; the old outputs are as they were
+     full, the PostgreSQL server (or a --dask scheduler) is unreachable or refused; the old outputs are as
+     they were
 """
 
 
